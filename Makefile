@@ -1,0 +1,30 @@
+# Two commands on a fresh machine: `make demo` and `make test`.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test bench lint venv clean
+
+venv: $(STAMP)
+
+$(STAMP): pyproject.toml constraints.txt
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -c constraints.txt -e ".[dev]"
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/levgap demo --out demo-out
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+bench: $(STAMP)
+	$(BIN)/python benchmark/run.py
+
+lint: $(STAMP)
+	$(BIN)/ruff check src tests benchmark
+
+clean:
+	rm -rf $(VENV) demo-out .pytest_cache

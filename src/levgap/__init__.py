@@ -1,0 +1,44 @@
+"""levgap: a statistical peer benchmark of corporate leverage.
+
+Public API::
+
+    panel = levgap.read_panel("panel.csv")
+    result = levgap.analyze(panel)
+    result.targets, result.drivers, result.coefficients, result.model_fit, result.exclusions
+    result.write("out/")
+
+Heavy modules (pandas, statsmodels, ...) are imported on first use, so that
+``import levgap`` and the CLI's quick commands stay fast.
+"""
+
+from __future__ import annotations
+
+from importlib import import_module
+from importlib.metadata import PackageNotFoundError, version
+from typing import Any
+
+try:
+    __version__ = version("levgap")
+except PackageNotFoundError:  # running from a source tree without installation
+    __version__ = "0.0.0"
+
+_EXPORTS = {
+    "read_panel": "levgap.ingest",
+    "validate_panel": "levgap.ingest",
+    "analyze": "levgap.pipeline",
+    "Analysis": "levgap.pipeline",
+    "Panel": "levgap.panel",
+    "RunConfig": "levgap.config",
+    "ModelSpec": "levgap.config",
+    "LevgapError": "levgap.errors",
+    "SchemaError": "levgap.errors",
+    "DataWarning": "levgap.errors",
+}
+
+__all__ = ["__version__", *_EXPORTS]
+
+
+def __getattr__(name: str) -> Any:
+    if name in _EXPORTS:
+        return getattr(import_module(_EXPORTS[name]), name)
+    raise AttributeError(f"module 'levgap' has no attribute {name!r}")

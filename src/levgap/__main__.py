@@ -1,0 +1,3 @@
+from levgap.cli import main
+
+main()

@@ -1,0 +1,271 @@
+"""Frozen option objects for a run, and their TOML form.
+
+A run configuration has four tables; every key is optional::
+
+    [columns]            # schema column = the header in your file
+    total_debt = "Debt (m)"
+
+    [input]
+    delimiter = ";"      # default: detected
+    decimal = ","
+    thousands = "."
+    encoding = "utf-8"   # default: UTF-8 (BOM allowed), Latin-1 fallback with a warning
+    sheet = "Panel"      # workbooks only; default: the first sheet
+    skip_rows = 0        # lines above the header
+
+    [units]
+    scale = 1.0          # multiply every money column by this (e.g. 0.001 for thousands -> millions)
+    currency = "EUR"     # reference currency, for the record
+
+    [model]
+    measures = ["book", "market"]
+    cluster = "firm"     # firm | firm-year | industry
+    winsorize = [0.01, 0.99]
+    min_industry_firms = 5
+    peer_digits = 0      # 0: the industry code as given; n: its first n characters
+    drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
+    leases_as_debt = false
+    folds = 5
+    seed = 0
+    coverage = 0.8
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from levgap.errors import ConfigError
+from levgap.schema import BY_NAME, DRIVERS, MEASURES, OPTIONAL_DRIVERS
+
+CLUSTERS: tuple[str, ...] = ("firm", "firm-year", "industry")
+
+
+@dataclass(frozen=True, slots=True)
+class InputOptions:
+    """How to read a panel file.
+
+    Parameters
+    ----------
+    delimiter : str or None, default=None
+        Field separator of a CSV file; ``None`` detects it from the header line.
+    decimal : str, default="."
+        Decimal mark of numbers.
+    thousands : str or None, default=None
+        Thousands separator of numbers, if any.
+    encoding : str or None, default=None
+        Text encoding; ``None`` reads UTF-8 (with or without BOM) and falls back to
+        Latin-1 with a warning.
+    sheet : str or None, default=None
+        Worksheet of a workbook; ``None`` takes the first.
+    skip_rows : int, default=0
+        Lines above the header line.
+    """
+
+    delimiter: str | None = None
+    decimal: str = "."
+    thousands: str | None = None
+    encoding: str | None = None
+    sheet: str | None = None
+    skip_rows: int = 0
+
+
+@dataclass(frozen=True, slots=True)
+class Units:
+    """Money units of the input.
+
+    Parameters
+    ----------
+    scale : float, default=1.0
+        Every money column is multiplied by this on reading.
+    currency : str or None, default=None
+        Reference currency, recorded in ``run.json``.
+    """
+
+    scale: float = 1.0
+    currency: str | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class ModelSpec:
+    """What to estimate and how.
+
+    Parameters
+    ----------
+    measures : tuple of str, default=("book", "market")
+        Leverage measures to model.
+    cluster : {"firm", "firm-year", "industry"}, default="firm"
+        Clustering of the standard errors.
+    winsorize : tuple of float, default=(0.01, 0.99)
+        Quantiles at which drivers are clipped within each fiscal year; ``(0, 1)`` turns it off.
+    min_industry_firms : int, default=5
+        Industries with fewer firms borrow their effect from a parent group.
+    peer_digits : int, default=0
+        0 uses the industry code as given; n > 0 groups peers by its first n characters.
+    drivers : tuple of str
+        Drivers in the model.
+    leases_as_debt : bool, default=False
+        Add ``lease_liabilities`` to ``total_debt``.
+    folds : int, default=5
+        Folds of the grouped cross-fit.
+    seed : int, default=0
+        Seed of the fold assignment.
+    coverage : float, default=0.8
+        Coverage of the band around each target.
+    model : str, default="linear"
+        Key of the fit function in ``levgap.models.MODELS``.
+    year : int or None, default=None
+        Report only this fiscal year (the model is still fitted on every year).
+    """
+
+    measures: tuple[str, ...] = MEASURES
+    cluster: str = "firm"
+    winsorize: tuple[float, float] = (0.01, 0.99)
+    min_industry_firms: int = 5
+    peer_digits: int = 0
+    drivers: tuple[str, ...] = DRIVERS
+    leases_as_debt: bool = False
+    folds: int = 5
+    seed: int = 0
+    coverage: float = 0.8
+    model: str = "linear"
+    year: int | None = None
+
+    def __post_init__(self) -> None:
+        bad = [m for m in self.measures if m not in MEASURES]
+        if bad or not self.measures:
+            raise ConfigError(
+                f"measures must be among {list(MEASURES)}; got {list(self.measures)}."
+            )
+        if self.cluster not in CLUSTERS:
+            raise ConfigError(f"cluster must be one of {list(CLUSTERS)}; got {self.cluster!r}.")
+        lo, hi = self.winsorize
+        if not (0.0 <= lo < hi <= 1.0):
+            raise ConfigError(
+                f"winsorize must be two quantiles 0 <= low < high <= 1; got {list(self.winsorize)}."
+            )
+        allowed = DRIVERS + OPTIONAL_DRIVERS
+        bad = [d for d in self.drivers if d not in allowed]
+        if bad or not self.drivers:
+            raise ConfigError(
+                f"drivers must be among {list(allowed)}; got {list(self.drivers)}."
+            )
+        if self.min_industry_firms < 1:
+            raise ConfigError(
+                f"min_industry_firms must be at least 1; got {self.min_industry_firms}."
+            )
+        if self.peer_digits < 0:
+            raise ConfigError(f"peer_digits must be 0 or more; got {self.peer_digits}.")
+        if self.folds < 2:
+            raise ConfigError(f"folds must be at least 2; got {self.folds}.")
+        if not (0.0 < self.coverage < 1.0):
+            raise ConfigError(f"coverage must lie strictly between 0 and 1; got {self.coverage}.")
+
+
+@dataclass(frozen=True, slots=True)
+class RunConfig:
+    """Everything a run needs besides the data.
+
+    Parameters
+    ----------
+    columns : dict of str to str
+        Schema column -> header in the user's file.
+    input : InputOptions
+    units : Units
+    model : ModelSpec
+    source : str or None
+        Path of the TOML file this came from.
+    """
+
+    columns: dict[str, str] = field(default_factory=dict)
+    input: InputOptions = field(default_factory=InputOptions)
+    units: Units = field(default_factory=Units)
+    model: ModelSpec = field(default_factory=ModelSpec)
+    source: str | None = None
+
+    @classmethod
+    def from_toml(cls, path: str | Path) -> RunConfig:
+        """Read a run configuration; unknown tables or keys are an error naming them."""
+        p = Path(path)
+        try:
+            raw = tomllib.loads(p.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            raise ConfigError(f"{p}: config file not found.") from None
+        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+            raise ConfigError(f"{p}: not a valid TOML file: {exc}.") from None
+        return cls.from_dict(raw, source=str(p))
+
+    @classmethod
+    def from_dict(cls, raw: dict[str, Any], *, source: str | None = None) -> RunConfig:
+        """Build from the parsed TOML tables (see the module docstring)."""
+        where = f"{source}: " if source else ""
+        tables = {"columns", "input", "units", "model"}
+        unknown = sorted(set(raw) - tables)
+        if unknown:
+            raise ConfigError(
+                f"{where}unknown table [{unknown[0]}]; allowed tables are {sorted(tables)}."
+            )
+        columns = raw.get("columns", {})
+        bad = sorted(set(columns) - set(BY_NAME))
+        if bad:
+            raise ConfigError(
+                f"{where}unknown key {bad[0]!r} in [columns]; allowed keys are the schema "
+                f"columns {sorted(BY_NAME)}."
+            )
+        for k, v in columns.items():
+            if not isinstance(v, str) or not v:
+                raise ConfigError(f"{where}[columns] {k} must be a header name; got {v!r}.")
+        return cls(
+            columns=dict(columns),
+            input=_build(InputOptions, raw.get("input", {}), "input", where),
+            units=_build(Units, raw.get("units", {}), "units", where),
+            model=_build(ModelSpec, raw.get("model", {}), "model", where),
+            source=source,
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """The resolved configuration, as echoed into ``run.json``."""
+        return {
+            "columns": dict(self.columns),
+            "input": dataclasses.asdict(self.input),
+            "units": dataclasses.asdict(self.units),
+            "model": {
+                k: (list(v) if isinstance(v, tuple) else v)
+                for k, v in dataclasses.asdict(self.model).items()
+            },
+            "source": self.source,
+        }
+
+
+def _build(kind: type, values: Any, table: str, where: str) -> Any:
+    if not isinstance(values, dict):
+        raise ConfigError(f"{where}[{table}] must be a table of keys; got {values!r}.")
+    fields = {f.name: f for f in dataclasses.fields(kind)}
+    unknown = sorted(set(values) - set(fields))
+    if unknown:
+        raise ConfigError(
+            f"{where}unknown key {unknown[0]!r} in [{table}]; allowed keys are {sorted(fields)}."
+        )
+    kwargs: dict[str, Any] = {}
+    for k, v in values.items():
+        default = getattr(kind(), k)
+        if isinstance(default, tuple) and isinstance(v, list):
+            v = tuple(v)
+        if isinstance(default, bool) and not isinstance(v, bool):
+            raise ConfigError(f"{where}[{table}] {k} must be true or false; got {v!r}.")
+        if isinstance(default, int) and not isinstance(default, bool) and (
+            isinstance(v, bool) or not isinstance(v, int)
+        ):
+            raise ConfigError(f"{where}[{table}] {k} must be a whole number; got {v!r}.")
+        if isinstance(default, float) and (isinstance(v, bool) or not isinstance(v, int | float)):
+            raise ConfigError(f"{where}[{table}] {k} must be a number; got {v!r}.")
+        if isinstance(default, float):
+            v = float(v)
+        kwargs[k] = v
+    try:
+        return kind(**kwargs)
+    except TypeError as exc:
+        raise ConfigError(f"{where}[{table}]: {exc}.") from None
