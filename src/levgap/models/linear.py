@@ -1,0 +1,354 @@
+r"""Linear model with absorbed fixed effects and cluster-robust covariance.
+
+Estimating equation, for observation :math:`i` in levels :math:`g_1(i), \dots, g_m(i)` of
+``m`` fixed-effect factors (industry and fiscal year in levgap):
+
+.. math:: y_i = c + x_i'\beta + \sum_{j=1}^{m} \alpha_{j, g_j(i)} + e_i,
+
+with the first level of each factor as its reference (:math:`\alpha_{j,0} = 0`), so that the
+coefficients equal ordinary least squares on explicit dummy columns (``y ~ x + C(f1) + C(f2)``).
+
+The normal equations are built from group sums (``np.bincount``) instead of a dense dummy
+matrix: the cost is :math:`O(N K^2)` for the driver block plus :math:`O(N K)` per factor, and
+memory stays at a few copies of the driver matrix, so a million firm-years fit in well under a
+second on two cores.
+
+Covariance conventions
+----------------------
+- ``classical``: :math:`s^2 (Z'Z)^{-1}` with :math:`s^2 = e'e / (N - P)`, where :math:`P` counts
+  the constant, the drivers and every non-reference level of every factor.
+- one-way cluster: :math:`\frac{G}{G-1} \frac{N-1}{N-P} (Z'Z)^{-1} \big(\sum_g s_g s_g'\big)
+  (Z'Z)^{-1}` with :math:`s_g = \sum_{i \in g} z_i e_i`: Stata's small-sample factor, the one
+  behind Petersen (2009)'s published test-data figures, and statsmodels' default for
+  ``cov_type="cluster"``.
+- two-way cluster (firm and year): :math:`V_{firm} + V_{year} - V_{firm \cap year}`, each of
+  the three built as above with its own factor (its own :math:`G`). This is the convention of
+  Petersen's published two-way figures and of Thompson (2011); other libraries apply one
+  common factor instead and differ by up to a few per cent.
+
+Inference on a clustered covariance uses Student's t with :math:`G - 1` degrees of freedom
+(the smallest :math:`G` for two-way); classical inference uses :math:`N - P`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg
+from scipy import stats
+
+from levgap.errors import ModelError
+
+
+@dataclass(frozen=True, slots=True)
+class LinearFit:
+    """Result of :func:`fit_linear`.
+
+    Parameters
+    ----------
+    names : tuple of str
+        Names of the reported terms: ``const`` then the regressors.
+    coef : numpy.ndarray
+        Estimates of the reported terms.
+    vcov : numpy.ndarray or None
+        Their covariance matrix (``None`` when not requested).
+    effects : tuple of numpy.ndarray
+        For each factor, the estimated effect of every level code ``0 .. n_levels - 1``
+        (reference level 0 of the levels present is 0; levels absent from the fit are NaN).
+    effect_weights : tuple of numpy.ndarray
+        Observation counts of each level in the fit (used to average effects for levels the
+        fit never saw).
+    n_obs, n_params : int
+        Observations and estimated parameters (constant, regressors, factor levels).
+    n_clusters : tuple of int
+        Clusters in each clustering dimension (empty for classical errors).
+    df_inference : int
+        Degrees of freedom of the t distribution used for p-values and intervals.
+    r2 : float
+        Centred R² of the full model (fixed effects included).
+    rss : float
+        Residual sum of squares.
+    cov_type : str
+        ``classical``, ``cluster`` or ``cluster2``.
+    """
+
+    names: tuple[str, ...]
+    coef: np.ndarray
+    vcov: np.ndarray | None
+    effects: tuple[np.ndarray, ...]
+    effect_weights: tuple[np.ndarray, ...]
+    n_obs: int
+    n_params: int
+    n_clusters: tuple[int, ...]
+    df_inference: int
+    r2: float
+    rss: float
+    cov_type: str
+
+    @property
+    def std_error(self) -> np.ndarray:
+        """Standard errors of the reported terms."""
+        if self.vcov is None:
+            raise ModelError("standard errors were not computed for this fit; pass cov=True.")
+        return np.sqrt(np.diag(self.vcov))
+
+    def predict(self, X: np.ndarray, effects: Sequence[np.ndarray] = ()) -> np.ndarray:
+        """Fitted values for regressors ``X`` and factor level codes ``effects``.
+
+        A level the fit never saw (NaN effect, or a code beyond the fitted range) takes the
+        observation-weighted mean of the fitted effects of its factor.
+        """
+        X = np.asarray(X, dtype=float)
+        out = self.coef[0] + X @ self.coef[1:]
+        for codes, alpha, weight in zip(effects, self.effects, self.effect_weights, strict=True):
+            out = out + self._effect_values(np.asarray(codes), alpha, weight)
+        return out
+
+    @staticmethod
+    def _effect_values(codes: np.ndarray, alpha: np.ndarray, weight: np.ndarray) -> np.ndarray:
+        known = ~np.isnan(alpha)
+        fallback = float(np.average(alpha[known], weights=weight[known]))
+        filled = np.where(known, alpha, fallback)
+        inside = (codes >= 0) & (codes < len(filled))
+        return np.where(inside, filled[np.clip(codes, 0, len(filled) - 1)], fallback)
+
+    def tidy(self, coverage: float = 0.95) -> dict[str, np.ndarray]:
+        """Estimates, standard errors, t statistics, p-values and intervals as arrays."""
+        se = self.std_error
+        t = self.coef / se
+        p = 2.0 * stats.t.sf(np.abs(t), self.df_inference)
+        q = stats.t.ppf(0.5 + coverage / 2.0, self.df_inference)
+        return {
+            "term": np.array(self.names, dtype=object),
+            "estimate": self.coef,
+            "std_error": se,
+            "t_stat": t,
+            "p_value": p,
+            "ci_low": self.coef - q * se,
+            "ci_high": self.coef + q * se,
+        }
+
+
+def fit_linear(
+    y: np.ndarray,
+    X: np.ndarray,
+    *,
+    effects: Sequence[np.ndarray] = (),
+    clusters: Sequence[np.ndarray] = (),
+    names: Sequence[str] | None = None,
+    n_levels: Sequence[int] | None = None,
+    cov: bool = True,
+) -> LinearFit:
+    """Least squares with a constant, regressors ``X`` and absorbed fixed effects.
+
+    Parameters
+    ----------
+    y : numpy.ndarray of shape (n,)
+        Dependent variable.
+    X : numpy.ndarray of shape (n, k)
+        Regressors (without a constant; one is added).
+    effects : sequence of integer arrays of shape (n,), default=()
+        Level codes (``>= 0``) of each fixed-effect factor. Codes need not be contiguous.
+    clusters : sequence of arrays of shape (n,), default=()
+        ``()`` gives classical errors, one array one-way clustered errors, two arrays two-way
+        clustered errors (see the module docstring for the conventions).
+    names : sequence of str, optional
+        Names of the columns of ``X``; default ``x0, x1, ...``.
+    n_levels : sequence of int, optional
+        Number of level codes of each factor, so that ``effects`` of the result cover codes the
+        fit did not see; default ``max(code) + 1``.
+    cov : bool, default=True
+        Whether to compute the covariance matrix (cross-fit folds skip it).
+
+    Returns
+    -------
+    LinearFit
+
+    Raises
+    ------
+    ModelError
+        Too few observations, non-finite values, or regressors without variation.
+    """
+    y = np.asarray(y, dtype=float)
+    X = np.asarray(X, dtype=float)
+    if X.ndim == 1:
+        X = X[:, None]
+    n, k = X.shape
+    if y.shape != (n,):
+        raise ModelError(f"y must have {n} values to match X; got shape {y.shape}.")
+    if not (np.isfinite(y).all() and np.isfinite(X).all()):
+        raise ModelError("the model's inputs must be finite; got NaN or infinite values.")
+    names = tuple(names) if names is not None else tuple(f"x{j}" for j in range(k))
+    if len(names) != k:
+        raise ModelError(f"names must have {k} entries; got {len(names)}.")
+    if len(clusters) > 2:
+        raise ModelError(f"clusters must have at most two dimensions; got {len(clusters)}.")
+
+    # Compress each factor to the levels present; the first present level is the reference.
+    local: list[np.ndarray] = []
+    present: list[np.ndarray] = []
+    for codes in effects:
+        codes = np.asarray(codes)
+        if codes.shape != (n,) or codes.size and codes.min() < 0:
+            raise ModelError("effect codes must be non-negative integers, one per observation.")
+        levels, inverse = np.unique(codes, return_inverse=True)
+        present.append(levels)
+        local.append(inverse.astype(np.intp))
+    sizes = [len(lv) for lv in present]
+    p = 1 + k + sum(s - 1 for s in sizes)
+    if n <= p:
+        raise ModelError(
+            f"the model needs more observations than parameters; got {n} observations for "
+            f"{p} parameters."
+        )
+
+    W = np.empty((n, k + 1))
+    W[:, 0] = 1.0
+    W[:, 1:] = X
+    A, b = _normal_equations(W, y, local, sizes)
+    theta, A_inv_rows = _solve(A, b, k + 1)
+
+    fitted = W @ theta[: k + 1]
+    offset = k + 1
+    alphas: list[np.ndarray] = []
+    for inv, size in zip(local, sizes, strict=True):
+        alpha = np.concatenate([[0.0], theta[offset : offset + size - 1]])
+        fitted += alpha[inv]
+        alphas.append(alpha)
+        offset += size - 1
+    resid = y - fitted
+    rss = float(resid @ resid)
+    tss = float(((y - y.mean()) ** 2).sum())
+    r2 = 1.0 - rss / tss if tss > 0 else float("nan")
+
+    full_effects: list[np.ndarray] = []
+    full_weights: list[np.ndarray] = []
+    for j, (levels, alpha, inv) in enumerate(zip(present, alphas, local, strict=True)):
+        total = int(n_levels[j]) if n_levels is not None else int(levels.max()) + 1 if len(
+            levels
+        ) else 0
+        e = np.full(total, np.nan)
+        e[levels] = alpha
+        w = np.zeros(total)
+        w[levels] = np.bincount(inv, minlength=len(levels))
+        full_effects.append(e)
+        full_weights.append(w)
+
+    vcov = None
+    n_clusters: tuple[int, ...] = ()
+    df_inf = n - p
+    cov_type = "classical"
+    if cov:
+        if not clusters:
+            vcov = (rss / (n - p)) * A_inv_rows[:, : k + 1]
+        else:
+            # Influence of each observation on the reported terms: rows of (Z'Z)^-1 times z_i e_i.
+            U = W @ A_inv_rows[:, : k + 1].T
+            offset = k + 1
+            for inv, size in zip(local, sizes, strict=True):
+                block = np.zeros((size, k + 1))
+                block[1:] = A_inv_rows[:, offset : offset + size - 1].T
+                U += block[inv]
+                offset += size - 1
+            U *= resid[:, None]
+            codes = [np.unique(np.asarray(c), return_inverse=True)[1] for c in clusters]
+            if len(codes) == 1:
+                vcov, g = _cluster_meat(U, codes[0], n, p)
+                n_clusters = (g,)
+                cov_type = "cluster"
+            else:
+                v1, g1 = _cluster_meat(U, codes[0], n, p)
+                v2, g2 = _cluster_meat(U, codes[1], n, p)
+                both = np.unique(codes[0].astype(np.int64) * (codes[1].max() + 1) + codes[1],
+                                 return_inverse=True)[1]
+                v12, _ = _cluster_meat(U, both, n, p)
+                vcov = v1 + v2 - v12
+                n_clusters = (g1, g2)
+                cov_type = "cluster2"
+            df_inf = min(n_clusters) - 1
+            if df_inf < 1:
+                raise ModelError(
+                    f"clustered errors need at least two clusters; got {min(n_clusters)}."
+                )
+    return LinearFit(
+        names=("const", *names),
+        coef=theta[: k + 1].copy(),
+        vcov=vcov,
+        effects=tuple(full_effects),
+        effect_weights=tuple(full_weights),
+        n_obs=n,
+        n_params=p,
+        n_clusters=n_clusters,
+        df_inference=df_inf,
+        r2=r2,
+        rss=rss,
+        cov_type=cov_type,
+    )
+
+
+def _normal_equations(
+    W: np.ndarray, y: np.ndarray, local: list[np.ndarray], sizes: list[int]
+) -> tuple[np.ndarray, np.ndarray]:
+    kw = W.shape[1]
+    p = kw + sum(s - 1 for s in sizes)
+    A = np.zeros((p, p))
+    b = np.zeros(p)
+    A[:kw, :kw] = W.T @ W
+    b[:kw] = W.T @ y
+    starts = []
+    offset = kw
+    for inv, size in zip(local, sizes, strict=True):
+        sl = slice(offset, offset + size - 1)
+        counts = np.bincount(inv, minlength=size).astype(float)
+        A[sl, sl] = np.diag(counts[1:])
+        sums = np.stack([np.bincount(inv, weights=W[:, c], minlength=size) for c in range(kw)])
+        A[:kw, sl] = sums[:, 1:]
+        A[sl, :kw] = sums[:, 1:].T
+        b[sl] = np.bincount(inv, weights=y, minlength=size)[1:]
+        starts.append(offset)
+        offset += size - 1
+    for a in range(len(local)):
+        for c in range(a + 1, len(local)):
+            cross = np.bincount(
+                local[a] * sizes[c] + local[c], minlength=sizes[a] * sizes[c]
+            ).reshape(sizes[a], sizes[c])[1:, 1:]
+            sa = slice(starts[a], starts[a] + sizes[a] - 1)
+            sc = slice(starts[c], starts[c] + sizes[c] - 1)
+            A[sa, sc] = cross
+            A[sc, sa] = cross.T
+    return A, b
+
+
+def _solve(A: np.ndarray, b: np.ndarray, n_rows: int) -> tuple[np.ndarray, np.ndarray]:
+    """Solve the normal equations; also return the first ``n_rows`` rows of the inverse."""
+    # Scale to unit diagonal so the Cholesky test of rank is not fooled by units.
+    d = np.sqrt(np.diag(A))
+    if np.any(d == 0):
+        raise ModelError("a regressor or fixed-effect level has no observations or is all zero.")
+    As = A / np.outer(d, d)
+    try:
+        factor = scipy.linalg.cho_factor(As, lower=False, check_finite=False)
+        rcond = 1.0 / np.linalg.cond(As, 1) if As.shape[0] < 400 else None
+    except (np.linalg.LinAlgError, scipy.linalg.LinAlgError):
+        factor, rcond = None, 0.0
+    if factor is None or (rcond is not None and rcond < 1e-12):
+        raise ModelError(
+            "the drivers are collinear with each other or with the industry and year effects "
+            "(for example a driver that is constant, or identical within every industry); "
+            "drop that driver or widen the panel."
+        )
+    theta = scipy.linalg.cho_solve(factor, b / d, check_finite=False) / d
+    eye = np.zeros((A.shape[0], n_rows))
+    eye[np.arange(n_rows), np.arange(n_rows)] = 1.0
+    rows = (scipy.linalg.cho_solve(factor, eye, check_finite=False) / d[:, None] / d[:n_rows]).T
+    return theta, rows
+
+
+def _cluster_meat(U: np.ndarray, codes: np.ndarray, n: int, p: int) -> tuple[np.ndarray, int]:
+    g = int(codes.max()) + 1
+    S = np.stack([np.bincount(codes, weights=U[:, c], minlength=g) for c in range(U.shape[1])],
+                 axis=1)
+    factor = g / (g - 1) * (n - 1) / (n - p) if g > 1 else np.nan
+    return factor * (S.T @ S), g
