@@ -43,6 +43,22 @@ from levgap.errors import ModelError
 
 
 @dataclass(frozen=True, slots=True)
+class Borrow:
+    """Observations of one factor that take a parent group's effect.
+
+    Parameters
+    ----------
+    parent : numpy.ndarray of int, shape (n,)
+        Parent-group id of each observation, ``-1`` for observations with a level of their own.
+    members : numpy.ndarray of bool, shape (n_parents, n_levels)
+        ``members[p, l]`` is true when level ``l`` belongs to parent group ``p``.
+    """
+
+    parent: np.ndarray
+    members: np.ndarray
+
+
+@dataclass(frozen=True, slots=True)
 class LinearFit:
     """Result of :func:`fit_linear`.
 
@@ -56,10 +72,10 @@ class LinearFit:
         Their covariance matrix (``None`` when not requested).
     effects : tuple of numpy.ndarray
         For each factor, the estimated effect of every level code ``0 .. n_levels - 1``
-        (reference level 0 of the levels present is 0; levels absent from the fit are NaN).
+        (reference level, the first present, is 0; levels absent from the fit are NaN).
     effect_weights : tuple of numpy.ndarray
-        Observation counts of each level in the fit (used to average effects for levels the
-        fit never saw).
+        Observation counts of each level in the fit (borrowing observations not counted); they
+        weight the average effect given to borrowing observations and to unseen levels.
     n_obs, n_params : int
         Observations and estimated parameters (constant, regressors, factor levels).
     n_clusters : tuple of int
@@ -94,25 +110,42 @@ class LinearFit:
             raise ModelError("standard errors were not computed for this fit; pass cov=True.")
         return np.sqrt(np.diag(self.vcov))
 
-    def predict(self, X: np.ndarray, effects: Sequence[np.ndarray] = ()) -> np.ndarray:
-        """Fitted values for regressors ``X`` and factor level codes ``effects``.
+    def effect_of(
+        self, j: int, codes: np.ndarray, borrow: Borrow | None = None
+    ) -> np.ndarray:
+        """Effect of factor ``j`` for each observation.
 
-        A level the fit never saw (NaN effect, or a code beyond the fitted range) takes the
-        observation-weighted mean of the fitted effects of its factor.
+        A level the fit never saw, and an observation that borrows from a parent group, take
+        the observation-weighted mean of the fitted effects of the parent's members (or of all
+        levels of the factor).
         """
-        X = np.asarray(X, dtype=float)
-        out = self.coef[0] + X @ self.coef[1:]
-        for codes, alpha, weight in zip(effects, self.effects, self.effect_weights, strict=True):
-            out = out + self._effect_values(np.asarray(codes), alpha, weight)
+        alpha, weight = self.effects[j], self.effect_weights[j]
+        codes = np.asarray(codes)
+        known = ~np.isnan(alpha)
+        filled = np.where(known, alpha, 0.0)
+        w = np.where(known, weight, 0.0)
+        overall = float(filled @ w / w.sum())
+        inside = (codes >= 0) & (codes < len(filled))
+        known_row = inside & known[np.clip(codes, 0, len(filled) - 1)]
+        out = np.where(known_row, filled[np.clip(codes, 0, len(filled) - 1)], overall)
+        if borrow is not None:
+            parent_value = _parent_means(borrow.members, filled, w, overall)
+            rows = borrow.parent >= 0
+            out[rows] = parent_value[borrow.parent[rows]]
         return out
 
-    @staticmethod
-    def _effect_values(codes: np.ndarray, alpha: np.ndarray, weight: np.ndarray) -> np.ndarray:
-        known = ~np.isnan(alpha)
-        fallback = float(np.average(alpha[known], weights=weight[known]))
-        filled = np.where(known, alpha, fallback)
-        inside = (codes >= 0) & (codes < len(filled))
-        return np.where(inside, filled[np.clip(codes, 0, len(filled) - 1)], fallback)
+    def predict(
+        self,
+        X: np.ndarray,
+        effects: Sequence[np.ndarray] = (),
+        borrow: Sequence[Borrow | None] | None = None,
+    ) -> np.ndarray:
+        """Fitted values for regressors ``X`` and factor level codes ``effects``."""
+        X = np.asarray(X, dtype=float)
+        out = self.coef[0] + X @ self.coef[1:]
+        for j, codes in enumerate(effects):
+            out = out + self.effect_of(j, codes, borrow[j] if borrow else None)
+        return out
 
     def tidy(self, coverage: float = 0.95) -> dict[str, np.ndarray]:
         """Estimates, standard errors, t statistics, p-values and intervals as arrays."""
@@ -131,6 +164,16 @@ class LinearFit:
         }
 
 
+def _parent_means(
+    members: np.ndarray, values: np.ndarray, weights: np.ndarray, overall: float
+) -> np.ndarray:
+    mw = members[:, : len(weights)] * weights[None, : members.shape[1]]
+    total = mw.sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        means = (mw @ values[: members.shape[1]]) / total
+    return np.where(total > 0, means, overall)
+
+
 def fit_linear(
     y: np.ndarray,
     X: np.ndarray,
@@ -139,6 +182,7 @@ def fit_linear(
     clusters: Sequence[np.ndarray] = (),
     names: Sequence[str] | None = None,
     n_levels: Sequence[int] | None = None,
+    borrow: Sequence[Borrow | None] | None = None,
     cov: bool = True,
 ) -> LinearFit:
     """Least squares with a constant, regressors ``X`` and absorbed fixed effects.
@@ -150,15 +194,22 @@ def fit_linear(
     X : numpy.ndarray of shape (n, k)
         Regressors (without a constant; one is added).
     effects : sequence of integer arrays of shape (n,), default=()
-        Level codes (``>= 0``) of each fixed-effect factor. Codes need not be contiguous.
+        Level codes (``>= 0``) of each fixed-effect factor; codes need not be contiguous.
+        ``-1`` marks an observation that borrows its effect (see ``borrow``).
     clusters : sequence of arrays of shape (n,), default=()
         ``()`` gives classical errors, one array one-way clustered errors, two arrays two-way
         clustered errors (see the module docstring for the conventions).
     names : sequence of str, optional
         Names of the columns of ``X``; default ``x0, x1, ...``.
     n_levels : sequence of int, optional
-        Number of level codes of each factor, so that ``effects`` of the result cover codes the
+        Number of level codes of each factor, so that the result's ``effects`` cover codes the
         fit did not see; default ``max(code) + 1``.
+    borrow : sequence of Borrow or None, optional
+        Per factor, which observations borrow their effect from a parent group instead of
+        having a level of their own. A borrowing observation's effect is the
+        observation-weighted mean of the effects of the parent's member levels present in the
+        fit (or of all levels when none is present): its row of the design holds those
+        weights instead of a dummy, so the model stays linear and exact.
     cov : bool, default=True
         Whether to compute the covariance matrix (cross-fit folds skip it).
 
@@ -185,39 +236,75 @@ def fit_linear(
         raise ModelError(f"names must have {k} entries; got {len(names)}.")
     if len(clusters) > 2:
         raise ModelError(f"clusters must have at most two dimensions; got {len(clusters)}.")
+    borrow = list(borrow) if borrow is not None else [None] * len(effects)
+    if len(borrow) != len(effects):
+        raise ModelError("borrow must have one entry per factor.")
 
-    # Compress each factor to the levels present; the first present level is the reference.
+    # Rows that borrow in any factor get a dense design row; all others go through group sums.
+    dense = np.zeros(n, dtype=bool)
+    for codes, b in zip(effects, borrow, strict=True):
+        codes = np.asarray(codes)
+        if codes.shape != (n,):
+            raise ModelError("effect codes must be integers, one per observation.")
+        neg = codes < 0
+        if b is not None:
+            if not np.array_equal(neg, np.asarray(b.parent) >= 0):
+                raise ModelError("borrowing observations must have effect code -1 and a parent.")
+            dense |= neg
+        elif neg.any():
+            raise ModelError("effect codes must be non-negative unless they borrow.")
+    sparse = ~dense
+
+    # Compress each factor to the levels present among own-level rows; the first is reference.
     local: list[np.ndarray] = []
     present: list[np.ndarray] = []
     for codes in effects:
         codes = np.asarray(codes)
-        if codes.shape != (n,) or codes.size and codes.min() < 0:
-            raise ModelError("effect codes must be non-negative integers, one per observation.")
-        levels, inverse = np.unique(codes, return_inverse=True)
+        own = codes >= 0
+        levels, inverse = np.unique(codes[own], return_inverse=True)
+        inv = np.full(n, -1, dtype=np.intp)
+        inv[own] = inverse
         present.append(levels)
-        local.append(inverse.astype(np.intp))
+        local.append(inv)
     sizes = [len(lv) for lv in present]
+    if any(s == 0 for s in sizes):
+        raise ModelError("every fixed-effect factor needs at least one level of its own.")
     p = 1 + k + sum(s - 1 for s in sizes)
     if n <= p:
         raise ModelError(
             f"the model needs more observations than parameters; got {n} observations for "
             f"{p} parameters."
         )
+    totals = [
+        int(n_levels[j]) if n_levels is not None else int(present[j].max()) + 1
+        for j in range(len(effects))
+    ]
+    counts = [np.bincount(inv[inv >= 0], minlength=s).astype(float)
+              for inv, s in zip(local, sizes, strict=True)]
 
     W = np.empty((n, k + 1))
     W[:, 0] = 1.0
     W[:, 1:] = X
-    A, b = _normal_equations(W, y, local, sizes)
-    theta, A_inv_rows = _solve(A, b, k + 1)
+    ws, ys = (W, y) if not dense.any() else (W[sparse], y[sparse])
+    A, b_vec = _normal_equations(ws, ys, [inv[sparse] for inv in local], sizes)
+    Zd = None
+    if dense.any():
+        Zd = _dense_rows(W[dense], [inv[dense] for inv in local], sizes, present, borrow,
+                         dense, counts)
+        A += Zd.T @ Zd
+        b_vec += Zd.T @ y[dense]
+    theta, A_inv_rows = _solve(A, b_vec, k + 1)
 
-    fitted = W @ theta[: k + 1]
+    alphas = []
     offset = k + 1
-    alphas: list[np.ndarray] = []
-    for inv, size in zip(local, sizes, strict=True):
-        alpha = np.concatenate([[0.0], theta[offset : offset + size - 1]])
-        fitted += alpha[inv]
-        alphas.append(alpha)
+    for size in sizes:
+        alphas.append(np.concatenate([[0.0], theta[offset : offset + size - 1]]))
         offset += size - 1
+    fitted = W @ theta[: k + 1]
+    for inv, alpha in zip(local, alphas, strict=True):
+        fitted[sparse] += alpha[inv[sparse]]
+    if Zd is not None:
+        fitted[dense] = Zd @ theta
     resid = y - fitted
     rss = float(resid @ resid)
     tss = float(((y - y.mean()) ** 2).sum())
@@ -225,14 +312,11 @@ def fit_linear(
 
     full_effects: list[np.ndarray] = []
     full_weights: list[np.ndarray] = []
-    for j, (levels, alpha, inv) in enumerate(zip(present, alphas, local, strict=True)):
-        total = int(n_levels[j]) if n_levels is not None else int(levels.max()) + 1 if len(
-            levels
-        ) else 0
+    for levels, alpha, cnt, total in zip(present, alphas, counts, totals, strict=True):
         e = np.full(total, np.nan)
         e[levels] = alpha
         w = np.zeros(total)
-        w[levels] = np.bincount(inv, minlength=len(levels))
+        w[levels] = cnt
         full_effects.append(e)
         full_weights.append(w)
 
@@ -244,14 +328,16 @@ def fit_linear(
         if not clusters:
             vcov = (rss / (n - p)) * A_inv_rows[:, : k + 1]
         else:
-            # Influence of each observation on the reported terms: rows of (Z'Z)^-1 times z_i e_i.
+            # Influence of each observation on the reported terms: z_i' (Z'Z)^-1 e_i.
             U = W @ A_inv_rows[:, : k + 1].T
             offset = k + 1
             for inv, size in zip(local, sizes, strict=True):
                 block = np.zeros((size, k + 1))
                 block[1:] = A_inv_rows[:, offset : offset + size - 1].T
-                U += block[inv]
+                U[sparse] += block[inv[sparse]]
                 offset += size - 1
+            if Zd is not None:
+                U[dense] = Zd @ A_inv_rows.T
             U *= resid[:, None]
             codes = [np.unique(np.asarray(c), return_inverse=True)[1] for c in clusters]
             if len(codes) == 1:
@@ -261,8 +347,10 @@ def fit_linear(
             else:
                 v1, g1 = _cluster_meat(U, codes[0], n, p)
                 v2, g2 = _cluster_meat(U, codes[1], n, p)
-                both = np.unique(codes[0].astype(np.int64) * (codes[1].max() + 1) + codes[1],
-                                 return_inverse=True)[1]
+                both = np.unique(
+                    codes[0].astype(np.int64) * (int(codes[1].max()) + 1) + codes[1],
+                    return_inverse=True,
+                )[1]
                 v12, _ = _cluster_meat(U, both, n, p)
                 vcov = v1 + v2 - v12
                 n_clusters = (g1, g2)
@@ -286,6 +374,35 @@ def fit_linear(
         rss=rss,
         cov_type=cov_type,
     )
+
+
+def _dense_rows(
+    Wd: np.ndarray,
+    local: list[np.ndarray],
+    sizes: list[int],
+    present: list[np.ndarray],
+    borrow: list[Borrow | None],
+    dense: np.ndarray,
+    counts: list[np.ndarray],
+) -> np.ndarray:
+    """Full design rows (constant, regressors, every factor's columns) of borrowing rows."""
+    blocks = [Wd]
+    for inv, size, levels, b, cnt in zip(local, sizes, present, borrow, counts, strict=True):
+        block = np.zeros((len(Wd), size))
+        own = inv >= 0
+        block[np.flatnonzero(own), inv[own]] = 1.0
+        if b is not None:
+            rows = ~own
+            parent = np.asarray(b.parent)[dense][rows]
+            members = np.asarray(b.members)
+            mw = np.zeros((members.shape[0], size))
+            inside = levels < members.shape[1]
+            mw[:, inside] = members[:, levels[inside]] * cnt[None, inside]
+            total = mw.sum(axis=1, keepdims=True)
+            mix = np.where(total > 0, mw / np.where(total > 0, total, 1.0), cnt / cnt.sum())
+            block[rows] = mix[parent]
+        blocks.append(block[:, 1:])
+    return np.hstack(blocks)
 
 
 def _normal_equations(
