@@ -1,0 +1,75 @@
+"""Reading panels: files in, a validated :class:`~levgap.panel.Panel` out.
+
+``read_panel`` = ``readers.read_table`` (bytes -> cells under the user's headers) followed by
+``validate.validate_panel`` (cells -> schema-v1 columns, row rules, exclusion ledger).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from levgap.config import RunConfig
+from levgap.ingest.readers import RawTable, read_table
+from levgap.ingest.validate import FLAGS, REASONS, resolve_columns, validate_panel
+from levgap.panel import Panel
+
+__all__ = [
+    "FLAGS",
+    "REASONS",
+    "RawTable",
+    "read_panel",
+    "read_table",
+    "resolve_columns",
+    "validate_panel",
+]
+
+
+def read_panel(path: str | Path, *, config: RunConfig | None = None) -> Panel:
+    """Read and validate a schema-v1 panel file.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        A CSV (any of ``, ; tab |`` as delimiter), Parquet or XLSX file, one row per firm
+        and fiscal year.
+    config : RunConfig, optional
+        Column map (``[columns]``), reading options (``[input]``) and money units
+        (``[units]``); defaults read the file as it is.
+
+    Returns
+    -------
+    Panel
+        Kept rows in ``data``, excluded rows in ``exclusions``, the file's digest and row
+        count, and notes in ``warnings``.
+
+    Raises
+    ------
+    SchemaError
+        The file cannot be read, a required column is missing, or several currencies appear
+        without ``fx_rate``; the one-line message names the file (and row and column where
+        known).
+    ConfigError
+        ``[input] encoding`` names no known encoding.
+
+    Warns
+    -----
+    DataWarning
+        The text was not UTF-8 and was read as Windows-1252/Latin-1; optional values were
+        invalid and set missing.
+
+    Examples
+    --------
+    >>> panel = read_panel("panel.csv")  # doctest: +SKIP
+    >>> panel.data.head(), panel.exclusions  # doctest: +SKIP
+    """
+    config = config or RunConfig()
+    raw = read_table(path, config.input)
+    return validate_panel(
+        raw.frame,
+        source=raw.source,
+        config=config,
+        n_input_rows=raw.n_input_rows,
+        sha256=raw.sha256,
+        source_rows=raw.source_rows,
+        notes=raw.notes,
+    )

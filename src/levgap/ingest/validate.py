@@ -1,0 +1,632 @@
+"""Validation of a panel's cells against schema v1: the row rules and the exclusion ledger.
+
+Every input row ends in exactly one place: ``Panel.data`` (kept, perhaps with flags) or
+``Panel.exclusions`` (left out of every measure, ``measure`` empty, with one reason code and
+a detail naming the columns and values). All checks are vectorised; Python loops run only to
+word the details of excluded rows.
+
+A whole file is refused (:class:`~levgap.errors.SchemaError`) when a required column is
+missing, a header is ambiguous, or several currencies appear without an ``fx_rate`` column.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable, Mapping
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from levgap.config import InputOptions, RunConfig
+from levgap.errors import SchemaError, warn_data
+from levgap.panel import EXCLUSION_COLUMNS, Panel
+from levgap.schema import BY_NAME, COLUMNS, KEY, NUMERIC, REQUIRED
+
+REASONS: dict[str, str] = {
+    "non_numeric": "a required number (or fx_rate) holds text that is not a number",
+    "missing_value": "a required value is blank (or fx_rate is blank where several "
+    "currencies appear)",
+    "bad_fiscal_year": "fiscal_year is not a whole number between 1800 and 2200",
+    "bad_fx_rate": "fx_rate is zero or negative",
+    "assets_not_positive": "total_assets is zero or negative",
+    "negative_debt": "total_debt is negative",
+    "negative_ppe": "ppe_net is negative",
+    "debt_above_assets": "total_debt is larger than total_assets",
+    "ppe_above_assets": "ppe_net is larger than total_assets",
+    "ebitda_above_assets": "the absolute value of ebitda is larger than total_assets",
+    "duplicate_row": "an exact copy of an earlier row (the first copy is kept)",
+    "conflicting_duplicate": "the same firm_id and fiscal_year appear in several rows that "
+    "differ; every copy is left out",
+}
+"""Reason codes of whole-row exclusions, in the order they are tested (a row gets the first)."""
+
+FLAGS: dict[str, str] = {
+    "negative_book_equity": "book_equity is negative; the row is kept",
+    "market_equity_from_shares": "market_equity was blank and is shares_outstanding * "
+    "share_price",
+    "no_market_equity": "no usable market_equity (nor shares and price); the row gets a book "
+    "target only and a ledger line for the market measure",
+    **{
+        f"invalid_{c.name}": f"{c.name} was not a number or below its minimum and is treated "
+        "as missing"
+        for c in COLUMNS
+        if not c.required and c.kind == "number"
+    },
+}
+"""Flags of kept rows, written ``;``-joined into the ``flags`` column."""
+
+NA_TOKENS: tuple[str, ...] = ("", "na", "n/a", "#n/a", "nan", "null", "none", "-", "--", ".")
+"""Cell texts (compared without case and surrounding spaces) read as a blank value."""
+
+YEAR_RANGE: tuple[int, int] = (1800, 2200)
+
+_TEXT = tuple(c.name for c in COLUMNS if c.kind == "text")
+_NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
+_SPACES = (" ", "\u00a0", "\u202f")
+_EXCLUDE_ON_BAD = frozenset(REQUIRED) | {"fx_rate"}
+
+
+def validate_panel(
+    frame: pd.DataFrame,
+    *,
+    source: str = "<memory>",
+    config: RunConfig | None = None,
+    n_input_rows: int | None = None,
+    sha256: str | None = None,
+    source_rows: Iterable[int] | None = None,
+    notes: Iterable[str] = (),
+) -> Panel:
+    """Check a frame of panel cells against schema v1 and build the exclusion ledger.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        One row per firm-year; columns under schema names or the user's headers (mapped by
+        ``config.columns``; schema names also match regardless of case, spaces and ``-``/``_``).
+        Cells may be numbers or text (text numbers follow ``config.input.decimal`` and
+        ``thousands``).
+    source : str, default="<memory>"
+        Name of the input, used in messages.
+    config : RunConfig, optional
+        Column map, number format and units; defaults to ``RunConfig()``.
+    n_input_rows : int, optional
+        Data rows of the input; defaults to ``len(frame)``.
+    sha256 : str, optional
+        Digest of the input file, for the record.
+    source_rows : iterable of int, optional
+        1-based data row of each frame row; defaults to ``1..len(frame)``.
+    notes : iterable of str, default=()
+        Notes from the reader, carried into ``Panel.warnings``.
+
+    Returns
+    -------
+    Panel
+        ``data`` holds every schema column (absent optional numbers are NaN, absent optional
+        text is ``""``), money multiplied by ``config.units.scale`` and by ``fx_rate``, plus
+        ``source_row`` and ``flags``; ``exclusions`` holds one line per excluded row.
+
+    Raises
+    ------
+    SchemaError
+        A required column is missing, a header is ambiguous, or several currencies appear
+        without an ``fx_rate`` column.
+
+    Warns
+    -----
+    DataWarning
+        Optional values that are not numbers or below their minimum were set missing.
+    """
+    config = config or RunConfig()
+    opts = config.input
+    n = len(frame)
+    rows = (
+        np.arange(1, n + 1, dtype=np.int64)
+        if source_rows is None
+        else np.asarray(list(source_rows) if not hasattr(source_rows, "__len__")
+                        else source_rows, dtype=np.int64)
+    )
+    if len(rows) != n:
+        raise SchemaError(
+            f"{source}: source_rows must give one row number per frame row; got {len(rows)} "
+            f"for {n} rows."
+        )
+    notes = list(notes)
+    names = resolve_columns([str(c) for c in frame.columns], config.columns, source)
+    ignored = [str(c) for c in frame.columns if str(c) not in set(names.values())]
+    if ignored:
+        notes.append(f"columns not in schema v1 were ignored: {_listing(ignored)}")
+
+    text: dict[str, np.ndarray] = {}
+    for col in _TEXT:
+        if col in names:
+            text[col] = _text(frame[names[col]])
+        else:
+            text[col] = np.full(n, "", dtype=object)
+    values: dict[str, np.ndarray] = {}
+    blank: dict[str, np.ndarray] = {}
+    bad: dict[str, np.ndarray] = {}
+    raw: dict[str, pd.Series] = {}
+    for col in NUMERIC:
+        if col in names:
+            values[col], blank[col], bad[col] = parse_numbers(frame[names[col]], opts)
+            raw[col] = frame[names[col]]
+        else:
+            values[col] = np.full(n, np.nan)
+            blank[col] = np.ones(n, dtype=bool)
+            bad[col] = np.zeros(n, dtype=bool)
+
+    currencies = pd.unique(pd.Series(text["currency"]).str.upper())
+    currencies = sorted(c for c in currencies if c)
+    multi_currency = len(currencies) > 1
+    if multi_currency and "fx_rate" not in names:
+        raise SchemaError(
+            f"{source}: an fx_rate column must be given when several currencies appear; got "
+            f"currencies {_listing(currencies, 8)} and no fx_rate column. Add fx_rate (money "
+            "times fx_rate = reference currency) or split the file by currency."
+        )
+
+    checks = _row_checks(text, values, blank, bad, config, multi_currency)
+    reason = np.full(n, "", dtype=object)
+    details: dict[int, list[str]] = {}
+    for code, mask, describe in checks:
+        hit = np.flatnonzero(mask)
+        if not len(hit):
+            continue
+        fresh = hit[reason[hit] == ""]
+        reason[fresh] = code
+        for i, msg in zip(hit, describe(hit, raw, rows), strict=True):
+            details.setdefault(int(i), []).append(msg)
+
+    dup_code, dup_detail = _duplicates(text, values, bad, rows)
+    for i, (code, msg) in enumerate(zip(dup_code, dup_detail, strict=True)):
+        if code and reason[i] == "":
+            reason[i] = code
+            details.setdefault(i, []).append(msg)
+
+    excluded = reason != ""
+    flags, opt_notes = _optional_values(values, blank, bad, names, rows, excluded)
+    notes.extend(opt_notes)
+    for msg in opt_notes:
+        warn_data(f"{source}: {msg}", stacklevel=3)
+
+    data = _kept(text, values, flags, rows, ~excluded, config, multi_currency)
+    exclusions = _ledger(np.flatnonzero(excluded), rows, text, values, bad, reason, details)
+    return Panel(
+        data=data,
+        exclusions=exclusions,
+        source=str(source),
+        sha256=sha256,
+        n_input_rows=n if n_input_rows is None else int(n_input_rows),
+        warnings=tuple(notes),
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# columns
+
+
+def _norm(name: str) -> str:
+    return re.sub(r"[\s_\-]+", "_", name.strip().lower()).strip("_")
+
+
+def resolve_columns(
+    headers: list[str], mapping: Mapping[str, str], source: str = "<memory>"
+) -> dict[str, str]:
+    """Find the header of each schema column present in a file.
+
+    Parameters
+    ----------
+    headers : list of str
+        Headers of the file.
+    mapping : mapping of str to str
+        Schema column -> the user's header (``[columns]`` of ``run.toml``). A mapped header
+        is matched exactly, else regardless of case and surrounding spaces.
+    source : str, default="<memory>"
+        Name of the input, for messages.
+
+    Returns
+    -------
+    dict of str to str
+        Schema column -> header, for the schema columns found.
+
+    Raises
+    ------
+    SchemaError
+        A mapped header is absent, a schema column matches several headers, or a required
+        column is missing (the message names the missing columns and the columns found).
+    """
+    found: dict[str, str] = {}
+    by_norm: dict[str, list[str]] = {}
+    for h in headers:
+        by_norm.setdefault(_norm(h), []).append(h)
+    for col in BY_NAME:
+        if col in mapping:
+            want = mapping[col]
+            if want in headers:
+                found[col] = want
+                continue
+            loose = [h for h in headers if h.strip().lower() == want.strip().lower()]
+            if len(loose) == 1:
+                found[col] = loose[0]
+                continue
+            raise SchemaError(
+                f"{source}: [columns] {col} = {want!r} must name a header of the file; got "
+                f"{'several close matches' if loose else 'no such header'}. Headers found: "
+                f"{_listing(headers)}."
+            )
+        if col in headers and col not in mapping.values():
+            found[col] = col
+            continue
+        cands = [h for h in by_norm.get(_norm(col), []) if h not in mapping.values()]
+        if len(cands) == 1:
+            found[col] = cands[0]
+        elif len(cands) > 1:
+            raise SchemaError(
+                f"{source}: column {col} must match one header; got {len(cands)}: "
+                f"{_listing(cands)}. Rename one or map it in [columns]."
+            )
+    missing = [c for c in REQUIRED if c not in found]
+    if missing:
+        raise SchemaError(
+            f"{source}: required columns must be present; missing {', '.join(missing)}; "
+            f"columns found: {_listing(headers) or '(none)'}. Add them or map your headers "
+            "in [columns] of run.toml (see `levgap template`)."
+        )
+    return found
+
+
+def _listing(items: Iterable[str], limit: int = 40) -> str:
+    items = list(items)
+    shown = ", ".join(repr(i) if (not i or i != i.strip() or "," in i) else i
+                      for i in items[:limit])
+    return shown + (f", ... ({len(items) - limit} more)" if len(items) > limit else "")
+
+
+# ---------------------------------------------------------------------------------------------
+# cells
+
+
+def _text(series: pd.Series) -> np.ndarray:
+    """Text cells stripped, blanks as ``""``; whole-number floats lose their ``.0``."""
+    if pd.api.types.is_integer_dtype(series.dtype):
+        out = series.astype("str").to_numpy(dtype=object)
+        out[series.isna().to_numpy()] = ""
+        return out
+    if isinstance(series.dtype, pd.StringDtype):
+        return series.str.strip().fillna("").to_numpy(dtype=object)
+    obj = series.to_numpy(dtype=object)
+    return np.array([_cell_text(v) for v in obj], dtype=object) if len(obj) else obj
+
+
+def _cell_text(v: object) -> str:
+    if v is None or v is pd.NA or v is pd.NaT:
+        return ""
+    if isinstance(v, float | np.floating):
+        if v != v:
+            return ""
+        if float(v).is_integer():
+            return str(int(v))
+    return str(v).replace("\x00", "").strip()
+
+
+def parse_numbers(
+    series: pd.Series, options: InputOptions | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Parse a column of cells as numbers, vectorised.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        Numbers, text, or a mix (from a workbook).
+    options : InputOptions, optional
+        ``decimal`` and ``thousands`` marks of text numbers. A thousands mark that is a space
+        also removes no-break spaces.
+
+    Returns
+    -------
+    values : numpy.ndarray
+        float64, NaN where blank or not a number.
+    blank : numpy.ndarray
+        bool, the cell is empty or one of ``NA_TOKENS``.
+    bad : numpy.ndarray
+        bool, the cell holds something that is not a finite number.
+    """
+    options = options or InputOptions()
+    dtype = series.dtype
+    if pd.api.types.is_bool_dtype(dtype):
+        series = series.astype(object)
+        dtype = series.dtype
+    if pd.api.types.is_numeric_dtype(dtype):
+        values = series.to_numpy(dtype=np.float64, na_value=np.nan)
+        blank = np.isnan(values)
+        bad = np.isinf(values)
+        values = np.where(bad, np.nan, values)
+        return values, blank, bad
+    if isinstance(dtype, pd.StringDtype):
+        return _parse_text(pa.array(series, from_pandas=True), options)
+    obj = series.to_numpy(dtype=object)
+    isnum = np.fromiter(
+        (
+            isinstance(v, int | float | np.integer | np.floating)
+            and not isinstance(v, bool | np.bool_)
+            for v in obj
+        ),
+        dtype=bool,
+        count=len(obj),
+    )
+    strs = pa.array(
+        ["" if (isnum[i] or v is None or v is pd.NA or v is pd.NaT) else str(v)
+         for i, v in enumerate(obj)],
+        type=pa.string(),
+    )
+    values, blank, bad = _parse_text(strs, options)
+    if isnum.any():
+        nums = obj[isnum].astype(np.float64)
+        values[isnum] = np.where(np.isinf(nums), np.nan, nums)
+        blank[isnum] = np.isnan(nums)
+        bad[isnum] = np.isinf(nums)
+    return values, blank, bad
+
+
+def _parse_text(
+    arr: pa.Array | pa.ChunkedArray, options: InputOptions
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    if not pa.types.is_string(arr.type) and not pa.types.is_large_string(arr.type):
+        arr = pc.cast(arr, pa.string())
+    arr = pc.utf8_trim_whitespace(pc.fill_null(arr, ""))
+    blank = pc.is_in(pc.utf8_lower(arr), value_set=pa.array(NA_TOKENS))
+    if options.thousands:
+        seps = _SPACES if options.thousands in _SPACES else (options.thousands,)
+        for sep in seps:
+            arr = pc.replace_substring(arr, sep, "")
+    if options.decimal != ".":
+        arr = pc.replace_substring(arr, options.decimal, ".")
+    ok = pc.match_substring_regex(arr, _NUMBER_RE)
+    nums = pc.cast(pc.if_else(ok, arr, pa.scalar(None, pa.string())), pa.float64())
+    values = nums.to_numpy(zero_copy_only=False).astype(np.float64, copy=True)
+    blank_np = _bool(blank)
+    ok_np = _bool(ok)
+    finite = np.isfinite(values)
+    bad = ~blank_np & ~(ok_np & finite)
+    values[~finite] = np.nan
+    values[blank_np] = np.nan
+    return values, blank_np, bad
+
+
+def _bool(arr: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    return np.asarray(pc.fill_null(arr, False).to_numpy(zero_copy_only=False), dtype=bool)
+
+
+def _show(raw: pd.Series, i: int) -> str:
+    v = raw.iloc[i]
+    s = str(v).replace("\x00", "\\0")
+    return repr(s if len(s) <= 40 else s[:37] + "...")
+
+
+# ---------------------------------------------------------------------------------------------
+# row rules
+
+
+def _row_checks(text, values, blank, bad, config, multi_currency):  # type: ignore[no-untyped-def]
+    """(code, mask, describe) in the order of ``REASONS``; describe words each hit."""
+    v = values
+    reference = (config.units.currency or "").upper()
+
+    def non_numeric(hit, raw, rows):  # type: ignore[no-untyped-def]
+        out = {int(i): [] for i in hit}
+        for col in _numeric_checked():
+            for i in np.flatnonzero(bad[col][hit]):
+                out[int(hit[i])].append(
+                    f"{col} must be a number; got {_show(raw[col], int(hit[i]))}"
+                )
+        return ["; ".join(out[int(i)]) for i in hit]
+
+    miss_cols = [c for c in REQUIRED]
+    fx_needed = (
+        np.array([c.upper() != reference for c in text["currency"]], dtype=bool)
+        if multi_currency and len(text["currency"]) else np.zeros(len(v["total_assets"]), bool)
+    )
+
+    def missing_mask() -> np.ndarray:
+        m = np.zeros(len(v["total_assets"]), dtype=bool)
+        for c in miss_cols:
+            m |= (text[c] == "") if c in text else blank[c]
+        return m | (fx_needed & blank["fx_rate"])
+
+    def missing(hit, raw, rows):  # type: ignore[no-untyped-def]
+        out = []
+        for i in hit:
+            cols = [c for c in miss_cols if (text[c][i] == "" if c in text else blank[c][i])]
+            if fx_needed[i] and blank["fx_rate"][i]:
+                cols.append("fx_rate")
+            out.append(f"{', '.join(cols)} must have a value; got a blank")
+        return out
+
+    year = v["fiscal_year"]
+    lo, hi = YEAR_RANGE
+    with np.errstate(invalid="ignore"):
+        bad_year = ~np.isnan(year) & ((year != np.round(year)) | (year < lo) | (year > hi))
+
+    def simple(template: str, *cols: str):  # type: ignore[no-untyped-def]
+        def describe(hit, raw, rows):  # type: ignore[no-untyped-def]
+            return [template.format(*(_num(v[c][i]) for c in cols)) for i in hit]
+        return describe
+
+    with np.errstate(invalid="ignore"):
+        pos = v["total_assets"] > 0
+        return [
+            ("non_numeric", _any(bad[c] for c in _numeric_checked()), non_numeric),
+            ("missing_value", missing_mask(), missing),
+            ("bad_fiscal_year", bad_year,
+             simple(f"fiscal_year must be a whole number in {lo}..{hi}; got {{}}",
+                    "fiscal_year")),
+            ("bad_fx_rate", v["fx_rate"] <= 0,
+             simple("fx_rate must be > 0; got {}", "fx_rate")),
+            ("assets_not_positive", v["total_assets"] <= 0,
+             simple("total_assets must be > 0; got {}", "total_assets")),
+            ("negative_debt", v["total_debt"] < 0,
+             simple("total_debt must be >= 0; got {}", "total_debt")),
+            ("negative_ppe", v["ppe_net"] < 0,
+             simple("ppe_net must be >= 0; got {}", "ppe_net")),
+            ("debt_above_assets", pos & (v["total_debt"] > v["total_assets"]),
+             simple("total_debt must be <= total_assets; got {} > {}",
+                    "total_debt", "total_assets")),
+            ("ppe_above_assets", pos & (v["ppe_net"] > v["total_assets"]),
+             simple("ppe_net must be <= total_assets; got {} > {}", "ppe_net", "total_assets")),
+            ("ebitda_above_assets", pos & (np.abs(v["ebitda"]) > v["total_assets"]),
+             simple("|ebitda| must be <= total_assets; got |{}| > {}", "ebitda",
+                    "total_assets")),
+        ]
+
+
+def _numeric_checked() -> list[str]:
+    return [c for c in NUMERIC if c in _EXCLUDE_ON_BAD]
+
+
+def _any(masks: Iterable[np.ndarray]) -> np.ndarray:
+    out = None
+    for m in masks:
+        out = m.copy() if out is None else out | m
+    return out if out is not None else np.zeros(0, dtype=bool)
+
+
+def _num(x: float) -> str:
+    if x != x:
+        return "blank"
+    return f"{int(x)}" if float(x).is_integer() and abs(x) < 1e15 else f"{x:.6g}"
+
+
+def _duplicates(text, values, bad, rows):  # type: ignore[no-untyped-def]
+    """Codes and details for exact copies and conflicting copies of a firm-year."""
+    n = len(rows)
+    code = np.full(n, "", dtype=object)
+    detail = np.full(n, "", dtype=object)
+    year = values["fiscal_year"]
+    has_key = (text["firm_id"] != "") & ~np.isnan(year)
+    if not has_key.any():
+        return code, detail
+    keys = pd.DataFrame({"firm_id": text["firm_id"], "fiscal_year": year})
+    dup = has_key & keys.duplicated(keep=False).to_numpy()
+    idx = np.flatnonzero(dup)
+    if not len(idx):
+        return code, detail
+    cols = {c: text[c][idx] for c in text}
+    for c in NUMERIC:
+        if c != "fiscal_year":
+            cols[c] = np.where(bad[c][idx], np.inf, values[c][idx])
+    sub = pd.DataFrame(cols)
+    sub["fiscal_year"] = year[idx]
+    sub["_row"] = rows[idx]
+    sub["_pos"] = idx
+    compare = [c for c in sub.columns if not c.startswith("_")]
+    distinct = sub.drop_duplicates(subset=compare)
+    n_versions = distinct.groupby(list(KEY), sort=False)["_row"].transform("size")
+    conflicted_keys = distinct.loc[n_versions.to_numpy() > 1, list(KEY)].drop_duplicates()
+    conflicted = sub.merge(conflicted_keys, on=list(KEY), how="inner")
+    for _, grp in conflicted.groupby(list(KEY), sort=False):
+        diff = [c for c in compare if grp[c].nunique(dropna=False) > 1]
+        for pos, row in zip(grp["_pos"], grp["_row"], strict=True):
+            others = ", ".join(str(r) for r in grp["_row"] if r != row)
+            code[pos] = "conflicting_duplicate"
+            detail[pos] = (
+                f"firm_id {grp['firm_id'].iloc[0]} and fiscal_year "
+                f"{int(grp['fiscal_year'].iloc[0])} must be unique; also in row(s) {others}, "
+                f"which differ in {', '.join(diff)}"
+            )
+    plain = sub.loc[~sub["_pos"].isin(conflicted["_pos"])]
+    if len(plain):
+        first = plain.groupby(list(KEY), sort=False)["_row"].transform("min")
+        for pos, row, orig in zip(plain["_pos"], plain["_row"], first, strict=True):
+            if row != orig:
+                code[pos] = "duplicate_row"
+                detail[pos] = f"exact copy of row {orig}, which is kept"
+    return code, detail
+
+
+def _optional_values(values, blank, bad, names, rows, excluded):  # type: ignore[no-untyped-def]
+    """Set invalid optional numbers missing; flags per row and notes per column."""
+    flags: list[tuple[str, np.ndarray]] = []
+    notes = []
+    for col in (c.name for c in COLUMNS if not c.required and c.kind == "number"):
+        if col == "fx_rate" or col not in names:
+            continue
+        spec = BY_NAME[col]
+        invalid = bad[col].copy()
+        if spec.minimum is not None:
+            with np.errstate(invalid="ignore"):
+                below = (values[col] <= spec.minimum) if spec.strict else (
+                    values[col] < spec.minimum)
+            invalid |= below
+        if invalid.any():
+            values[col] = np.where(invalid, np.nan, values[col])
+            flags.append((f"invalid_{col}", invalid))
+            kept = invalid & ~excluded
+            if kept.any():
+                shown = ", ".join(str(r) for r in rows[kept][:10])
+                more = f" and {int(kept.sum()) - 10} more" if kept.sum() > 10 else ""
+                notes.append(
+                    f"{col} must be a number >= {_num(spec.minimum or 0.0)}; {int(kept.sum())} "
+                    f"kept row(s) were not and are treated as missing (rows {shown}{more}); "
+                    f"flagged invalid_{col}"
+                )
+    with np.errstate(invalid="ignore"):
+        flags.insert(0, ("negative_book_equity", values["book_equity"] < 0))
+    return flags, notes
+
+
+def _kept(text, values, flags, rows, keep, config, multi_currency):  # type: ignore[no-untyped-def]
+    """The data frame of kept rows: scaled money, filled market equity, flags."""
+    idx = np.flatnonzero(keep)
+    fx = values["fx_rate"][idx]
+    fx = np.where(np.isnan(fx), 1.0, fx)
+    factor = config.units.scale * fx
+    out: dict[str, object] = {}
+    for c in COLUMNS:
+        if c.kind == "text":
+            out[c.name] = pd.Series(text[c.name][idx], dtype="str")
+        elif c.name == "fiscal_year":
+            out[c.name] = values[c.name][idx].astype(np.int64)
+        elif c.money:
+            out[c.name] = values[c.name][idx] * factor
+        else:
+            out[c.name] = values[c.name][idx].copy()
+    me = out["market_equity"]
+    derived = np.isnan(me) & ~np.isnan(out["shares_outstanding"]) & ~np.isnan(out["share_price"])
+    me = np.where(derived, out["shares_outstanding"] * out["share_price"], me)
+    out["market_equity"] = me
+    all_flags = [(code, mask[idx]) for code, mask in flags]
+    all_flags.insert(1, ("market_equity_from_shares", derived))
+    all_flags.insert(2, ("no_market_equity", np.isnan(me)))
+    order = list(FLAGS)
+    all_flags.sort(key=lambda cm: order.index(cm[0]))
+    joined = np.full(len(idx), "", dtype=object)
+    for code, mask in all_flags:
+        if mask.any():
+            joined = np.where(mask, np.where(joined == "", code, joined + ";" + code), joined)
+    data = pd.DataFrame(out)
+    data["source_row"] = rows[idx].astype(np.int64)
+    data["flags"] = pd.Series(joined, dtype="str")
+    return data
+
+
+def _ledger(idx, rows, text, values, bad, reason, details):  # type: ignore[no-untyped-def]
+    year = values["fiscal_year"][idx]
+    good_year = ~np.isnan(year) & ~bad["fiscal_year"][idx]
+    with np.errstate(invalid="ignore"):
+        good_year &= (year == np.round(year)) & (np.abs(year) < 1e9)
+    fy = pd.array(np.where(good_year, year, 0).astype(np.int64), dtype="Int64")
+    fy[~good_year] = pd.NA
+    ledger = pd.DataFrame(
+        {
+            "source_row": rows[idx].astype(np.int64),
+            "firm_id": pd.Series(text["firm_id"][idx], dtype="str"),
+            "fiscal_year": fy,
+            "measure": pd.Series([""] * len(idx), dtype="str"),
+            "reason": pd.Series(reason[idx], dtype="str"),
+            "detail": pd.Series(["; ".join(details.get(int(i), [])) for i in idx], dtype="str"),
+        },
+        columns=list(EXCLUSION_COLUMNS),
+    )
+    return ledger.sort_values("source_row", kind="stable").reset_index(drop=True)
