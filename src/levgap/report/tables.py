@@ -90,6 +90,7 @@ def write_tables(
     fmt: str = "csv",
     force: bool = False,
     inputs: Iterable[str | Path] = (),
+    also: Iterable[str] = (),
 ) -> list[Path]:
     """Write each table and ``run.json`` into a folder, atomically and without harm.
 
@@ -110,6 +111,10 @@ def write_tables(
         left alone unless a levgap output has the same name).
     inputs : iterable of path, default=()
         Input files, never overwritten.
+    also : iterable of str, default=()
+        Names of other files levgap writes (or wrote) into the folder in the same run
+        (``report.html``, ``workbook.xlsx``, the demo's panel): recorded in the marker so that
+        a later run does not count them as foreign or remove them as stale.
 
     Returns
     -------
@@ -155,7 +160,7 @@ def write_tables(
             f"{out}: the output folder must be empty or hold only levgap outputs; got files "
             f"levgap did not write ({shown}). Choose another --out or pass --force."
         )
-    names = [t.name for t in targets]
+    names = [t.name for t in targets] + [n for n in also if n not in {t.name for t in targets}]
     try:
         _atomic_text(out / MARKER, "\n".join(sorted(set(previous) | set(names))) + "\n")
         written = []
