@@ -163,7 +163,13 @@ def _read_csv(p: Path, data: bytes, options: InputOptions) -> RawTable:
             f"{p}: a header line must follow the {options.skip_rows} skipped line(s); got the "
             "end of the file. Lower [input] skip_rows."
         )
-    header_end = _record_end(data, start)
+    header_end = data.find(b"\n", start)
+    header_end = len(data) if header_end < 0 else header_end
+    if data.count(b'"', start, header_end) % 2:
+        raise SchemaError(
+            f"{p}: the header line must have balanced quotes; got an unclosed quote in "
+            f"{_short(data[start:header_end])}. Fix the header line."
+        )
     header_text = data[start:header_end].decode("utf-8").rstrip("\r\n")
     delimiter = options.delimiter or _detect_delimiter(header_text)
     names = _header_names(header_text, delimiter)
@@ -308,16 +314,9 @@ def _skip_blank_lines(data: bytes, pos: int) -> int:
     return pos
 
 
-def _record_end(data: bytes, start: int) -> int:
-    """Index of the newline that ends the record starting at ``start`` (quotes balanced)."""
-    pos = start
-    while True:
-        nl = data.find(b"\n", pos)
-        if nl < 0:
-            return len(data)
-        if data.count(b'"', start, nl) % 2 == 0:
-            return nl
-        pos = nl + 1
+def _short(line: bytes) -> str:
+    text = line.decode("utf-8", errors="replace").strip()
+    return repr(text if len(text) <= 60 else text[:57] + "...")
 
 
 def _detect_delimiter(header: str) -> str:

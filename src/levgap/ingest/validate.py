@@ -278,9 +278,11 @@ def resolve_columns(
 
 
 def _listing(items: Iterable[str], limit: int = 40) -> str:
-    items = list(items)
-    shown = ", ".join(repr(i) if (not i or i != i.strip() or "," in i) else i
-                      for i in items[:limit])
+    items = [i if len(i) <= 40 else i[:37] + "..." for i in items]
+    shown = ", ".join(
+        repr(i) if (not i or i != i.strip() or "," in i or not i.isprintable()) else i
+        for i in items[:limit]
+    )
     return shown + (f", ... ({len(items) - limit} more)" if len(items) > limit else "")
 
 
