@@ -308,6 +308,9 @@ def _atomic(target: Path, write: Any) -> None:
     tmp = Path(name)
     try:
         write(tmp)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp creates 0600; give the usual file mode
         os.replace(tmp, target)
     finally:
         with contextlib.suppress(FileNotFoundError):
