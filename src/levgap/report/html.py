@@ -1,0 +1,383 @@
+"""The self-contained HTML report of a levgap run.
+
+:func:`write_report` renders ``report.html`` from the output tables and the run manifest
+(the frames of an ``Analysis`` and its ``run.json``); :func:`build_report` rebuilds it from an
+output folder written earlier. The page needs no network: styles are inline, charts are
+inline SVG drawn by :mod:`levgap.report.plots`, and one small inline script makes the tables
+sortable. All text from the data passes through Jinja2's autoescaping.
+
+The screening sections (most over- and under-levered firms, industries, driver steps) show
+the latest fiscal year in the outputs; the scatter and the gap distribution show every
+firm-year (a deterministic sample above ``max_points``).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import tempfile
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from levgap.errors import OutputError
+
+REPORT_NAME = "report.html"
+CAUTION = (
+    "levgap is a statistical peer benchmark, not investment, credit or legal advice. Targets "
+    "and bands describe what peers with similar fundamentals carry; they do not say what a "
+    "firm should borrow. Decisions belong with qualified professionals and must respect local "
+    "rules (accounting standards, covenants, regulation)."
+)
+_REQUIRED = ("targets", "drivers", "coefficients", "model_fit", "exclusions")
+
+
+@dataclass(frozen=True, slots=True)
+class ReportOptions:
+    """Choices of what the report shows.
+
+    Parameters
+    ----------
+    top : int, default=10
+        Firms listed as most over- and most under-levered, per measure.
+    step_firms : int, default=3
+        Firms at each end (over, under) that get a driver step chart, per measure.
+    max_points : int, default=4000
+        Points drawn in each scatter panel; above it a deterministic sample is shown.
+    """
+
+    top: int = 10
+    step_firms: int = 3
+    max_points: int = 4000
+
+
+def atomic_write_bytes(path: Path, data: bytes) -> None:
+    """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
+    path = Path(path)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        # The prefix is the one report.tables uses, so an interrupted write is known as ours.
+        fd, tmp = tempfile.mkstemp(prefix=".levgap-tmp-", suffix=path.suffix, dir=path.parent)
+        try:
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(data)
+            umask = os.umask(0)
+            os.umask(umask)
+            os.chmod(tmp, 0o666 & ~umask)  # mkstemp creates 0600; give the usual file mode
+            os.replace(tmp, path)
+        except BaseException:
+            Path(tmp).unlink(missing_ok=True)
+            raise
+    except OSError as exc:
+        raise OutputError(
+            f"{path} must be writable; got {exc.strerror or exc}. Choose another output folder."
+        ) from None
+
+
+def write_report(
+    tables: Mapping[str, pd.DataFrame],
+    manifest: Mapping[str, Any],
+    out_dir: str | Path,
+    *,
+    options: ReportOptions | None = None,
+) -> Path:
+    """Render ``report.html`` into ``out_dir``.
+
+    Parameters
+    ----------
+    tables : Mapping of str to pandas.DataFrame
+        ``targets``, ``drivers``, ``coefficients``, ``model_fit`` and ``exclusions`` in the
+        output contract v1.
+    manifest : Mapping
+        The run manifest (``run.json``).
+    out_dir : str or pathlib.Path
+        Folder to write into (created if missing).
+    options : ReportOptions, optional
+        What to show; defaults to :class:`ReportOptions`.
+
+    Returns
+    -------
+    pathlib.Path
+        Path of the report written.
+
+    Raises
+    ------
+    OutputError
+        If a table is missing or the folder cannot be written.
+    """
+    html = render_report(tables, manifest, options=options)
+    path = Path(out_dir) / REPORT_NAME
+    atomic_write_bytes(path, html.encode("utf-8"))
+    return path
+
+
+def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -> Path:
+    """Rebuild ``report.html`` from the outputs written earlier into ``out_dir``.
+
+    Parameters
+    ----------
+    out_dir : str or pathlib.Path
+        Folder written by ``levgap analyze`` (CSV or Parquet tables and ``run.json``).
+    options : ReportOptions, optional
+
+    Returns
+    -------
+    pathlib.Path
+        Path of the report written.
+    """
+    from levgap.report.tables import read_outputs
+
+    tables, manifest = read_outputs(out_dir)
+    return write_report(tables, manifest, out_dir, options=options)
+
+
+# ----------------------------------------------------------------------------- content
+
+def _check_tables(tables: Mapping[str, pd.DataFrame]) -> None:
+    missing = [k for k in _REQUIRED if k not in tables or tables[k] is None]
+    if missing:
+        raise OutputError(
+            f"report tables must include {list(_REQUIRED)}; got no {missing}. "
+            "Re-run levgap analyze to write every output."
+        )
+
+
+def _measures(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any]) -> list[str]:
+    present = list(dict.fromkeys(tables["targets"]["measure"].astype(str)))
+    wanted = manifest.get("options", {}).get("model", {}).get("measures") or present
+    return [m for m in wanted if m in present] + [m for m in present if m not in wanted]
+
+
+def _num(v: Any) -> float | None:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return None
+    return f if math.isfinite(f) else None
+
+
+def _firm_rows(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    cols = ["firm_id", "firm_name", "industry", "fiscal_year", "actual", "target", "gap",
+            "gap_z", "band_low", "band_high", "status", "debt_to_target"]
+    cols = [c for c in cols if c in frame.columns]
+    return frame[cols].to_dict("records")
+
+
+def top_firms(
+    targets: pd.DataFrame, measure: str, year: int, *, n: int = 10
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Most over- and most under-levered firms of one measure in one fiscal year.
+
+    Parameters
+    ----------
+    targets : pandas.DataFrame
+    measure : str
+    year : int
+    n : int, default=10
+
+    Returns
+    -------
+    (pandas.DataFrame, pandas.DataFrame)
+        The ``n`` largest positive gaps (descending) and the ``n`` largest negative gaps
+        (most negative first); ties broken by ``firm_id``.
+    """
+    rows = targets[(targets["measure"] == measure) & (targets["fiscal_year"] == year)]
+    rows = rows.dropna(subset=["gap"])
+    over = rows[rows["gap"] > 0].sort_values(
+        ["gap", "firm_id"], ascending=[False, True], kind="stable").head(n)
+    under = rows[rows["gap"] < 0].sort_values(["gap", "firm_id"], kind="stable").head(n)
+    return over, under
+
+
+def industry_table(targets: pd.DataFrame, measure: str, year: int) -> pd.DataFrame:
+    """Per industry in one year: firms, median actual and target, share over and under.
+
+    Parameters
+    ----------
+    targets : pandas.DataFrame
+    measure : str
+    year : int
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``industry``, ``firms``, ``median_actual``, ``median_target``, ``median_gap``,
+        ``share_over``, ``share_under``; largest industries first.
+    """
+    rows = targets[(targets["measure"] == measure) & (targets["fiscal_year"] == year)]
+    status = rows["status"].astype(str)
+    frame = pd.DataFrame({
+        "industry": rows["industry"].astype(str), "firm_id": rows["firm_id"],
+        "actual": rows["actual"], "target": rows["target"], "gap": rows["gap"],
+        "over": (status == "over").astype(float), "under": (status == "under").astype(float),
+    })
+    out = frame.groupby("industry", sort=True).agg(
+        firms=("firm_id", "nunique"), median_actual=("actual", "median"),
+        median_target=("target", "median"), median_gap=("gap", "median"),
+        share_over=("over", "mean"), share_under=("under", "mean"),
+    ).reset_index()
+    return out.sort_values(["firms", "industry"], ascending=[False, True], kind="stable",
+                           ignore_index=True)
+
+
+def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
+            measures: list[str]) -> dict[str, Any]:
+    targets = tables["targets"]
+    counts = dict(manifest.get("counts", {}))
+    years = sorted({int(y) for y in targets["fiscal_year"].dropna().unique()})
+    opts = manifest.get("options", {})
+    model_opts = opts.get("model", {}) if isinstance(opts, Mapping) else {}
+    fit = tables["model_fit"]
+    fit_rows = []
+    for m in measures:
+        r = fit[fit["measure"].astype(str) == m]
+        if len(r):
+            fit_rows.append({k: r.iloc[0][k] for k in r.columns})
+    by_reason = counts.get("by_reason") or (
+        tables["exclusions"]["reason"].astype(str).value_counts().to_dict()
+        if len(tables["exclusions"]) else {}
+    )
+    return {
+        "inputs": list(manifest.get("inputs", [])),
+        "firms": counts.get("firms", targets["firm_id"].nunique()),
+        "industries": counts.get("industries", targets["industry"].nunique()),
+        "years": years,
+        "rows_in": counts.get("rows_in"),
+        "rows_used": counts.get("rows_used"),
+        "rows_excluded": counts.get("rows_excluded", len(tables["exclusions"])),
+        "by_reason": sorted(by_reason.items(), key=lambda kv: (-int(kv[1]), str(kv[0]))),
+        "measures": measures,
+        "model": model_opts.get("model", ",".join(sorted(set(fit["model"].astype(str))))),
+        "cluster": model_opts.get("cluster", "not recorded"),
+        "coverage": _num(model_opts.get("coverage")),
+        "folds": model_opts.get("folds"),
+        "fit": fit_rows,
+        "borrowed": list(manifest.get("borrowed_industries", [])),
+        "warnings": [str(w) for w in manifest.get("warnings", [])],
+        "version": manifest.get("levgap_version", ""),
+    }
+
+
+def _step_title(row: Mapping[str, Any]) -> str:
+    name = row.get("firm_name")
+    name = "" if name is None or (isinstance(name, float) and math.isnan(name)) else str(name)
+    who = f"{name} ({row['firm_id']})" if name else str(row["firm_id"])
+    return f"{who}, {int(row['fiscal_year'])}, {row['measure']}: {row['status']}"
+
+
+def render_report(
+    tables: Mapping[str, pd.DataFrame],
+    manifest: Mapping[str, Any],
+    *,
+    options: ReportOptions | None = None,
+) -> str:
+    """The report as an HTML string (see :func:`write_report`)."""
+    from levgap.report import plots
+    from levgap.report.terminal import driver_steps
+
+    opts = options or ReportOptions()
+    _check_tables(tables)
+    targets, drivers = tables["targets"], tables["drivers"]
+    measures = _measures(tables, manifest)
+    header = _header(tables, manifest, measures)
+    year = int(targets["fiscal_year"].max()) if len(targets) else None
+
+    charts: dict[str, str] = {}
+    if len(targets):
+        charts["scatter"] = plots.figure_svg(
+            plots.scatter_figure(targets, measures, max_points=opts.max_points), key="scatter")
+        charts["gaps"] = plots.figure_svg(plots.gap_figure(targets, measures), key="gaps")
+    coefficients = tables["coefficients"]
+    if len(coefficients):
+        charts["coefficients"] = plots.figure_svg(
+            plots.coefficient_figure(coefficients), key="coefficients")
+
+    sections = []
+    # Driver rows of the focus year only, indexed once, so each step chart is a cheap lookup.
+    focus_drivers = drivers[drivers["fiscal_year"] == year] if year is not None else drivers
+    for measure in measures:
+        over, under = top_firms(targets, measure, year, n=opts.top) if year else (
+            targets.iloc[:0], targets.iloc[:0])
+        steps = []
+        picks = pd.concat([over.head(opts.step_firms), under.head(opts.step_firms)])
+        measure_drivers = focus_drivers[focus_drivers["measure"] == measure]
+        for i, row in enumerate(picks.to_dict("records")):
+            frame = driver_steps(row, measure_drivers)
+            steps.append({
+                "title": _step_title(row),
+                "svg": plots.figure_svg(plots.steps_figure(frame), key=f"steps-{measure}-{i}"),
+                "rows": frame.to_dict("records"),
+            })
+        sections.append({
+            "measure": measure,
+            "over": _firm_rows(over),
+            "under": _firm_rows(under),
+            "industries": industry_table(targets, measure, year).to_dict("records")
+            if year else [],
+            "steps": steps,
+        })
+    coef_rows = coefficients.to_dict("records")
+    n_charts = len(charts) + sum(len(s["steps"]) for s in sections)
+    return _environment().get_template("report.html.j2").render(
+        h=header, year=year, sections=sections, charts=charts, coefficients=coef_rows,
+        caution=CAUTION, n_charts=n_charts, options=opts,
+        sampled={m: int((targets["measure"] == m).sum()) > opts.max_points for m in measures},
+    )
+
+
+# ----------------------------------------------------------------------------- jinja
+
+def _pct(v: Any, digits: int = 1) -> str:
+    f = _num(v)
+    return "–" if f is None else f"{f * 100:.{digits}f}%"
+
+
+def _pp(v: Any, digits: int = 1) -> str:
+    f = _num(v)
+    return "–" if f is None else f"{f * 100:+.{digits}f}"
+
+
+def _fmt(v: Any, digits: int = 3) -> str:
+    f = _num(v)
+    if f is None:
+        return "–"
+    if f != 0 and (abs(f) < 10 ** -digits or abs(f) >= 1e6):
+        return f"{f:.{digits}g}" if abs(f) < 1e6 else f"{f:,.0f}"
+    return f"{f:,.{digits}f}"
+
+
+def _money(v: Any) -> str:
+    f = _num(v)
+    return "–" if f is None else f"{f:+,.1f}"
+
+
+def _sortkey(v: Any) -> str:
+    f = _num(v)
+    return "" if f is None else repr(f)
+
+
+def _stars(p: Any) -> str:
+    f = _num(p)
+    if f is None:
+        return ""
+    return "***" if f < 0.01 else "**" if f < 0.05 else "*" if f < 0.1 else ""
+
+
+def _environment() -> Any:
+    import jinja2
+
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(Path(__file__).with_name("templates")),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
+    env.filters.update(pct=_pct, pp=_pp, fmt=_fmt, money=_money, sortkey=_sortkey, stars=_stars)
+    env.globals["isnum"] = lambda v: _num(v) is not None
+    env.globals["np"] = np
+    return env

@@ -1,0 +1,135 @@
+"""Driver steps of one firm-year: from the peer median to the firm's actual ratio.
+
+The steps split ``actual - peer_median`` into the peers' own offset
+(``peer_target - peer_median``), each driver's contribution (these sum to
+``target - peer_target``) and the unexplained gap (``actual - target``). The same frame feeds
+the terminal chart here, the image in :func:`levgap.report.plots.plot_steps` and the HTML report.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any
+
+import pandas as pd
+
+from levgap.errors import LevgapError
+
+STEP_COLUMNS = ("step", "label", "kind", "delta", "start", "end")
+_TOLERANCE = 1e-6
+
+
+def driver_steps(target_row: Mapping[str, Any], drivers: pd.DataFrame) -> pd.DataFrame:
+    """Build the steps from peer median to actual ratio for one firm-year and measure.
+
+    Parameters
+    ----------
+    target_row : Mapping
+        One row of ``targets`` (a dict or a pandas Series) with ``firm_id``, ``fiscal_year``,
+        ``measure``, ``actual``, ``target``, ``peer_median`` and ``peer_target``.
+    drivers : pandas.DataFrame
+        The ``drivers`` table, whole or already cut to this firm-year and measure.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per step with columns ``step`` (0, 1, ...), ``label``, ``kind`` (``"level"``
+        for peer median, target and actual, which start at zero; ``"change"`` otherwise),
+        ``delta`` (``end - start``), ``start`` and ``end``, in ratio units (0.05 = 5
+        percentage points). Rows: peer median, peers' offset, each driver in the order of
+        ``drivers``, target, unexplained gap, actual.
+
+    Raises
+    ------
+    LevgapError
+        If the drivers of that firm-year and measure are missing, or their contributions do
+        not add up to ``target - peer_target``.
+    """
+    firm, year, measure = target_row["firm_id"], target_row["fiscal_year"], target_row["measure"]
+    rows = drivers[
+        (drivers["firm_id"].astype(str) == str(firm))
+        & (drivers["fiscal_year"].astype("int64") == int(year))
+        & (drivers["measure"].astype(str) == str(measure))
+    ]
+    if rows.empty:
+        raise LevgapError(
+            f"drivers must hold rows for firm {firm!s} in {int(year)} ({measure}); got none. "
+            "Re-run levgap analyze so that drivers and targets come from the same run."
+        )
+    peer_median = float(target_row["peer_median"])
+    peer_target = float(target_row["peer_target"])
+    target = float(target_row["target"])
+    actual = float(target_row["actual"])
+    total = float(rows["contribution"].sum())
+    if math.isfinite(target) and abs(peer_target + total - target) > _TOLERANCE:
+        raise LevgapError(
+            f"driver contributions of firm {firm!s} in {int(year)} ({measure}) must sum to "
+            f"target - peer_target = {target - peer_target:.6f}; got {total:.6f}. Re-run "
+            "levgap analyze so that drivers and targets come from the same run."
+        )
+    steps: list[tuple[str, str, float, float]] = [
+        ("Peer median", "level", 0.0, peer_median),
+        ("Peers' offset", "change", peer_median, peer_target),
+    ]
+    level = peer_target
+    names, values = rows["driver"].astype(str), rows["contribution"].astype(float)
+    for name, value in zip(names, values, strict=True):
+        steps.append((name, "change", level, level + value))
+        level += value
+    steps += [
+        ("Target", "level", 0.0, target),
+        ("Unexplained gap", "change", target, actual),
+        ("Actual", "level", 0.0, actual),
+    ]
+    frame = pd.DataFrame(steps, columns=["label", "kind", "start", "end"])
+    frame.insert(0, "step", range(len(frame)))
+    frame.insert(3, "delta", frame["end"] - frame["start"])
+    return frame[list(STEP_COLUMNS)]
+
+
+def render_steps(steps: pd.DataFrame, *, width: int = 36, title: str | None = None) -> Any:
+    """Draw driver steps as a horizontal bar chart for the terminal.
+
+    Parameters
+    ----------
+    steps : pandas.DataFrame
+        Output of :func:`driver_steps`.
+    width : int, default=36
+        Characters of the bar column.
+    title : str, optional
+        Table title (shown as plain text; rich markup in it is not interpreted).
+
+    Returns
+    -------
+    rich.table.Table
+        Label, bar and value in percentage points; levels in blue, rises in red, falls in
+        green.
+    """
+    from rich.table import Table
+    from rich.text import Text
+
+    lo = min(0.0, float(steps[["start", "end"]].min().min()))
+    hi = max(0.0, float(steps[["start", "end"]].max().max()))
+    span = hi - lo if hi > lo else 1.0
+
+    def col(v: float) -> int:
+        return int(round((v - lo) / span * width))
+
+    table = Table(title=Text(title) if title else None, show_edge=False, pad_edge=False)
+    table.add_column("step", no_wrap=True)
+    table.add_column("", no_wrap=True, min_width=width)
+    table.add_column("pp", justify="right", no_wrap=True)
+    for row in steps.itertuples(index=False):
+        a, b = sorted((col(row.start), col(row.end)))
+        if row.kind == "level":
+            style, value = "bold blue", f"{row.end * 100:.1f}"
+        else:
+            style = "red" if row.delta > 0 else "green"
+            value = f"{row.delta * 100:+.1f}"
+        bar = Text(" " * a)
+        bar.append("█" * max(b - a, 1 if row.delta != 0 else 0), style=style)
+        if b - a == 0 and row.delta == 0:
+            bar.append("│", style="dim")
+        table.add_row(Text(str(row.label)), bar, value)
+    return table

@@ -1,0 +1,144 @@
+"""A fabricated output folder in the v1 contract, for the report tests.
+
+The numbers follow the contract's identities (``gap = actual - target``, contributions sum to
+``target - peer_target``, status from the band) so the report code meets the shapes and
+edge cases the pipeline produces, without running the pipeline. Firm names include markup,
+mathtext dollars, leading underscores and spreadsheet formulas on purpose.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+DRIVERS = ("tangibility", "profitability", "earnings_volatility", "size", "market_to_book")
+TRUE = {
+    "book": {"tangibility": 0.22, "profitability": -0.35, "earnings_volatility": -0.40,
+             "size": 0.018, "market_to_book": -0.025},
+    "market": {"tangibility": 0.18, "profitability": -0.50, "earnings_volatility": -0.30,
+               "size": 0.025, "market_to_book": -0.060},
+}
+NASTY_NAMES = (
+    "<script>document.title='pwned'</script>",
+    "Alpha </svg> Beta & Co",
+    "=HYPERLINK(\"http://example.invalid\")",
+    "Cost $5$ Ltd",
+    "_hidden label",
+    "<img src=x onerror=alert(1)>",
+)
+
+
+def make_outputs(
+    n_firms: int = 60, n_years: int = 4, *, seed: int = 0,
+    measures: tuple[str, ...] = ("book", "market"),
+) -> tuple[dict[str, pd.DataFrame], dict]:
+    """Tables and manifest of an invented run with ``n_firms`` firms over ``n_years`` years."""
+    rng = np.random.default_rng(seed)
+    industries = np.array(["2834", "3714", "4911", "5812", "7372", "<b>Retail</b>", "1311"])
+    firm_ind = industries[rng.integers(0, len(industries), n_firms)]
+    firm_ids = np.array([f"F{i:05d}" for i in range(n_firms)])
+    names = np.array([f"Firm {i:05d} Holdings" for i in range(n_firms)], dtype=object)
+    for k, nasty in enumerate(NASTY_NAMES[: min(len(NASTY_NAMES), n_firms)]):
+        names[k] = nasty
+    years = np.arange(2015, 2015 + n_years)
+    fy = pd.DataFrame({
+        "firm_id": np.repeat(firm_ids, n_years),
+        "firm_name": np.repeat(names, n_years),
+        "industry": np.repeat(firm_ind, n_years),
+        "fiscal_year": np.tile(years, n_firms),
+    })
+    n = len(fy)
+    x = pd.DataFrame({
+        "tangibility": rng.uniform(0.05, 0.8, n),
+        "profitability": rng.normal(0.12, 0.06, n),
+        "earnings_volatility": np.abs(rng.normal(0.03, 0.015, n)),
+        "size": rng.normal(7.0, 1.5, n),
+        "market_to_book": rng.lognormal(0.3, 0.3, n),
+    })
+    ind_effect = dict(zip(industries, rng.normal(0, 0.05, len(industries)), strict=True))
+    target_rows, driver_rows = [], []
+    for measure in measures:
+        beta = pd.Series(TRUE[measure])
+        base = 0.15 + fy["industry"].map(ind_effect).to_numpy()
+        target = base + x[list(DRIVERS)].to_numpy() @ beta.to_numpy()
+        key = fy["industry"] + "|" + fy["fiscal_year"].astype(str)
+        peer = x.groupby(key.to_numpy()).transform("median")
+        contrib = (x - peer) * beta
+        peer_target = target - contrib.sum(axis=1).to_numpy()
+        resid = rng.normal(0, 0.06, n)
+        resid[:3] += np.array([0.35, -0.25, 0.3])[: min(3, n)]
+        actual = np.clip(target + resid, 0.0, 0.98)
+        gap = actual - target
+        q = 0.08
+        status = np.where(gap > q, "over", np.where(gap < -q, "under", "within"))
+        peer_median = pd.Series(actual).groupby(key.to_numpy()).transform("median").to_numpy()
+        assets = np.exp(x["size"].to_numpy())
+        frame = fy.copy()
+        frame["measure"] = measure
+        frame["actual"] = actual
+        frame["target"] = target
+        frame["gap"] = gap
+        frame["gap_z"] = gap / 0.06
+        frame["band_low"] = target - q
+        frame["band_high"] = target + q
+        frame["status"] = status
+        frame["peer_median"] = peer_median
+        frame["peer_count"] = pd.Series(1, index=fy.index).groupby(key.to_numpy()).transform(
+            "sum").to_numpy() - 1
+        frame["peer_target"] = peer_target
+        frame["debt_to_target"] = -gap * assets
+        frame["flags"] = np.where(rng.random(n) < 0.1, "earnings_volatility_imputed", "")
+        target_rows.append(frame)
+        for d in DRIVERS:
+            driver_rows.append(pd.DataFrame({
+                "firm_id": fy["firm_id"], "fiscal_year": fy["fiscal_year"], "measure": measure,
+                "driver": d, "firm_value": x[d], "peer_value": peer[d],
+                "contribution": contrib[d],
+            }))
+    targets = pd.concat(target_rows, ignore_index=True)
+    drivers = pd.concat(driver_rows, ignore_index=True).sort_values(
+        ["firm_id", "fiscal_year", "measure"], kind="stable", ignore_index=True)
+    coef_rows, fit_rows = [], []
+    for measure in measures:
+        for d in DRIVERS:
+            est = TRUE[measure][d] * (1 + rng.normal(0, 0.1))
+            se = abs(est) * rng.uniform(0.15, 0.8)
+            t = est / se
+            p = float(2 * (1 - _norm_cdf(abs(t))))
+            coef_rows.append({"measure": measure, "model": "linear", "term": d, "estimate": est,
+                              "std_error": se, "t_stat": t, "p_value": p,
+                              "ci_low": est - 1.96 * se, "ci_high": est + 1.96 * se})
+        fit_rows.append({"measure": measure, "model": "linear", "n_obs": n, "n_firms": n_firms,
+                         "n_industries": len(industries), "r2": 0.41, "r2_oos": 0.33,
+                         "rmse_oos": 0.071})
+    exclusions = pd.DataFrame({
+        "source_row": [3, 17, 17, 40],
+        "firm_id": ["F99990", "=cmd|' /C calc'!A0", "X2", "X3"],
+        "fiscal_year": [2016, 2017, 2017, 2018],
+        "measure": ["", "", "market", ""],
+        "reason": ["total_assets_not_positive", "duplicate_firm_year", "market_equity_missing",
+                   "required_value_missing"],
+        "detail": ["total_assets = -3", "<b>dup</b>", "no market_equity", "ebitda empty"],
+    })
+    manifest = {
+        "levgap_version": "0.1.0", "schema_version": 1,
+        "inputs": [{"path": "panels/<odd> name.csv", "sha256": "0" * 64, "rows": n + 4}],
+        "options": {"model": {"measures": list(measures), "cluster": "firm", "coverage": 0.8,
+                              "model": "linear", "folds": 5, "seed": 0}},
+        "versions": {"python": "3.11", "pandas": pd.__version__},
+        "counts": {"rows_in": n + 4, "rows_used": n, "rows_excluded": 4, "firms": n_firms,
+                   "industries": len(industries), "years": n_years,
+                   "by_reason": {"total_assets_not_positive": 1, "duplicate_firm_year": 1,
+                                 "required_value_missing": 1, "market_equity_missing": 1}},
+        "borrowed_industries": [{"industry": "1311", "parent": "13", "firms": 3}],
+        "warnings": ["3 firms have <3 years of history; earnings_volatility imputed"],
+    }
+    tables = {"targets": targets, "drivers": drivers, "coefficients": pd.DataFrame(coef_rows),
+              "model_fit": pd.DataFrame(fit_rows), "exclusions": exclusions}
+    return tables, manifest
+
+
+def _norm_cdf(z: float) -> float:
+    from math import erf, sqrt
+
+    return 0.5 * (1 + erf(z / sqrt(2)))

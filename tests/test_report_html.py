@@ -1,0 +1,194 @@
+"""The HTML report: self-contained, escaped, complete, small and quick on large panels."""
+
+from __future__ import annotations
+
+import re
+import time
+import xml.etree.ElementTree as ET
+from html.parser import HTMLParser
+
+import pandas as pd
+import pytest
+from _report_data import NASTY_NAMES, make_outputs
+
+from levgap.errors import OutputError
+from levgap.report.html import (
+    CAUTION,
+    ReportOptions,
+    industry_table,
+    render_report,
+    top_firms,
+    write_report,
+)
+
+
+@pytest.fixture(scope="module")
+def outputs():
+    return make_outputs(60, 4, seed=1)
+
+
+@pytest.fixture(scope="module")
+def page(outputs):
+    tables, manifest = outputs
+    return render_report(tables, manifest)
+
+
+class _Tags(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__()
+        self.tags: list[tuple[str, dict]] = []
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append((tag, dict(attrs)))
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def test_writes_report_html(tmp_path, outputs):
+    tables, manifest = outputs
+    path = write_report(tables, manifest, tmp_path / "out")
+    assert path == tmp_path / "out" / "report.html"
+    assert path.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
+    assert not [p for p in path.parent.iterdir() if p.name != "report.html"]  # no temp left
+
+
+def test_self_contained_no_network(page):
+    parser = _Tags()
+    parser.feed(page)
+    for tag, attrs in parser.tags:
+        assert tag not in {"link", "iframe", "object", "embed"}, tag
+        for name in ("src", "href", "xlink:href"):
+            value = attrs.get(name)
+            if value is not None:
+                assert value.startswith(("#", "data:")), (tag, name, value[:60])
+    assert "@import" not in page
+    assert not re.search(r"url\(\s*['\"]?https?:", page)
+
+
+def test_at_least_five_charts_each_valid_svg(page):
+    svgs = re.findall(r"<svg\b.*?</svg>", page, flags=re.S)
+    assert len(svgs) >= 5
+    assert page.count("<svg") == page.count("</svg>") == len(svgs)
+    for svg in svgs:
+        ET.fromstring(svg)  # every chart is well-formed XML: text inside is escaped
+    ids = re.findall(r'\bid="([^"]+)"', page)
+    assert len(ids) == len(set(ids)), "element ids must be unique across inline charts"
+
+
+def test_text_from_data_is_escaped(page):
+    # Our one script is the only one; markup in names and industries shows as text.
+    assert page.count("<script") == 1
+    assert "<script>document.title" not in page
+    assert "<img src=x" not in page
+    assert "<b>Retail</b>" not in page and "<b>dup</b>" not in page
+    assert "&lt;script&gt;document.title=&#39;pwned&#39;&lt;/script&gt;" in page
+    assert "Alpha &lt;/svg&gt; Beta &amp; Co" in page
+    assert "&lt;b&gt;Retail&lt;/b&gt;" in page  # in the tables and in the SVG legend
+    parser = _Tags()
+    parser.feed(page)
+    assert not any(tag == "img" for tag, _ in parser.tags)
+    assert not any(tag == "b" for tag, _ in parser.tags)
+
+
+def test_contents(outputs, page):
+    tables, manifest = outputs
+    text = re.sub(r"\s+", " ", page)
+    assert CAUTION in text
+    assert "not investment, credit or legal advice" in text
+    for needle in ("panels/&lt;odd&gt; name.csv", "clustered by firm", "80% of cross-fitted",
+                   "Most over-levered", "Most under-levered", "Industries", "Coefficients",
+                   "95% confidence", "From peer median to actual", "*** p &lt; 0.01"):
+        assert needle in text, needle
+    fit = tables["model_fit"].iloc[0]
+    assert f"{fit['r2']:.3f}" in text and f"{fit['r2_oos']:.3f}" in text
+    for term in tables["coefficients"]["term"].unique():
+        assert f"<td>{term}</td>" in page
+    # The top over-levered firm of the latest year leads its table.
+    over, _ = top_firms(tables["targets"], "book", 2018, n=10)
+    first = over.iloc[0]
+    assert f"{first['gap'] * 100:+.1f}" in page
+
+
+def test_top_firms_and_industry_table_by_hand():
+    targets = pd.DataFrame({
+        "firm_id": ["a", "b", "c", "d", "e", "a"],
+        "fiscal_year": [2020, 2020, 2020, 2020, 2020, 2019],
+        "measure": "book",
+        "industry": ["x", "x", "x", "y", "y", "x"],
+        "actual": [0.5, 0.25, 0.5, 0.125, 0.375, 0.875],
+        "target": [0.25, 0.5, 0.5, 0.375, 0.125, 0.125],
+        "status": ["over", "under", "within", "within", "over", "over"],
+    })
+    targets["gap"] = targets["actual"] - targets["target"]
+    over, under = top_firms(targets, "book", 2020, n=2)
+    assert list(over["firm_id"]) == ["a", "e"]  # +0.25 twice: ties broken by firm_id
+    assert list(under["firm_id"]) == ["b", "d"]  # -0.25 twice
+    ind = industry_table(targets, "book", 2020).set_index("industry")
+    assert ind.loc["x", "firms"] == 3 and ind.loc["y", "firms"] == 2
+    assert ind.loc["x", "median_actual"] == pytest.approx(0.5)
+    assert ind.loc["x", "share_over"] == pytest.approx(1 / 3)
+    assert ind.loc["x", "share_under"] == pytest.approx(1 / 3)
+    assert ind.loc["y", "median_target"] == pytest.approx(0.25)
+
+
+def test_deterministic(outputs):
+    tables, manifest = outputs
+    assert render_report(tables, manifest) == render_report(tables, manifest)
+
+
+def test_missing_table_is_an_output_error(outputs):
+    tables, manifest = outputs
+    partial = {k: v for k, v in tables.items() if k != "drivers"}
+    with pytest.raises(OutputError, match=r"report tables must include .*got no \['drivers'\]"):
+        render_report(partial, manifest)
+
+
+def test_names_with_markup_reach_the_step_charts(outputs):
+    tables, manifest = outputs
+    targets = tables["targets"].copy()
+    # Make the firm with the markup name the most over-levered one in the latest year.
+    mask = targets["firm_name"] == NASTY_NAMES[1]
+    targets.loc[mask, "actual"] += 0.9
+    targets.loc[mask, "gap"] += 0.9
+    page = render_report({**tables, "targets": targets}, manifest,
+                         options=ReportOptions(step_firms=1))
+    assert "<figcaption>Alpha &lt;/svg&gt; Beta &amp; Co" in page
+
+
+@pytest.mark.slow
+def test_large_panel_is_capped_small_and_quick(tmp_path):
+    tables, manifest = make_outputs(10_000, 10, seed=2)  # 100k firm-years, 1M driver rows
+    start = time.perf_counter()
+    path = write_report(tables, manifest, tmp_path)
+    elapsed = time.perf_counter() - start
+    size = path.stat().st_size
+    page = path.read_text(encoding="utf-8")
+    assert "sample of 4,000 of 100,000" in page
+    assert size < 1_500_000, size
+    assert elapsed < 30, elapsed  # typically 3-5 s on 2 shared cores
+
+
+def test_build_report_from_written_outputs(tmp_path, outputs):
+    from levgap.report.html import build_report
+    from levgap.report.tables import write_tables
+
+    tables, manifest = outputs
+    out = tmp_path / "run"
+    write_tables(tables, manifest, out, also=["report.html"])
+    path = build_report(out)
+    assert path == out / "report.html"
+    page = path.read_text(encoding="utf-8")
+    # Read back from CSV, the neutralised formula keeps its apostrophe and markup stays text.
+    assert "&lt;script&gt;document.title" in page and "<script>document.title" not in page
+    assert page.count("<svg") >= 5
+    # A re-run of the writer into the same folder accepts the report as a levgap file.
+    write_tables(tables, manifest, out, also=["report.html"])
+
+
+def test_build_report_without_outputs_is_an_output_error(tmp_path):
+    from levgap.report.html import build_report
+
+    with pytest.raises(OutputError, match="run.json"):
+        build_report(tmp_path)
