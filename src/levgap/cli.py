@@ -1,12 +1,58 @@
-"""Command-line interface (typer), a thin layer over the Python API."""
+"""Command-line interface (typer), a thin layer over the Python API.
+
+Only this module prints or exits. Heavy libraries are imported inside the commands that need
+them, so ``--help``, ``--version``, ``check``, ``screen``, ``explain`` and ``template`` answer
+quickly. Exit codes: 0 done, 2 bad input or usage, 1 an internal error.
+"""
 
 from __future__ import annotations
+
+import contextlib
+import json
+import sys
+from collections.abc import Iterator
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import typer
 
 import levgap
+from levgap.errors import LevgapError
 
-app = typer.Typer(add_completion=False, no_args_is_help=True, help="levgap: leverage peer benchmark.")
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from levgap.config import RunConfig
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    rich_markup_mode=None,
+    help="levgap: is a company carrying more or less debt than its fundamentals justify "
+    "against its industry peers? A statistical peer benchmark, not investment, credit or "
+    "legal advice.",
+)
+
+MEASURE_CHOICES = ("book", "market", "both")
+BIG_PANEL = 50_000  # rows above which a progress bar is shown
+
+
+def _err(message: str) -> None:
+    typer.echo(f"levgap: error: {' '.join(str(message).split())}", err=True)
+
+
+@contextlib.contextmanager
+def _guard() -> Iterator[None]:
+    """Turn a levgap error (or an operating-system error on a named file) into one line."""
+    try:
+        yield
+    except LevgapError as exc:
+        _err(str(exc))
+        raise typer.Exit(2) from None
+    except OSError as exc:
+        name = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
+        _err(f"{name}{exc.strerror or exc}")
+        raise typer.Exit(2) from None
 
 
 def _version(value: bool) -> None:
@@ -17,12 +63,414 @@ def _version(value: bool) -> None:
 
 @app.callback()
 def _root(
-    version: bool = typer.Option(False, "--version", callback=_version, is_eager=True,
-                                 help="Print the version and exit."),
+    version: bool = typer.Option(
+        False, "--version", callback=_version, is_eager=True, help="Print the version and exit."
+    ),
 ) -> None:
-    """levgap: leverage peer benchmark."""
+    """levgap: leverage against industry peers, from a financial-statement panel.
+
+    Example: levgap analyze panel.csv --out results/
+    """
+
+
+def _config(path: Path | None) -> RunConfig:
+    from levgap.config import RunConfig
+
+    return RunConfig.from_toml(path) if path is not None else RunConfig()
+
+
+def _measures(measure: str) -> tuple[str, ...]:
+    if measure not in MEASURE_CHOICES:
+        raise typer.BadParameter(f"must be one of {', '.join(MEASURE_CHOICES)}; got {measure!r}.")
+    return ("book", "market") if measure == "both" else (measure,)
+
+
+def _console(stderr: bool = False) -> Any:
+    from rich.console import Console
+
+    con = Console(stderr=stderr, highlight=False, soft_wrap=False)
+    if not con.is_terminal:
+        # Piped or captured output: wide enough that tables are not cut to 80 columns.
+        con = Console(stderr=stderr, highlight=False, soft_wrap=False, width=160)
+    return con
+
+
+def _progress_bar(enabled: bool) -> Any:
+    """A rich progress bar on stderr, or a no-op context when disabled."""
+    if not enabled:
+        return contextlib.nullcontext(None)
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    return Progress(TextColumn("{task.description}"), BarColumn(), TextColumn(
+        "{task.completed}/{task.total}"), TimeElapsedColumn(), console=_console(stderr=True),
+        transient=True)
+
+
+def _run_analysis(
+    panel_path: Path,
+    out: Path,
+    *,
+    config: RunConfig,
+    fmt: str,
+    force: bool,
+    xlsx: bool,
+    report: bool,
+    quiet: bool,
+) -> tuple[Any, list[Path]]:
+    from levgap.ingest import read_panel
+    from levgap.pipeline import analyze
+
+    panel = read_panel(panel_path, config=config)
+    show = not quiet and len(panel.data) >= BIG_PANEL
+    with _progress_bar(show) as bar:
+        tasks: dict[str, Any] = {}
+
+        def step(stage: str, done: int, total: int) -> None:
+            if bar is None:
+                return
+            if stage not in tasks:
+                tasks[stage] = bar.add_task(stage, total=total)
+            bar.update(tasks[stage], completed=done)
+
+        result = analyze(panel, config=config, progress=step)
+    written = result.write(out, fmt=fmt, force=force, report=report, xlsx=xlsx,
+                           inputs=(str(panel_path),))
+    return result, written
+
+
+def _summary(result: Any, out: Path) -> dict[str, Any]:
+    counts = result.manifest["counts"]
+    fits = result.model_fit.to_dict(orient="records")
+    status = (
+        result.targets.groupby(["measure", "status"]).size().unstack(fill_value=0).to_dict(
+            orient="index")
+    )
+    return {
+        "out": str(out),
+        "rows_in": counts["rows_in"],
+        "rows_used": counts["rows_used"],
+        "rows_excluded": counts["rows_excluded"],
+        "excluded_by_reason": counts["by_reason"],
+        "measure_omissions": counts["measure_omissions"],
+        "model_fit": fits,
+        "status": status,
+        "borrowed_industries": [b["industry"] for b in result.manifest["borrowed_industries"]],
+    }
+
+
+def _print_run(result: Any, out: Path, top: int) -> None:
+    con = _console()
+    counts = result.manifest["counts"]
+    con.print(
+        f"Read {counts['rows_in']} rows: {counts['rows_used']} used, "
+        f"{counts['rows_excluded']} excluded."
+    )
+    for reason, n in counts["by_reason"].items():
+        con.print(f"  excluded, {reason}: {n}")
+    for key, n in counts["measure_omissions"].items():
+        measure, reason = key.split(":", 1)
+        con.print(f"  left out of {measure} leverage only, {reason}: {n}")
+    for b in result.manifest["borrowed_industries"]:
+        con.print(f"  industry {b['industry']} ({b['firms']} firms) borrows its effect from "
+                  f"{b['borrowed_from']}")
+    for f in result.model_fit.itertuples():
+        con.print(f"{f.measure} leverage: {f.n_obs} firm-years, {f.n_firms} firms, "
+                  f"R² {f.r2:.3f} in sample, {f.r2_oos:.3f} out of sample "
+                  f"(RMSE {100 * f.rmse_oos:.1f} pp)")
+    t = result.targets
+    latest = t[t["fiscal_year"] == t["fiscal_year"].max()]
+    for measure in latest["measure"].unique():
+        m = latest[latest["measure"] == measure]
+        con.print(_screen_table(m.sort_values("gap", ascending=False).head(top),
+                                f"Most over-levered ({measure}, {int(m['fiscal_year'].max())})"))
+        con.print(_screen_table(m.sort_values("gap").head(top),
+                                f"Most under-levered ({measure}, {int(m['fiscal_year'].max())})"))
+    con.print(f"Outputs written to {out}/ (targets, drivers, coefficients, model_fit, "
+              "exclusions, run.json, report.html).")
+    con.print("levgap is a statistical peer benchmark, not investment, credit or legal advice.")
+
+
+def _screen_table(rows: pd.DataFrame, title: str) -> Any:
+    from rich.table import Table
+
+    table = Table(title=title, title_justify="left")
+    for col, just in (("firm", "left"), ("name", "left"), ("industry", "left"),
+                      ("year", "right"), ("actual", "right"), ("target", "right"),
+                      ("gap pp", "right"), ("gap z", "right"), ("band", "right"),
+                      ("status", "left")):
+        table.add_column(col, justify=just)  # type: ignore[arg-type]
+    for r in rows.itertuples():
+        table.add_row(
+            str(r.firm_id), str(r.firm_name), str(r.industry), str(r.fiscal_year),
+            f"{r.actual:.1%}", f"{r.target:.1%}", f"{100 * r.gap:+.1f}",
+            "" if r.gap_z != r.gap_z else f"{r.gap_z:+.2f}",
+            f"{r.band_low:.1%} to {r.band_high:.1%}", str(r.status),
+        )
+    return table
+
+
+@app.command()
+def demo(
+    out: Path = typer.Option(Path("demo-out"), "--out", help="Folder for the demo's outputs."),
+    force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
+    top: int = typer.Option(5, "--top", help="Firms listed at each end."),
+) -> None:
+    """Run the whole job on the invented demo panel (the Tarrow Reach, a fictional region).
+
+    Example: levgap demo --out demo-out
+    """
+    with _guard():
+        from levgap.demo import make_panel
+        from levgap.report.tables import write_tables
+
+        out.mkdir(parents=True, exist_ok=True)
+        panel_path = out / "demo_panel.csv"
+        write_tables({"demo_panel": make_panel()}, {"what": "the invented demo panel"}, out,
+                     fmt="csv", force=force, also=_previous_outputs(out))
+        result, _ = _run_analysis(panel_path, out, config=_config(None), fmt="csv",
+                                  force=True, xlsx=False, report=True, quiet=False)
+        _print_run(result, out, top)
+        typer.echo(f"The demo's input panel is {panel_path}.")
+
+
+def _previous_outputs(out: Path) -> list[str]:
+    from levgap.report.tables import MARKER
+
+    marker = out / MARKER
+    return marker.read_text(encoding="utf-8").split() if marker.is_file() else []
+
+
+@app.command()
+def analyze(
+    panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX) in schema v1."),
+    out: Path = typer.Option(..., "--out", help="Output folder."),
+    measure: str = typer.Option("both", "--measure", help="book, market or both."),
+    cluster: str = typer.Option(
+        None, "--cluster", help="Clustering of standard errors: firm, firm-year or industry."),
+    year: int = typer.Option(None, "--year", help="Report only this fiscal year."),
+    config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
+    fmt: str = typer.Option("csv", "--format", help="Table format: csv or parquet."),
+    xlsx: bool = typer.Option(False, "--xlsx", help="Also write workbook.xlsx."),
+    no_report: bool = typer.Option(False, "--no-report", help="Skip report.html."),
+    force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
+    quiet: bool = typer.Option(False, "--quiet", help="No progress bar or tables."),
+    as_json: bool = typer.Option(False, "--json", help="Print a machine-readable summary."),
+    top: int = typer.Option(5, "--top", help="Firms listed at each end."),
+) -> None:
+    """Estimate targets, gaps and driver contributions for every firm-year of a panel.
+
+    Example: levgap analyze panel.csv --out results/ --measure book --cluster firm-year
+    """
+    with _guard():
+        from dataclasses import replace
+
+        if fmt not in ("csv", "parquet"):
+            raise typer.BadParameter(f"must be csv or parquet; got {fmt!r}.",
+                                     param_hint="--format")
+        cfg = _config(config)
+        changes: dict[str, Any] = {}
+        if measure != "both" or config is None:
+            changes["measures"] = _measures(measure)
+        if cluster is not None:
+            changes["cluster"] = cluster
+        if year is not None:
+            changes["year"] = year
+        if changes:
+            cfg = replace(cfg, model=replace(cfg.model, **changes))
+        result, _ = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force, xlsx=xlsx,
+                                  report=not no_report, quiet=quiet or as_json)
+        if as_json:
+            typer.echo(json.dumps(_summary(result, out), indent=2, default=str))
+        elif not quiet:
+            _print_run(result, out, top)
+
+
+@app.command()
+def screen(
+    out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
+    measure: str = typer.Option("book", "--measure", help="book or market."),
+    status: str = typer.Option(None, "--status", help="Keep only over or under."),
+    industry: str = typer.Option(None, "--industry", help="Keep only this industry code."),
+    year: int = typer.Option(None, "--year", help="Fiscal year (default: the latest)."),
+    top: int = typer.Option(20, "--top", help="Rows to show."),
+) -> None:
+    """List the firms furthest from their targets.
+
+    Example: levgap screen results/ --status over --top 10
+    """
+    with _guard():
+        from levgap.report.tables import read_outputs
+
+        if status is not None and status not in ("over", "under", "within"):
+            raise typer.BadParameter(f"must be over, under or within; got {status!r}.",
+                                     param_hint="--status")
+        tables, _ = read_outputs(out_dir)
+        t = tables["targets"]
+        t = t[t["measure"] == measure]
+        if t.empty:
+            raise typer.BadParameter(f"no {measure} leverage rows in {out_dir}.",
+                                     param_hint="--measure")
+        yr = int(t["fiscal_year"].max()) if year is None else year
+        t = t[t["fiscal_year"] == yr]
+        if industry is not None:
+            t = t[t["industry"].astype(str) == industry]
+        if status is not None:
+            t = t[t["status"] == status]
+        if status == "under":
+            t = t.sort_values("gap")
+        elif status == "over":
+            t = t.sort_values("gap", ascending=False)
+        else:
+            t = t.reindex(t["gap_z"].abs().sort_values(ascending=False).index)
+        if t.empty:
+            typer.echo("No firm matches those filters.")
+            return
+        title = f"{measure} leverage, fiscal {yr}: {len(t)} firms" + (
+            f" {status}" if status else "")
+        _console().print(_screen_table(t.head(top), title))
+
+
+@app.command()
+def explain(
+    out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
+    firm_id: str = typer.Argument(..., help="The firm's firm_id."),
+    year: int = typer.Option(None, "--year", help="Fiscal year (default: the firm's latest)."),
+    measure: str = typer.Option("book", "--measure", help="book or market."),
+    plot: Path = typer.Option(None, "--plot", help="Also draw the steps to a PNG or SVG file."),
+) -> None:
+    """Show why a firm's target differs from its peers', driver by driver.
+
+    Example: levgap explain results/ TR0069 --year 2023 --plot steps.svg
+    """
+    with _guard():
+        from levgap.report.tables import read_outputs
+        from levgap.report.terminal import driver_steps, render_steps
+
+        tables, _ = read_outputs(out_dir)
+        t = tables["targets"]
+        t = t[(t["firm_id"].astype(str) == firm_id) & (t["measure"] == measure)]
+        if t.empty:
+            raise typer.BadParameter(
+                f"no {measure} leverage row for firm {firm_id!r} in {out_dir}.",
+                param_hint="FIRM_ID")
+        yr = int(t["fiscal_year"].max()) if year is None else year
+        row_df = t[t["fiscal_year"] == yr]
+        if row_df.empty:
+            years = ", ".join(str(int(y)) for y in sorted(t["fiscal_year"].unique()))
+            raise typer.BadParameter(f"firm {firm_id} has no fiscal year {yr}; it has {years}.",
+                                     param_hint="--year")
+        row = row_df.iloc[0]
+        d = tables["drivers"]
+        d = d[(d["firm_id"].astype(str) == firm_id) & (d["fiscal_year"] == yr)
+              & (d["measure"] == measure)]
+        con = _console()
+        con.print(_explain_table(row, d))
+        offset = row["peer_target"] - row["peer_median"]
+        drivers_sum = float(d["contribution"].sum())
+        con.print(
+            f"actual - peer median = {100 * (row['actual'] - row['peer_median']):+.1f} pp "
+            f"= peers' offset {100 * offset:+.1f} pp + drivers {100 * drivers_sum:+.1f} pp "
+            f"+ unexplained gap {100 * row['gap']:+.1f} pp"
+        )
+        con.print(
+            f"status: {row['status']} (band {row['band_low']:.1%} to {row['band_high']:.1%}, "
+            f"gap z {row['gap_z']:+.2f}); debt change to reach target: "
+            f"{row['debt_to_target']:+,.1f} (input money units)"
+        )
+        steps = driver_steps(row, d)
+        con.print(render_steps(steps, title=f"{firm_id} {yr}, {measure} leverage"))
+        if plot is not None:
+            from levgap.report.plots import plot_steps
+
+            plot_steps(steps, plot, title=f"{firm_id} {yr}, {measure} leverage")
+            con.print(f"Chart written to {plot}.")
+
+
+def _explain_table(row: Any, drivers: pd.DataFrame) -> Any:
+    from rich.table import Table
+
+    name = f" ({row['firm_name']})" if str(row.get("firm_name", "")) else ""
+    table = Table(
+        title=f"{row['firm_id']}{name}, {int(row['fiscal_year'])}, {row['measure']} leverage: "
+        f"actual {row['actual']:.1%}, target {row['target']:.1%}, peer target "
+        f"{row['peer_target']:.1%}, peer median {row['peer_median']:.1%} "
+        f"({int(row['peer_count'])} peers)",
+        title_justify="left",
+    )
+    for col in ("driver", "firm value", "peer value", "contribution pp"):
+        table.add_column(col, justify="left" if col == "driver" else "right")
+    for r in drivers.itertuples():
+        table.add_row(str(r.driver), f"{r.firm_value:.4f}", f"{r.peer_value:.4f}",
+                      f"{100 * r.contribution:+.2f}")
+    return table
+
+
+@app.command()
+def check(
+    panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX)."),
+    config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
+    ledger: Path = typer.Option(None, "--ledger", help="Write the exclusion ledger to this CSV."),
+) -> None:
+    """Validate a panel without fitting anything: what would be used and what left out.
+
+    Example: levgap check panel.csv --ledger exclusions.csv
+    """
+    with _guard():
+        import warnings
+
+        from levgap.errors import DataWarning
+        from levgap.ingest import read_panel
+
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", DataWarning)
+            p = read_panel(panel, config=_config(config))
+        con = _console()
+        data = p.data
+        whole = p.exclusions
+        con.print(f"{panel}: {p.n_input_rows} rows; {len(data)} usable, {len(whole)} excluded.")
+        if len(data):
+            years = data["fiscal_year"]
+            con.print(f"  {data['firm_id'].nunique()} firms, {data['industry'].nunique()} "
+                      f"industries, fiscal years {int(years.min())}-{int(years.max())}")
+            no_mkt = int(data["market_equity"].isna().sum()) if "market_equity" in data else 0
+            if no_mkt:
+                con.print(f"  {no_mkt} rows have no market equity (book leverage only)")
+        for reason, n in whole["reason"].value_counts().sort_index().items():
+            con.print(f"  excluded, {reason}: {n}")
+        for w in [*p.warnings, *(str(c.message) for c in caught)]:
+            con.print(f"  note: {w}")
+        if ledger is not None:
+            from levgap.report.tables import neutralise
+
+            neutralise(whole).to_csv(ledger, index=False)
+            con.print(f"Exclusion ledger written to {ledger}.")
+
+
+@app.command()
+def template(
+    out: Path = typer.Option(Path("."), "--out", help="Folder for the template files."),
+) -> None:
+    """Write an empty panel template, its column guide and an annotated run configuration.
+
+    Example: levgap template --out my-panel/
+    """
+    with _guard():
+        from levgap.report.tables import write_template
+
+        for path in write_template(out):
+            typer.echo(f"wrote {path}")
 
 
 def main() -> None:
-    """Console entry point."""
-    app()
+    """Console entry point: no traceback ever reaches the user."""
+    try:
+        app()
+    except SystemExit:
+        raise
+    except KeyboardInterrupt:
+        _err("interrupted.")
+        sys.exit(130)
+    except Exception as exc:  # last line of defence: an internal error, not the user's
+        _err(f"internal error ({type(exc).__name__}: {exc}). This is a bug in levgap; please "
+             "report it with the command you ran.")
+        sys.exit(1)

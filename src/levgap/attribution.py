@@ -1,0 +1,172 @@
+"""Peer baselines and driver contributions (pure functions).
+
+For each firm-year and measure the baseline is the median driver profile of the firm's
+industry peers in the same fiscal year, the firm itself excluded. For the linear model
+``target = offset + x'beta``, the contribution of driver ``j`` is
+``beta_j * (x_j - x_peer_j)``, and the contributions sum exactly to
+``target - peer_target`` with ``peer_target = offset + x_peer'beta``. With the peers' median
+actual ratio this splits ``actual - peer_median`` into the peers' own offset
+(``peer_target - peer_median``), each driver's contribution, and the unexplained ``gap``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from levgap.errors import ModelError
+
+IDENTITY_TOL = 1e-9
+
+
+def loo_median(values: np.ndarray, groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Median of each row's group with the row itself left out, from order statistics.
+
+    Parameters
+    ----------
+    values : numpy.ndarray of float, shape (n,)
+        Values; NaN values take no part (a NaN row gets the median of its whole group).
+    groups : numpy.ndarray of int, shape (n,)
+        Group code of each row.
+
+    Returns
+    -------
+    median : numpy.ndarray
+        Leave-one-out median (NaN when the group holds no other value).
+    count : numpy.ndarray of int
+        Number of values the median was taken over.
+    """
+    n = len(values)
+    med = np.full(n, np.nan)
+    cnt = np.zeros(n, dtype=np.int64)
+    ok = ~np.isnan(values)
+    idx = np.flatnonzero(ok)
+    if idx.size == 0:
+        return med, cnt
+    order = idx[np.lexsort((values[idx], groups[idx]))]
+    gs, vs = groups[order], values[order]
+    first = np.flatnonzero(np.r_[True, gs[1:] != gs[:-1]])
+    sizes = np.diff(np.r_[first, len(gs)])
+    start = np.repeat(first, sizes)
+    size = np.repeat(sizes, sizes)
+    rank = np.arange(len(gs)) - start
+    m = size - 1
+
+    def kth(j: np.ndarray) -> np.ndarray:
+        # j-th smallest of the group without the row itself
+        pos = start + j + (j >= rank)
+        return vs[np.clip(pos, 0, len(vs) - 1)]
+
+    half = m // 2
+    odd = kth(half)
+    even = 0.5 * (kth(np.maximum(half - 1, 0)) + kth(half))
+    loo = np.where(m % 2 == 1, odd, even)
+    loo[m == 0] = np.nan
+    med[order] = loo
+    cnt[order] = m
+    # Rows without a value: median of the whole group.
+    nan_rows = np.flatnonzero(~ok)
+    if nan_rows.size:
+        mid_lo = vs[first + (sizes - 1) // 2]
+        mid_hi = vs[first + sizes // 2]
+        full = 0.5 * (mid_lo + mid_hi)
+        pos = np.searchsorted(gs[first], groups[nan_rows])
+        pos_c = np.clip(pos, 0, len(first) - 1)
+        hit = gs[first][pos_c] == groups[nan_rows]
+        med[nan_rows] = np.where(hit, full[pos_c], np.nan)
+        cnt[nan_rows] = np.where(hit, sizes[pos_c], 0)
+    return med, cnt
+
+
+def peer_profile(
+    X: np.ndarray, levels: list[np.ndarray]
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Leave-one-out median profile of each row's peers, falling back through ``levels``.
+
+    Parameters
+    ----------
+    X : numpy.ndarray, shape (n, k)
+        Driver values.
+    levels : list of int arrays
+        Peer definitions from the narrowest (industry-year) to the widest (year); a row with
+        no peer at one level takes the next.
+
+    Returns
+    -------
+    profile : numpy.ndarray, shape (n, k)
+    count : numpy.ndarray of int
+        Peers the profile was taken over.
+    level : numpy.ndarray of int
+        Index into ``levels`` of the definition used.
+    """
+    n, k = X.shape
+    profile = np.full((n, k), np.nan)
+    count = np.zeros(n, dtype=np.int64)
+    used = np.full(n, -1, dtype=np.int64)
+    todo = np.ones(n, dtype=bool)
+    for li, g in enumerate(levels):
+        if not todo.any():
+            break
+        cols = [loo_median(X[:, j], g) for j in range(k)]
+        c = cols[0][1]
+        take = todo & (c > 0)
+        for j in range(k):
+            profile[take, j] = cols[j][0][take]
+        count[take] = c[take]
+        used[take] = li
+        todo &= ~take
+    return profile, count, used
+
+
+@dataclass(frozen=True, slots=True)
+class Attribution:
+    """Driver contributions of each row.
+
+    Parameters
+    ----------
+    peer_target : numpy.ndarray, shape (n,)
+        Model target at the peer profile.
+    contributions : numpy.ndarray, shape (n, k)
+        ``beta_j * (x_j - x_peer_j)``; each row sums to ``target - peer_target``.
+    """
+
+    peer_target: np.ndarray
+    contributions: np.ndarray
+
+
+def attribute_gap(
+    X: np.ndarray,
+    X_peer: np.ndarray,
+    beta: np.ndarray,
+    offset: np.ndarray,
+    target: np.ndarray,
+) -> Attribution:
+    """Exact contributions of a linear model, checked against the accounting identity.
+
+    Parameters
+    ----------
+    X, X_peer : numpy.ndarray, shape (n, k)
+        Firm and peer driver values.
+    beta : numpy.ndarray, shape (n, k)
+        Slopes of the fit that produced each row's target (the row's cross-fit fold).
+    offset : numpy.ndarray, shape (n,)
+        Constant plus fixed effects of each row in that fit.
+    target : numpy.ndarray, shape (n,)
+        The row's target, ``offset + X @ beta``.
+
+    Raises
+    ------
+    ModelError
+        If the contributions do not sum to ``target - peer_target`` within 1e-9.
+    """
+    contributions = beta * (X - X_peer)
+    peer_target = offset + np.einsum("ij,ij->i", X_peer, beta)
+    resid = target - peer_target - contributions.sum(axis=1)
+    bad = np.abs(resid) > IDENTITY_TOL
+    if bad.any():
+        raise ModelError(
+            f"driver contributions must sum to target - peer_target; got a difference of "
+            f"{np.abs(resid).max():.3g} on {int(bad.sum())} rows. Please report this."
+        )
+    return Attribution(peer_target=peer_target, contributions=contributions)

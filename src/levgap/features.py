@@ -1,0 +1,269 @@
+"""Leverage measures, drivers, winsorising and peer groups (pure functions).
+
+Definitions (DESIGN.md, "Measures and drivers"):
+
+- ``book`` = total_debt / total_assets
+- ``market`` = total_debt / (total_debt + market_equity)
+- ``tangibility`` = ppe_net / total_assets
+- ``profitability`` = ebitda / total_assets
+- ``earnings_volatility`` = standard deviation (ddof 1) of profitability over the firm's
+  trailing window of up to 5 fiscal years ending at the current year, with at least 3
+  observations; otherwise the industry-year median (else the year median), flagged
+  ``volatility_imputed``
+- ``size`` = ln(total_assets) in the reference currency
+- ``market_to_book`` = (total_assets - book_equity + market_equity) / total_assets; where
+  market equity is missing, the industry-year median, flagged ``mtb_imputed``
+- ``rd_intensity`` = rd_expense / total_assets, missing treated as zero with the indicator
+  driver ``rd_missing`` (common practice)
+
+Drivers are winsorised within fiscal year at the quantiles of ``ModelSpec.winsorize``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from levgap.config import ModelSpec
+
+VOL_WINDOW = 5
+VOL_MIN_OBS = 3
+POOLED = "(all industries)"
+
+
+@dataclass(frozen=True, slots=True)
+class Features:
+    """Measures and drivers, one row per firm-year.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        ``firm_id, firm_name, fiscal_year, industry, peer_group, effect_group, source_row,
+        flags, total_assets, total_debt, market_equity, book, market`` and one column per
+        driver, in the row order of the panel.
+    drivers : tuple of str
+        Driver columns, in model order.
+    borrowed : pandas.DataFrame
+        One row per peer group with fewer than ``min_industry_firms`` firms: ``industry``,
+        ``firms``, ``borrowed_from`` (a code prefix or the whole sample), ``members``
+        (the peer groups whose effects it averages).
+    """
+
+    frame: pd.DataFrame
+    drivers: tuple[str, ...]
+    borrowed: pd.DataFrame
+
+
+def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
+    """Compute measures and drivers for a validated panel.
+
+    Parameters
+    ----------
+    data : pandas.DataFrame
+        ``Panel.data``: schema-v1 columns, ``source_row`` and ``flags``.
+    spec : ModelSpec
+        Drivers, winsorising limits, lease treatment, peer grouping and minimum firms.
+
+    Returns
+    -------
+    Features
+    """
+    n = len(data)
+    f = pd.DataFrame(
+        {
+            "firm_id": data["firm_id"].astype(str).to_numpy(),
+            "firm_name": _text(data, "firm_name", n),
+            "fiscal_year": data["fiscal_year"].astype("int64").to_numpy(),
+            "industry": data["industry"].astype(str).to_numpy(),
+            "source_row": data["source_row"].to_numpy() if "source_row" in data
+            else np.arange(1, n + 1),
+            "flags": _text(data, "flags", n),
+        }
+    )
+    f["peer_group"] = peer_group(f["industry"], spec.peer_digits)
+    assets = data["total_assets"].to_numpy(dtype=float)
+    debt = data["total_debt"].to_numpy(dtype=float)
+    if spec.leases_as_debt:
+        leases = _num(data, "lease_liabilities", n)
+        missing = np.isnan(leases)
+        debt = debt + np.where(missing, 0.0, leases)
+        f["flags"] = add_flag(f["flags"], missing, "no_lease_data")
+    equity_mkt = _num(data, "market_equity", n)
+    f["total_assets"] = assets
+    f["total_debt"] = debt
+    f["market_equity"] = equity_mkt
+    f["book"] = debt / assets
+    denom = debt + equity_mkt
+    with np.errstate(invalid="ignore", divide="ignore"):
+        f["market"] = np.where(denom > 0, debt / denom, np.nan)
+
+    ind_year = pd.MultiIndex.from_arrays([f["peer_group"], f["fiscal_year"]])
+    profitability = data["ebitda"].to_numpy(dtype=float) / assets
+    raw: dict[str, np.ndarray] = {
+        "tangibility": data["ppe_net"].to_numpy(dtype=float) / assets,
+        "profitability": profitability,
+        "size": np.log(assets),
+    }
+    if "earnings_volatility" in spec.drivers:
+        vol = trailing_volatility(f["firm_id"].to_numpy(), f["fiscal_year"].to_numpy(),
+                                  profitability)
+        vol, imputed = impute_group_median(vol, ind_year, f["fiscal_year"].to_numpy())
+        raw["earnings_volatility"] = vol
+        f["flags"] = add_flag(f["flags"], imputed, "volatility_imputed")
+    if "market_to_book" in spec.drivers:
+        mtb = (assets - data["book_equity"].to_numpy(dtype=float) + equity_mkt) / assets
+        mtb, imputed = impute_group_median(mtb, ind_year, f["fiscal_year"].to_numpy())
+        raw["market_to_book"] = mtb
+        f["flags"] = add_flag(f["flags"], imputed, "mtb_imputed")
+    drivers = list(spec.drivers)
+    if "rd_intensity" in spec.drivers:
+        rd = _num(data, "rd_expense", n)
+        missing = np.isnan(rd)
+        raw["rd_intensity"] = np.where(missing, 0.0, rd) / assets
+        raw["rd_missing"] = missing.astype(float)
+        drivers.append("rd_missing")
+
+    lo, hi = spec.winsorize
+    years = f["fiscal_year"].to_numpy()
+    for name in drivers:
+        values = raw[name]
+        if name != "rd_missing" and (lo > 0.0 or hi < 1.0):
+            values = winsorize_by(values, years, lo, hi)
+        f[name] = values
+
+    groups, borrowed = effect_groups(f["peer_group"], f["firm_id"], spec.min_industry_firms)
+    f["effect_group"] = groups
+    return Features(frame=f, drivers=tuple(drivers), borrowed=borrowed)
+
+
+def peer_group(industry: pd.Series, digits: int) -> pd.Series:
+    """Peer group of each row: the industry code, or its first ``digits`` characters."""
+    industry = industry.astype(str).str.strip()
+    return industry if digits <= 0 else industry.str.slice(0, digits)
+
+
+def add_flag(flags: pd.Series, mask: np.ndarray, code: str) -> pd.Series:
+    """Append ``code`` to the ``;``-joined flags of the rows in ``mask``."""
+    flags = flags.astype(str)
+    if not mask.any():
+        return flags
+    out = flags.to_numpy(dtype=object).copy()
+    sel = np.asarray(mask, dtype=bool)
+    cur = out[sel]
+    out[sel] = np.where(cur == "", code, cur + ";" + code)
+    return pd.Series(out, index=flags.index, dtype=str)
+
+
+def trailing_volatility(firm: np.ndarray, year: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Sample standard deviation of ``values`` over each firm's trailing window.
+
+    The window holds the firm's observations with fiscal year in ``[t - 4, t]``; fewer than
+    three non-missing observations give NaN.
+    """
+    n = len(values)
+    order = np.lexsort((year, firm))
+    f, y, v = firm[order], year[order], values[order]
+    window = np.full((n, VOL_WINDOW), np.nan)
+    window[:, 0] = v
+    for k in range(1, VOL_WINDOW):
+        same = np.zeros(n, dtype=bool)
+        same[k:] = (f[k:] == f[:-k]) & (y[k:] - y[:-k] <= VOL_WINDOW - 1)
+        col = np.full(n, np.nan)
+        col[k:] = v[:-k]
+        window[:, k] = np.where(same, col, np.nan)
+    count = np.sum(~np.isnan(window), axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.nansum(window, axis=1) / count
+        ss = np.nansum((window - mean[:, None]) ** 2, axis=1)
+        sd = np.sqrt(ss / (count - 1))
+    sd[count < VOL_MIN_OBS] = np.nan
+    out = np.empty(n)
+    out[order] = sd
+    return out
+
+
+def impute_group_median(
+    values: np.ndarray, groups: pd.MultiIndex, year: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Fill NaN with the median of the row's group, else of its year, else of all rows."""
+    missing = np.isnan(values)
+    if not missing.any():
+        return values, missing
+    s = pd.Series(values)
+    by_group = s.groupby([groups.get_level_values(0), groups.get_level_values(1)]).transform(
+        "median"
+    )
+    by_year = s.groupby(year).transform("median")
+    filled = by_group.fillna(by_year).fillna(s.median()).to_numpy()
+    return np.where(missing, filled, values), missing
+
+
+def winsorize_by(values: np.ndarray, groups: np.ndarray, lo: float, hi: float) -> np.ndarray:
+    """Clip ``values`` to the ``lo`` and ``hi`` quantiles (linear interpolation) of its group."""
+    s = pd.Series(values)
+    g = s.groupby(groups)
+    low = g.transform("quantile", lo)
+    high = g.transform("quantile", hi)
+    return np.clip(values, low.to_numpy(), high.to_numpy())
+
+
+def effect_groups(
+    peer: pd.Series, firm: pd.Series, min_firms: int
+) -> tuple[np.ndarray, pd.DataFrame]:
+    """Assign each row the group that carries its industry effect.
+
+    A peer group with at least ``min_firms`` distinct firms carries its own effect. A smaller
+    one borrows: its rows take the average effect of the large groups that share the longest
+    leading part of its (numeric) code, else of the whole sample. The borrowed rows are marked
+    in the returned labels as ``"<parent>*"``.
+
+    Returns
+    -------
+    labels : numpy.ndarray of str
+        Own peer group for large groups; ``"<prefix>*"`` or ``"(all industries)"`` for small.
+    borrowed : pandas.DataFrame
+        ``industry, firms, borrowed_from, members`` for each small group.
+    """
+    firms = firm.groupby(peer.to_numpy()).nunique()
+    large = firms[firms >= min_firms].index.astype(str)
+    small = firms[firms < min_firms]
+    labels = peer.astype(str).to_numpy(dtype=object).copy()
+    rows = []
+    if len(large) == 0:
+        # Nothing to borrow from: every group keeps its own effect.
+        return labels.astype(str), pd.DataFrame(
+            columns=["industry", "firms", "borrowed_from", "members"]
+        )
+    for code, count in small.items():
+        code = str(code)
+        parent, members = POOLED, list(large)
+        if code.isdigit():
+            for cut in range(len(code) - 1, 0, -1):
+                prefix = code[:cut]
+                under = [g for g in large if g.startswith(prefix)]
+                if under:
+                    parent, members = prefix, under
+                    break
+        label = POOLED if parent == POOLED else parent + "*"
+        labels[labels == code] = label
+        rows.append(
+            {"industry": code, "firms": int(count), "borrowed_from": label,
+             "members": ";".join(sorted(members))}
+        )
+    return labels.astype(str), pd.DataFrame(
+        rows, columns=["industry", "firms", "borrowed_from", "members"]
+    )
+
+
+def _num(data: pd.DataFrame, col: str, n: int) -> np.ndarray:
+    if col in data:
+        return pd.to_numeric(data[col], errors="coerce").to_numpy(dtype=float)
+    return np.full(n, np.nan)
+
+
+def _text(data: pd.DataFrame, col: str, n: int) -> np.ndarray:
+    if col in data:
+        return data[col].fillna("").astype(str).to_numpy()
+    return np.full(n, "", dtype=object)

@@ -1,0 +1,458 @@
+"""``analyze``: panel in, targets, gaps and driver contributions out (in memory, no file I/O)."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import platform
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from levgap.attribution import attribute_gap, loo_median, peer_profile
+from levgap.config import ModelSpec, RunConfig
+from levgap.errors import ModelError
+from levgap.features import POOLED, Features, build_features
+from levgap.models import MODELS
+from levgap.models.crossfit import assign_folds, crossfit_targets
+from levgap.models.linear import Borrow
+from levgap.panel import EXCLUSION_COLUMNS, Panel
+from levgap.schema import SCHEMA_VERSION
+
+ProgressFn = Callable[[str, int, int], None]
+
+TARGET_COLUMNS = (
+    "firm_id", "firm_name", "fiscal_year", "industry", "measure", "actual", "target", "gap",
+    "gap_z", "band_low", "band_high", "status", "peer_median", "peer_count", "peer_target",
+    "debt_to_target", "flags",
+)
+DRIVER_COLUMNS = (
+    "firm_id", "fiscal_year", "measure", "driver", "firm_value", "peer_value", "contribution"
+)
+COEF_COLUMNS = (
+    "measure", "model", "term", "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high"
+)
+FIT_COLUMNS = (
+    "measure", "model", "n_obs", "n_firms", "n_industries", "r2", "r2_oos", "rmse_oos"
+)
+MAD_TO_SD = 1.4826  # scale of the median absolute deviation under normality (common practice)
+
+
+@dataclass(frozen=True, slots=True)
+class Analysis:
+    """Everything one run of levgap produces; every output table is built from these frames.
+
+    Parameters
+    ----------
+    targets : pandas.DataFrame
+        One row per firm-year and measure (columns ``TARGET_COLUMNS``).
+    drivers : pandas.DataFrame
+        One row per firm-year, measure and driver (``DRIVER_COLUMNS``).
+    coefficients : pandas.DataFrame
+        One row per measure, model and driver (``COEF_COLUMNS``), from the full-sample fit.
+    model_fit : pandas.DataFrame
+        One row per measure and model (``FIT_COLUMNS``).
+    exclusions : pandas.DataFrame
+        The ledger of rows left out of every measure (``measure`` empty) or of one measure.
+    manifest : dict
+        The run record written as ``run.json``.
+    """
+
+    targets: pd.DataFrame
+    drivers: pd.DataFrame
+    coefficients: pd.DataFrame
+    model_fit: pd.DataFrame
+    exclusions: pd.DataFrame
+    manifest: dict[str, Any] = field(default_factory=dict)
+
+    def tables(self) -> dict[str, pd.DataFrame]:
+        """The contract's tables by file stem."""
+        return {
+            "targets": self.targets,
+            "drivers": self.drivers,
+            "coefficients": self.coefficients,
+            "model_fit": self.model_fit,
+            "exclusions": self.exclusions,
+        }
+
+    def tidy(self) -> pd.DataFrame:
+        """The targets table, from which screens and charts are built."""
+        return self.targets
+
+    def write(
+        self,
+        out_dir: str | Path,
+        *,
+        fmt: str = "csv",
+        force: bool = False,
+        report: bool = True,
+        xlsx: bool = False,
+        inputs: tuple[str, ...] = (),
+    ) -> list[Path]:
+        """Write the output contract (and the HTML report, and a workbook on request).
+
+        Parameters
+        ----------
+        out_dir : str or Path
+            Output folder; created if absent. A folder holding files levgap did not write is
+            refused unless ``force``.
+        fmt : {"csv", "parquet"}, default="csv"
+        force : bool, default=False
+        report : bool, default=True
+            Also write ``report.html``.
+        xlsx : bool, default=False
+            Also write ``workbook.xlsx``.
+        inputs : tuple of str, default=()
+            Input files that must never be overwritten.
+        """
+        from levgap.report.tables import write_tables
+
+        out = Path(out_dir)
+        sources = list(inputs or [i["path"] for i in self.manifest.get("inputs", [])])
+        also = [Path(s).name for s in sources if Path(s).parent.resolve() == out.resolve()]
+        also += ["report.html"] if report else []
+        also += ["workbook.xlsx"] if xlsx else []
+        written = write_tables(self.tables(), self.manifest, out, fmt=fmt, force=force,
+                               inputs=sources, also=also)
+        if report:
+            from levgap.report.html import write_report
+
+            written.append(write_report(self.tables(), self.manifest, out_dir))
+        if xlsx:
+            from levgap.report.workbook import write_workbook
+
+            path = Path(out_dir) / "workbook.xlsx"
+            write_workbook(self.tables(), self.manifest, path)
+            written.append(path)
+        return written
+
+    def _repr_html_(self) -> str:
+        head = self.model_fit.to_html(index=False, float_format=lambda v: f"{v:.4f}")
+        return f"<p>levgap analysis: {len(self.targets)} target rows</p>{head}"
+
+
+def analyze(
+    panel: Panel | pd.DataFrame,
+    *,
+    config: RunConfig | None = None,
+    spec: ModelSpec | None = None,
+    progress: ProgressFn | None = None,
+) -> Analysis:
+    """Estimate targets, gaps, bands and driver contributions for every firm-year.
+
+    Parameters
+    ----------
+    panel : Panel or pandas.DataFrame
+        A panel from :func:`levgap.read_panel`, or a data frame in schema v1 (validated here).
+    config : RunConfig, optional
+        Run configuration; default settings when absent.
+    spec : ModelSpec, optional
+        Overrides ``config.model``.
+    progress : callable, optional
+        ``progress(stage, done, total)``, called as the cross-fit proceeds.
+
+    Returns
+    -------
+    Analysis
+    """
+    config = config or RunConfig()
+    if spec is not None:
+        config = replace(config, model=spec)
+    spec = config.model
+    if not isinstance(panel, Panel):
+        from levgap.ingest import validate_panel
+
+        panel = validate_panel(panel, config=config)
+    if len(panel.data) == 0:
+        raise ModelError(
+            f"{panel.source}: no usable rows remain after validation; see the exclusion ledger."
+        )
+    feats = build_features(panel.data, spec)
+    fit_fn = MODELS[spec.model]
+    frame = feats.frame
+    X_all = frame[list(feats.drivers)].to_numpy(dtype=float)
+
+    year_codes, years = pd.factorize(frame["fiscal_year"], sort=True)
+    peer_codes, _ = pd.factorize(frame["peer_group"], sort=True)
+    eff_codes, eff_parent, members, n_large = _effect_codes(frame, feats)
+    firm_codes, _ = pd.factorize(frame["firm_id"], sort=True)
+    ind_codes, _ = pd.factorize(frame["industry"], sort=True)
+
+    # Peer profile: industry-year peers without the firm; else its effect group; else the year.
+    pg_year = peer_codes.astype(np.int64) * len(years) + year_codes
+    eg_codes, _ = pd.factorize(frame["effect_group"], sort=True)
+    eg_year = eg_codes.astype(np.int64) * len(years) + year_codes
+    X_peer, peer_n, _ = peer_profile(X_all, [pg_year, eg_year, year_codes.astype(np.int64)])
+
+    targets, drivers, coefs, fits = [], [], [], []
+    ledger = [panel.exclusions]
+    warnings = list(panel.warnings)
+    for measure in spec.measures:
+        y_all = frame[measure].to_numpy(dtype=float)
+        use = np.isfinite(y_all)
+        if measure == "market" and (~use).any():
+            ledger.append(_measure_ledger(frame, ~use, measure))
+        if use.sum() == 0:
+            warnings.append(f"{measure}: no row has the data this measure needs; skipped.")
+            continue
+        rows = np.flatnonzero(use)
+        y, X = y_all[rows], X_all[rows]
+        effects = [eff_codes[rows], year_codes[rows]]
+        borrow = [Borrow(parent=eff_parent[rows], members=members), None]
+        n_levels = [n_large, len(years)]
+        clusters = _clusters(spec.cluster, firm_codes[rows], year_codes[rows], ind_codes[rows])
+        full = fit_fn(y, X, effects=effects, borrow=borrow, n_levels=n_levels,
+                      clusters=clusters, names=feats.drivers)
+        folds = assign_folds(firm_codes[rows], np.where(eff_codes[rows] >= 0, eff_codes[rows],
+                                                        n_large + eff_parent[rows]),
+                             spec.folds, spec.seed)
+        step = (lambda d, t, m=measure: progress(f"cross-fit {m}", d, t)) if progress else None
+        cf = crossfit_targets(fit_fn, y, X, effects=effects, borrow=borrow, n_levels=n_levels,
+                              folds=folds, names=feats.drivers, progress=step)
+        attr = attribute_gap(X, X_peer[rows], cf.beta, cf.offset, cf.target)
+
+        resid = y - cf.target
+        a = (1.0 - spec.coverage) / 2.0
+        q_lo, q_hi = np.quantile(resid, [a, 1.0 - a])
+        scale = MAD_TO_SD * np.median(np.abs(resid - np.median(resid)))
+        peer_med, _ = loo_median(y_all, pg_year)
+        gap = y - cf.target
+        band_low, band_high = cf.target + q_lo, cf.target + q_hi
+        status = np.where(y > band_high, "over", np.where(y < band_low, "under", "within"))
+        sub = frame.iloc[rows]
+        t = pd.DataFrame(
+            {
+                "firm_id": sub["firm_id"].to_numpy(),
+                "firm_name": sub["firm_name"].to_numpy(),
+                "fiscal_year": sub["fiscal_year"].to_numpy(),
+                "industry": sub["industry"].to_numpy(),
+                "measure": measure,
+                "actual": y,
+                "target": cf.target,
+                "gap": gap,
+                "gap_z": gap / scale if scale > 0 else np.full(len(y), np.nan),
+                "band_low": band_low,
+                "band_high": band_high,
+                "status": status,
+                "peer_median": peer_med[rows],
+                "peer_count": peer_n[rows],
+                "peer_target": attr.peer_target,
+                "debt_to_target": _debt_to_target(measure, sub, cf.target),
+                "flags": sub["flags"].to_numpy(),
+            }
+        )
+        d = _drivers_long(sub, measure, feats.drivers, X, X_peer[rows], attr.contributions)
+        if spec.year is not None:
+            t = t[t["fiscal_year"] == spec.year]
+            d = d[d["fiscal_year"] == spec.year]
+        targets.append(t)
+        drivers.append(d)
+        coefs.append(_coef_frame(full, measure, spec.model))
+        tss = float(((y - y.mean()) ** 2).sum())
+        fits.append(
+            {
+                "measure": measure,
+                "model": spec.model,
+                "n_obs": int(len(y)),
+                "n_firms": int(len(np.unique(firm_codes[rows]))),
+                "n_industries": int(len(np.unique(ind_codes[rows]))),
+                "r2": full.r2,
+                "r2_oos": 1.0 - float(resid @ resid) / tss if tss > 0 else float("nan"),
+                "rmse_oos": float(np.sqrt(np.mean(resid**2))),
+            }
+        )
+
+    if not targets:
+        raise ModelError(f"{panel.source}: no measure could be estimated; see warnings.")
+    targets_df = pd.concat(targets, ignore_index=True)
+    drivers_df = pd.concat(drivers, ignore_index=True)
+    exclusions = _concat_ledger(ledger)
+    manifest = _manifest(panel, config, feats, frame, exclusions, warnings)
+    return Analysis(
+        targets=targets_df,
+        drivers=drivers_df,
+        coefficients=pd.concat(coefs, ignore_index=True),
+        model_fit=pd.DataFrame(fits, columns=list(FIT_COLUMNS)),
+        exclusions=exclusions,
+        manifest=manifest,
+    )
+
+
+def _effect_codes(
+    frame: pd.DataFrame, feats: Features
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Codes of large groups, parent ids of borrowing rows, and parents' member matrix."""
+    borrowed = feats.borrowed
+    small = set(borrowed["industry"].astype(str))
+    peer = frame["peer_group"].astype(str).to_numpy()
+    is_small = np.isin(peer, list(small)) if small else np.zeros(len(peer), dtype=bool)
+    large_labels = np.unique(peer[~is_small])
+    codes = np.full(len(peer), -1, dtype=np.int64)
+    codes[~is_small] = np.searchsorted(large_labels, peer[~is_small])
+    parents = sorted(set(borrowed["borrowed_from"])) if len(borrowed) else []
+    members = np.zeros((max(len(parents), 1), len(large_labels)), dtype=bool)
+    parent_of = np.full(len(peer), -1, dtype=np.int64)
+    for _, row in borrowed.iterrows():  # one row per small industry, a handful
+        pid = parents.index(row["borrowed_from"])
+        names = [m for m in str(row["members"]).split(";") if m]
+        members[pid, np.searchsorted(large_labels, names)] = True
+        parent_of[peer == row["industry"]] = pid
+    if len(large_labels) == 0:
+        raise ModelError("the panel needs at least one industry with its own effect.")
+    return codes, parent_of, members, len(large_labels)
+
+
+def _clusters(kind: str, firm: np.ndarray, year: np.ndarray, industry: np.ndarray) -> tuple:
+    return {
+        "firm": (firm,),
+        "firm-year": (firm, year),
+        "industry": (industry,),
+    }[kind]
+
+
+def _measure_ledger(frame: pd.DataFrame, mask: np.ndarray, measure: str) -> pd.DataFrame:
+    sub = frame.loc[mask]
+    return pd.DataFrame(
+        {
+            "source_row": sub["source_row"].to_numpy(dtype=np.int64),
+            "firm_id": sub["firm_id"].to_numpy(),
+            "fiscal_year": sub["fiscal_year"].to_numpy(),
+            "measure": measure,
+            "reason": "no_market_equity",
+            "detail": "market leverage needs market_equity (or shares_outstanding and "
+            "share_price); the row is used for book leverage only",
+        }
+    )
+
+
+def _concat_ledger(parts: list[pd.DataFrame]) -> pd.DataFrame:
+    parts = [p for p in parts if len(p)]
+    if not parts:
+        from levgap.panel import empty_exclusions
+
+        return empty_exclusions()
+    out = pd.concat([p.reindex(columns=list(EXCLUSION_COLUMNS)) for p in parts],
+                    ignore_index=True)
+    out["measure"] = out["measure"].fillna("").astype(str)
+    return out.sort_values(["source_row", "measure"], kind="stable", ignore_index=True)
+
+
+def _debt_to_target(measure: str, sub: pd.DataFrame, target: np.ndarray) -> np.ndarray:
+    debt = sub["total_debt"].to_numpy(dtype=float)
+    if measure == "book":
+        return (target - sub["book"].to_numpy(dtype=float)) * sub["total_assets"].to_numpy(
+            dtype=float
+        )
+    equity = sub["market_equity"].to_numpy(dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        wanted = np.where(target < 1.0, target * equity / (1.0 - target), np.nan)
+    return np.where(target < 0.0, -debt, wanted - debt)
+
+
+def _drivers_long(
+    sub: pd.DataFrame,
+    measure: str,
+    names: tuple[str, ...],
+    X: np.ndarray,
+    X_peer: np.ndarray,
+    contrib: np.ndarray,
+) -> pd.DataFrame:
+    n, k = X.shape
+    return pd.DataFrame(
+        {
+            "firm_id": np.repeat(sub["firm_id"].to_numpy(), k),
+            "fiscal_year": np.repeat(sub["fiscal_year"].to_numpy(), k),
+            "measure": measure,
+            "driver": np.tile(np.array(names, dtype=object), n),
+            "firm_value": X.reshape(-1),
+            "peer_value": X_peer.reshape(-1),
+            "contribution": contrib.reshape(-1),
+        }
+    )
+
+
+def _coef_frame(fit: Any, measure: str, model: str) -> pd.DataFrame:
+    tidy = fit.tidy()
+    df = pd.DataFrame(tidy)
+    df = df[df["term"] != "const"]
+    df.insert(0, "model", model)
+    df.insert(0, "measure", measure)
+    return df.reset_index(drop=True)[list(COEF_COLUMNS)]
+
+
+def _manifest(
+    panel: Panel,
+    config: RunConfig,
+    feats: Features,
+    frame: pd.DataFrame,
+    exclusions: pd.DataFrame,
+    warnings: list[str],
+) -> dict[str, Any]:
+    whole = exclusions[exclusions["measure"] == ""]
+    by_reason = whole["reason"].value_counts().sort_index()
+    by_measure = exclusions[exclusions["measure"] != ""].groupby(
+        ["measure", "reason"]).size()
+    versions = {}
+    for pkg in ("levgap", "numpy", "pandas", "scipy", "statsmodels", "pyarrow"):
+        try:
+            versions[pkg] = version(pkg)
+        except PackageNotFoundError:
+            versions[pkg] = None
+    versions["python"] = platform.python_version()
+    borrowed = [
+        {
+            "industry": r["industry"],
+            "firms": int(r["firms"]),
+            "borrowed_from": "whole sample" if r["borrowed_from"] == POOLED
+            else f"industries with code prefix {r['borrowed_from'][:-1]}",
+            "members": r["members"].split(";"),
+        }
+        for _, r in feats.borrowed.iterrows()
+    ]
+    return {
+        "levgap_version": versions["levgap"],
+        "schema_version": SCHEMA_VERSION,
+        "inputs": [{"path": panel.source, "sha256": panel.sha256, "rows": panel.n_input_rows}],
+        "options": config.to_dict(),
+        "drivers": list(feats.drivers),
+        "versions": versions,
+        "counts": {
+            "rows_in": int(panel.n_input_rows or (len(panel.data) + len(whole))),
+            "rows_used": int(len(panel.data)),
+            "rows_excluded": int(len(whole)),
+            "firms": int(frame["firm_id"].nunique()),
+            "industries": int(frame["industry"].nunique()),
+            "years": sorted(int(y) for y in frame["fiscal_year"].unique()),
+            "by_reason": {str(k): int(v) for k, v in by_reason.items()},
+            "measure_omissions": {f"{m}:{r}": int(v) for (m, r), v in by_measure.items()},
+        },
+        "borrowed_industries": borrowed,
+        "standard_errors": {
+            "cluster": config.model.cluster,
+            "convention": "Stata-style small-sample factor G/(G-1)*(N-1)/(N-P) for each "
+            "clustering dimension; two-way = V_firm + V_year - V_firm-year, each with its own "
+            "factor (the convention of Petersen's published figures)",
+        },
+        "band": {"coverage": config.model.coverage,
+                 "method": "empirical quantiles of the cross-fitted residuals"},
+        "warnings": list(warnings),
+    }
+
+
+def digest(path: str | Path) -> str:
+    """SHA-256 of a file, for the run record."""
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def dumps_manifest(manifest: dict[str, Any]) -> str:
+    """The run record as JSON text."""
+    return json.dumps(manifest, indent=2, default=str)
