@@ -5,6 +5,8 @@ Safety rules, each tested:
 - text cells that a spreadsheet would run as a formula (starting with ``=``, ``+``, ``-``,
   ``@``, a tab or a carriage return) get a leading apostrophe (the usual guidance against
   spreadsheet formula injection); numeric columns are untouched;
+- CSV lines end in CRLF (RFC 4180), so that the csv writer quotes any cell holding a
+  carriage return or a line feed;
 - every file is written to a temporary name in the target folder and renamed over the
   target (``os.replace``), so a reader never sees half a file;
 - a folder that holds files levgap did not write is refused unless ``force=True``; levgap
@@ -298,7 +300,7 @@ def _atomic_table(frame: pd.DataFrame, target: Path, fmt: str) -> None:
     else:
         _atomic(
             target,
-            lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8", lineterminator="\n"),
+            lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8", lineterminator="\r\n"),
         )
 
 
