@@ -14,7 +14,7 @@ A run configuration has four tables; every key is optional::
     skip_rows = 0        # lines above the header
 
     [units]
-    scale = 1.0          # multiply every money column by this (e.g. 0.001 for thousands -> millions)
+    scale = 1.0          # multiply every money column by this (0.001: thousands -> millions)
     currency = "EUR"     # reference currency, for the record
 
     [model]
@@ -72,6 +72,33 @@ class InputOptions:
     sheet: str | None = None
     skip_rows: int = 0
 
+    def __post_init__(self) -> None:
+        for name in ("delimiter", "decimal", "thousands"):
+            v = getattr(self, name)
+            if v is not None and (not isinstance(v, str) or len(v) != 1 or v in "\r\n\""):
+                raise ConfigError(
+                    f"[input] {name} must be one character (not a quote or line break); "
+                    f"got {v!r}."
+                )
+        if self.decimal in (self.delimiter, self.thousands) or (
+            self.thousands is not None and self.thousands == self.delimiter
+        ):
+            raise ConfigError(
+                f"[input] decimal, thousands and delimiter must differ; got decimal "
+                f"{self.decimal!r}, thousands {self.thousands!r}, delimiter {self.delimiter!r}."
+            )
+        if self.decimal.isalnum() or (self.thousands or "").isalnum():
+            raise ConfigError(
+                f"[input] decimal and thousands must not be letters or digits; got "
+                f"{self.decimal!r} and {self.thousands!r}."
+            )
+        for name in ("encoding", "sheet"):
+            v = getattr(self, name)
+            if v is not None and (not isinstance(v, str) or not v):
+                raise ConfigError(f"[input] {name} must be a non-empty text; got {v!r}.")
+        if self.skip_rows < 0:
+            raise ConfigError(f"[input] skip_rows must be 0 or more; got {self.skip_rows}.")
+
 
 @dataclass(frozen=True, slots=True)
 class Units:
@@ -87,6 +114,16 @@ class Units:
 
     scale: float = 1.0
     currency: str | None = None
+
+    def __post_init__(self) -> None:
+        if not (isinstance(self.scale, int | float) and 0 < self.scale < float("inf")):
+            raise ConfigError(f"[units] scale must be a number > 0; got {self.scale!r}.")
+        if self.currency is not None and (
+            not isinstance(self.currency, str) or not self.currency.strip()
+        ):
+            raise ConfigError(
+                f"[units] currency must be a code such as 'EUR'; got {self.currency!r}."
+            )
 
 
 @dataclass(frozen=True, slots=True)
@@ -269,3 +306,7 @@ def _build(kind: type, values: Any, table: str, where: str) -> Any:
         return kind(**kwargs)
     except TypeError as exc:
         raise ConfigError(f"{where}[{table}]: {exc}.") from None
+    except ConfigError as exc:
+        if where and not str(exc).startswith(where):
+            raise ConfigError(f"{where}{exc}") from None
+        raise
