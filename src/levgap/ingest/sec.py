@@ -58,7 +58,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from levgap.errors import ConfigError, OutputError, SchemaError
-from levgap.ingest.sec_files import Quarter, locate_quarter, read_filtered
+from levgap.ingest.sec_files import BatchFilter, Quarter, locate_quarter, read_filtered
 from levgap.ingest.sec_tags import (
     COVER_SHARES,
     DEI_TAGS,
@@ -455,10 +455,12 @@ def _choose_submissions(
     return sel.reset_index(drop=True)
 
 
-def _read_facts(
-    quarters: Sequence[Quarter], chosen: pd.DataFrame, notes: list[str]
-) -> tuple[pd.DataFrame, pd.DataFrame]:
-    adsh_set = pa.array(chosen["adsh"].to_numpy(dtype=str), pa.string())
+def _fact_filters(adsh_set: pa.Array) -> tuple[BatchFilter, BatchFilter]:
+    """Block filters of num.txt and pre.txt: the chosen submissions and the needed tags.
+
+    Consolidated facts only (empty ``coreg``; empty ``segments``, except for the cover-page
+    share count, which some filers give per class of stock) with a non-empty value.
+    """
     tag_set = pa.array(list(NEEDED_TAGS), pa.string())
     shares_tag = DEI_TAGS[0]
 
@@ -480,8 +482,20 @@ def _read_facts(
         return pc.and_(pc.is_in(col("adsh"), value_set=adsh_set),
                        pc.is_in(col("tag"), value_set=tag_set))
 
+    return keep_num, keep_pre
+
+
+def _read_facts(
+    quarters: Sequence[Quarter], chosen: pd.DataFrame, notes: list[str]
+) -> tuple[pd.DataFrame, pd.DataFrame]:
     facts, pres, hidden = [], [], []
-    for q in quarters:
+    for i, q in enumerate(quarters):
+        # Each submission's facts are read from the quarter its sub.txt row came from, so a
+        # quarter given twice is not counted twice; a quarter with nothing chosen is skipped.
+        mine = chosen.loc[chosen["quarter"] == i, "adsh"].to_numpy(dtype=str)
+        if not len(mine):
+            continue
+        keep_num, keep_pre = _fact_filters(pa.array(mine, pa.string()))
         table, report = read_filtered(q, "num", _NUM_COLUMNS, keep_num)
         notes.extend(report.messages(q.where("num")))
         facts.append(table)
@@ -496,6 +510,8 @@ def _read_facts(
             flagged = (t["custom"].astype(str).str.strip() == "1") | (
                 t["abstract"].astype(str).str.strip() == "1")
             hidden.append(t.loc[flagged & t["tag"].isin(NEEDED_TAGS), ["tag", "version"]])
+    if not facts:
+        facts = [pa.table({c: pa.array([], pa.string()) for c in _NUM_COLUMNS})]
     fact_frame = pa.concat_tables(facts).to_pandas()
     fact_frame = fact_frame.astype({c: object for c in fact_frame.columns})
     if hidden:
