@@ -2,6 +2,6 @@
 
 from __future__ import annotations
 
-from levgap.report.tables import neutralise, read_outputs, write_tables
+from levgap.report.tables import neutralise, read_outputs, write_tables, write_template
 
-__all__ = ["neutralise", "read_outputs", "write_tables"]
+__all__ = ["neutralise", "read_outputs", "write_tables", "write_template"]

@@ -22,7 +22,7 @@ import json
 import math
 import os
 import re
-import tempfile
+import secrets
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
@@ -252,6 +252,55 @@ def read_outputs(out_dir: str | Path) -> tuple[dict[str, pd.DataFrame], dict[str
     return tables, manifest
 
 
+def write_template(out_dir: str | Path, *, force: bool = False) -> list[Path]:
+    """Write the input template: ``panel_template.csv``, ``README.md`` and ``run.toml``.
+
+    The files are generated from ``levgap.schema`` (see ``levgap.ingest.template``), so they
+    need no repository checkout.
+
+    Parameters
+    ----------
+    out_dir : str or pathlib.Path
+        Folder to write into; created if absent.
+    force : bool, default=False
+        Replace files of the same names.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files written.
+
+    Raises
+    ------
+    OutputError
+        A file of the same name exists (without ``force``), or the folder is not writable.
+    """
+    from levgap.ingest.template import template_files
+
+    out = Path(out_dir)
+    files = template_files()
+    if out.exists() and not out.is_dir():
+        raise OutputError(f"{out}: the template folder must be a folder; got a file.")
+    clash = [n for n in files if (out / n).exists()]
+    if clash and not force:
+        raise OutputError(
+            f"{out}: template files must not replace existing files; got {', '.join(clash)}. "
+            "Choose another --out or pass --force."
+        )
+    written = []
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        for name, text in files.items():
+            _atomic_text(out / name, text)
+            written.append(out / name)
+    except OSError as exc:
+        raise OutputError(
+            f"{out}: the template must be writable; got {exc.strerror or exc}. Choose another "
+            "--out."
+        ) from None
+    return written
+
+
 # ---------------------------------------------------------------------------------------------
 
 
@@ -305,9 +354,8 @@ def _atomic_table(frame: pd.DataFrame, target: Path, fmt: str) -> None:
 
 
 def _atomic(target: Path, write: Any) -> None:
-    fd, name = tempfile.mkstemp(prefix=".levgap-tmp-", suffix=target.suffix, dir=target.parent)
-    os.close(fd)
-    tmp = Path(name)
+    # a fresh random name rather than mkstemp, so the file gets the user's usual permissions
+    tmp = target.parent / f".levgap-tmp-{secrets.token_hex(8)}{target.suffix}"
     try:
         write(tmp)
         umask = os.umask(0)

@@ -1,0 +1,222 @@
+"""The input template, generated from ``schema.py``: a CSV, its README and an example run.toml.
+
+``levgap template`` writes these three files (``levgap.report.tables.write_template``); the
+repository's ``data_templates/`` holds the same text and a test keeps the two identical, so
+the documentation cannot drift from the schema the reader enforces.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+
+from levgap.ingest.validate import FLAGS, NA_TOKENS, REASONS, YEAR_RANGE
+from levgap.schema import COLUMNS, SCHEMA_VERSION
+
+TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml")
+
+# Invented example rows (a fictitious axle maker and a fictitious food co-operative); the
+# first row is the schema's own examples.
+_EXTRA_ROWS: tuple[dict[str, str], ...] = (
+    {
+        "firm_id": "NRD-001", "fiscal_year": "2022", "industry": "3714",
+        "total_assets": "1588.1", "total_debt": "398.6", "ppe_net": "625.3", "ebitda": "201.7",
+        "book_equity": "741.0", "firm_name": "Nordvik Axle Works", "market_equity": "",
+        "shares_outstanding": "50.0", "share_price": "21.40", "revenue": "1377.5",
+        "cash": "88.0", "interest_expense": "20.1", "rd_expense": "13.5",
+        "lease_liabilities": "38.2", "currency": "EUR", "fx_rate": "1.0",
+    },
+    {
+        "firm_id": "0457", "fiscal_year": "2022", "industry": "2041",
+        "total_assets": "318.0", "total_debt": "0", "ppe_net": "142.6", "ebitda": "-6.4",
+        "book_equity": "-12.5", "firm_name": "Sunfield Mill Cooperative", "market_equity": "",
+        "shares_outstanding": "", "share_price": "", "revenue": "402.9", "cash": "",
+        "interest_expense": "", "rd_expense": "", "lease_liabilities": "", "currency": "EUR",
+        "fx_rate": "1.0",
+    },
+)
+
+
+def template_csv() -> str:
+    """The template panel: every schema-v1 column in order and three invented rows.
+
+    Returns
+    -------
+    str
+        CSV text (comma-separated, ``\\n`` line ends).
+    """
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow([c.name for c in COLUMNS])
+    writer.writerow([c.example for c in COLUMNS])
+    for row in _EXTRA_ROWS:
+        writer.writerow([row[c.name] for c in COLUMNS])
+    return buf.getvalue()
+
+
+def _minimum(c) -> str:  # type: ignore[no-untyped-def]
+    if c.minimum is None:
+        return "any"
+    return f"> {c.minimum:g}" if c.strict else f">= {c.minimum:g}"
+
+
+def template_readme() -> str:
+    """The template's README: columns, number formats, row numbers, reason codes and flags.
+
+    Returns
+    -------
+    str
+        Markdown text.
+    """
+    lo, hi = YEAR_RANGE
+    cols = "\n".join(
+        f"| `{c.name}` | {'yes' if c.required else 'no'} | {c.kind} | {c.unit} | "
+        f"{_minimum(c) if c.kind != 'text' else '-'} | {c.meaning} |"
+        for c in COLUMNS
+    )
+    reasons = "\n".join(f"| `{k}` | {v} |" for k, v in REASONS.items())
+    flags = "\n".join(f"| `{k}` | {v} |" for k, v in FLAGS.items())
+    blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"
+    return f"""# levgap input template (schema v{SCHEMA_VERSION})
+
+`panel_template.csv` shows the layout levgap reads: one row per firm and fiscal year,
+`firm_id` + `fiscal_year` unique. The example rows are invented. `run.toml` is an annotated
+run configuration (`levgap analyze PANEL --config run.toml`); every key in it is optional.
+
+Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without BOM), Parquet
+or XLSX (the first sheet, or `[input] sheet`). Headers may differ from the column names below
+in case, spaces, `-` and `_` (`Total Assets` matches `total_assets`); other headers are mapped
+in `[columns]` of `run.toml`. Columns that are not in the schema are ignored (and listed in
+`run.json`).
+
+## Columns
+
+Money columns share one currency and unit within a file (for example millions). They are
+multiplied by `[units] scale` and, where given, by `fx_rate`, to reach the reference unit and
+currency; outputs are in that unit.
+
+| column | required | type | unit | allowed | meaning |
+|---|---|---|---|---|---|
+{cols}
+
+- `firm_id`, `industry`, `firm_name` and `currency` are text: leading zeros are kept
+  (`0457` stays `0457`); surrounding spaces are removed.
+- `fiscal_year` must be a whole number between {lo} and {hi} (`2021` or `2021.0`).
+- Numbers use `.` as the decimal mark unless `[input] decimal` says otherwise, and no
+  thousands separator unless `[input] thousands` gives one (a space there also accepts
+  no-break spaces). Exponents (`1.5e3`) are accepted.
+- Blank values: {blanks} (case ignored) are read as a blank, not as text.
+- `market_equity`: when blank, `shares_outstanding * share_price` is used where both are
+  given.
+- `currency` and `fx_rate`: when several currencies appear, a file without an `fx_rate` column
+  is refused; with the column, rows whose currency is not `[units] currency` need a value.
+  A blank `fx_rate` otherwise counts as 1.
+
+## What happens to each row
+
+Every data row ends in exactly one place: used, or listed in `exclusions.csv` with its
+`source_row`, a reason code and a detail naming the columns and values. `source_row` is the
+1-based data row of the input: the first row below the header is 1. Blank rows (empty lines,
+or rows whose every cell is empty) are counted in this numbering but are not data rows and are
+not listed; a quoted cell spanning several lines is one row; lines skipped with
+`[input] skip_rows` (and blank lines above the header) are not counted. In a spreadsheet the
+row number is therefore `source_row + 1 + skip_rows`.
+
+### Reason codes (the row is left out of every measure)
+
+A row gets the first code that applies, in this order; the detail lists every problem found.
+
+| reason | meaning |
+|---|---|
+{reasons}
+
+Exact copies are compared value by value after reading (`30` and `30.0` are the same).
+A firm-year that appears in rows which differ is left out entirely: levgap cannot tell
+which copy is right.
+
+Rows left out of one measure only (for example no market equity, so no `market` target) are
+listed in `exclusions.csv` with that measure in the `measure` column.
+
+### Flags (the row is kept)
+
+Flags appear, `;`-joined, in the `flags` column of the outputs.
+
+| flag | meaning |
+|---|---|
+{flags}
+
+Optional numbers that are not numbers, or below their allowed minimum, are treated as blank,
+the row is flagged `invalid_<column>`, and a warning names the rows.
+
+## Whole-file errors (exit code 2, one line naming the file)
+
+- a required column is missing (the message lists the missing columns and the columns found);
+- a `[columns]` entry names a header the file lacks, or a column matches several headers;
+- several currencies without an `fx_rate` column;
+- the file cannot be read: not CSV/Parquet/XLSX, an unclosed quote in the header, a row with
+  more or fewer fields than the header (the message names the row), bytes that are not text
+  in the configured `[input] encoding`. Without a configured encoding, text that is not UTF-8
+  is read as Windows-1252/Latin-1 with a warning.
+"""
+
+
+TEMPLATE_TOML = """\
+# levgap run configuration (TOML). Every table and key is optional; the values shown are the
+# defaults unless marked "example". Unknown tables or keys are an error naming the allowed ones.
+# Use: levgap analyze panel.csv --config run.toml --out results/
+
+[columns]
+# schema column = "the header in your file". Headers that differ from the schema names only in
+# case, spaces, "-" or "_" are matched without an entry here. Examples:
+# firm_id = "Ticker"
+# fiscal_year = "FY"
+# industry = "SIC code"
+# total_assets = "Total assets (EUR k)"
+# total_debt = "Debt (m)"
+# ppe_net = "Net PP&E"
+# ebitda = "EBITDA"
+# book_equity = "Shareholders' equity"
+# market_equity = "Market cap"
+
+[input]
+# delimiter = ";"       # CSV field separator; default: detected from the header line
+decimal = "."           # decimal mark of numbers ("," for many European exports)
+# thousands = "."       # thousands separator, if numbers carry one (" " also takes no-break spaces)
+# encoding = "latin-1"  # default: UTF-8 (BOM allowed), else Windows-1252/Latin-1 with a warning
+# sheet = "Panel"       # XLSX only; default: the first sheet
+skip_rows = 0           # lines above the header line (titles, notes)
+
+[units]
+scale = 1.0             # every money column is multiplied by this (0.001: thousands -> millions)
+# currency = "EUR"      # reference currency; rows in it need no fx_rate
+
+[model]
+measures = ["book", "market"]  # book = debt / assets; market = debt / (debt + market equity)
+cluster = "firm"               # standard errors clustered by "firm", "firm-year" or "industry"
+winsorize = [0.01, 0.99]       # drivers clipped at these quantiles within each fiscal year
+min_industry_firms = 5         # smaller industries borrow their effect from a parent group
+peer_digits = 0                # 0: industry code as given; n: peers share its first n characters
+drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
+                               # also available: "rd_intensity"
+leases_as_debt = false         # add lease_liabilities to total_debt
+folds = 5                      # grouped cross-fit folds (by firm)
+seed = 0                       # seed of the fold assignment
+coverage = 0.8                 # coverage of the band around each target
+model = "linear"               # fit function
+# year = 2023                  # report only this fiscal year (the model uses every year)
+"""
+"""Annotated example ``run.toml``; parses to the default configuration."""
+
+
+def template_files() -> dict[str, str]:
+    """File name -> text of the three template files.
+
+    Returns
+    -------
+    dict of str to str
+    """
+    return {
+        "panel_template.csv": template_csv(),
+        "README.md": template_readme(),
+        "run.toml": TEMPLATE_TOML,
+    }
