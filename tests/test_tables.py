@@ -133,3 +133,21 @@ def test_no_temp_files_left(tmp_path):
     write_tables(_tables(), {"x": 1}, out)
     assert not [n for n in os.listdir(out) if n.startswith(".levgap-tmp-")]
     assert json.loads((out / "run.json").read_text()) == {"x": 1}
+
+
+def test_files_get_the_usual_mode(tmp_path):
+    umask = os.umask(0o022)
+    try:
+        written = write_tables(_tables(), {}, tmp_path / "o")
+    finally:
+        os.umask(umask)
+    for p in written:
+        assert p.stat().st_mode & 0o777 == 0o644
+
+
+def test_also_names_are_recorded_not_foreign(tmp_path):
+    out = tmp_path / "o"
+    write_tables(_tables(), {}, out, also=["report.html"])
+    (out / "report.html").write_text("<html></html>")
+    write_tables(_tables(), {}, out, also=["report.html"])
+    assert (out / "report.html").exists()

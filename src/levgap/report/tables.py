@@ -358,9 +358,6 @@ def _atomic(target: Path, write: Any) -> None:
     tmp = target.parent / f".levgap-tmp-{secrets.token_hex(8)}{target.suffix}"
     try:
         write(tmp)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)  # mkstemp creates 0600; give the usual file mode
         os.replace(tmp, target)
     finally:
         with contextlib.suppress(FileNotFoundError):
