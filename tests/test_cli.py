@@ -1,0 +1,167 @@
+"""The command line: every command answers, every error path is one line and exit 2."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from levgap.cli import app
+from levgap.demo import make_panel
+
+runner = CliRunner()
+COMMANDS = ("demo", "analyze", "screen", "explain", "check", "template")
+
+
+def _one_line_error(result, pattern: str) -> None:
+    assert result.exit_code == 2, result.output
+    assert "Traceback" not in result.output
+    lines = [ln for ln in result.output.strip().splitlines() if ln.strip()]
+    assert any(pattern in ln for ln in lines), result.output
+
+
+@pytest.fixture(scope="module")
+def panel_csv(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    path = tmp_path_factory.mktemp("in") / "panel.csv"
+    p = make_panel(3)
+    p.loc[5, "firm_name"] = "=HYPERLINK(\"http://x\")"
+    p.to_csv(path, index=False)
+    return path
+
+
+@pytest.fixture(scope="module")
+def out_dir(panel_csv: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
+    out = tmp_path_factory.mktemp("out") / "run"
+    result = runner.invoke(app, ["analyze", str(panel_csv), "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output
+    return out
+
+
+def test_version() -> None:
+    result = runner.invoke(app, ["--version"])
+    assert result.exit_code == 0 and result.output.startswith("levgap ")
+
+
+@pytest.mark.parametrize("command", COMMANDS)
+def test_every_help_shows_an_example(command: str) -> None:
+    result = runner.invoke(app, [command, "--help"])
+    assert result.exit_code == 0
+    assert "Example: levgap" in result.output
+
+
+def test_analyze_writes_every_contract_file(out_dir: Path) -> None:
+    for name in ("targets.csv", "drivers.csv", "coefficients.csv", "model_fit.csv",
+                 "exclusions.csv", "run.json", "report.html"):
+        assert (out_dir / name).is_file(), name
+    manifest = json.loads((out_dir / "run.json").read_text())
+    assert manifest["counts"]["rows_used"] == manifest["counts"]["rows_in"]
+    targets = pd.read_csv(out_dir / "targets.csv", dtype={"firm_name": str})
+    assert "'=HYPERLINK(\"http://x\")" in set(targets["firm_name"])
+
+
+def test_analyze_parquet_json_and_rerun_into_own_folder(panel_csv: Path, tmp_path: Path) -> None:
+    out = tmp_path / "pq"
+    args = ["analyze", str(panel_csv), "--out", str(out), "--format", "parquet",
+            "--measure", "book", "--json"]
+    result = runner.invoke(app, args)
+    assert result.exit_code == 0, result.output
+    summary = json.loads(result.output)
+    assert summary["model_fit"][0]["measure"] == "book"
+    assert (out / "targets.parquet").is_file()
+    again = runner.invoke(app, args)
+    assert again.exit_code == 0, again.output
+
+
+def test_analyze_refuses_a_foreign_folder(panel_csv: Path, tmp_path: Path) -> None:
+    (tmp_path / "notes.txt").write_text("mine")
+    result = runner.invoke(app, ["analyze", str(panel_csv), "--out", str(tmp_path)])
+    _one_line_error(result, "levgap did not write")
+    assert (tmp_path / "notes.txt").read_text() == "mine"
+    assert not (tmp_path / "targets.csv").exists()
+
+
+def test_missing_column_is_exit_2_and_one_line(tmp_path: Path) -> None:
+    path = tmp_path / "short.csv"
+    make_panel(3).drop(columns=["ppe_net", "ebitda"]).head(50).to_csv(path, index=False)
+    result = runner.invoke(app, ["analyze", str(path), "--out", str(tmp_path / "o")])
+    _one_line_error(result, "ppe_net")
+    assert "short.csv" in result.output
+    check = runner.invoke(app, ["check", str(path)])
+    _one_line_error(check, "ebitda")
+
+
+@pytest.mark.parametrize(
+    ("args", "pattern"),
+    [
+        (["analyze", "nope.csv", "--out", "x"], "nope.csv"),
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--measure", "cash"], "book, market"),
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--cluster", "country"], "cluster"),
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--format", "xls"], "csv or parquet"),
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--config", "{tmp}/none.toml"],
+         "none.toml"),
+        (["screen", "{tmp}"], "{tmp}"),
+        (["explain", "{out}", "NOBODY"], "NOBODY"),
+        (["explain", "{out}", "TR0001", "--year", "1900"], "1900"),
+        (["screen", "{out}", "--status", "sideways"], "over, under"),
+        (["check", "{tmp}/none.csv"], "none.csv"),
+    ],
+)
+def test_error_paths(args: list[str], pattern: str, panel_csv: Path, out_dir: Path,
+                     tmp_path: Path) -> None:
+    fill = {"panel": str(panel_csv), "tmp": str(tmp_path), "out": str(out_dir)}
+    result = runner.invoke(app, [a.format(**fill) for a in args])
+    _one_line_error(result, pattern.format(**fill))
+
+
+def test_bad_config_key_names_it(panel_csv: Path, tmp_path: Path) -> None:
+    cfg = tmp_path / "run.toml"
+    cfg.write_text("[model]\nclustr = 'firm'\n")
+    result = runner.invoke(app, ["analyze", str(panel_csv), "--out", str(tmp_path / "o"),
+                                 "--config", str(cfg)])
+    _one_line_error(result, "clustr")
+
+
+def test_screen_and_explain(out_dir: Path, tmp_path: Path) -> None:
+    result = runner.invoke(app, ["screen", str(out_dir), "--status", "over", "--top", "3"])
+    assert result.exit_code == 0, result.output
+    assert "over" in result.output
+    firm = pd.read_csv(out_dir / "targets.csv").iloc[0]["firm_id"]
+    plot = tmp_path / "steps.svg"
+    result = runner.invoke(app, ["explain", str(out_dir), firm, "--measure", "book",
+                                 "--plot", str(plot)])
+    assert result.exit_code == 0, result.output
+    for word in ("tangibility", "peers' offset", "unexplained gap", "Target"):
+        assert word in result.output
+    assert plot.is_file() and plot.stat().st_size > 1000
+
+
+def test_check_reports_exclusions(tmp_path: Path) -> None:
+    p = make_panel(3).head(200).astype({"total_debt": object})
+    p.loc[3, "total_assets"] = -1
+    p.loc[4, "total_debt"] = "lots"
+    path = tmp_path / "p.csv"
+    p.to_csv(path, index=False)
+    ledger = tmp_path / "ledger.csv"
+    result = runner.invoke(app, ["check", str(path), "--ledger", str(ledger)])
+    assert result.exit_code == 0, result.output
+    assert "198 usable, 2 excluded" in result.output
+    rows = pd.read_csv(ledger)
+    assert sorted(rows["source_row"]) == [4, 5]
+
+
+def test_template_writes_files(tmp_path: Path) -> None:
+    result = runner.invoke(app, ["template", "--out", str(tmp_path)])
+    assert result.exit_code == 0, result.output
+    assert (tmp_path / "panel_template.csv").is_file()
+
+
+def test_demo_runs_and_names_extremes(tmp_path: Path) -> None:
+    result = runner.invoke(app, ["demo", "--out", str(tmp_path / "d")])
+    assert result.exit_code == 0, result.output
+    assert "Most over-levered" in result.output and "Most under-levered" in result.output
+    assert "not investment, credit or legal advice" in result.output
+    again = runner.invoke(app, ["demo", "--out", str(tmp_path / "d")])
+    assert again.exit_code == 0, again.output
