@@ -46,7 +46,7 @@ REQUIRED_FILES: tuple[str, ...] = ("sub", "num")
 OPTIONAL_FILES: tuple[str, ...] = ("tag", "pre")
 
 #: Bytes parsed per block by the streaming reader; bounds the memory of one block.
-BLOCK_SIZE = 16 << 20
+BLOCK_SIZE = 4 << 20
 
 BatchFilter = Callable[[pa.RecordBatch], pa.Array]
 
