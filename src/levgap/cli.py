@@ -304,7 +304,9 @@ def screen(
         if status is not None and status not in ("over", "under", "within"):
             raise typer.BadParameter(f"must be over, under or within; got {status!r}.",
                                      param_hint="--status")
-        tables, _ = read_outputs(out_dir)
+        tables, _ = read_outputs(out_dir, names=["targets"])
+        if "targets" not in tables:
+            raise typer.BadParameter(f"{out_dir} holds no targets table.", param_hint="DIR")
         t = tables["targets"]
         t = t[t["measure"] == measure]
         if t.empty:
@@ -346,7 +348,10 @@ def explain(
         from levgap.report.tables import read_outputs
         from levgap.report.terminal import driver_steps, render_steps
 
-        tables, _ = read_outputs(out_dir)
+        tables, _ = read_outputs(out_dir, names=["targets", "drivers"])
+        if "targets" not in tables or "drivers" not in tables:
+            raise typer.BadParameter(f"{out_dir} holds no targets or drivers table.",
+                                     param_hint="DIR")
         t = tables["targets"]
         t = t[(t["firm_id"].astype(str) == firm_id) & (t["measure"] == measure)]
         if t.empty:

@@ -7,8 +7,10 @@ class once, prints its message on one line and exits with code 2.
 from __future__ import annotations
 
 import warnings
+from typing import TYPE_CHECKING
 
-import pandas as pd
+if TYPE_CHECKING:  # pandas is heavy; the CLI's quick commands must not pay for it
+    import pandas as pd
 
 
 class LevgapError(Exception):
@@ -26,7 +28,7 @@ class SchemaError(LevgapError, ValueError):
         One row per failure with columns ``row``, ``column``, ``check``, ``value``.
     """
 
-    def __init__(self, message: str, failures: pd.DataFrame | None = None) -> None:
+    def __init__(self, message: str, failures: pd.DataFrame | None = None) -> None:  # noqa: F821
         super().__init__(message)
         self.failures = failures
 

@@ -186,13 +186,17 @@ def write_tables(
     return written
 
 
-def read_outputs(out_dir: str | Path) -> tuple[dict[str, pd.DataFrame], dict[str, Any]]:
+def read_outputs(
+    out_dir: str | Path, names: Iterable[str] | None = None
+) -> tuple[dict[str, pd.DataFrame], dict[str, Any]]:
     """Read the tables and manifest a run wrote (for ``screen``, ``explain`` and reports).
 
     Parameters
     ----------
     out_dir : str or pathlib.Path
         A folder written by :func:`write_tables`.
+    names : iterable of str, optional
+        Only these tables (e.g. ``["targets"]``); default every table in the folder.
 
     Returns
     -------
@@ -229,15 +233,18 @@ def read_outputs(out_dir: str | Path) -> tuple[dict[str, pd.DataFrame], dict[str
         if listed and p.name not in listed:
             continue
         files.setdefault(p.stem, p)
+    wanted = None if names is None else set(names)
     tables = {}
     for name, p in sorted(files.items()):
+        if wanted is not None and name not in wanted:
+            continue
         try:
             if p.suffix == ".parquet":
                 frame = pd.read_parquet(p)
             else:
                 frame = pd.read_csv(
                     p, dtype={c: "str" for c in TEXT_COLUMNS}, keep_default_na=False,
-                    na_values=[""], encoding="utf-8",
+                    na_values=[""], encoding="utf-8", engine="pyarrow",
                 )
         except (OSError, ValueError, pd.errors.ParserError) as exc:
             raise OutputError(
