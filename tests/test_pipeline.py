@@ -5,6 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from levgap.config import ModelSpec, RunConfig
 from levgap.demo import TRUE_COEFFICIENTS, make_panel, planted_shocks
@@ -172,3 +174,39 @@ def test_empty_after_validation_is_a_clear_error() -> None:
     panel["total_assets"] = -1.0
     with pytest.raises(ModelError, match="no usable rows"):
         analyze(panel)
+
+
+def _random_panel(seed: int, n_ind: int, n_firms: int, n_years: int) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    rows = []
+    for i in range(n_ind):
+        for f in range(int(rng.integers(1, n_firms + 1))):
+            start = int(rng.integers(0, 3))
+            for y in range(start, n_years):
+                assets = float(rng.lognormal(4, 1))
+                rows.append({
+                    "firm_id": f"{i}-{f}", "fiscal_year": 2000 + y, "industry": f"{10 + i}",
+                    "total_assets": assets, "total_debt": assets * rng.uniform(0, 0.8),
+                    "ppe_net": assets * rng.uniform(0, 1), "ebitda": assets * rng.normal(0.1, 0.1),
+                    "book_equity": assets * rng.uniform(-0.1, 0.6),
+                    "market_equity": assets * rng.uniform(0.1, 3) if rng.random() > 0.2
+                    else np.nan,
+                })
+    return pd.DataFrame(rows)
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.integers(0, 10_000), st.integers(3, 8), st.integers(3, 9), st.integers(4, 7))
+def test_identity_and_accounting_over_random_panels(seed: int, n_ind: int, n_firms: int,
+                                                     n_years: int) -> None:
+    panel = _random_panel(seed, n_ind, n_firms, n_years)
+    try:
+        r = analyze(panel)
+    except ModelError:
+        return  # too small or collinear for a fit: a clear error, not a wrong answer
+    s = r.drivers.groupby(["firm_id", "fiscal_year", "measure"])["contribution"].sum()
+    m = r.targets.set_index(["firm_id", "fiscal_year", "measure"]).join(s)
+    assert np.abs(m["target"] - m["peer_target"] - m["contribution"]).max() <= 1e-9
+    used = set(r.targets["firm_id"] + "/" + r.targets["fiscal_year"].astype(str))
+    ledger = r.exclusions[r.exclusions["measure"] == ""]
+    assert len(used) + len(ledger) == len(panel)
