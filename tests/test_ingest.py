@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import random
 import warnings
+from pathlib import Path
 
 import numpy as np
 import openpyxl
@@ -345,3 +346,22 @@ def test_byte_fuzz_never_escapes(tmp_path):
         assert len(panel.data) + len(panel.exclusions) == panel.n_input_rows
         assert len(used) == panel.n_input_rows
     assert outcomes["panel"] > 0 and outcomes["error"] > 0
+
+
+def test_benchmark_panel_generator_is_deterministic_and_valid(tmp_path):
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location(
+        "bench_read", Path(__file__).resolve().parents[1] / "benchmark" / "bench_read.py"
+    )
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    a = bench.make_csv(4000, tmp_path / "a.csv")
+    b = bench.make_csv(4000, tmp_path / "b.csv")
+    assert a.read_bytes() == b.read_bytes()
+    panel = read_panel(a)
+    assert panel.n_input_rows == 4000
+    reasons = panel.exclusions["reason"].value_counts().to_dict()
+    assert reasons["non_numeric"] == reasons["assets_not_positive"] == 1
+    assert reasons["missing_value"] == 1
+    assert len(panel.data) + len(panel.exclusions) == 4000

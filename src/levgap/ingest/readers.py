@@ -151,7 +151,7 @@ def _sniff_kind(p: Path, data: bytes) -> str:
 def _read_csv(p: Path, data: bytes, options: InputOptions) -> RawTable:
     sha = hashlib.sha256(data).hexdigest()
     data, notes = _to_utf8(p, data, options.encoding)
-    if not data.strip():
+    if re.search(rb"[^ \t\r\n]", data) is None:  # no copy, unlike data.strip()
         raise SchemaError(
             f"{p}: the panel file must hold a header line and data rows; got an empty file. "
             "Start from `levgap template`."
@@ -181,7 +181,7 @@ def _read_csv(p: Path, data: bytes, options: InputOptions) -> RawTable:
         return RawTable(frame, np.zeros(0, dtype=np.int64), str(p), sha, tuple(notes))
 
     column_names = _unique(names)
-    has_quotes = b'"' in body
+    has_quotes = data.find(b'"', body_start) >= 0  # bytes.find is memchr; `in` on a view is not
     try:
         table = pacsv.read_csv(
             pa.BufferReader(pa.py_buffer(body)),

@@ -138,12 +138,12 @@ def validate_panel(
     if ignored:
         notes.append(f"columns not in schema v1 were ignored: {_listing(ignored)}")
 
-    text: dict[str, np.ndarray] = {}
+    text: dict[str, pd.Series] = {}
     for col in _TEXT:
         if col in names:
             text[col] = _text(frame[names[col]])
         else:
-            text[col] = np.full(n, "", dtype=object)
+            text[col] = pd.Series(np.full(n, "", dtype=object), dtype="str")
     values: dict[str, np.ndarray] = {}
     blank: dict[str, np.ndarray] = {}
     bad: dict[str, np.ndarray] = {}
@@ -157,8 +157,7 @@ def validate_panel(
             blank[col] = np.ones(n, dtype=bool)
             bad[col] = np.zeros(n, dtype=bool)
 
-    currencies = pd.unique(pd.Series(text["currency"]).str.upper())
-    currencies = sorted(c for c in currencies if c)
+    currencies = sorted(c for c in text["currency"].str.upper().unique() if c)
     multi_currency = len(currencies) > 1
     if multi_currency and "fx_rate" not in names:
         raise SchemaError(
@@ -290,16 +289,16 @@ def _listing(items: Iterable[str], limit: int = 40) -> str:
 # cells
 
 
-def _text(series: pd.Series) -> np.ndarray:
+def _text(series: pd.Series) -> pd.Series:
     """Text cells stripped, blanks as ``""``; whole-number floats lose their ``.0``."""
-    if pd.api.types.is_integer_dtype(series.dtype):
-        out = series.astype("str").to_numpy(dtype=object)
-        out[series.isna().to_numpy()] = ""
-        return out
     if isinstance(series.dtype, pd.StringDtype):
-        return series.str.strip().fillna("").to_numpy(dtype=object)
-    obj = series.to_numpy(dtype=object)
-    return np.array([_cell_text(v) for v in obj], dtype=object) if len(obj) else obj
+        out = series.str.strip().fillna("")
+    elif pd.api.types.is_integer_dtype(series.dtype):
+        out = series.astype("str").mask(series.isna(), "")
+    else:
+        obj = series.to_numpy(dtype=object)
+        out = pd.Series([_cell_text(v) for v in obj], dtype="str")
+    return out.astype("str").reset_index(drop=True)
 
 
 def _cell_text(v: object) -> str:
@@ -427,20 +426,21 @@ def _row_checks(text, values, blank, bad, config, multi_currency):  # type: igno
 
     miss_cols = [c for c in REQUIRED]
     fx_needed = (
-        np.array([c.upper() != reference for c in text["currency"]], dtype=bool)
-        if multi_currency and len(text["currency"]) else np.zeros(len(v["total_assets"]), bool)
+        (text["currency"].str.upper() != reference).to_numpy(dtype=bool)
+        if multi_currency else np.zeros(len(v["total_assets"]), dtype=bool)
     )
 
     def missing_mask() -> np.ndarray:
         m = np.zeros(len(v["total_assets"]), dtype=bool)
         for c in miss_cols:
-            m |= (text[c] == "") if c in text else blank[c]
+            m |= (text[c] == "").to_numpy(dtype=bool) if c in text else blank[c]
         return m | (fx_needed & blank["fx_rate"])
 
     def missing(hit, raw, rows):  # type: ignore[no-untyped-def]
         out = []
         for i in hit:
-            cols = [c for c in miss_cols if (text[c][i] == "" if c in text else blank[c][i])]
+            cols = [c for c in miss_cols
+                    if (text[c].iloc[i] == "" if c in text else blank[c][i])]
             if fx_needed[i] and blank["fx_rate"][i]:
                 cols.append("fx_rate")
             out.append(f"{', '.join(cols)} must have a value; got a blank")
@@ -506,7 +506,7 @@ def _duplicates(text, values, bad, rows):  # type: ignore[no-untyped-def]
     code = np.full(n, "", dtype=object)
     detail = np.full(n, "", dtype=object)
     year = values["fiscal_year"]
-    has_key = (text["firm_id"] != "") & ~np.isnan(year)
+    has_key = (text["firm_id"] != "").to_numpy(dtype=bool) & ~np.isnan(year)
     if not has_key.any():
         return code, detail
     keys = pd.DataFrame({"firm_id": text["firm_id"], "fiscal_year": year})
@@ -514,7 +514,7 @@ def _duplicates(text, values, bad, rows):  # type: ignore[no-untyped-def]
     idx = np.flatnonzero(dup)
     if not len(idx):
         return code, detail
-    cols = {c: text[c][idx] for c in text}
+    cols = {c: text[c].iloc[idx].to_numpy(dtype=object) for c in text}
     for c in NUMERIC:
         if c != "fiscal_year":
             cols[c] = np.where(bad[c][idx], np.inf, values[c][idx])
@@ -587,7 +587,7 @@ def _kept(text, values, flags, rows, keep, config, multi_currency):  # type: ign
     out: dict[str, object] = {}
     for c in COLUMNS:
         if c.kind == "text":
-            out[c.name] = pd.Series(text[c.name][idx], dtype="str")
+            out[c.name] = text[c.name].iloc[idx].reset_index(drop=True)
         elif c.name == "fiscal_year":
             out[c.name] = values[c.name][idx].astype(np.int64)
         elif c.money:
@@ -598,19 +598,29 @@ def _kept(text, values, flags, rows, keep, config, multi_currency):  # type: ign
     derived = np.isnan(me) & ~np.isnan(out["shares_outstanding"]) & ~np.isnan(out["share_price"])
     me = np.where(derived, out["shares_outstanding"] * out["share_price"], me)
     out["market_equity"] = me
-    all_flags = [(code, mask[idx]) for code, mask in flags]
-    all_flags.insert(1, ("market_equity_from_shares", derived))
-    all_flags.insert(2, ("no_market_equity", np.isnan(me)))
-    order = list(FLAGS)
-    all_flags.sort(key=lambda cm: order.index(cm[0]))
-    joined = np.full(len(idx), "", dtype=object)
-    for code, mask in all_flags:
-        if mask.any():
-            joined = np.where(mask, np.where(joined == "", code, joined + ";" + code), joined)
+    all_flags = dict((code, mask[idx]) for code, mask in flags)
+    all_flags["market_equity_from_shares"] = derived
+    all_flags["no_market_equity"] = np.isnan(me)
     data = pd.DataFrame(out)
     data["source_row"] = rows[idx].astype(np.int64)
-    data["flags"] = pd.Series(joined, dtype="str")
+    data["flags"] = _join_flags(all_flags, len(idx))
     return data
+
+
+def _join_flags(masks: dict[str, np.ndarray], n: int) -> pd.Series:
+    """``;``-joined flag codes per row in the order of ``FLAGS``, one string per combination."""
+    codes = [c for c in FLAGS if c in masks and masks[c].any()]
+    if not codes:
+        return pd.Series(np.full(n, "", dtype=object), dtype="str")
+    bits = np.zeros(n, dtype=np.int64)
+    for k, c in enumerate(codes):
+        bits |= masks[c].astype(np.int64) << k
+    combos, inverse = np.unique(bits, return_inverse=True)
+    words = np.array(
+        [";".join(c for k, c in enumerate(codes) if combo >> k & 1) for combo in combos],
+        dtype=object,
+    )
+    return pd.Series(words[inverse], dtype="str")
 
 
 def _ledger(idx, rows, text, values, bad, reason, details):  # type: ignore[no-untyped-def]
@@ -623,7 +633,7 @@ def _ledger(idx, rows, text, values, bad, reason, details):  # type: ignore[no-u
     ledger = pd.DataFrame(
         {
             "source_row": rows[idx].astype(np.int64),
-            "firm_id": pd.Series(text["firm_id"][idx], dtype="str"),
+            "firm_id": text["firm_id"].iloc[idx].reset_index(drop=True),
             "fiscal_year": fy,
             "measure": pd.Series([""] * len(idx), dtype="str"),
             "reason": pd.Series(reason[idx], dtype="str"),
