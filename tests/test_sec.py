@@ -8,12 +8,15 @@ variable LEVGAP_SEC_DATA and skip, saying why, when it is not set.
 from __future__ import annotations
 
 import os
+import re
 import zipfile
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from levgap.errors import ConfigError, SchemaError
 from levgap.ingest.sec import (
@@ -27,6 +30,13 @@ from levgap.ingest.sec import (
     write_sec_import,
 )
 from levgap.ingest.sec_files import locate_quarter, read_filtered
+from levgap.ingest.sec_tags import (
+    COVER_SHARES,
+    PUBLIC_FLOAT,
+    TAG_KINDS,
+    build_columns,
+    build_total_debt,
+)
 from levgap.schema import BY_NAME
 
 FIXTURE = Path(__file__).parent / "fixtures" / "sec"
@@ -492,3 +502,54 @@ def test_real_genuine_quarters_import_together() -> None:
     filed_years = set(result.sources["filed"].str[:4])
     assert filed_years == {"2009", "2010"}  # both quarters contribute
     assert result.sources.groupby("adsh")["firm_id"].nunique().max() == 1
+
+
+# --- the tag formulas, checked another way --------------------------------------------------
+
+_ALL_TAGS = sorted(TAG_KINDS) + [COVER_SHARES, PUBLIC_FLOAT]
+_NAME = re.compile(r"(?:dei:)?[A-Z][A-Za-z0-9]+")
+
+
+def _evaluate(label: str, values: dict[str, float]) -> float:
+    """Evaluate a source label as arithmetic over the tag values it names."""
+    expr = _NAME.sub(lambda m: repr(float(values.get(m.group(0), 0.0))), label)
+    assert re.fullmatch(r"[0-9eE.+\-() ]+", expr), expr
+    return float(eval(expr, {"__builtins__": {}}))  # noqa: S307 - digits and operators only
+
+
+_rows = st.lists(
+    st.dictionaries(st.sampled_from(_ALL_TAGS), st.integers(0, 10**6), max_size=14),
+    min_size=1, max_size=12,
+)
+
+
+@settings(max_examples=80, deadline=None)
+@given(rows=_rows, year=st.integers(2009, 2024))
+def test_every_label_evaluates_to_its_value(rows: list[dict[str, int]], year: int) -> None:
+    wide = pd.DataFrame(rows, columns=_ALL_TAGS, dtype=float)
+    columns = build_columns(wide, np.full(len(wide), year))
+    for name, (values, labels) in columns.items():
+        for i, row in enumerate(rows):
+            if np.isnan(values[i]):
+                assert labels[i] == "", (name, row)
+            else:
+                assert _evaluate(labels[i], row) == pytest.approx(values[i]), (name, labels[i])
+                assert set(_NAME.findall(labels[i])) <= set(row), (name, labels[i])
+
+
+@settings(max_examples=120, deadline=None)
+@given(rows=_rows)
+def test_debt_formula_never_counts_a_component_twice(rows: list[dict[str, int]]) -> None:
+    wide = pd.DataFrame(rows, columns=_ALL_TAGS, dtype=float)
+    _, labels = build_total_debt(wide)
+    for label in labels:
+        if not label:
+            continue
+        tags = set(_NAME.findall(label))
+        coef = {t: _evaluate(label, {t: 1.0}) for t in tags}
+        assert set(coef.values()) <= {-1.0, 0.0, 1.0}, label
+        assert all(v >= 0 for t, v in coef.items() if t != "LongTermDebtCurrent"), label
+        if coef.get("LongTermDebt") == 1.0:  # it already holds the current maturities
+            assert coef.get("LongTermDebtCurrent", 0.0) <= 0.0, label
+        assert not (coef.get("CommercialPaper") == 1.0 and coef.get("ShortTermBorrowings")), label
+        assert not (coef.get("DebtCurrent") and coef.get("LongTermDebtCurrent") == 1.0), label

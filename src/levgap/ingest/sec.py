@@ -48,7 +48,7 @@ from __future__ import annotations
 
 import os
 import re
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -394,7 +394,6 @@ def _read_submissions(quarters: Sequence[Quarter], notes: list[str]) -> pd.DataF
         frame = table.to_pandas()
         frame = frame.astype({c: object for c in frame.columns})
         frame["quarter"] = i
-        frame["row"] = np.arange(1, len(frame) + 1)
         frames.append(frame)
     subs = pd.concat(frames, ignore_index=True)
     for c in _SUB_COLUMNS:
@@ -485,6 +484,12 @@ def _fact_filters(adsh_set: pa.Array) -> tuple[BatchFilter, BatchFilter]:
     return keep_num, keep_pre
 
 
+def _tag_filter(batch: pa.RecordBatch) -> pa.Array:
+    names = batch.schema.names
+    return pc.is_in(batch.column(names.index("tag")),
+                    value_set=pa.array(list(NEEDED_TAGS), pa.string()))
+
+
 def _read_facts(
     quarters: Sequence[Quarter], chosen: pd.DataFrame, notes: list[str]
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -504,7 +509,8 @@ def _read_facts(
             notes.extend(report.messages(q.where("pre")))
             pres.append(table)
         if "tag" in q.members:
-            table, report = read_filtered(q, "tag", ("tag", "version", "custom", "abstract"))
+            table, report = read_filtered(q, "tag", ("tag", "version", "custom", "abstract"),
+                                          _tag_filter)
             notes.extend(report.messages(q.where("tag")))
             t = table.to_pandas()
             flagged = (t["custom"].astype(str).str.strip() == "1") | (
@@ -758,6 +764,19 @@ def _coverage_notes(panel: pd.DataFrame, notes: list[str]) -> None:
     no_sic = int(panel["industry"].isna().sum())
     if no_sic:
         notes.append(f"{no_sic} firm-years have no SIC code in sub.txt (industry missing).")
+    for col in PANEL_COLUMNS:
+        spec = BY_NAME.get(col)
+        if spec is None or spec.kind != "number" or spec.minimum is None:
+            continue
+        values = panel[col]
+        below = int((values <= spec.minimum).sum() if spec.strict
+                    else (values < spec.minimum).sum())
+        if below:
+            notes.append(
+                f"{col} is {'at or ' if spec.strict else ''}below {spec.minimum:g} for {below} "
+                "firm-years (a filer's sign convention or inconsistent tags); kept as "
+                "computed, the panel check will flag them."
+            )
     for col in ("total_assets", "total_debt", "ppe_net", "ebitda", "book_equity"):
         missing = int(panel[col].isna().sum())
         if missing:
@@ -824,10 +843,10 @@ def _neutralise(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def _atomic(path: Path, write: object) -> None:
+def _atomic(path: Path, write: Callable[[Path], object]) -> None:
     tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
     try:
-        write(tmp)  # type: ignore[operator]
+        write(tmp)
         os.replace(tmp, path)
     except OSError as exc:
         tmp.unlink(missing_ok=True)
