@@ -135,16 +135,17 @@ def _core_facts(subs: dict[str, np.ndarray]) -> pa.Table:
     return pa.table([pa.array(c) for c in cols], names=NUM_HEADER)
 
 
-def build_quarter(facts: int = FACTS, *, rebuild: bool = False, seed: int = 0) -> Path:
-    """Write the synthetic quarter zip (cached) and return its path."""
-    DATA.mkdir(parents=True, exist_ok=True)
-    out = DATA / f"sec-synthetic-{facts}.zip"
+def build_quarter(facts: int = FACTS, *, rebuild: bool = False, seed: int = 0,
+                  data_dir: Path = DATA) -> Path:
+    """Write the synthetic quarter zip (cached in ``data_dir``) and return its path."""
+    data_dir.mkdir(parents=True, exist_ok=True)
+    out = data_dir / f"sec-synthetic-{facts}.zip"
     if out.exists() and not rebuild:
         return out
     rng = np.random.default_rng(seed)
     subs = _submissions(rng)
     filler = np.array(_filler_tags(2_000))
-    work = DATA / f"sec-synthetic-{facts}"
+    work = data_dir / f"sec-synthetic-{facts}"
     work.mkdir(exist_ok=True)
     _write_sub(work / "sub.txt", subs, rng)
     opts = pacsv.WriteOptions(delimiter="\t", quoting_style="needed")
@@ -185,8 +186,17 @@ print(json.dumps({
 """
 
 
-def run(facts: int = FACTS, *, rebuild: bool = False) -> dict[str, Any]:
+def run(facts: int = FACTS, *, rebuild: bool = False, data_dir: Path = DATA) -> dict[str, Any]:
     """Build (or reuse) the synthetic quarter, import it in a subprocess, return the figures.
+
+    Parameters
+    ----------
+    facts : int, default=3_000_000
+        Rows of num.txt.
+    rebuild : bool, default=False
+        Rebuild the quarter even when a cached one exists.
+    data_dir : pathlib.Path, default=benchmark/data
+        Where the quarter is cached.
 
     Returns
     -------
@@ -196,7 +206,7 @@ def run(facts: int = FACTS, *, rebuild: bool = False) -> dict[str, Any]:
         ``goal_rss_mb``, ``rss_ok``, ``panel_rows``, ``assets_share``, ``build_seconds``.
     """
     t0 = time.perf_counter()
-    path = build_quarter(facts, rebuild=rebuild)
+    path = build_quarter(facts, rebuild=rebuild, data_dir=data_dir)
     build_seconds = time.perf_counter() - t0
     with zipfile.ZipFile(path) as zf:
         num_mb = zf.getinfo("num.txt").file_size / 2**20

@@ -553,3 +553,22 @@ def test_debt_formula_never_counts_a_component_twice(rows: list[dict[str, int]])
             assert coef.get("LongTermDebtCurrent", 0.0) <= 0.0, label
         assert not (coef.get("CommercialPaper") == 1.0 and coef.get("ShortTermBorrowings")), label
         assert not (coef.get("DebtCurrent") and coef.get("LongTermDebtCurrent") == 1.0), label
+
+
+# --- the benchmark cannot rot ---------------------------------------------------------------
+
+
+@pytest.mark.slow
+def test_bench_sec_runs_on_a_small_synthetic_quarter(tmp_path: Path) -> None:
+    import importlib.util
+
+    path = Path(__file__).resolve().parents[1] / "benchmark" / "bench_sec.py"
+    spec = importlib.util.spec_from_file_location("bench_sec", path)
+    assert spec is not None and spec.loader is not None
+    bench = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(bench)
+    figures = bench.run(60_000, data_dir=tmp_path)
+    assert figures["facts"] == 60_000 and figures["num_txt_mb"] > 5
+    assert figures["panel_rows"] > 1000 and figures["assets_share"] == 1.0
+    assert figures["peak_rss_mb"] > 0 and figures["seconds"] > 0
+    assert figures["rss_ok"] is True
