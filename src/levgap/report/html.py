@@ -16,7 +16,8 @@ from __future__ import annotations
 import math
 import os
 import tempfile
-from collections.abc import Mapping
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -55,27 +56,44 @@ class ReportOptions:
     max_points: int = 4000
 
 
-def atomic_write_bytes(path: Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
+@contextmanager
+def atomic_file(path: str | Path) -> Iterator[Path]:
+    """Yield a temporary path beside ``path``; on success it is renamed over ``path``.
+
+    Raises
+    ------
+    OutputError
+        If the folder cannot be created or the file cannot be written.
+    """
     path = Path(path)
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
         # The prefix is the one report.tables uses, so an interrupted write is known as ours.
-        fd, tmp = tempfile.mkstemp(prefix=".levgap-tmp-", suffix=path.suffix, dir=path.parent)
-        try:
-            with os.fdopen(fd, "wb") as fh:
-                fh.write(data)
-            umask = os.umask(0)
-            os.umask(umask)
-            os.chmod(tmp, 0o666 & ~umask)  # mkstemp creates 0600; give the usual file mode
-            os.replace(tmp, path)
-        except BaseException:
-            Path(tmp).unlink(missing_ok=True)
-            raise
+        fd, name = tempfile.mkstemp(prefix=".levgap-tmp-", suffix=path.suffix, dir=path.parent)
+        os.close(fd)
     except OSError as exc:
         raise OutputError(
             f"{path} must be writable; got {exc.strerror or exc}. Choose another output folder."
         ) from None
+    tmp = Path(name)
+    try:
+        yield tmp
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp creates 0600; give the usual file mode
+        os.replace(tmp, path)
+    except OSError as exc:
+        raise OutputError(
+            f"{path} must be writable; got {exc.strerror or exc}. Choose another output folder."
+        ) from None
+    finally:
+        tmp.unlink(missing_ok=True)
+
+
+def atomic_write_bytes(path: str | Path, data: bytes) -> None:
+    """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
+    with atomic_file(path) as tmp:
+        tmp.write_bytes(data)
 
 
 def write_report(
