@@ -90,6 +90,12 @@ def test_bom_crlf_and_quotes(tmp_path, plain):
     assert d["firm_id"].tolist() == read_panel(plain).data["firm_id"].tolist()
 
 
+def test_classic_mac_line_ends(tmp_path, plain):
+    p = tmp_path / "cr.csv"
+    p.write_text(_csv(newline="\r"), encoding="utf-8", newline="")
+    pd.testing.assert_frame_equal(read_panel(p).data, read_panel(plain).data)
+
+
 def test_quoted_newline_is_one_record(tmp_path):
     rows = [r.copy() for r in ROWS]
     rows[0][8] = "Nordvik\nAxle"

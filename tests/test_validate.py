@@ -166,6 +166,8 @@ def test_source_rows_and_numeric_frames():
         (["1 234,5", "1\u00a0234,5", "1\u202f234"], {"decimal": ",", "thousands": " "},
          [1234.5, 1234.5, 1234]),
         (["1,234.5"], {"thousands": ","}, [1234.5]),
+        (["(12,5)", "(1.234,5)"], {"decimal": ",", "thousands": "."}, [-12.5, -1234.5]),
+        (["(12.5)", " ( 3 ) "], {}, [-12.5, -3]),
     ],
 )
 def test_parse_numbers_formats(cells, opts, expected):
@@ -269,3 +271,22 @@ def test_every_input_row_in_exactly_one_place(tmp_path_factory, case):
     d = panel.data
     assert (d["total_assets"] > 0).all() and (d["total_debt"] >= 0).all()
     assert not d.duplicated(["firm_id", "fiscal_year"]).any()
+
+
+def test_duplicate_headers_refused_and_labels_made_text():
+    frame = _frame({})
+    with pytest.raises(SchemaError, match="headers must be unique; got total_debt"):
+        validate_panel(pd.concat([frame, frame[["total_debt"]]], axis=1))
+    numbered = frame.copy()
+    numbered[7] = "extra"
+    panel = validate_panel(numbered)
+    assert len(panel.data) == 1 and any("'7'" in w or "7" in w for w in panel.warnings)
+
+
+def test_panel_data_round_trips_with_its_row_numbers():
+    frame = _frame({}, {"total_assets": -1}, {})
+    panel = validate_panel(frame)
+    again = validate_panel(panel.data)
+    assert again.data["source_row"].tolist() == [1, 3]
+    pd.testing.assert_frame_equal(again.data, panel.data)
+    assert not any("ignored" in w for w in again.warnings)

@@ -151,6 +151,8 @@ def _sniff_kind(p: Path, data: bytes) -> str:
 def _read_csv(p: Path, data: bytes, options: InputOptions) -> RawTable:
     sha = hashlib.sha256(data).hexdigest()
     data, notes = _to_utf8(p, data, options.encoding)
+    if b"\n" not in data[:1 << 16] and b"\r" in data and b"\n" not in data:
+        data = data.replace(b"\r", b"\n")  # classic Mac line ends
     if re.search(rb"[^ \t\r\n]", data) is None:  # no copy, unlike data.strip()
         raise SchemaError(
             f"{p}: the panel file must hold a header line and data rows; got an empty file. "

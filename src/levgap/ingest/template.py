@@ -104,7 +104,8 @@ currency; outputs are in that unit.
 - `fiscal_year` must be a whole number between {lo} and {hi} (`2021` or `2021.0`).
 - Numbers use `.` as the decimal mark unless `[input] decimal` says otherwise, and no
   thousands separator unless `[input] thousands` gives one (a space there also accepts
-  no-break spaces). Exponents (`1.5e3`) are accepted.
+  no-break spaces). Exponents (`1.5e3`) and accounting negatives (`(12.5)` is -12.5) are
+  accepted; currency signs and `%` are not.
 - Blank values: {blanks} (case ignored) are read as a blank, not as text.
 - `market_equity`: when blank, `shares_outstanding * share_price` is used where both are
   given.

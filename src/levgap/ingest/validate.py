@@ -96,7 +96,8 @@ def validate_panel(
     sha256 : str, optional
         Digest of the input file, for the record.
     source_rows : iterable of int, optional
-        1-based data row of each frame row; defaults to ``1..len(frame)``.
+        1-based data row of each frame row; defaults to the frame's own integer
+        ``source_row`` column (a frame taken from ``Panel.data``), else ``1..len(frame)``.
     notes : iterable of str, default=()
         Notes from the reader, carried into ``Panel.warnings``.
 
@@ -121,11 +122,25 @@ def validate_panel(
     config = config or RunConfig()
     opts = config.input
     n = len(frame)
+    headers = [str(c) for c in frame.columns]
+    dupes = sorted({h for h in headers if headers.count(h) > 1})
+    if dupes:
+        raise SchemaError(
+            f"{source}: column headers must be unique; got {_listing(dupes)} more than once. "
+            "Rename or drop the copies."
+        )
+    frame = frame.set_axis(headers, axis=1)
+    if source_rows is None and "source_row" in headers:
+        # a frame that came out of a Panel keeps its row numbers
+        given = frame["source_row"]
+        if pd.api.types.is_integer_dtype(given.dtype) and given.notna().all() and given.is_unique:
+            source_rows = given.to_numpy(dtype=np.int64)
     rows = (
         np.arange(1, n + 1, dtype=np.int64)
         if source_rows is None
-        else np.asarray(list(source_rows) if not hasattr(source_rows, "__len__")
-                        else source_rows, dtype=np.int64)
+        else np.asarray(
+            source_rows if hasattr(source_rows, "__len__") else list(source_rows), dtype=np.int64
+        )
     )
     if len(rows) != n:
         raise SchemaError(
@@ -133,8 +148,9 @@ def validate_panel(
             f"for {n} rows."
         )
     notes = list(notes)
-    names = resolve_columns([str(c) for c in frame.columns], config.columns, source)
-    ignored = [str(c) for c in frame.columns if str(c) not in set(names.values())]
+    names = resolve_columns(headers, config.columns, source)
+    derived = {"source_row", "flags"}
+    ignored = [h for h in headers if h not in set(names.values()) and h not in derived]
     if ignored:
         notes.append(f"columns not in schema v1 were ignored: {_listing(ignored)}")
 
@@ -384,6 +400,9 @@ def _parse_text(
             arr = pc.replace_substring(arr, sep, "")
     if options.decimal != ".":
         arr = pc.replace_substring(arr, options.decimal, ".")
+    # accounting negatives: (12.5) is -12.5
+    if pc.any(pc.starts_with(arr, "(")).as_py():
+        arr = pc.replace_substring_regex(arr, r"^\(\s*(.*?)\s*\)$", r"-\1")
     ok = pc.match_substring_regex(arr, _NUMBER_RE)
     nums = pc.cast(pc.if_else(ok, arr, pa.scalar(None, pa.string())), pa.float64())
     values = nums.to_numpy(zero_copy_only=False).astype(np.float64, copy=True)
