@@ -572,3 +572,9 @@ def test_bench_sec_runs_on_a_small_synthetic_quarter(tmp_path: Path) -> None:
     assert figures["panel_rows"] > 1000 and figures["assets_share"] == 1.0
     assert figures["peak_rss_mb"] > 0 and figures["seconds"] > 0
     assert figures["rss_ok"] is True
+
+
+def test_notebook_rendering_names_the_counts(both: SecImport) -> None:
+    html = both._repr_html_()
+    assert html.startswith("<p>SEC import: 7 firm-years") and "<table" in html
+    assert "Latin-1" in html

@@ -146,6 +146,15 @@ class SecImport:
         """The panel (the table every later step reads)."""
         return self.panel
 
+    def _repr_html_(self) -> str:
+        from html import escape
+
+        head = (f"<p>SEC import: {len(self.panel)} firm-years, {len(self.sources)} sourced "
+                f"values, {self.n_excluded_firms} firms excluded by SIC, "
+                f"{len(self.warnings)} notes.</p>")
+        notes = "".join(f"<li>{escape(w)}</li>" for w in self.warnings)
+        return head + (f"<ul>{notes}</ul>" if notes else "") + self.panel.head(10).to_html()
+
 
 def fiscal_year_of(period_end: pd.Series) -> pd.Series:
     """Fiscal year of a period end: its calendar year, one less for January to May.
