@@ -578,3 +578,28 @@ def test_notebook_rendering_names_the_counts(both: SecImport) -> None:
     html = both._repr_html_()
     assert html.startswith("<p>SEC import: 7 firm-years") and "<table" in html
     assert "Latin-1" in html
+
+
+def test_two_period_ends_in_one_fiscal_year_keep_the_later(tmp_path: Path) -> None:
+    # A change of fiscal year end: a 10-KT for the three months to March 2021 falls in fiscal
+    # 2020 (January to May count as the previous year), like the December 2020 10-K.
+    for name in ("tag.txt", "pre.txt"):
+        (tmp_path / name).write_bytes((CURRENT / name).read_bytes())
+    num = (CURRENT / "num.txt").read_text(encoding="utf-8")
+    num += "0009100002-21-000099\tAssets\tus-gaap/2020\t20210331\t0\tUSD\t\t\t650000.0000\t\n"
+    (tmp_path / "num.txt").write_text(num, encoding="utf-8")
+    lines = (CURRENT / "sub.txt").read_text(encoding="utf-8").splitlines(keepends=True)
+    header = lines[0].rstrip("\n").split("\t")
+    row = lines[3].rstrip("\n").split("\t")  # Marrowby's 10-K
+    fields = dict(zip(header, row, strict=True))
+    fields.update(adsh="0009100002-21-000099", form="10-KT", period="20210331",
+                  filed="20210520", fp="FY")
+    lines.append("\t".join(fields[h] for h in header) + "\n")
+    (tmp_path / "sub.txt").write_text("".join(lines), encoding="utf-8")
+    result = import_sec([tmp_path], forms=("10-K", "10-KT"))
+    s = result.sources
+    kept = s.loc[s["firm_id"] == "9100002", ["adsh", "period"]].drop_duplicates()
+    assert kept.to_dict("records") == [{"adsh": "0009100002-21-000099", "period": "2021-03-31"}]
+    assert _row(result, "9100002", 2020)["total_assets"] == 650_000
+    assert any("two period ends in one fiscal year" in w and "9100002" in w
+               for w in result.warnings)
