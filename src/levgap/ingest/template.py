@@ -11,7 +11,7 @@ import csv
 import io
 
 from levgap.ingest.validate import FLAGS, NA_TOKENS, REASONS, YEAR_RANGE
-from levgap.schema import COLUMNS, SCHEMA_VERSION
+from levgap.schema import COLUMNS, SCHEMA_VERSION, Column
 
 TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml")
 
@@ -54,7 +54,7 @@ def template_csv() -> str:
     return buf.getvalue()
 
 
-def _minimum(c) -> str:  # type: ignore[no-untyped-def]
+def _minimum(c: Column) -> str:
     if c.minimum is None:
         return "any"
     return f"> {c.minimum:g}" if c.strict else f">= {c.minimum:g}"

@@ -12,7 +12,7 @@ missing, a header is ambiguous, or several currencies appear without an ``fx_rat
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping
 
 import numpy as np
 import pandas as pd
@@ -66,6 +66,10 @@ _TEXT = tuple(c.name for c in COLUMNS if c.kind == "text")
 _NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
 _SPACES = (" ", "\u00a0", "\u202f")
 _EXCLUDE_ON_BAD = frozenset(REQUIRED) | {"fx_rate"}
+
+Texts = dict[str, pd.Series]
+Arrays = dict[str, np.ndarray]
+Describe = Callable[[np.ndarray], list[str]]
 
 
 def validate_panel(
@@ -182,7 +186,7 @@ def validate_panel(
             "times fx_rate = reference currency) or split the file by currency."
         )
 
-    checks = _row_checks(text, values, blank, bad, config, multi_currency)
+    checks = _row_checks(text, values, blank, bad, raw, config, multi_currency)
     reason = np.full(n, "", dtype=object)
     details: dict[int, list[str]] = {}
     for code, mask, describe in checks:
@@ -191,7 +195,7 @@ def validate_panel(
             continue
         fresh = hit[reason[hit] == ""]
         reason[fresh] = code
-        for i, msg in zip(hit, describe(hit, raw, rows), strict=True):
+        for i, msg in zip(hit, describe(hit), strict=True):
             details.setdefault(int(i), []).append(msg)
 
     dup_code, dup_detail = _duplicates(text, values, bad, rows)
@@ -201,12 +205,12 @@ def validate_panel(
             details.setdefault(i, []).append(msg)
 
     excluded = reason != ""
-    flags, opt_notes = _optional_values(values, blank, bad, names, rows, excluded)
+    values, flags, opt_notes = _optional_values(values, bad, names, rows, excluded)
     notes.extend(opt_notes)
     for msg in opt_notes:
         warn_data(f"{source}: {msg}", stacklevel=3)
 
-    data = _kept(text, values, flags, rows, ~excluded, config, multi_currency)
+    data = _kept(text, values, flags, rows, ~excluded, config.units.scale)
     exclusions = _ledger(np.flatnonzero(excluded), rows, text, values, bad, reason, details)
     return Panel(
         data=data,
@@ -429,13 +433,21 @@ def _show(raw: pd.Series, i: int) -> str:
 # row rules
 
 
-def _row_checks(text, values, blank, bad, config, multi_currency):  # type: ignore[no-untyped-def]
+def _row_checks(
+    text: Texts,
+    values: Arrays,
+    blank: Arrays,
+    bad: Arrays,
+    raw: Texts,
+    config: RunConfig,
+    multi_currency: bool,
+) -> list[tuple[str, np.ndarray, Describe]]:
     """(code, mask, describe) in the order of ``REASONS``; describe words each hit."""
     v = values
     reference = (config.units.currency or "").upper()
 
-    def non_numeric(hit, raw, rows):  # type: ignore[no-untyped-def]
-        out = {int(i): [] for i in hit}
+    def non_numeric(hit: np.ndarray) -> list[str]:
+        out: dict[int, list[str]] = {int(i): [] for i in hit}
         for col in _numeric_checked():
             for i in np.flatnonzero(bad[col][hit]):
                 out[int(hit[i])].append(
@@ -443,7 +455,7 @@ def _row_checks(text, values, blank, bad, config, multi_currency):  # type: igno
                 )
         return ["; ".join(out[int(i)]) for i in hit]
 
-    miss_cols = [c for c in REQUIRED]
+    miss_cols = list(REQUIRED)
     fx_needed = (
         (text["currency"].str.upper() != reference).to_numpy(dtype=bool)
         if multi_currency else np.zeros(len(v["total_assets"]), dtype=bool)
@@ -455,7 +467,7 @@ def _row_checks(text, values, blank, bad, config, multi_currency):  # type: igno
             m |= (text[c] == "").to_numpy(dtype=bool) if c in text else blank[c]
         return m | (fx_needed & blank["fx_rate"])
 
-    def missing(hit, raw, rows):  # type: ignore[no-untyped-def]
+    def missing(hit: np.ndarray) -> list[str]:
         out = []
         for i in hit:
             cols = [c for c in miss_cols
@@ -470,8 +482,8 @@ def _row_checks(text, values, blank, bad, config, multi_currency):  # type: igno
     with np.errstate(invalid="ignore"):
         bad_year = ~np.isnan(year) & ((year != np.round(year)) | (year < lo) | (year > hi))
 
-    def simple(template: str, *cols: str):  # type: ignore[no-untyped-def]
-        def describe(hit, raw, rows):  # type: ignore[no-untyped-def]
+    def simple(template: str, *cols: str) -> Describe:
+        def describe(hit: np.ndarray) -> list[str]:
             return [template.format(*(_num(v[c][i]) for c in cols)) for i in hit]
         return describe
 
@@ -519,7 +531,9 @@ def _num(x: float) -> str:
     return f"{int(x)}" if float(x).is_integer() and abs(x) < 1e15 else f"{x:.6g}"
 
 
-def _duplicates(text, values, bad, rows):  # type: ignore[no-untyped-def]
+def _duplicates(
+    text: Texts, values: Arrays, bad: Arrays, rows: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Codes and details for exact copies and conflicting copies of a firm-year."""
     n = len(rows)
     code = np.full(n, "", dtype=object)
@@ -566,8 +580,11 @@ def _duplicates(text, values, bad, rows):  # type: ignore[no-untyped-def]
     return code, detail
 
 
-def _optional_values(values, blank, bad, names, rows, excluded):  # type: ignore[no-untyped-def]
-    """Set invalid optional numbers missing; flags per row and notes per column."""
+def _optional_values(
+    values: Arrays, bad: Arrays, names: Mapping[str, str], rows: np.ndarray, excluded: np.ndarray
+) -> tuple[Arrays, list[tuple[str, np.ndarray]], list[str]]:
+    """Values with invalid optional numbers set missing; flags per row; notes per column."""
+    values = dict(values)
     flags: list[tuple[str, np.ndarray]] = []
     notes = []
     for col in (c.name for c in COLUMNS if not c.required and c.kind == "number"):
@@ -594,16 +611,23 @@ def _optional_values(values, blank, bad, names, rows, excluded):  # type: ignore
                 )
     with np.errstate(invalid="ignore"):
         flags.insert(0, ("negative_book_equity", values["book_equity"] < 0))
-    return flags, notes
+    return values, flags, notes
 
 
-def _kept(text, values, flags, rows, keep, config, multi_currency):  # type: ignore[no-untyped-def]
+def _kept(
+    text: Texts,
+    values: Arrays,
+    flags: list[tuple[str, np.ndarray]],
+    rows: np.ndarray,
+    keep: np.ndarray,
+    scale: float,
+) -> pd.DataFrame:
     """The data frame of kept rows: scaled money, filled market equity, flags."""
     idx = np.flatnonzero(keep)
     fx = values["fx_rate"][idx]
     fx = np.where(np.isnan(fx), 1.0, fx)
-    factor = config.units.scale * fx
-    out: dict[str, object] = {}
+    factor = scale * fx
+    out: dict[str, pd.Series | np.ndarray] = {}
     for c in COLUMNS:
         if c.kind == "text":
             out[c.name] = text[c.name].iloc[idx].reset_index(drop=True)
@@ -617,7 +641,7 @@ def _kept(text, values, flags, rows, keep, config, multi_currency):  # type: ign
     derived = np.isnan(me) & ~np.isnan(out["shares_outstanding"]) & ~np.isnan(out["share_price"])
     me = np.where(derived, out["shares_outstanding"] * out["share_price"], me)
     out["market_equity"] = me
-    all_flags = dict((code, mask[idx]) for code, mask in flags)
+    all_flags = {code: mask[idx] for code, mask in flags}
     all_flags["market_equity_from_shares"] = derived
     all_flags["no_market_equity"] = np.isnan(me)
     data = pd.DataFrame(out)
@@ -642,7 +666,15 @@ def _join_flags(masks: dict[str, np.ndarray], n: int) -> pd.Series:
     return pd.Series(words[inverse], dtype="str")
 
 
-def _ledger(idx, rows, text, values, bad, reason, details):  # type: ignore[no-untyped-def]
+def _ledger(
+    idx: np.ndarray,
+    rows: np.ndarray,
+    text: Texts,
+    values: Arrays,
+    bad: Arrays,
+    reason: np.ndarray,
+    details: Mapping[int, list[str]],
+) -> pd.DataFrame:
     year = values["fiscal_year"][idx]
     good_year = ~np.isnan(year) & ~bad["fiscal_year"][idx]
     with np.errstate(invalid="ignore"):
