@@ -603,3 +603,11 @@ def test_two_period_ends_in_one_fiscal_year_keep_the_later(tmp_path: Path) -> No
     assert _row(result, "9100002", 2020)["total_assets"] == 650_000
     assert any("two period ends in one fiscal year" in w and "9100002" in w
                for w in result.warnings)
+
+
+def test_no_matching_submission_gives_an_empty_panel_and_says_so() -> None:
+    result = import_sec([CURRENT], forms=("10-KT",))
+    assert result.panel.empty and list(result.panel.columns) == list(PANEL_COLUMNS)
+    assert result.sources.empty and result.excluded.empty
+    assert result.warnings == ("No annual submission matched the forms asked for; the panel "
+                               "is empty.",)
