@@ -84,7 +84,8 @@ def template_readme() -> str:
 run configuration (`levgap analyze PANEL --config run.toml`); every key in it is optional.
 
 Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without BOM), Parquet
-or XLSX (the first sheet, or `[input] sheet`). Headers may differ from the column names below
+or XLSX (the first sheet, or `[input] sheet`; formulas are read as the values the spreadsheet
+program last computed and saved). Headers may differ from the column names below
 in case, spaces, `-` and `_` (`Total Assets` matches `total_assets`); other headers are mapped
 in `[columns]` of `run.toml`. Columns that are not in the schema are ignored (and listed in
 `run.json`).
