@@ -207,6 +207,14 @@ def test_headers_match_regardless_of_case_and_spaces(tmp_path, plain):
     pd.testing.assert_frame_equal(read_panel(p).data, read_panel(plain).data)
 
 
+def test_repeated_header_refused(tmp_path):
+    p = tmp_path / "dup.csv"
+    p.write_text(_csv(header=HEADER + ["total_debt"], rows=[r + ["1"] for r in ROWS]))
+    with pytest.raises(SchemaError, match=r"dup.csv: column headers must be unique; got "
+                                          r"total_debt more than once"):
+        read_panel(p)
+
+
 def test_extra_columns_ignored_with_note(tmp_path):
     p = tmp_path / "extra.csv"
     p.write_text(_csv(header=HEADER + ["analyst"], rows=[r + ["x"] for r in ROWS]))

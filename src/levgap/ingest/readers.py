@@ -202,12 +202,13 @@ def _read_csv(p: Path, data: bytes, options: InputOptions) -> RawTable:
                 null_values=[],
             ),
         )
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError, pa.ArrowTypeError) as exc:
+    except pa.ArrowException as exc:
         raise _locate_csv_problem(p, bytes(body), delimiter, len(names), exc) from None
 
     frame = table.to_pandas()
     del table
-    frame.columns = names if len(set(names)) == len(names) else column_names
+    # the file's own headers, duplicates included: validation refuses a repeated header
+    frame.columns = names
     if _has_empty_lines(body):
         rows = _record_numbers(bytes(body), delimiter)
         if len(rows) != len(frame):
@@ -526,6 +527,7 @@ def _read_xlsx(p: Path, data: bytes, options: InputOptions) -> RawTable:
         pd.DataFrame({n: pd.Series([], dtype=object) for n in column_names})
     )
     frame = frame.astype(object)
+    frame.columns = names
     return RawTable(frame, np.asarray(rows, dtype=np.int64), str(p), sha, ())
 
 
