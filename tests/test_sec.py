@@ -611,3 +611,16 @@ def test_no_matching_submission_gives_an_empty_panel_and_says_so() -> None:
     assert result.sources.empty and result.excluded.empty
     assert result.warnings == ("No annual submission matched the forms asked for; the panel "
                                "is empty.",)
+
+
+def test_current_layout_quoted_newline_stays_in_its_field(tmp_path: Path) -> None:
+    (tmp_path / "sub.txt").write_bytes((CURRENT / "sub.txt").read_bytes())
+    text = (CURRENT / "num.txt").read_text(encoding="utf-8")
+    text = text.replace('"Includes the ""Series A"" conversion."',
+                        '"Includes the ""Series A""\nconversion."')
+    (tmp_path / "num.txt").write_text(text, encoding="utf-8")
+    table, report = read_filtered(locate_quarter(tmp_path), "num", ("tag", "footnote"))
+    assert report.skipped_rows == 0
+    assert 'Includes the "Series A"\nconversion.' in table.column("footnote").to_pylist()
+    assert table.num_rows == len((CURRENT / "num.txt").read_text(encoding="utf-8")
+                                 .splitlines()) - 1

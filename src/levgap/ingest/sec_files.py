@@ -275,7 +275,7 @@ def _read(
         quote_char='"' if quoted else False,
         double_quote=quoted,
         escape_char=False,
-        newlines_in_values=False,
+        newlines_in_values=quoted,
         ignore_empty_lines=True,
         invalid_row_handler=on_invalid,
     )
