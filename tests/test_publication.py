@@ -133,3 +133,29 @@ def test_latex_compiles(run, tmp_path):
                           cwd=tmp_path, capture_output=True, text=True, timeout=120, check=False)
     assert proc.returncode == 0, proc.stdout[-3000:]
     assert (tmp_path / "t.pdf").stat().st_size > 1000
+
+
+def test_cli_table(tmp_path):
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+    from levgap.report.tables import write_tables
+
+    tables, manifest = make_outputs(20, 3, seed=7)
+    out = tmp_path / "run"
+    write_tables(tables, manifest, out)
+    runner = CliRunner()
+    tex = runner.invoke(app, ["table", str(out), "--format", "latex"])
+    assert tex.exit_code == 0, tex.output
+    assert tex.output.startswith(r"\begin{tabular}") and r"market\_to\_book" in tex.output
+    md = runner.invoke(app, ["table", str(out), "--format", "markdown"])
+    assert md.exit_code == 0 and md.output.startswith("|  | (1) Book leverage")
+    written = runner.invoke(app, ["table", str(out), "--format", "csv", "-o",
+                                  str(tmp_path / "t.csv")])
+    assert written.exit_code == 0
+    assert (tmp_path / "t.csv").read_text(encoding="utf-8").startswith(",(1),(2)")
+    bad = runner.invoke(app, ["table", str(out), "--format", "docx"])
+    assert bad.exit_code == 2 and "must be latex, markdown or csv; got 'docx'" in bad.output
+    none = runner.invoke(app, ["table", str(tmp_path / "nothing")])
+    assert none.exit_code == 2 and "Traceback" not in none.output
+    assert "Example: levgap table" in runner.invoke(app, ["table", "--help"]).output

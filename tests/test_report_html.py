@@ -192,3 +192,26 @@ def test_build_report_without_outputs_is_an_output_error(tmp_path):
 
     with pytest.raises(OutputError, match="run.json"):
         build_report(tmp_path)
+
+
+def test_cli_report_rebuilds_and_records_the_file(tmp_path, outputs):
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+    from levgap.report.tables import MARKER, write_tables
+
+    tables, manifest = outputs
+    out = tmp_path / "run"
+    write_tables(tables, manifest, out)  # a run written without its report
+    result = CliRunner().invoke(app, ["report", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "Report written to" in result.output
+    assert (out / "report.html").stat().st_size > 10_000
+    assert "report.html" in (out / MARKER).read_text(encoding="utf-8").split()
+    write_tables(tables, manifest, out)  # a later run into the folder is not refused
+    missing = CliRunner().invoke(app, ["report", str(tmp_path / "nothing")])
+    assert missing.exit_code == 2
+    assert "must hold levgap outputs (run.json)" in missing.output
+    assert "Traceback" not in missing.output
+    help_text = CliRunner().invoke(app, ["report", "--help"]).output
+    assert "Example: levgap report" in help_text

@@ -411,6 +411,58 @@ def _explain_table(row: Any, drivers: pd.DataFrame) -> Any:
 
 
 @app.command()
+def report(
+    out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
+) -> None:
+    """Rebuild report.html from the outputs in a folder (after editing or copying them).
+
+    Example: levgap report results/
+    """
+    with _guard():
+        from levgap.report.html import build_report
+
+        path = build_report(out_dir)
+        typer.echo(f"Report written to {path}.")
+
+
+@app.command()
+def table(
+    out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
+    fmt: str = typer.Option("latex", "--format", help="latex, markdown or csv."),
+    digits: int = typer.Option(3, "--digits", min=0, max=8,
+                               help="Decimals of estimates and standard errors."),
+    output: Path = typer.Option(None, "--output", "-o",
+                                help="Write the table to this file instead of printing it."),
+) -> None:
+    """Print the regression table of a run: one column per measure, standard errors in
+    parentheses, significance marks, N, R², fixed effects and clustering.
+
+    Example: levgap table results/ --format latex -o table.tex
+    """
+    with _guard():
+        from levgap.report.publication import FORMATS, regression_table
+        from levgap.report.tables import read_outputs
+
+        if fmt not in FORMATS:
+            raise typer.BadParameter(f"must be latex, markdown or csv; got {fmt!r}.",
+                                     param_hint="--format")
+        tables, manifest = read_outputs(out_dir, names=["coefficients", "model_fit"])
+        missing = [n for n in ("coefficients", "model_fit") if n not in tables]
+        if missing:
+            raise typer.BadParameter(f"{out_dir} holds no {missing[0]} table.",
+                                     param_hint="DIR")
+        text = regression_table(tables["coefficients"], tables["model_fit"], manifest,
+                                fmt=fmt, digits=digits)
+        if output is None:
+            typer.echo(text, nl=False)
+        else:
+            from levgap.report.html import atomic_write_bytes
+
+            atomic_write_bytes(output, text.encode("utf-8"))
+            typer.echo(f"Table written to {output}.")
+
+
+@app.command()
 def check(
     panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX)."),
     config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),

@@ -150,7 +150,21 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -
     from levgap.report.tables import read_outputs
 
     tables, manifest = read_outputs(out_dir)
-    return write_report(tables, manifest, out_dir, options=options)
+    path = write_report(tables, manifest, out_dir, options=options)
+    _record_output(Path(out_dir), path.name)
+    return path
+
+
+def _record_output(out: Path, name: str) -> None:
+    """List ``name`` in the folder's output marker, so a later run accepts it as levgap's."""
+    from levgap.report.tables import MARKER
+
+    marker = out / MARKER
+    if not marker.is_file():
+        return
+    names = marker.read_text(encoding="utf-8").split()
+    if name not in names:
+        atomic_write_bytes(marker, ("\n".join(sorted({*names, name})) + "\n").encode("utf-8"))
 
 
 # ----------------------------------------------------------------------------- content
@@ -255,10 +269,18 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         r = fit[fit["measure"].astype(str) == m]
         if len(r):
             fit_rows.append({k: r.iloc[0][k] for k in r.columns})
-    by_reason = counts.get("by_reason") or (
-        tables["exclusions"]["reason"].astype(str).value_counts().to_dict()
-        if len(tables["exclusions"]) else {}
-    )
+    excl = tables["exclusions"]
+    measure = (excl["measure"].fillna("").astype(str) if "measure" in excl.columns
+               else pd.Series("", index=excl.index))
+    whole = excl[measure == ""]
+    by_reason = whole["reason"].astype(str).value_counts().to_dict() if len(whole) else (
+        counts.get("by_reason") or {})
+    partial = excl[measure != ""]
+    omissions = sorted(
+        ((str(m), str(r), int(n)) for (m, r), n in
+         partial.groupby([measure[measure != ""], partial["reason"].astype(str)]).size().items()),
+        key=lambda t: (t[0], -t[2], t[1]),
+    ) if len(partial) else []
     return {
         "inputs": list(manifest.get("inputs", [])),
         "firms": counts.get("firms", targets["firm_id"].nunique()),
@@ -268,16 +290,26 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         "rows_used": counts.get("rows_used"),
         "rows_excluded": counts.get("rows_excluded", len(tables["exclusions"])),
         "by_reason": sorted(by_reason.items(), key=lambda kv: (-int(kv[1]), str(kv[0]))),
+        "omissions": omissions,
         "measures": measures,
         "model": model_opts.get("model", ",".join(sorted(set(fit["model"].astype(str))))),
         "cluster": model_opts.get("cluster", "not recorded"),
         "coverage": _num(model_opts.get("coverage")),
         "folds": model_opts.get("folds"),
         "fit": fit_rows,
-        "borrowed": list(manifest.get("borrowed_industries", [])),
+        "borrowed": [_borrowed(b) for b in manifest.get("borrowed_industries", []) or []],
         "warnings": [str(w) for w in manifest.get("warnings", [])],
         "version": manifest.get("levgap_version", ""),
     }
+
+
+def _borrowed(item: Any) -> str:
+    if not isinstance(item, Mapping):
+        return str(item)
+    industry = item.get("industry", "?")
+    firms = f" ({item['firms']} firms)" if item.get("firms") is not None else ""
+    source = item.get("borrowed_from") or item.get("parent")
+    return f"{industry}{firms}" + (f" from {source}" if source else "")
 
 
 def _step_title(row: Mapping[str, Any]) -> str:
