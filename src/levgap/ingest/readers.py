@@ -275,7 +275,7 @@ def _to_utf8(p: Path, data: bytes, encoding: str | None) -> tuple[bytes, list[st
             f"{p}: text is not valid UTF-8; read it as {used}. Set [input] encoding to "
             "silence this or re-save the file as UTF-8."
         )
-        warn_data(msg, stacklevel=4)
+        warn_data(msg, stacklevel=5)  # the caller of read_panel
         notes.append(msg)
         return text.encode("utf-8"), notes
     return data, notes
