@@ -106,3 +106,49 @@ def test_negative_controls_fail_the_checks(tmp_path):
     blank = tmp_path / "blank.html"
     blank.write_text("<!DOCTYPE html><html><body></body></html>", encoding="utf-8")
     assert not looks_rendered(screenshot(blank, tmp_path, size="400,300"))
+
+
+@pytest.mark.slow
+def test_analyze_on_a_fresh_panel_renders_with_markup_names(tmp_path):
+    """End to end: a panel the project has not seen (another seed of the invented scenario,
+    with hostile names), ``levgap analyze --xlsx``, then the browser and the workbook."""
+    import openpyxl
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+    from levgap.demo import make_panel
+
+    panel = make_panel(seed=11)
+    last = panel["fiscal_year"] == panel["fiscal_year"].max()
+    big = panel["industry"].map(panel.loc[last, "industry"].value_counts()) >= 10
+    firms = list(dict.fromkeys(panel.loc[last & big, "firm_id"]))
+    hostile = {firms[0]: "<script>document.title='pwned'</script> Holdings",
+               firms[1]: "Quay </svg><b>Bold</b> & Sons",
+               firms[2]: "=SUM(A1:A9)"}
+    panel["firm_name"] = panel["firm_id"].map(hostile).fillna(panel["firm_name"])
+    # Push the first two firms' final-year debt up, so that they lead the over-levered tables.
+    shocked = last & panel["firm_id"].isin(firms[:2])
+    panel.loc[shocked, "total_debt"] = 0.95 * panel.loc[shocked, "total_assets"]
+    source = tmp_path / "fresh_panel.csv"
+    panel.to_csv(source, index=False)
+    out = tmp_path / "out"
+    result = CliRunner().invoke(app, ["analyze", str(source), "--out", str(out), "--xlsx",
+                                      "--quiet"])
+    assert result.exit_code == 0, result.output
+    report = out / "report.html"
+    page = report.read_text(encoding="utf-8")
+    assert page.count("<svg") >= 5
+    dom, console = load(report, tmp_path)
+    assert console == [], console
+    assert "<title>levgap report: leverage against industry peers</title>" in dom
+    assert re.search(r'data-levgap-ready="\d+"', dom)
+    assert looks_rendered(screenshot(report, tmp_path))
+    # The hostile names are on the page, as text only.
+    assert "&lt;script&gt;document.title='pwned'&lt;/script&gt; Holdings" in dom
+    assert "Quay &lt;/svg&gt;&lt;b&gt;Bold&lt;/b&gt; &amp; Sons" in dom
+    assert "<b>Bold</b>" not in dom and "<script>document.title" not in dom
+    wb = openpyxl.load_workbook(out / "workbook.xlsx", read_only=True)
+    assert wb.sheetnames == ["Summary", "Targets", "Drivers", "Coefficients", "Exclusions"]
+    names = {row[1] for row in wb["Targets"].iter_rows(min_row=2, values_only=True)}
+    assert "'=SUM(A1:A9)" in names and "=SUM(A1:A9)" not in names
+    wb.close()
