@@ -215,3 +215,13 @@ def test_cli_report_rebuilds_and_records_the_file(tmp_path, outputs):
     assert "Traceback" not in missing.output
     help_text = CliRunner().invoke(app, ["report", "--help"]).output
     assert "Example: levgap report" in help_text
+
+
+def test_progress_reaches_its_total(outputs):
+    tables, manifest = outputs
+    calls = []
+    render_report(tables, manifest, progress=lambda stage, done, total: calls.append(
+        (stage, done, total)))
+    assert calls and all(stage == "report" for stage, _, _ in calls)
+    dones = [d for _, d, _ in calls]
+    assert dones == sorted(dones) and calls[-1][1] == calls[-1][2]

@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 import os
 import tempfile
-from collections.abc import Iterator, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -102,6 +102,7 @@ def write_report(
     out_dir: str | Path,
     *,
     options: ReportOptions | None = None,
+    progress: Callable[[str, int, int], None] | None = None,
 ) -> Path:
     """Render ``report.html`` into ``out_dir``.
 
@@ -116,6 +117,8 @@ def write_report(
         Folder to write into (created if missing).
     options : ReportOptions, optional
         What to show; defaults to :class:`ReportOptions`.
+    progress : callable, optional
+        ``progress("report", done, total)``, called as each chart is drawn.
 
     Returns
     -------
@@ -127,7 +130,7 @@ def write_report(
     OutputError
         If a table is missing or the folder cannot be written.
     """
-    html = render_report(tables, manifest, options=options)
+    html = render_report(tables, manifest, options=options, progress=progress)
     path = Path(out_dir) / REPORT_NAME
     atomic_write_bytes(path, html.encode("utf-8"))
     return path
@@ -324,6 +327,7 @@ def render_report(
     manifest: Mapping[str, Any],
     *,
     options: ReportOptions | None = None,
+    progress: Callable[[str, int, int], None] | None = None,
 ) -> str:
     """The report as an HTML string (see :func:`write_report`)."""
     from levgap.report import plots
@@ -335,16 +339,24 @@ def render_report(
     measures = _measures(tables, manifest)
     header = _header(tables, manifest, measures)
     year = int(targets["fiscal_year"].max()) if len(targets) else None
+    total = 3 + 2 * opts.step_firms * len(measures)
+    drawn = [0]
+
+    def svg(fig: Any, key: str) -> str:
+        out = plots.figure_svg(fig, key=key)
+        drawn[0] += 1
+        if progress is not None:
+            progress("report", min(drawn[0], total), total)
+        return out
 
     charts: dict[str, str] = {}
     if len(targets):
-        charts["scatter"] = plots.figure_svg(
-            plots.scatter_figure(targets, measures, max_points=opts.max_points), key="scatter")
-        charts["gaps"] = plots.figure_svg(plots.gap_figure(targets, measures), key="gaps")
+        charts["scatter"] = svg(
+            plots.scatter_figure(targets, measures, max_points=opts.max_points), "scatter")
+        charts["gaps"] = svg(plots.gap_figure(targets, measures), "gaps")
     coefficients = tables["coefficients"]
     if len(coefficients):
-        charts["coefficients"] = plots.figure_svg(
-            plots.coefficient_figure(coefficients), key="coefficients")
+        charts["coefficients"] = svg(plots.coefficient_figure(coefficients), "coefficients")
 
     sections = []
     # Driver rows of the focus year only, indexed once, so each step chart is a cheap lookup.
@@ -359,7 +371,7 @@ def render_report(
             frame = driver_steps(row, measure_drivers)
             steps.append({
                 "title": _step_title(row),
-                "svg": plots.figure_svg(plots.steps_figure(frame), key=f"steps-{measure}-{i}"),
+                "svg": svg(plots.steps_figure(frame), f"steps-{measure}-{i}"),
                 "rows": frame.to_dict("records"),
             })
         sections.append({
@@ -370,6 +382,8 @@ def render_report(
             if year else [],
             "steps": steps,
         })
+    if progress is not None:
+        progress("report", total, total)
     coef_rows = coefficients.to_dict("records")
     n_charts = len(charts) + sum(len(s["steps"]) for s in sections)
     return _environment().get_template("report.html.j2").render(
@@ -400,6 +414,11 @@ def _fmt(v: Any, digits: int = 3) -> str:
     return f"{f:,.{digits}f}"
 
 
+def _pvalue(v: Any) -> str:
+    f = _num(v)
+    return "–" if f is None else "<0.001" if f < 0.001 else f"{f:.3f}"
+
+
 def _money(v: Any) -> str:
     f = _num(v)
     return "–" if f is None else f"{f:+,.1f}"
@@ -427,7 +446,8 @@ def _environment() -> Any:
         trim_blocks=True,
         lstrip_blocks=True,
     )
-    env.filters.update(pct=_pct, pp=_pp, fmt=_fmt, money=_money, sortkey=_sortkey, stars=_stars)
+    env.filters.update(pct=_pct, pp=_pp, fmt=_fmt, money=_money, sortkey=_sortkey, stars=_stars,
+                       pvalue=_pvalue)
     env.globals["isnum"] = lambda v: _num(v) is not None
     env.globals["np"] = np
     return env
