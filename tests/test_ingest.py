@@ -379,3 +379,79 @@ def test_benchmark_panel_generator_is_deterministic_and_valid(tmp_path):
     assert reasons["non_numeric"] == reasons["assets_not_positive"] == 1
     assert reasons["missing_value"] == 1
     assert len(panel.data) + len(panel.exclusions) == 4000
+
+
+def _binary_seeds(tmp_path):
+    frame = pd.DataFrame(ROWS, columns=HEADER)
+    for c in HEADER[3:8]:
+        frame[c] = pd.to_numeric(frame[c])
+    frame.to_parquet(tmp_path / "seed.parquet")
+    _xlsx(tmp_path / "seed.xlsx", HEADER, ROWS, sheet="Data")
+    return {"parquet": (tmp_path / "seed.parquet").read_bytes(),
+            "xlsx": (tmp_path / "seed.xlsx").read_bytes()}
+
+
+def _read_or_levgap_error(path, **kw):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataWarning)
+        try:
+            read_panel(path, **kw)
+        except LevgapError as exc:
+            assert "\n" not in str(exc)
+            return "error"
+    return "panel"
+
+
+@pytest.mark.parametrize("kind", ["parquet", "xlsx"])
+def test_byte_fuzz_binary_formats(tmp_path, kind):
+    seed = _binary_seeds(tmp_path)[kind]
+    rng = random.Random(11)
+    for i in range(60):
+        b = bytearray(seed)
+        for _ in range(rng.randint(1, 4)):
+            pos = rng.randrange(len(b))
+            op = rng.randrange(3)
+            if op == 0:
+                b[pos] ^= 1 << rng.randrange(8)
+            elif op == 1:
+                del b[pos:pos + rng.randint(1, 20)]
+            else:
+                b[pos:pos] = bytes(rng.randrange(256) for _ in range(rng.randint(1, 5)))
+        p = tmp_path / f"f{i}.{kind}"
+        p.write_bytes(bytes(b))
+        _read_or_levgap_error(p)
+
+
+def test_damaged_xml_inside_workbook(tmp_path):
+    import io
+    import zipfile
+
+    seed = _binary_seeds(tmp_path)["xlsx"]
+    members = {n: zipfile.ZipFile(io.BytesIO(seed)).read(n)
+               for n in zipfile.ZipFile(io.BytesIO(seed)).namelist()}
+    rng = random.Random(3)
+    outcomes = set()
+    for i in range(60):
+        target = sorted(members)[i % len(members)]
+        b = bytearray(members[target])
+        pos = rng.randrange(len(b))
+        b[pos:pos] = rng.choice([b"<", b">", b'"', b"&", b"\x00", b"</x>", b"9" * 30])
+        buf = io.BytesIO()
+        with zipfile.ZipFile(buf, "w") as out:
+            for name, data in members.items():
+                out.writestr(name, bytes(b) if name == target else data)
+        p = tmp_path / f"x{i}.xlsx"
+        p.write_bytes(buf.getvalue())
+        outcomes.add(_read_or_levgap_error(p, config=RunConfig(input=InputOptions(sheet="Data"))))
+    assert outcomes == {"panel", "error"}
+
+
+def test_parquet_with_index_and_no_pandas_metadata(tmp_path, plain):
+    frame = pd.DataFrame(ROWS, columns=HEADER).set_index("firm_name")
+    for c in HEADER[3:8] + ["market_equity"]:
+        frame[c] = pd.to_numeric(frame[c])
+    p = tmp_path / "indexed.parquet"
+    frame.to_parquet(p)
+    panel = read_panel(p)
+    # the index was stored as a named column and is read as firm_name
+    assert panel.data["firm_name"].tolist() == read_panel(plain).data["firm_name"].tolist()

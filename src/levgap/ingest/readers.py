@@ -22,10 +22,13 @@ import csv
 import hashlib
 import io
 import re
+import warnings
 import zipfile
+import zlib
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
+from xml.etree.ElementTree import ParseError
 
 import numpy as np
 import pandas as pd
@@ -317,6 +320,12 @@ def _skip_blank_lines(data: bytes, pos: int) -> int:
     return pos
 
 
+def _one_line(exc: BaseException, limit: int = 160) -> str:
+    """A library's error text on one line (they can span several), shortened."""
+    text = " ".join(str(exc).split()) or type(exc).__name__
+    return text if len(text) <= limit else text[: limit - 3] + "..."
+
+
 def _short(line: bytes) -> str:
     text = line.decode("utf-8", errors="replace").strip()
     return repr(text if len(text) <= 60 else text[:57] + "...")
@@ -416,9 +425,10 @@ def _locate_csv_problem(
                 )
     except csv.Error as err:
         return SchemaError(
-            f"{p}: row {n + 1} must be well-formed CSV; got {err}. Fix the row's quotes."
+            f"{p}: row {n + 1} must be well-formed CSV; got {_one_line(err)}. Fix the row's "
+            "quotes."
         )
-    detail = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+    detail = _one_line(exc)
     return SchemaError(
         f"{p}: the file must be well-formed CSV; got {detail[:200]}. Check quotes and the "
         "delimiter."
@@ -433,9 +443,13 @@ def _read_parquet(p: Path, data: bytes, options: InputOptions) -> RawTable:
     sha = hashlib.sha256(data).hexdigest()
     try:
         table = pq.read_table(pa.BufferReader(pa.py_buffer(data)))
-        frame = table.to_pandas()
-    except (pa.ArrowException, OSError, ValueError) as exc:
-        detail = (str(exc).splitlines() or [type(exc).__name__])[0][:200]
+        # without pandas' metadata: a damaged copy of it would fail the conversion, and an
+        # index written beside the columns is not panel data
+        table = table.replace_schema_metadata(None)
+        keep = [n for n in table.column_names if not n.startswith("__index_level_")]
+        frame = table.select(keep).to_pandas()
+    except (pa.ArrowException, OSError, ValueError, KeyError, TypeError) as exc:
+        detail = _one_line(exc)
         raise SchemaError(
             f"{p}: the file must be a readable Parquet table; got {detail}. Re-export it."
         ) from None
@@ -454,17 +468,32 @@ def _read_parquet(p: Path, data: bytes, options: InputOptions) -> RawTable:
 
 
 def _read_xlsx(p: Path, data: bytes, options: InputOptions) -> RawTable:
-    import openpyxl
     from openpyxl.utils.exceptions import InvalidFileException
 
     sha = hashlib.sha256(data).hexdigest()
+    # what a damaged workbook raises inside openpyxl: broken zip, deflate stream or XML,
+    # missing parts, and cells whose values do not parse
+    broken = (zipfile.BadZipFile, zlib.error, ParseError, InvalidFileException, KeyError,
+              OSError, ValueError, TypeError, IndexError, EOFError, NotImplementedError)
+    # openpyxl warns about parts it skips (styles, extensions); they become notes
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        cells = _xlsx_cells(p, data, options, broken)
+    notes = tuple(dict.fromkeys(f"workbook: {_one_line(w.message)}" for w in caught))[:5]
+    return _xlsx_table(p, cells, options, sha, notes)
+
+
+def _xlsx_cells(
+    p: Path, data: bytes, options: InputOptions, broken: tuple[type[BaseException], ...]
+) -> list[tuple]:
+    import openpyxl
+
     try:
         wb = openpyxl.load_workbook(io.BytesIO(data), read_only=True, data_only=True)
-    except (zipfile.BadZipFile, InvalidFileException, KeyError, OSError, ValueError,
-            TypeError, IndexError, EOFError) as exc:
+    except broken as exc:
         raise SchemaError(
             f"{p}: the file must be a readable .xlsx workbook; got {type(exc).__name__}: "
-            f"{str(exc)[:150]}. Re-save it from the spreadsheet program."
+            f"{_one_line(exc)}. Re-save it from the spreadsheet program."
         ) from None
     try:
         if options.sheet is None:
@@ -480,14 +509,19 @@ def _read_xlsx(p: Path, data: bytes, options: InputOptions) -> RawTable:
             )
         try:
             cells = list(ws.iter_rows(values_only=True))
-        except (zipfile.BadZipFile, KeyError, OSError, ValueError, TypeError) as exc:
+        except broken as exc:
             raise SchemaError(
                 f"{p}: the worksheet must be readable; got {type(exc).__name__}: "
-                f"{str(exc)[:150]}. Re-save the workbook."
+                f"{_one_line(exc)}. Re-save the workbook."
             ) from None
     finally:
         wb.close()
+    return cells
 
+
+def _xlsx_table(
+    p: Path, cells: list[tuple], options: InputOptions, sha: str, notes: tuple[str, ...]
+) -> RawTable:
     if options.skip_rows >= len(cells) and options.skip_rows > 0:
         raise SchemaError(
             f"{p}: [input] skip_rows must be less than the number of rows; got "
@@ -528,7 +562,7 @@ def _read_xlsx(p: Path, data: bytes, options: InputOptions) -> RawTable:
     )
     frame = frame.astype(object)
     frame.columns = names
-    return RawTable(frame, np.asarray(rows, dtype=np.int64), str(p), sha, ())
+    return RawTable(frame, np.asarray(rows, dtype=np.int64), str(p), sha, notes)
 
 
 def _blank_record(r: tuple) -> bool:
