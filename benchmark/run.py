@@ -159,18 +159,31 @@ def run_child(cmd: list[str], *, log: Path, tty_stderr: bool = False) -> dict:
 
 
 def child_series(cmds: dict[str, Callable[[], list[str]]], repeat: int, warmup: int,
-                 logdir: Path, tty: frozenset[str] = frozenset()) -> dict[str, dict]:
-    """Interleaved child runs: per command, median seconds and median peak RSS (MB)."""
+                 logdir: Path, tty: frozenset[str] = frozenset(),
+                 repeats: dict[str, int] | None = None,
+                 warm: frozenset[str] | None = None) -> dict[str, dict]:
+    """Interleaved child runs: per command, median seconds and median peak RSS (MB).
+
+    ``repeats`` lowers the number of timed runs of some commands (the slow ones at 1m);
+    ``warm`` restricts the warm-up runs to some commands.
+    """
+    repeats = repeats or {}
     runs: dict[str, list] = {k: [] for k in cmds}
+    warmed: dict[str, int] = {k: 0 for k in cmds}
     for w in range(warmup):
         for k, make in cmds.items():
+            if warm is not None and k not in warm:
+                continue
             r = run_child(make(), log=logdir / f"{k}-warmup{w}", tty_stderr=k in tty)
+            warmed[k] += 1
             if r["rc"] != 0:
                 runs[k].append(r)
     for i in range(repeat):
         for k, make in cmds.items():
             if runs[k] and runs[k][-1]["rc"] != 0:
                 continue  # a command that fails once is not timed again
+            if i >= repeats.get(k, repeat):
+                continue
             runs[k].append(run_child(make(), log=logdir / f"{k}-{i}", tty_stderr=k in tty))
     out = {}
     for k, rs in runs.items():
@@ -180,7 +193,9 @@ def child_series(cmds: dict[str, Callable[[], list[str]]], repeat: int, warmup: 
             "seconds": median([r["seconds"] for r in ok]),
             "rss_mb": median([r["rss_mb"] for r in ok]),
             "runs": len(ok),
+            "warmups": warmed[k],
             "all_seconds": [round(r["seconds"], 4) for r in ok],
+            "all_rss_mb": [round(r["rss_mb"], 1) for r in ok],
         }
         if bad:
             out[k]["error"] = bad[0].get("error", "failed")
@@ -219,7 +234,9 @@ def run_statsmodels(a: dict) -> Any:
     """The route a user would otherwise take: explicit dummies, OLS, firm-clustered errors."""
     import statsmodels.api as sm
 
-    y, X, ind, yr = a["y"], a["X"], a["industry"], a["year"]
+    y, X = a["y"], a["X"]
+    ind = np.unique(a["industry"], return_inverse=True)[1]
+    yr = np.unique(a["year"], return_inverse=True)[1]
     n_i, n_y = int(ind.max()) + 1, int(yr.max()) + 1
     n = len(y)
     Z = np.zeros((n, 1 + (n_i - 1) + (n_y - 1) + X.shape[1]))
@@ -318,52 +335,57 @@ def read_times(paths: dict[str, Path], repeat: int, warmup: int) -> dict[str, fl
 
 
 def bench_end_to_end(paths: dict[str, Path], work: Path, repeat: int, warmup: int,
-                     flags: list[str]) -> dict:
+                     flags: list[str], *, large: bool, csv_runs_large: int,
+                     with_bar: bool) -> dict:
+    """(d) with CSV and with Parquet outputs, the lean implementation, and the read baseline.
+
+    With ``with_bar`` a fourth command repeats (d) Parquet with stderr a terminal, so the
+    progress bar is drawn: its cost is the difference to (d) Parquet (stderr a file).
+    At large sizes only (d) Parquet takes the warm-up (it warms the file cache and the
+    byte-code for all), and (d) CSV, which no goal compares, runs ``csv_runs_large`` times.
+    """
     lg = levgap_cmd()
     d_csv, d_pq, lean_out = work / "d-csv", work / "d-parquet", work / "lean"
     cmds = {
-        "d_csv": lambda: [*lg, "analyze", str(paths["csv"]), "--out", str(fresh(d_csv)),
-                          "--measure", "both", "--format", "csv", *flags],
         "d_parquet": lambda: [*lg, "analyze", str(paths["parquet"]), "--out",
                               str(fresh(d_pq)), "--measure", "both", "--format", "parquet",
                               *flags],
         "lean": lambda: [sys.executable, str(HERE / "lean.py"), str(paths["parquet"]),
                          "--out", str(fresh(lean_out)), "--measure", "both"],
+        "d_csv": lambda: [*lg, "analyze", str(paths["csv"]), "--out", str(fresh(d_csv)),
+                          "--measure", "both", "--format", "csv", *flags],
     }
-    res = child_series(cmds, repeat, warmup, work / "logs")
-    res.update(read_times(paths, repeat, warmup))
-    d = {"d_csv": res["d_csv"], "d_parquet": res["d_parquet"], "lean": res["lean"],
-         "read_csv_s": res["read_csv_s"], "read_parquet_s": res["read_parquet_s"]}
+    if with_bar:
+        cmds["d_parquet_bar"] = lambda: [
+            *lg, "analyze", str(paths["parquet"]), "--out", str(fresh(work / "d-bar")),
+            "--measure", "both", "--format", "parquet", *flags]
+    res = child_series(cmds, repeat, warmup, work / "logs", tty=frozenset({"d_parquet_bar"}),
+                       repeats={"d_csv": csv_runs_large} if large else None,
+                       warm=frozenset({"d_parquet"}) if large else None)
+    d: dict[str, Any] = {k: res[k] for k in cmds}
+    d.update(read_times(paths, repeat, warmup))
     d["d_csv_over_read"] = d["d_csv"]["seconds"] / d["read_csv_s"]
     d["d_parquet_over_read"] = d["d_parquet"]["seconds"] / d["read_parquet_s"]
     d["d_over_lean_time"] = d["d_parquet"]["seconds"] / d["lean"]["seconds"]
     d["d_over_lean_rss"] = d["d_parquet"]["rss_mb"] / d["lean"]["rss_mb"]
     d["outputs_csv"] = sorted(p.name for p in d_csv.glob("*")) if d_csv.exists() else []
     d["outputs_parquet"] = sorted(p.name for p in d_pq.glob("*")) if d_pq.exists() else []
+    if with_bar:
+        last = work / "logs" / f"d_parquet_bar-{max(d['d_parquet_bar']['runs'] - 1, 0)}"
+        out = last.with_suffix(".out")
+        text = out.read_text(errors="replace") if out.exists() else ""
+        err = last.with_suffix(".err")
+        drawn = err.read_text(errors="replace") if err.exists() else ""
+        base = d["d_parquet"]["seconds"]
+        spread = [abs(t / base - 1.0) for t in d["d_parquet"]["all_seconds"]]
+        d["progress"] = {
+            "bar": d["d_parquet_bar"], "no_bar": d["d_parquet"],
+            "stdout_has_bar": ("\r" in text) or ("cross-fit" in text),
+            "bar_drawn_on_stderr": "cross-fit" in drawn,
+            "overhead": d["d_parquet_bar"]["seconds"] / base - 1.0,
+            "noise": max(spread) if spread else float("nan"),
+        }
     return d
-
-
-def bench_progress(parquet: Path, work: Path, repeat: int, warmup: int, flags: list[str]) -> dict:
-    """Same analyze run with stderr a terminal (progress bar drawn) and a file (not drawn)."""
-    lg = levgap_cmd()
-    cmds = {
-        "bar": lambda: [*lg, "analyze", str(parquet), "--out", str(fresh(work / "p-bar")),
-                        "--measure", "both", "--format", "parquet", *flags],
-        "no_bar": lambda: [*lg, "analyze", str(parquet), "--out", str(fresh(work / "p-nobar")),
-                           "--measure", "both", "--format", "parquet", *flags],
-    }
-    res = child_series(cmds, repeat, warmup, work / "logs", tty=frozenset({"bar"}))
-    last = work / "logs" / f"bar-{max(repeat - 1, 0)}"
-    out = last.with_suffix(".out")
-    text = out.read_text(errors="replace") if out.exists() else ""
-    err = last.with_suffix(".err")
-    drawn = err.read_text(errors="replace") if err.exists() else ""
-    res["stdout_has_bar"] = ("\r" in text) or ("cross-fit" in text)
-    res["bar_drawn_on_stderr"] = "cross-fit" in drawn
-    res["overhead"] = res["bar"]["seconds"] / res["no_bar"]["seconds"] - 1.0
-    spread = [abs(t / res["no_bar"]["seconds"] - 1.0) for t in res["no_bar"]["all_seconds"]]
-    res["noise"] = max(spread) if spread else float("nan")
-    return res
 
 
 def bench_unseen(work: Path, data_dir: Path, repeat: int, warmup: int, flags: list[str],
@@ -457,11 +479,14 @@ def bench_extra(name: str, csv_1m: Path | None, rows: int, repeat: int, quick: b
                 kwargs[p] = repeat
             elif p == "quick":
                 kwargs[p] = quick
-            elif p in ("rows", "size", "n_rows") and not quick:
+            elif p in ("rows", "size", "n_rows"):
                 kwargs[p] = rows
+            elif p == "facts" and quick:
+                kwargs[p] = 50_000  # a small quarter for the smoke test
         t0 = time.perf_counter()
         result = mod.run(**kwargs)
-        return {"status": "ok", "seconds_total": time.perf_counter() - t0,
+        return {"status": "ok", "seconds_total": time.perf_counter() - t0, "kwargs":
+                {k: str(v) for k, v in kwargs.items()},
                 "result": json.loads(json.dumps(result, default=str))}
     except Exception as exc:  # noqa: BLE001 - another engineer's benchmark must not stop ours
         return {"status": "error", "note": f"{type(exc).__name__}: {exc}"}
@@ -577,6 +602,16 @@ def fmt_s(x: Any, digits: int = 3) -> str:
     return f"{x:.{digits}f}"
 
 
+def _runs_note(r: dict, res: dict) -> str:
+    """Say so beside a figure taken from fewer runs, or without warm-up, than the rest."""
+    parts = []
+    if r.get("runs", res["repeat"]) < res["repeat"]:
+        parts.append(f"{r['runs']} run" + ("s" if r["runs"] != 1 else ""))
+    if res["warmup"] and not r.get("warmups", 1):
+        parts.append("no own warm-up")
+    return f" ({', '.join(parts)})" if parts else ""
+
+
 def write_markdown(res: dict, path: Path) -> None:
     m = res["machine"]
     L = ["# levgap benchmark results", "",
@@ -635,11 +670,14 @@ def write_markdown(res: dict, path: Path) -> None:
             L.append(f"| {key} | " + " | ".join(["-"] * 12) + " |")
             continue
         L.append(
-            f"| {key} | {fmt_s(e['read_csv_s'])} | {fmt_s(e['d_csv']['seconds'], 2)} | "
+            f"| {key} | {fmt_s(e['read_csv_s'])} | {fmt_s(e['d_csv']['seconds'], 2)}"
+            f"{_runs_note(e['d_csv'], res)} | "
             f"{fmt_s(e['d_csv_over_read'], 1)} | {fmt_s(e['d_csv']['rss_mb'], 0)} | "
-            f"{fmt_s(e['read_parquet_s'])} | {fmt_s(e['d_parquet']['seconds'], 2)} | "
+            f"{fmt_s(e['read_parquet_s'])} | {fmt_s(e['d_parquet']['seconds'], 2)}"
+            f"{_runs_note(e['d_parquet'], res)} | "
             f"{fmt_s(e['d_parquet_over_read'], 1)} | {fmt_s(e['d_parquet']['rss_mb'], 0)} | "
-            f"{fmt_s(e['lean']['seconds'], 2)} | {fmt_s(e['lean']['rss_mb'], 0)} | "
+            f"{fmt_s(e['lean']['seconds'], 2)}{_runs_note(e['lean'], res)} | "
+            f"{fmt_s(e['lean']['rss_mb'], 0)} | "
             f"{fmt_s(e['d_over_lean_time'], 2)} | {fmt_s(e['d_over_lean_rss'], 2)} |")
     errs = [(k, n, r["error"]) for k, s in res["sizes"].items()
             for n, r in (s.get("end_to_end") or {}).items()
@@ -718,6 +756,8 @@ def main(argv: list[str] | None = None) -> int:
                     "(the smoke test)")
     ap.add_argument("--sm-runs-large", type=int, default=1,
                     help="statsmodels runs at 1m firm-years and above (no warm-up there)")
+    ap.add_argument("--csv-runs-large", type=int, default=1,
+                    help="runs of (d) with CSV outputs at 1m firm-years and above")
     ap.add_argument("--no-profile", action="store_true")
     ap.add_argument("--data-dir", type=Path, default=HERE / "data")
     ap.add_argument("--work-dir", type=Path, default=HERE / "out")
@@ -754,7 +794,12 @@ def main(argv: list[str] | None = None) -> int:
         del a
         if flags is not None:
             say(f"{key}: end to end")
-            s["end_to_end"] = bench_end_to_end(paths, work / key, repeat, warmup, flags)
+            with_bar = rows == sizes[-1] and not args.quick
+            s["end_to_end"] = bench_end_to_end(
+                paths, work / key, repeat, warmup, flags, large=large,
+                csv_runs_large=args.csv_runs_large, with_bar=with_bar)
+            if with_bar:
+                res["progress"] = {"size": key, **s["end_to_end"].pop("progress")}
         else:
             s["end_to_end_note"] = why
         res["sizes"][key] = s
@@ -768,10 +813,6 @@ def main(argv: list[str] | None = None) -> int:
         say("never-seen panel")
         res["unseen"] = bench_unseen(work / "unseen", args.data_dir, repeat, warmup, flags,
                                      args.quick)
-        if not args.quick:
-            say("progress bar")
-            res["progress"] = {"size": largest, **bench_progress(
-                panels[largest]["parquet"], work / "progress", repeat, warmup, flags)}
         say("start-up")
         smallest = label(sizes[0])
         big = work / largest / "d-csv" if largest != smallest else None

@@ -31,6 +31,7 @@ import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 
 DATA_DIR = Path(__file__).resolve().parent / "data"
+DGP_VERSION = 2  # part of the file names: bump when the generator changes
 
 
 @dataclass(frozen=True, slots=True)
@@ -69,7 +70,7 @@ class SynthSpec:
     @property
     def stem(self) -> str:
         return (
-            f"panel-{self.rows}-i{self.industries}-y{self.years}-s{self.seed}"
+            f"panel{DGP_VERSION}-{self.rows}-i{self.industries}-y{self.years}-s{self.seed}"
             f"-m{round(self.no_market_share * 1000)}-{self.id_prefix.lower()}-{self.order}"
         )
 
@@ -115,7 +116,7 @@ def make_table(spec: SynthSpec) -> pa.Table:
     start = (rng.random(n_firms) * (n_yr - length + 1)).astype(np.int64)
 
     firm = np.repeat(np.arange(n_firms), length)
-    offset = np.arange(spec.rows) - np.repeat(cum[:n_firms] - length, length)
+    offset = np.arange(spec.rows) - np.repeat(np.cumsum(length) - length, length)
     t = np.repeat(start, length) + offset  # year index 0..n_yr-1
     n = spec.rows
 
