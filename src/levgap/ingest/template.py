@@ -55,6 +55,8 @@ def template_csv() -> str:
 
 
 def _minimum(c: Column) -> str:
+    if c.name == "fiscal_year":
+        return f"{YEAR_RANGE[0]}..{YEAR_RANGE[1]}"
     if c.minimum is None:
         return "any"
     return f"> {c.minimum:g}" if c.strict else f">= {c.minimum:g}"
