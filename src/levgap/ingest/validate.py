@@ -52,7 +52,7 @@ FLAGS: dict[str, str] = {
         f"invalid_{c.name}": f"{c.name} was not a number or below its minimum and is treated "
         "as missing"
         for c in COLUMNS
-        if not c.required and c.kind == "number"
+        if not c.required and c.kind == "number" and c.name != "fx_rate"  # fx_rate excludes
     },
 }
 """Flags of kept rows, written ``;``-joined into the ``flags`` column."""
