@@ -17,6 +17,7 @@ import pandas as pd
 from levgap.errors import LevgapError
 
 STEP_COLUMNS = ("step", "label", "kind", "delta", "start", "end")
+_EIGHTHS = ("", "▏", "▎", "▍", "▌", "▋", "▊", "▉")
 _TOLERANCE = 1e-6
 
 
@@ -88,15 +89,15 @@ def driver_steps(target_row: Mapping[str, Any], drivers: pd.DataFrame) -> pd.Dat
     return frame[list(STEP_COLUMNS)]
 
 
-def render_steps(steps: pd.DataFrame, *, width: int = 36, title: str | None = None) -> Any:
+def render_steps(steps: pd.DataFrame, *, width: int = 40, title: str | None = None) -> Any:
     """Draw driver steps as a horizontal bar chart for the terminal.
 
     Parameters
     ----------
     steps : pandas.DataFrame
         Output of :func:`driver_steps`.
-    width : int, default=36
-        Characters of the bar column.
+    width : int, default=40
+        Characters of the bar column; bar ends are drawn to an eighth of a character.
     title : str, optional
         Table title (shown as plain text; rich markup in it is not interpreted).
 
@@ -111,25 +112,26 @@ def render_steps(steps: pd.DataFrame, *, width: int = 36, title: str | None = No
 
     lo = min(0.0, float(steps[["start", "end"]].min().min()))
     hi = max(0.0, float(steps[["start", "end"]].max().max()))
-    span = hi - lo if hi > lo else 1.0
-
-    def col(v: float) -> int:
-        return int(round((v - lo) / span * width))
+    scale = width / (hi - lo) if hi > lo else 1.0
 
     table = Table(title=Text(title) if title else None, show_edge=False, pad_edge=False)
     table.add_column("step", no_wrap=True)
-    table.add_column("", no_wrap=True, min_width=width)
+    table.add_column("", no_wrap=True, min_width=width + 1)
     table.add_column("pp", justify="right", no_wrap=True)
     for row in steps.itertuples(index=False):
-        a, b = sorted((col(row.start), col(row.end)))
         if row.kind == "level":
             style, value = "bold blue", f"{row.end * 100:.1f}"
         else:
             style = "red" if row.delta > 0 else "green"
             value = f"{row.delta * 100:+.1f}"
-        bar = Text(" " * a)
-        bar.append("█" * max(b - a, 1 if row.delta != 0 else 0), style=style)
-        if b - a == 0 and row.delta == 0:
-            bar.append("│", style="dim")
+        # The left edge sits on a character cell; the right edge is drawn to an eighth of one.
+        left = int(round((min(row.start, row.end) - lo) * scale))
+        size = (max(row.start, row.end) - lo) * scale - left
+        full, eighths = divmod(max(int(round(size * 8)), 0), 8)
+        bar = Text(" " * left)
+        body = "█" * full + (_EIGHTHS[eighths] if eighths else "")
+        if not body and row.delta != 0:
+            body = "▏"  # a change too small to draw still shows where it sits
+        bar.append(body or "│", style=style if body else "dim")
         table.add_row(Text(str(row.label)), bar, value)
     return table
