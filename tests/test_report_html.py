@@ -225,3 +225,18 @@ def test_progress_reaches_its_total(outputs):
     assert calls and all(stage == "report" for stage, _, _ in calls)
     dones = [d for _, d, _ in calls]
     assert dones == sorted(dones) and calls[-1][1] == calls[-1][2]
+
+
+def test_one_measure_blank_names_and_missing_values():
+    tables, manifest = make_outputs(12, 2, seed=8, measures=("book",))
+    targets = tables["targets"].copy()
+    targets["firm_name"] = ""
+    targets.loc[targets.index[:3], ["gap", "gap_z", "debt_to_target"]] = float("nan")
+    manifest = {k: v for k, v in manifest.items() if k not in ("counts", "options", "inputs")}
+    page = render_report({**tables, "targets": targets}, manifest)
+    assert "Book leverage, fiscal year 2016" in page and "Market leverage" not in page
+    assert "in-memory panel" in page and "clustered by not recorded" in page
+    assert page.count("<svg") >= 5
+    empty = {**tables, "targets": targets.iloc[:0], "drivers": tables["drivers"].iloc[:0],
+             "coefficients": tables["coefficients"].iloc[:0]}
+    assert "Leverage against industry peers" in render_report(empty, manifest)
