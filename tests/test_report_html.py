@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import re
-import time
 import xml.etree.ElementTree as ET
 from html.parser import HTMLParser
 
@@ -158,16 +157,14 @@ def test_names_with_markup_reach_the_step_charts(outputs):
 
 
 @pytest.mark.slow
-def test_large_panel_is_capped_small_and_quick(tmp_path):
+def test_large_panel_is_capped_and_small(tmp_path):
+    # Speed is measured in benchmark/, not here (about 2.5 s for this size on 2 cores).
     tables, manifest = make_outputs(10_000, 10, seed=2)  # 100k firm-years, 1M driver rows
-    start = time.perf_counter()
     path = write_report(tables, manifest, tmp_path)
-    elapsed = time.perf_counter() - start
     size = path.stat().st_size
     page = path.read_text(encoding="utf-8")
     assert "sample of 4,000 of 100,000" in page
     assert size < 1_500_000, size
-    assert elapsed < 30, elapsed  # typically 3-5 s on 2 shared cores
 
 
 def test_build_report_from_written_outputs(tmp_path, outputs):
