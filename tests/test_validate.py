@@ -137,8 +137,22 @@ def test_multi_currency_fx_rules():
     assert panel.data.loc[0, "total_assets"] == pytest.approx(110.0)
     assert panel.exclusions["reason"].tolist() == ["missing_value", "bad_fx_rate"]
     assert "fx_rate must have a value" in panel.exclusions.loc[0, "detail"]
-    with pytest.raises(SchemaError, match="fx_rate column must be given"):
+    with pytest.raises(SchemaError, match="fx_rate column must be given when currencies EUR"):
         validate_panel(frame.drop(columns="fx_rate"))
+
+
+def test_single_foreign_currency_needs_fx_rate():
+    frame = _frame({"currency": "usd"}, {"currency": "USD"})
+    assert len(validate_panel(frame).data) == 2  # no reference currency declared
+    eur = RunConfig.from_dict({"units": {"currency": "EUR"}})
+    with pytest.raises(SchemaError, match="rows are in USD and \\[units\\] currency is EUR"):
+        validate_panel(frame, config=eur)
+    frame["fx_rate"] = [0.9, None]
+    panel = validate_panel(frame, config=eur)
+    assert panel.data["total_assets"].tolist() == [90.0]
+    assert panel.exclusions["reason"].tolist() == ["missing_value"]
+    usd = RunConfig.from_dict({"units": {"currency": "usd"}})
+    assert len(validate_panel(frame.drop(columns="fx_rate"), config=usd).data) == 2
 
 
 def test_ledger_columns_and_types():

@@ -112,9 +112,10 @@ currency; outputs are in that unit.
 - Blank values: {blanks} (case ignored) are read as a blank, not as text.
 - `market_equity`: when blank, `shares_outstanding * share_price` is used where both are
   given.
-- `currency` and `fx_rate`: when several currencies appear, a file without an `fx_rate` column
-  is refused; with the column, rows whose currency is not `[units] currency` need a value.
-  A blank `fx_rate` otherwise counts as 1.
+- `currency` and `fx_rate`: when several currencies appear, or rows carry a currency other
+  than `[units] currency`, a file without an `fx_rate` column is refused; with the column,
+  rows whose currency is not `[units] currency` need a value. A blank `fx_rate` otherwise
+  counts as 1.
 
 ## What happens to each row
 
@@ -156,7 +157,8 @@ the row is flagged `invalid_<column>`, and a warning names the rows.
 
 - a required column is missing (the message lists the missing columns and the columns found);
 - a `[columns]` entry names a header the file lacks, or a column matches several headers;
-- several currencies without an `fx_rate` column;
+- several currencies, or a currency other than `[units] currency`, without an `fx_rate`
+  column;
 - the file cannot be read: not CSV/Parquet/XLSX, an unclosed quote in the header, a row with
   more or fewer fields than the header (the message names the row), bytes that are not text
   in the configured `[input] encoding`. Without a configured encoding, text that is not UTF-8

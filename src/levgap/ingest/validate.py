@@ -6,7 +6,8 @@ a detail naming the columns and values). All checks are vectorised; Python loops
 word the details of excluded rows.
 
 A whole file is refused (:class:`~levgap.errors.SchemaError`) when a required column is
-missing, a header is ambiguous, or several currencies appear without an ``fx_rate`` column.
+missing, a header is repeated or ambiguous, or money in several currencies (or in one other than
+the reference currency) comes without an ``fx_rate`` column.
 """
 
 from __future__ import annotations
@@ -115,8 +116,8 @@ def validate_panel(
     Raises
     ------
     SchemaError
-        A required column is missing, a header is ambiguous, or several currencies appear
-        without an ``fx_rate`` column.
+        A required column is missing, a header is repeated or ambiguous, or several currencies
+        (or one other than ``config.units.currency``) appear without an ``fx_rate`` column.
 
     Warns
     -----
@@ -178,15 +179,19 @@ def validate_panel(
             bad[col] = np.zeros(n, dtype=bool)
 
     currencies = sorted(c for c in text["currency"].str.upper().unique() if c)
-    multi_currency = len(currencies) > 1
-    if multi_currency and "fx_rate" not in names:
+    reference = (config.units.currency or "").strip().upper()
+    foreign = [c for c in currencies if reference and c != reference]
+    needs_fx = len(currencies) > 1 or bool(foreign)
+    if needs_fx and "fx_rate" not in names:
+        why = (f"currencies {_listing(currencies, 8)} appear" if len(currencies) > 1 else
+               f"rows are in {currencies[0]} and [units] currency is {reference}")
         raise SchemaError(
-            f"{source}: an fx_rate column must be given when several currencies appear; got "
-            f"currencies {_listing(currencies, 8)} and no fx_rate column. Add fx_rate (money "
-            "times fx_rate = reference currency) or split the file by currency."
+            f"{source}: an fx_rate column must be given when {why}; got no fx_rate column. "
+            "Add fx_rate (money times fx_rate = reference currency) or split the file by "
+            "currency."
         )
 
-    checks = _row_checks(text, values, blank, bad, raw, config, multi_currency)
+    checks = _row_checks(text, values, blank, bad, raw, reference, needs_fx)
     reason = np.full(n, "", dtype=object)
     details: dict[int, list[str]] = {}
     for code, mask, describe in checks:
@@ -439,12 +444,11 @@ def _row_checks(
     blank: Arrays,
     bad: Arrays,
     raw: Texts,
-    config: RunConfig,
-    multi_currency: bool,
+    reference: str,
+    needs_fx: bool,
 ) -> list[tuple[str, np.ndarray, Describe]]:
     """(code, mask, describe) in the order of ``REASONS``; describe words each hit."""
     v = values
-    reference = (config.units.currency or "").upper()
 
     def non_numeric(hit: np.ndarray) -> list[str]:
         out: dict[int, list[str]] = {int(i): [] for i in hit}
@@ -458,7 +462,7 @@ def _row_checks(
     miss_cols = list(REQUIRED)
     fx_needed = (
         (text["currency"].str.upper() != reference).to_numpy(dtype=bool)
-        if multi_currency else np.zeros(len(v["total_assets"]), dtype=bool)
+        if needs_fx else np.zeros(len(v["total_assets"]), dtype=bool)
     )
 
     def missing_mask() -> np.ndarray:
