@@ -36,6 +36,10 @@ Market equity
     ``"price_file"``). Otherwise, or when no price matches, the cover-page public float, the
     market value of the equity held by non-affiliates at the end of the second fiscal
     quarter: a proxy, flagged ``"public_float_proxy"``. Missing when neither exists.
+Identifiers
+    ``firm_id`` is the CIK as text without leading zeros; ``firm_name`` is ``name`` and
+    ``industry`` is ``sic`` of sub.txt, as four-digit text (zero-padded; missing when empty or
+    0). The submission behind every number is in the sources table (``adsh``).
 Units
     Money in U.S. dollars as filed (``currency`` = ``USD``); shares in shares.
 
