@@ -143,3 +143,22 @@ def test_missing_table_and_unwritable_path(outputs, tmp_path):
     with pytest.raises(OutputError, match="must be writable"):
         write_workbook(tables, manifest, blocker / "w.xlsx")
     assert not list(tmp_path.glob(".levgap-tmp-*"))
+
+
+def test_odd_column_types_round_trip(outputs, tmp_path):
+    tables, manifest = outputs
+    excl = pd.DataFrame({
+        "source_row": pd.array([1, None, 3], dtype="Int64"),
+        "firm_id": ["a", None, "  padded  "],
+        "fiscal_year": [2020.0, float("nan"), float("inf")],
+        "measure": ["", "book", "market"],
+        "reason": ["x", "y", "z"],
+        "detail": ["1 < 2 & 3 > 2", "tab\there", "@SUM(1)"],
+        "kept": [True, False, True],
+    })
+    path = write_workbook({**tables, "exclusions": excl}, manifest, tmp_path / "w.xlsx")
+    got = [r for r in openpyxl.load_workbook(path)["Exclusions"].iter_rows(values_only=True)]
+    assert got[0] == tuple(excl.columns)
+    assert got[1] == (1, "a", 2020, None, "x", "1 < 2 & 3 > 2", True)
+    assert got[2] == (None, None, None, "book", "y", "tab\there", False)
+    assert got[3] == (3, "  padded  ", None, "market", "z", "'@SUM(1)", True)

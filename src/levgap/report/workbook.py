@@ -55,7 +55,7 @@ _ILLEGAL_XML = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
 _NS = {"m": "http://schemas.openxmlformats.org/spreadsheetml/2006/main",
        "r": "http://schemas.openxmlformats.org/officeDocument/2006/relationships",
        "rel": "http://schemas.openxmlformats.org/package/2006/relationships"}
-_CHUNK = 5000
+_CHUNK = 10_000
 
 
 def write_workbook(
@@ -137,22 +137,6 @@ def _clean_text(v: str) -> str:
     return _ILLEGAL_XML.sub("", v)
 
 
-def _columns(frame: pd.DataFrame) -> list[list[Any]]:
-    cols = []
-    for name in frame.columns:
-        s = frame[name]
-        if pd.api.types.is_bool_dtype(s.dtype):
-            cols.append([_py(v) for v in s.astype(object).tolist()])
-        elif pd.api.types.is_float_dtype(s.dtype):
-            values = s.to_numpy(dtype=float, na_value=math.nan).tolist()
-            cols.append([v if math.isfinite(v) else None for v in values])
-        elif pd.api.types.is_integer_dtype(s.dtype) and not s.isna().any():
-            cols.append(s.to_numpy(dtype="int64").tolist())
-        else:
-            cols.append([_py(v) for v in s.astype(object).tolist()])
-    return cols
-
-
 @functools.lru_cache(maxsize=65536)
 def _inline(text: str) -> str:
     t = escape(_clean_text(text), quote=False)
@@ -228,42 +212,48 @@ def _write_head(ws: Any, frame: pd.DataFrame, formats: Mapping[str, str | None])
 
 
 def _row_xml(frame: pd.DataFrame, style: list[int | dict[bool, int] | None]) -> Iterator[str]:
-    """The ``<row>`` elements of a sheet's data, from row 2, in chunks."""
+    """The ``<row>`` elements of a sheet's data, from row 2, in chunks of ``_CHUNK`` rows.
+
+    Cells are formatted column by column (text through its distinct values only), then
+    joined row by row; about half a microsecond a cell.
+    """
     from openpyxl.utils import get_column_letter
 
-    names = list(frame.columns)
-    cols = _columns(frame)
-    letters = [get_column_letter(j + 1) for j in range(len(cols))]
-    ratio = ([d in RATIO_DRIVERS for d in cols[names.index("driver")]]
-             if "driver" in names else None)
-    out: list[str] = []
-    for i in range(len(frame)):
-        r = i + 2
-        parts = [f'<row r="{r}">']
-        for j, col in enumerate(cols):
-            v = col[i]
-            if v is None or (isinstance(v, str) and not v):
-                continue
-            ref = f"{letters[j]}{r}"
-            if isinstance(v, str):
-                parts.append(f'<c r="{ref}" t="inlineStr">{_inline(v)}</c>')
-            elif isinstance(v, bool):
-                parts.append(f'<c r="{ref}" t="b"><v>{int(v)}</v></c>')
-            elif isinstance(v, int | float):
-                sid = style[j]
-                if isinstance(sid, dict):
-                    sid = sid[bool(ratio[i]) if ratio is not None else False]
-                s = f' s="{sid}"' if sid else ""
-                parts.append(f'<c r="{ref}"{s}><v>{v!r}</v></c>')
-            else:
-                parts.append(f'<c r="{ref}" t="inlineStr">{_inline(str(v))}</c>')
-        parts.append("</row>")
-        out.append("".join(parts))
-        if len(out) >= _CHUNK:
-            yield "".join(out)
-            out = []
-    if out:
-        yield "".join(out)
+    letters = [get_column_letter(j + 1) for j in range(frame.shape[1])]
+    for a in range(0, len(frame), _CHUNK):
+        part = frame.iloc[a:a + _CHUNK]
+        rows = range(a + 2, a + 2 + len(part))
+        ratio = (part["driver"].astype(str).isin(RATIO_DRIVERS).tolist()
+                 if "driver" in part.columns else None)
+        cols = [_column_cells(part.iloc[:, j], letters[j], rows, style[j], ratio)
+                for j in range(part.shape[1])]
+        yield "".join(f'<row r="{r}">{"".join(cells)}</row>'
+                      for r, cells in zip(rows, zip(*cols, strict=True), strict=True))
+
+
+def _column_cells(col: pd.Series, letter: str, rows: range,
+                  sid: int | dict[bool, int] | None, ratio: list[bool] | None) -> list[str]:
+    dtype = col.dtype
+    if pd.api.types.is_bool_dtype(dtype):
+        return [f'<c r="{letter}{r}" t="b"><v>{int(v)}</v></c>' if isinstance(v, bool | int)
+                else "" for r, v in zip(rows, col.astype(object).tolist(), strict=True)]
+    if pd.api.types.is_numeric_dtype(dtype):
+        if pd.api.types.is_integer_dtype(dtype) and not col.isna().any():
+            values: list[Any] = col.to_numpy(dtype="int64").tolist()
+        else:
+            values = col.to_numpy(dtype=float, na_value=math.nan).tolist()
+            values = [v if math.isfinite(v) else None for v in values]
+        if isinstance(sid, dict):
+            attrs = [f' s="{sid[bool(x)]}"' for x in (ratio or [False] * len(values))]
+            return [f'<c r="{letter}{r}"{s}><v>{v!r}</v></c>' if v is not None else ""
+                    for r, v, s in zip(rows, values, attrs, strict=True)]
+        attr = f' s="{sid}"' if sid else ""
+        return [f'<c r="{letter}{r}"{attr}><v>{v!r}</v></c>' if v is not None else ""
+                for r, v in zip(rows, values, strict=True)]
+    codes, uniques = pd.factorize(col, use_na_sentinel=True)
+    inline = [_inline(str(u)) if str(u) != "" else "" for u in uniques]
+    return [f'<c r="{letter}{r}" t="inlineStr">{inline[c]}</c>' if c >= 0 and inline[c] else ""
+            for r, c in zip(rows, codes.tolist(), strict=True)]
 
 
 def _sheet_paths(archive: zipfile.ZipFile) -> dict[str, str]:
@@ -299,6 +289,9 @@ def _splice(source: io.BytesIO, dest: Path, plans: Mapping[str, _Plan]) -> None:
             cut = text.index("</sheetData>")
             entry = zipfile.ZipInfo(info.filename, date_time=info.date_time)
             entry.compress_type = zipfile.ZIP_DEFLATED
+            # Fast deflate: the sheet XML is repetitive, level 3 keeps most of the gain.
+            level = "compress_level" if hasattr(entry, "compress_level") else "_compresslevel"
+            setattr(entry, level, 3)
             with out.open(entry, "w", force_zip64=True) as fh:
                 fh.write(text[:cut].encode("utf-8"))
                 for chunk in _row_xml(plans[sheet].frame, plans[sheet].style):
