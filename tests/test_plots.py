@@ -134,3 +134,16 @@ def test_industry_labels_starting_with_underscore_stay_in_legend(outputs):
     t["industry"] = np.where(t["industry"] == "2834", "_pharma", t["industry"])
     svg = plots.figure_svg(plots.scatter_figure(t, ["book"]), key="u")
     assert "_pharma" in svg
+
+
+def test_svg_text_cannot_break_out(outputs):
+    tables, _ = outputs
+    t = tables["targets"].copy()
+    hostile = "x --> <!-- y ]]> <![CDATA[ z </svg><script>alert(1)</script>"
+    t["industry"] = t["industry"].replace({"2834": hostile})
+    svg = plots.figure_svg(plots.scatter_figure(t, ["book"]), key="h")
+    root = ET.fromstring(svg)  # still one well-formed element
+    assert root.tag == "{http://www.w3.org/2000/svg}svg"
+    assert "<script" not in svg and "<!--" not in svg and "<![CDATA[" not in svg
+    texts = [e.text for e in root.iter("{http://www.w3.org/2000/svg}text")]
+    assert hostile in texts
