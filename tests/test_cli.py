@@ -165,3 +165,18 @@ def test_demo_runs_and_names_extremes(tmp_path: Path) -> None:
     assert "not investment, credit or legal advice" in result.output
     again = runner.invoke(app, ["demo", "--out", str(tmp_path / "d")])
     assert again.exit_code == 0, again.output
+
+
+def test_data_warnings_become_notes_and_ledger_never_replaces_input(tmp_path: Path) -> None:
+    p = make_panel(3).head(120).copy()
+    p["firm_name"] = "Phares Éclatés de Tarrow"  # invented; accented to force Latin-1
+    path = tmp_path / "latin.csv"
+    p.to_csv(path, index=False, encoding="latin-1")
+    result = runner.invoke(app, ["check", str(path)])
+    assert result.exit_code == 0, result.output
+    notes = [ln for ln in result.output.splitlines() if "note:" in ln]
+    assert len(notes) == 1 and "UTF-8" in notes[0], result.output
+    before = path.read_bytes()
+    refused = runner.invoke(app, ["check", str(path), "--ledger", str(path)])
+    _one_line_error(refused, "never replace an input")
+    assert path.read_bytes() == before

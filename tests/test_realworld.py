@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import csv
 import sys
-import warnings
 from pathlib import Path
 
 import openpyxl
@@ -15,7 +14,6 @@ from typer.testing import CliRunner
 
 from levgap.cli import app
 from levgap.demo import make_panel
-from levgap.errors import DataWarning
 
 sys.path.insert(0, str(Path(__file__).parent))
 from test_ingest import _mutations  # noqa: E402
@@ -38,11 +36,9 @@ def panel() -> pd.DataFrame:
 
 
 def _run(*args: str):
-    # DataWarnings (e.g. the Latin-1 fallback) are the CLI's to show as notes; here they are
-    # ignored so that pytest's warnings-as-errors does not turn them into exceptions
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", DataWarning)
-        result = CliRunner().invoke(app, [str(a) for a in args])
+    # DataWarnings (e.g. the Latin-1 fallback) are shown by the CLI as notes; none may escape,
+    # since pytest turns warnings into errors
+    result = CliRunner().invoke(app, [str(a) for a in args])
     # an uncaught exception would be recorded here rather than as a clean exit
     assert result.exception is None or isinstance(result.exception, SystemExit), result.output
     return result

@@ -88,11 +88,31 @@ def _measures(measure: str) -> tuple[str, ...]:
 def _console(stderr: bool = False) -> Any:
     from rich.console import Console
 
-    con = Console(stderr=stderr, highlight=False, soft_wrap=False)
+    # markup off: data and messages hold square brackets ([input], firm names) to show as is
+    con = Console(stderr=stderr, highlight=False, soft_wrap=False, markup=False)
     if not con.is_terminal:
         # Piped or captured output: wide enough that tables are not cut to 80 columns.
-        con = Console(stderr=stderr, highlight=False, soft_wrap=False, width=160)
+        con = Console(stderr=stderr, highlight=False, soft_wrap=False, markup=False, width=160)
     return con
+
+
+@contextlib.contextmanager
+def _notes(collected: list[str]) -> Iterator[None]:
+    """Collect data warnings as notes for the user instead of letting Python print them."""
+    import warnings
+
+    from levgap.errors import DataWarning
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", DataWarning)
+        yield
+    for c in caught:
+        if issubclass(c.category, DataWarning):
+            text = " ".join(str(c.message).split())
+            if text not in collected:
+                collected.append(text)
+        else:
+            warnings.warn_explicit(c.message, c.category, c.filename, c.lineno)
 
 
 def _progress_bar(enabled: bool) -> Any:
@@ -120,7 +140,12 @@ def _run_analysis(
     from levgap.ingest import read_panel
     from levgap.pipeline import analyze
 
-    panel = read_panel(panel_path, config=config)
+    notes: list[str] = []
+    with _notes(notes):
+        panel = read_panel(panel_path, config=config)
+    for note in dict.fromkeys([*notes, *panel.warnings]):
+        if not quiet:
+            _console(stderr=True).print(f"note: {note}")
     show = not quiet and len(panel.data) >= BIG_PANEL
     with _progress_bar(show) as bar:
         tasks: dict[str, Any] = {}
@@ -473,13 +498,10 @@ def check(
     Example: levgap check panel.csv --ledger exclusions.csv
     """
     with _guard():
-        import warnings
-
-        from levgap.errors import DataWarning
         from levgap.ingest import read_panel
 
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always", DataWarning)
+        notes: list[str] = []
+        with _notes(notes):
             p = read_panel(panel, config=_config(config))
         con = _console()
         data = p.data
@@ -494,12 +516,12 @@ def check(
                 con.print(f"  {no_mkt} rows have no market equity (book leverage only)")
         for reason, n in whole["reason"].value_counts().sort_index().items():
             con.print(f"  excluded, {reason}: {n}")
-        for w in [*p.warnings, *(str(c.message) for c in caught)]:
+        for w in dict.fromkeys([" ".join(str(w).split()) for w in p.warnings] + notes):
             con.print(f"  note: {w}")
         if ledger is not None:
-            from levgap.report.tables import neutralise
+            from levgap.report.tables import write_table
 
-            neutralise(whole).to_csv(ledger, index=False)
+            write_table(whole, ledger, inputs=[panel])
             con.print(f"Exclusion ledger written to {ledger}.")
 
 

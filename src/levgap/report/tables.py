@@ -311,6 +311,38 @@ def write_template(out_dir: str | Path, *, force: bool = False) -> list[Path]:
 # ---------------------------------------------------------------------------------------------
 
 
+def write_table(
+    frame: pd.DataFrame, path: str | Path, *, inputs: Iterable[str | Path] = ()
+) -> Path:
+    """Write one neutralised table (CSV or Parquet, by suffix) atomically, never over an input.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+    path : str or pathlib.Path
+        Destination ending in ``.csv`` or ``.parquet``.
+    inputs : iterable of path, default=()
+        Input files, never overwritten.
+
+    Raises
+    ------
+    OutputError
+        Unknown suffix, the path of an input file, or a file system error.
+    """
+    target = Path(path)
+    fmt = {v: k for k, v in FORMATS.items()}.get(target.suffix.lower())
+    if fmt is None:
+        raise OutputError(f"{target}: a table file must end in .csv or .parquet; got "
+                          f"{target.suffix or 'no suffix'}.")
+    _refuse_inputs([target], inputs)
+    try:
+        _atomic_table(neutralise(frame), target, fmt)
+    except OSError as exc:
+        raise OutputError(f"{target}: the file must be writable; got {exc.strerror or exc}.") \
+            from None
+    return target
+
+
 def _marker_names(out: Path) -> set[str]:
     try:
         text = (out / MARKER).read_text(encoding="utf-8")
