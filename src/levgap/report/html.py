@@ -22,7 +22,6 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from levgap.errors import OutputError
@@ -448,6 +447,4 @@ def _environment() -> Any:
     )
     env.filters.update(pct=_pct, pp=_pp, fmt=_fmt, money=_money, sortkey=_sortkey, stars=_stars,
                        pvalue=_pvalue)
-    env.globals["isnum"] = lambda v: _num(v) is not None
-    env.globals["np"] = np
     return env
