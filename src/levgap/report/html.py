@@ -90,7 +90,13 @@ def atomic_file(path: str | Path) -> Iterator[Path]:
 
 
 def atomic_write_bytes(path: str | Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
+    """Write ``data`` to ``path`` through a temporary file in the same folder and a rename.
+
+    Raises
+    ------
+    OutputError
+        If the folder cannot be created or the file cannot be written.
+    """
     with atomic_file(path) as tmp:
         tmp.write_bytes(data)
 
@@ -328,7 +334,23 @@ def render_report(
     options: ReportOptions | None = None,
     progress: Callable[[str, int, int], None] | None = None,
 ) -> str:
-    """The report as an HTML string (see :func:`write_report`)."""
+    """The report as an HTML string, without writing it.
+
+    Parameters
+    ----------
+    tables : Mapping of str to pandas.DataFrame
+        The five contract tables (see :func:`write_report`).
+    manifest : Mapping
+        The run manifest.
+    options : ReportOptions, optional
+    progress : callable, optional
+        ``progress("report", done, total)`` after each chart.
+
+    Returns
+    -------
+    str
+        A complete, self-contained HTML document.
+    """
     from levgap.report import plots
     from levgap.report.terminal import driver_steps
 

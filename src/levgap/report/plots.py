@@ -15,8 +15,9 @@ from __future__ import annotations
 import io
 import re
 from collections.abc import Sequence
+from contextlib import AbstractContextManager
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -54,7 +55,7 @@ def _figure(width: float, height: float, *, layout: str | None = "constrained") 
     return fig
 
 
-def _rc():  # noqa: ANN202 - a matplotlib context manager
+def _rc() -> AbstractContextManager[Any]:
     import matplotlib as mpl
 
     return mpl.rc_context(_RC)
@@ -195,7 +196,20 @@ def _industry_colours(industries: pd.Series, limit: int = len(PALETTE)) -> dict[
 
 
 def sample_rows(frame: pd.DataFrame, max_rows: int, *, seed: int = 0) -> pd.DataFrame:
-    """Deterministic sample of at most ``max_rows`` rows, keeping their order."""
+    """Deterministic sample of at most ``max_rows`` rows, keeping their order.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+    max_rows : int
+    seed : int, default=0
+        Seed of the draw; the same frame and seed give the same rows.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``frame`` itself when it is small enough, else the sampled rows in their order.
+    """
     if len(frame) <= max_rows:
         return frame
     rng = np.random.default_rng(seed)
