@@ -444,19 +444,34 @@ def _first_firm(outputs: Path) -> str | None:
     return None
 
 
-def import_check() -> dict:
-    """Modules that the quick commands import (python -X importtime), heavy ones flagged."""
+def import_check(cmds: dict[str, list[str]], work: Path) -> dict:
+    """Heavy modules each quick command imports (``python -X importtime``), and the chain.
+
+    For each heavy module found, the chain of imports that pulled it in (outermost first)
+    tells the lead which import to make lazy.
+    """
     heavy = ("statsmodels", "sklearn", "matplotlib", "scipy", "pandas", "pyarrow")
-    out = {}
-    for args in (["--help"], ["--version"]):
-        code = ("import sys; sys.argv = ['levgap', *sys.argv[1:]]\n"
-                "from levgap.cli import main\n"
-                "try:\n    main()\nexcept SystemExit:\n    pass\n")
-        p = subprocess.run([sys.executable, "-X", "importtime", "-c", code, *args],
-                           capture_output=True, text=True, timeout=120)
-        mods = {line.split("|")[-1].strip().split(".")[0]
-                for line in p.stderr.splitlines() if line.startswith("import time:")}
-        out[" ".join(args)] = sorted(m for m in heavy if m in mods)
+    out: dict[str, Any] = {}
+    for name, args in cmds.items():
+        if name == "template":
+            args = ["template", "--out", str(fresh(work / "template-imports"))]
+        p = subprocess.run([sys.executable, "-X", "importtime", "-m", "levgap", *args],
+                           capture_output=True, text=True, timeout=300)
+        stack: list[tuple[int, str]] = []
+        chains: dict[str, str] = {}
+        # importtime prints a module after its children, indented by depth; read it backwards
+        lines = [ln for ln in p.stderr.splitlines() if ln.startswith("import time:")][::-1]
+        for ln in lines:
+            field = ln.split("|")[-1]
+            depth = (len(field) - len(field.lstrip())) // 2
+            mod = field.strip()
+            while stack and stack[-1][0] >= depth:
+                stack.pop()
+            stack.append((depth, mod))
+            top = mod.split(".")[0]
+            if top in heavy and top not in chains:
+                chains[top] = " -> ".join(m for _, m in stack)
+        out[name] = {m: chains[m] for m in heavy if m in chains}
     return out
 
 
@@ -715,8 +730,14 @@ def write_markdown(res: dict, path: Path) -> None:
                      f"{fmt_s(r['rss_mb'], 0)} |")
         imp = res.get("imports", {})
         if imp:
-            L += ["", "Heavy modules imported by the quick commands (`python -X importtime`): "
-                  + "; ".join(f"`{k}`: {', '.join(v) or 'none'}" for k, v in imp.items()) + "."]
+            L += ["", "Heavy modules each quick command imports (`python -X importtime`), with "
+                  "the first import chain that pulls each in:", ""]
+            for cmd, mods in imp.items():
+                if not mods:
+                    L.append(f"- `levgap {cmd}`: none")
+                    continue
+                L.append(f"- `levgap {cmd}`: " + "; ".join(
+                    f"{m} (`{chain}`)" for m, chain in mods.items()))
     p = res.get("progress")
     if p:
         L += ["", "## Progress bar", "",
@@ -818,7 +839,13 @@ def main(argv: list[str] | None = None) -> int:
         big = work / largest / "d-csv" if largest != smallest else None
         res["startup"] = bench_startup(panels[smallest], work / smallest / "d-csv", big,
                                        work / "startup", repeat, warmup, args.quick)
-        res["imports"] = import_check()
+        res["imports"] = import_check(
+            {"--help": ["--help"], "--version": ["--version"],
+             "check": ["check", str(panels[smallest]["csv"])],
+             "screen": ["screen", str(work / smallest / "d-csv")],
+             "explain": ["explain", str(work / smallest / "d-csv"),
+                         _first_firm(work / smallest / "d-csv") or "?"],
+             "template": ["template"]}, work / "startup")
         if not args.no_profile:
             say(f"profile at {largest}")
             res["profile"] = {"size": largest, **profile(
