@@ -158,8 +158,8 @@ def _run_analysis(
             bar.update(tasks[stage], completed=done)
 
         result = analyze(panel, config=config, progress=step)
-    written = result.write(out, fmt=fmt, force=force, report=report, xlsx=xlsx,
-                           inputs=(str(panel_path),))
+        written = result.write(out, fmt=fmt, force=force, report=report, xlsx=xlsx,
+                               inputs=(str(panel_path),), progress=step)
     return result, written
 
 

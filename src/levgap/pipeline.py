@@ -93,6 +93,7 @@ class Analysis:
         report: bool = True,
         xlsx: bool = False,
         inputs: tuple[str, ...] = (),
+        progress: ProgressFn | None = None,
     ) -> list[Path]:
         """Write the output contract (and the HTML report, and a workbook on request).
 
@@ -109,6 +110,8 @@ class Analysis:
             Also write ``workbook.xlsx``.
         inputs : tuple of str, default=()
             Input files that must never be overwritten.
+        progress : callable, optional
+            ``progress(stage, done, total)`` while the report renders.
         """
         from levgap.report.tables import write_tables
 
@@ -122,7 +125,8 @@ class Analysis:
         if report:
             from levgap.report.html import write_report
 
-            written.append(write_report(self.tables(), self.manifest, out_dir))
+            written.append(write_report(self.tables(), self.manifest, out_dir,
+                                        progress=progress))
         if xlsx:
             from levgap.report.workbook import write_workbook
 

@@ -14,10 +14,7 @@ firm-year (a deterministic sample above ``max_points``).
 from __future__ import annotations
 
 import math
-import os
-import tempfile
-from collections.abc import Callable, Iterator, Mapping
-from contextlib import contextmanager
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -25,6 +22,7 @@ from typing import Any
 import pandas as pd
 
 from levgap.errors import OutputError
+from levgap.report.tables import atomic_file, register_outputs
 
 REPORT_NAME = "report.html"
 CAUTION = (
@@ -53,40 +51,6 @@ class ReportOptions:
     top: int = 10
     step_firms: int = 3
     max_points: int = 4000
-
-
-@contextmanager
-def atomic_file(path: str | Path) -> Iterator[Path]:
-    """Yield a temporary path beside ``path``; on success it is renamed over ``path``.
-
-    Raises
-    ------
-    OutputError
-        If the folder cannot be created or the file cannot be written.
-    """
-    path = Path(path)
-    try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        # The prefix is the one report.tables uses, so an interrupted write is known as ours.
-        fd, name = tempfile.mkstemp(prefix=".levgap-tmp-", suffix=path.suffix, dir=path.parent)
-        os.close(fd)
-    except OSError as exc:
-        raise OutputError(
-            f"{path} must be writable; got {exc.strerror or exc}. Choose another output folder."
-        ) from None
-    tmp = Path(name)
-    try:
-        yield tmp
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)  # mkstemp creates 0600; give the usual file mode
-        os.replace(tmp, path)
-    except OSError as exc:
-        raise OutputError(
-            f"{path} must be writable; got {exc.strerror or exc}. Choose another output folder."
-        ) from None
-    finally:
-        tmp.unlink(missing_ok=True)
 
 
 def atomic_write_bytes(path: str | Path, data: bytes) -> None:
@@ -159,20 +123,8 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -
 
     tables, manifest = read_outputs(out_dir)
     path = write_report(tables, manifest, out_dir, options=options)
-    _record_output(Path(out_dir), path.name)
+    register_outputs(out_dir, [path.name])
     return path
-
-
-def _record_output(out: Path, name: str) -> None:
-    """List ``name`` in the folder's output marker, so a later run accepts it as levgap's."""
-    from levgap.report.tables import MARKER
-
-    marker = out / MARKER
-    if not marker.is_file():
-        return
-    names = marker.read_text(encoding="utf-8").split()
-    if name not in names:
-        atomic_write_bytes(marker, ("\n".join(sorted({*names, name})) + "\n").encode("utf-8"))
 
 
 # ----------------------------------------------------------------------------- content

@@ -23,7 +23,7 @@ import math
 import os
 import re
 import secrets
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Iterator, Mapping
 from pathlib import Path
 from typing import Any
 
@@ -392,15 +392,50 @@ def _atomic_table(frame: pd.DataFrame, target: Path, fmt: str) -> None:
         )
 
 
-def _atomic(target: Path, write: Any) -> None:
+@contextlib.contextmanager
+def atomic_file(path: str | Path) -> Iterator[Path]:
+    """Yield a temporary path beside ``path``; on success it is renamed over ``path``.
+
+    The one way levgap writes a file: a reader never sees half a file, an interrupted write
+    leaves only a ``.levgap-tmp-*`` file that a later run recognises as its own.
+
+    Raises
+    ------
+    OutputError
+        If the folder cannot be created or the file cannot be written.
+    """
+    target = Path(path)
     # a fresh random name rather than mkstemp, so the file gets the user's usual permissions
     tmp = target.parent / f".levgap-tmp-{secrets.token_hex(8)}{target.suffix}"
     try:
-        write(tmp)
+        target.parent.mkdir(parents=True, exist_ok=True)
+        yield tmp
         os.replace(tmp, target)
+    except OSError as exc:
+        raise OutputError(
+            f"{target} must be writable; got {exc.strerror or exc}. Choose another output "
+            "folder."
+        ) from None
     finally:
-        with contextlib.suppress(FileNotFoundError):
+        with contextlib.suppress(OSError):  # already renamed, or never created
             tmp.unlink()
+
+
+def register_outputs(out_dir: str | Path, names: Iterable[str]) -> None:
+    """Add ``names`` to the folder's output marker, so a later run accepts them as levgap's."""
+    out = Path(out_dir)
+    marker = out / MARKER
+    if not marker.is_file():
+        return
+    listed = marker.read_text(encoding="utf-8").split()
+    new = sorted({*listed, *names})
+    if new != sorted(listed):
+        _atomic_text(marker, "\n".join(new) + "\n")
+
+
+def _atomic(target: Path, write: Any) -> None:
+    with atomic_file(target) as tmp:
+        write(tmp)
 
 
 def _jsonable(obj: Any) -> Any:

@@ -90,8 +90,8 @@ def write_workbook(
     """
     from openpyxl import Workbook
 
-    from levgap.report.html import _check_tables, atomic_file
-    from levgap.report.tables import neutralise
+    from levgap.report.html import _check_tables
+    from levgap.report.tables import atomic_file, neutralise
 
     _check_tables(tables)
     wb = Workbook(write_only=True)
