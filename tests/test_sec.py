@@ -624,3 +624,13 @@ def test_current_layout_quoted_newline_stays_in_its_field(tmp_path: Path) -> Non
     assert 'Includes the "Series A"\nconversion.' in table.column("footnote").to_pylist()
     assert table.num_rows == len((CURRENT / "num.txt").read_text(encoding="utf-8")
                                  .splitlines()) - 1
+
+
+def test_written_csv_neutralises_formula_like_text(tmp_path: Path, both: SecImport) -> None:
+    import dataclasses
+
+    panel = both.panel.copy()
+    panel.loc[0, "firm_name"] = "=HYPERLINK(1)"
+    write_sec_import(dataclasses.replace(both, panel=panel), tmp_path / "p.csv")
+    back = pd.read_csv(tmp_path / "p.csv", dtype=str)
+    assert back.loc[0, "firm_name"] == "'=HYPERLINK(1)"

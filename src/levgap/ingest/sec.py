@@ -50,9 +50,8 @@ presented the tags used (``BS`` balance sheet, ``IS`` income statement, ``CF`` c
 
 from __future__ import annotations
 
-import os
 import re
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -61,7 +60,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from levgap.errors import ConfigError, OutputError, SchemaError
+from levgap.errors import ConfigError, SchemaError
 from levgap.ingest.sec_files import BatchFilter, Quarter, locate_quarter, read_filtered
 from levgap.ingest.sec_tags import (
     COVER_SHARES,
@@ -828,41 +827,15 @@ def write_sec_import(result: SecImport, out_path: str | Path) -> tuple[Path, Pat
             "panel.csv."
         )
     sources_path = out.with_name(out.stem + ".sources.csv")
-    try:
-        out.parent.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise OutputError(
-            f"{out.parent} must be a writable folder; got {exc.strerror or exc}. Choose another "
-            "--out."
-        ) from None
-    panel = result.panel
-    if suffix == ".csv":
-        _atomic(out, lambda tmp: _neutralise(panel).to_csv(tmp, index=False))
-    else:
-        _atomic(out, lambda tmp: panel.to_parquet(tmp, index=False))
-    _atomic(sources_path, lambda tmp: _neutralise(result.sources).to_csv(tmp, index=False))
+    # The project's one atomic writer (temporary name beside the target, then os.replace)
+    # and its formula neutraliser for CSV cells.
+    from levgap.report.tables import atomic_file, neutralise
+
+    with atomic_file(out) as tmp:
+        if suffix == ".csv":
+            neutralise(result.panel).to_csv(tmp, index=False)
+        else:
+            result.panel.to_parquet(tmp, index=False)
+    with atomic_file(sources_path) as tmp:
+        neutralise(result.sources).to_csv(tmp, index=False)
     return out, sources_path
-
-
-def _neutralise(frame: pd.DataFrame) -> pd.DataFrame:
-    """Prefix text cells a spreadsheet would run as a formula with an apostrophe."""
-    out = frame.copy()
-    for c in out.columns:
-        if out[c].dtype == object or pd.api.types.is_string_dtype(out[c]):
-            s = out[c]
-            risky = s.astype(str).str.match(r"^[=+\-@]") & s.notna()
-            if risky.any():
-                out[c] = s.where(~risky, "'" + s.astype(str))
-    return out
-
-
-def _atomic(path: Path, write: Callable[[Path], object]) -> None:
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    try:
-        write(tmp)
-        os.replace(tmp, path)
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise OutputError(
-            f"{path} must be writable; got {exc.strerror or exc}. Choose another --out."
-        ) from None
