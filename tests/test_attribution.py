@@ -42,9 +42,23 @@ def test_peer_profile_falls_back_to_wider_group() -> None:
     X = np.array([[1.0], [2.0], [3.0], [10.0]])
     narrow = np.array([0, 0, 0, 1])  # the last row is alone in its group
     wide = np.array([0, 0, 0, 0])
-    prof, cnt, level = peer_profile(X, [narrow, wide])
+    prof, cnt, level = peer_profile(X, [[(None, narrow)], [(None, wide)]])
     assert prof[0, 0] == 2.5 and level[0] == 0 and cnt[0] == 2
     assert prof[3, 0] == 2.0 and level[3] == 1 and cnt[3] == 3
+
+
+def test_peer_profile_partition_looks_across_parent_members_only() -> None:
+    # rows 0-2: industry A; rows 3-4: industry B; row 5: tiny industry C borrowing from A
+    X = np.array([[1.0], [2.0], [3.0], [50.0], [60.0], [9.0]])
+    industry = np.array([0, 0, 0, 1, 1, 2])
+    alone = industry.copy()
+    alone[5] = 7  # C has no peer of its own
+    parent = np.array([True, True, True, False, False, True])
+    year = np.zeros(6, dtype=int)
+    prof, cnt, level = peer_profile(
+        X, [[(None, alone)], [(parent, year)], [(None, year)]])
+    assert level[5] == 1 and cnt[5] == 3 and prof[5, 0] == 2.0  # A's firms, not B's
+    assert level[0] == 0 and prof[0, 0] == 2.5  # A's own peers unchanged
 
 
 @settings(max_examples=40, deadline=None)

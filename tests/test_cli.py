@@ -180,3 +180,43 @@ def test_data_warnings_become_notes_and_ledger_never_replaces_input(tmp_path: Pa
     refused = runner.invoke(app, ["check", str(path), "--ledger", str(path)])
     _one_line_error(refused, "never replace an input")
     assert path.read_bytes() == before
+
+
+def test_explain_and_screen_edge_cases(out_dir: Path, tmp_path: Path) -> None:
+    targets = pd.read_csv(out_dir / "targets.csv", dtype={"firm_id": str})
+    book = targets[targets["measure"] == "book"]
+    market = targets[targets["measure"] == "market"]
+    only_book = book[~book.set_index(["firm_id", "fiscal_year"]).index.isin(
+        market.set_index(["firm_id", "fiscal_year"]).index)].iloc[0]
+    result = runner.invoke(app, ["explain", str(out_dir), only_book["firm_id"], "--year",
+                                 str(only_book["fiscal_year"]), "--measure", "market"])
+    _one_line_error(result, "left out of that measure")
+    result = runner.invoke(app, ["explain", str(out_dir), only_book["firm_id"], "--plot",
+                                 str(tmp_path / "x.csv")])
+    _one_line_error(result, ".png or .svg")
+    assert "tangibility" not in result.output  # refused before any explanation is printed
+    result = runner.invoke(app, ["screen", str(out_dir), "--top", "0"])
+    assert result.exit_code == 2
+
+
+def test_raw_id_finds_a_neutralised_firm(panel_csv: Path, tmp_path: Path) -> None:
+    p = make_panel(3)
+    p.loc[p["firm_id"] == "TR0001", "firm_id"] = "=1+1"
+    path = tmp_path / "hostile.csv"
+    p.to_csv(path, index=False)
+    out = tmp_path / "o"
+    assert runner.invoke(app, ["analyze", str(path), "--out", str(out), "--quiet"]).exit_code == 0
+    result = runner.invoke(app, ["explain", str(out), "=1+1"])
+    assert result.exit_code == 0, result.output
+
+
+def test_check_without_usable_rows_and_demo_into_a_file(tmp_path: Path) -> None:
+    p = make_panel(3).head(20)
+    p["total_assets"] = 0
+    path = tmp_path / "zero.csv"
+    p.to_csv(path, index=False)
+    result = runner.invoke(app, ["check", str(path)])
+    assert result.exit_code == 2 and "at least one usable row" in result.output
+    blocker = tmp_path / "file.csv"
+    blocker.write_text("x")
+    _one_line_error(runner.invoke(app, ["demo", "--out", str(blocker)]), "must be a folder")

@@ -72,5 +72,5 @@ def test_bad_configs_name_the_file_and_key(tmp_path, text, pattern):
 
 
 def test_missing_config_file(tmp_path):
-    with pytest.raises(ConfigError, match="config file not found"):
+    with pytest.raises(ConfigError, match="must be an existing TOML file"):
         RunConfig.from_toml(tmp_path / "none.toml")

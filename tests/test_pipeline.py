@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 
 from levgap.config import ModelSpec, RunConfig
 from levgap.demo import TRUE_COEFFICIENTS, make_panel, planted_shocks
-from levgap.errors import ModelError
+from levgap.errors import ConfigError, ModelError
 from levgap.pipeline import COEF_COLUMNS, DRIVER_COLUMNS, FIT_COLUMNS, TARGET_COLUMNS, analyze
 
 
@@ -172,7 +172,7 @@ def test_cross_fit_is_deterministic() -> None:
 def test_empty_after_validation_is_a_clear_error() -> None:
     panel, _, _ = _fresh_panel(14)
     panel["total_assets"] = -1.0
-    with pytest.raises(ModelError, match="no usable rows"):
+    with pytest.raises(ModelError, match="at least one usable row.*assets_not_positive"):
         analyze(panel)
 
 
@@ -210,3 +210,62 @@ def test_identity_and_accounting_over_random_panels(seed: int, n_ind: int, n_fir
     used = set(r.targets["firm_id"] + "/" + r.targets["fiscal_year"].astype(str))
     ledger = r.exclusions[r.exclusions["measure"] == ""]
     assert len(used) + len(ledger) == len(panel)
+
+
+def test_panel_without_market_equity_column_gets_book_targets() -> None:
+    panel, _, _ = _fresh_panel(15)
+    r = analyze(panel.drop(columns=["market_equity"]))
+    assert set(r.targets["measure"]) == {"book"}
+    assert "market_to_book" not in set(r.coefficients["term"])
+    assert any("market_to_book left out" in w for w in r.manifest["warnings"])
+    assert (r.exclusions["reason"] == "no_market_equity").all()
+
+
+def test_short_history_drops_volatility_with_a_note() -> None:
+    panel, _, _ = _fresh_panel(16)
+    r = analyze(panel[panel["fiscal_year"] == 2015], spec=ModelSpec(measures=("book",)))
+    assert "earnings_volatility" not in set(r.coefficients["term"])
+    assert any("earnings_volatility left out" in w for w in r.manifest["warnings"])
+
+
+def test_year_outside_the_panel_is_a_config_error() -> None:
+    panel, _, _ = _fresh_panel(17)
+    with pytest.raises(ConfigError, match="fiscal year of the panel; got 1990"):
+        analyze(panel, spec=ModelSpec(year=1990))
+
+
+def test_debt_to_target_never_asks_for_negative_debt(demo_result) -> None:
+    t = demo_result.targets
+    panel = make_panel(7).set_index(["firm_id", "fiscal_year"])["total_debt"]
+    debt = panel.reindex(pd.MultiIndex.from_frame(t[["firm_id", "fiscal_year"]])).to_numpy()
+    assert (t["debt_to_target"] >= -debt - 1e-9).all()
+    book = t["measure"] == "book"
+    pos = book & (t["target"] >= 0)
+    assets = debt[pos] / t.loc[pos, "actual"].where(t.loc[pos, "actual"] > 0)
+    ok = assets.notna()
+    np.testing.assert_allclose(
+        t.loc[pos, "debt_to_target"][ok],
+        ((t.loc[pos, "target"] - t.loc[pos, "actual"]) * assets)[ok], rtol=1e-9)
+
+
+def test_peers_of_a_firm_alone_fall_back_and_median_is_defined(demo_result) -> None:
+    t = demo_result.targets
+    assert t["peer_median"].notna().all()
+    assert (t["peer_count"] > 0).all()
+    tiny = t[(t["industry"] == "3716") & (t["measure"] == "book")]
+    assert tiny["flags"].str.contains("industry_effect_borrowed").all()
+
+
+def test_a_firm_alone_takes_its_parent_industries_as_peers() -> None:
+    panel, _, _ = _fresh_panel(18)
+    lone = panel["firm_id"] == panel["firm_id"].iloc[0]
+    panel.loc[lone, "industry"] = "5001"  # alone; shares the prefix 500 with 5000 and 5007
+    r = analyze(panel, spec=ModelSpec(measures=("book",)))
+    b = {x["industry"]: x for x in r.manifest["borrowed_industries"]}
+    assert b["5001"]["members"] == ["5000", "5007"]
+    t = r.targets.set_index(["firm_id", "fiscal_year"])
+    for year, row in t[t["industry"] == "5001"].reset_index().set_index("fiscal_year").iterrows():
+        peers = t.xs(year, level="fiscal_year")
+        peers = peers[peers["industry"].isin(["5000", "5007"])]
+        assert row["peer_count"] == len(peers)
+        assert row["peer_median"] == pytest.approx(peers["actual"].median())

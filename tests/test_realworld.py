@@ -137,7 +137,7 @@ def test_hostile_names_neutralised_in_every_table_and_utf8_from_latin1(tmp_path,
         firms[1]: "@SUM(A1)",
         firms[2]: "+cmd|' /C calc'!A0",
         firms[3]: "-2+3",
-        firms[4]: "Société Générale des Forges Éléa",
+        firms[4]: "Forges Éclatées de Tarrow",
     }
     p["firm_name"] = p["firm_id"].map(names).fillna(p["firm_name"])
     path = tmp_path / "latin.csv"
@@ -153,7 +153,7 @@ def test_hostile_names_neutralised_in_every_table_and_utf8_from_latin1(tmp_path,
                 if cell and not _is_number(cell):
                     assert not cell.startswith(FORMULA_START), (f.name, cell)
     targets = (tmp_path / "out" / "targets.csv").read_text(encoding="utf-8")
-    assert "Société Générale des Forges Éléa" in targets
+    assert "Forges Éclatées de Tarrow" in targets
     assert "'=HYPERLINK(" in targets and "'@SUM(A1)" in targets and "'+cmd|" in targets
     book = tmp_path / "out" / "workbook.xlsx"
     if book.exists():

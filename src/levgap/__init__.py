@@ -42,3 +42,7 @@ def __getattr__(name: str) -> Any:
     if name in _EXPORTS:
         return getattr(import_module(_EXPORTS[name]), name)
     raise AttributeError(f"module 'levgap' has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

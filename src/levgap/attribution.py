@@ -79,43 +79,54 @@ def loo_median(values: np.ndarray, groups: np.ndarray) -> tuple[np.ndarray, np.n
     return med, cnt
 
 
+Partition = tuple[np.ndarray | None, np.ndarray]
+"""Rows taking part (a boolean mask, ``None`` for all) and their group codes."""
+
+
 def peer_profile(
-    X: np.ndarray, levels: list[np.ndarray]
+    X: np.ndarray, levels: list[list[Partition]]
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Leave-one-out median profile of each row's peers, falling back through ``levels``.
 
     Parameters
     ----------
     X : numpy.ndarray, shape (n, k)
-        Driver values.
-    levels : list of int arrays
-        Peer definitions from the narrowest (industry-year) to the widest (year); a row with
-        no peer at one level takes the next.
+        Values whose peer medians are wanted (drivers, and the measure itself).
+    levels : list of lists of (mask, groups)
+        Peer definitions from the narrowest to the widest. A level is one or more partitions:
+        the rows in a partition's mask take their medians among the rows of their own group
+        within that mask (so a small industry can look across its parent's member industries
+        without changing anyone else's peers). A row with no peer at one level takes the next.
 
     Returns
     -------
     profile : numpy.ndarray, shape (n, k)
     count : numpy.ndarray of int
-        Peers the profile was taken over.
+        Peers the profile was taken over (from the first column).
     level : numpy.ndarray of int
-        Index into ``levels`` of the definition used.
+        Index into ``levels`` of the definition used (-1: no peer at all).
     """
     n, k = X.shape
     profile = np.full((n, k), np.nan)
     count = np.zeros(n, dtype=np.int64)
     used = np.full(n, -1, dtype=np.int64)
     todo = np.ones(n, dtype=bool)
-    for li, g in enumerate(levels):
+    for li, partitions in enumerate(levels):
+        for mask, groups in partitions:
+            rows = np.arange(n) if mask is None else np.flatnonzero(mask)
+            if not todo[rows].any():
+                continue
+            cols = [loo_median(X[rows, j], groups[rows]) for j in range(k)]
+            c = cols[0][1]
+            take = todo[rows] & (c > 0)
+            at = rows[take]
+            for j in range(k):
+                profile[at, j] = cols[j][0][take]
+            count[at] = c[take]
+            used[at] = li
+            todo[at] = False
         if not todo.any():
             break
-        cols = [loo_median(X[:, j], g) for j in range(k)]
-        c = cols[0][1]
-        take = todo & (c > 0)
-        for j in range(k):
-            profile[take, j] = cols[j][0][take]
-        count[take] = c[take]
-        used[take] = li
-        todo &= ~take
     return profile, count, used
 
 

@@ -30,7 +30,7 @@ app = typer.Typer(
     rich_markup_mode=None,
     help="levgap: is a company carrying more or less debt than its fundamentals justify "
     "against its industry peers? A statistical peer benchmark, not investment, credit or "
-    "legal advice.",
+    "legal advice.\n\nExample: levgap analyze panel.csv --out results/",
 )
 
 MEASURE_CHOICES = ("book", "market", "both")
@@ -53,6 +53,19 @@ def _guard() -> Iterator[None]:
         name = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
         _err(f"{name}{exc.strerror or exc}")
         raise typer.Exit(2) from None
+
+
+def _merge_notes(recorded: tuple[str, ...] | list[str], caught: list[str]) -> list[str]:
+    """The panel's recorded notes, plus caught warnings that do not repeat one of them."""
+    out = [" ".join(str(w).split()) for w in recorded]
+    out += [c for c in caught if not any(c in r or r.endswith(c) for r in out)]
+    return list(dict.fromkeys(out))
+
+
+def _matches(column: Any, value: str) -> Any:
+    """Rows whose text equals ``value`` as typed or as written neutralised (leading ')."""
+    text = column.astype(str)
+    return (text == value) | (text == "'" + value)
 
 
 def _version(value: bool) -> None:
@@ -143,8 +156,8 @@ def _run_analysis(
     notes: list[str] = []
     with _notes(notes):
         panel = read_panel(panel_path, config=config)
-    for note in dict.fromkeys([*notes, *panel.warnings]):
-        if not quiet:
+    if not quiet:
+        for note in _merge_notes(panel.warnings, notes):
             _console(stderr=True).print(f"note: {note}")
     show = not quiet and len(panel.data) >= BIG_PANEL
     with _progress_bar(show) as bar:
@@ -238,7 +251,7 @@ def _screen_table(rows: pd.DataFrame, title: str) -> Any:
 def demo(
     out: Path = typer.Option(Path("demo-out"), "--out", help="Folder for the demo's outputs."),
     force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
-    top: int = typer.Option(5, "--top", help="Firms listed at each end."),
+    top: int = typer.Option(5, "--top", min=1, help="Firms listed at each end."),
 ) -> None:
     """Run the whole job on the invented demo panel (the Tarrow Reach, a fictional region).
 
@@ -248,6 +261,8 @@ def demo(
         from levgap.demo import make_panel
         from levgap.report.tables import write_tables
 
+        if out.exists() and not out.is_dir():
+            raise typer.BadParameter(f"must be a folder; got the file {out}.", param_hint="--out")
         out.mkdir(parents=True, exist_ok=True)
         panel_path = out / "demo_panel.csv"
         write_tables({"demo_panel": make_panel()}, {"what": "the invented demo panel"}, out,
@@ -280,7 +295,7 @@ def analyze(
     force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
     quiet: bool = typer.Option(False, "--quiet", help="No progress bar or tables."),
     as_json: bool = typer.Option(False, "--json", help="Print a machine-readable summary."),
-    top: int = typer.Option(5, "--top", help="Firms listed at each end."),
+    top: int = typer.Option(5, "--top", min=1, help="Firms listed at each end."),
 ) -> None:
     """Estimate targets, gaps and driver contributions for every firm-year of a panel.
 
@@ -317,7 +332,7 @@ def screen(
     status: str = typer.Option(None, "--status", help="Keep only over or under."),
     industry: str = typer.Option(None, "--industry", help="Keep only this industry code."),
     year: int = typer.Option(None, "--year", help="Fiscal year (default: the latest)."),
-    top: int = typer.Option(20, "--top", help="Rows to show."),
+    top: int = typer.Option(20, "--top", min=1, help="Rows to show."),
 ) -> None:
     """List the firms furthest from their targets.
 
@@ -340,7 +355,7 @@ def screen(
         yr = int(t["fiscal_year"].max()) if year is None else year
         t = t[t["fiscal_year"] == yr]
         if industry is not None:
-            t = t[t["industry"].astype(str) == industry]
+            t = t[_matches(t["industry"], industry)]
         if status is not None:
             t = t[t["status"] == status]
         if status == "under":
@@ -373,25 +388,32 @@ def explain(
         from levgap.report.tables import read_outputs
         from levgap.report.terminal import driver_steps, render_steps
 
+        if plot is not None and plot.suffix.lower() not in (".png", ".svg"):
+            raise typer.BadParameter(f"must end in .png or .svg; got {plot.name!r}.",
+                                     param_hint="--plot")
         tables, _ = read_outputs(out_dir, names=["targets", "drivers"])
         if "targets" not in tables or "drivers" not in tables:
             raise typer.BadParameter(f"{out_dir} holds no targets or drivers table.",
                                      param_hint="DIR")
-        t = tables["targets"]
-        t = t[(t["firm_id"].astype(str) == firm_id) & (t["measure"] == measure)]
-        if t.empty:
-            raise typer.BadParameter(
-                f"no {measure} leverage row for firm {firm_id!r} in {out_dir}.",
-                param_hint="FIRM_ID")
-        yr = int(t["fiscal_year"].max()) if year is None else year
+        firm_rows = tables["targets"][_matches(tables["targets"]["firm_id"], firm_id)]
+        if firm_rows.empty:
+            raise typer.BadParameter(f"no firm {firm_id!r} in {out_dir}.", param_hint="FIRM_ID")
+        t = firm_rows[firm_rows["measure"] == measure]
+        yr = int((t if len(t) else firm_rows)["fiscal_year"].max()) if year is None else year
         row_df = t[t["fiscal_year"] == yr]
         if row_df.empty:
-            years = ", ".join(str(int(y)) for y in sorted(t["fiscal_year"].unique()))
+            other = firm_rows[firm_rows["fiscal_year"] == yr]
+            if len(other):
+                raise typer.BadParameter(
+                    f"firm {firm_id} {yr} has no {measure} leverage row (it was left out of "
+                    f"that measure; see exclusions); try --measure {other['measure'].iloc[0]}.",
+                    param_hint="--measure")
+            years = ", ".join(str(int(y)) for y in sorted(firm_rows["fiscal_year"].unique()))
             raise typer.BadParameter(f"firm {firm_id} has no fiscal year {yr}; it has {years}.",
                                      param_hint="--year")
         row = row_df.iloc[0]
         d = tables["drivers"]
-        d = d[(d["firm_id"].astype(str) == firm_id) & (d["fiscal_year"] == yr)
+        d = d[_matches(d["firm_id"], firm_id) & (d["fiscal_year"] == yr)
               & (d["measure"] == measure)]
         con = _console()
         con.print(_explain_table(row, d))
@@ -516,13 +538,16 @@ def check(
                 con.print(f"  {no_mkt} rows have no market equity (book leverage only)")
         for reason, n in whole["reason"].value_counts().sort_index().items():
             con.print(f"  excluded, {reason}: {n}")
-        for w in dict.fromkeys([" ".join(str(w).split()) for w in p.warnings] + notes):
+        for w in _merge_notes(p.warnings, notes):
             con.print(f"  note: {w}")
         if ledger is not None:
             from levgap.report.tables import write_table
 
             write_table(whole, ledger, inputs=[panel])
             con.print(f"Exclusion ledger written to {ledger}.")
+        if len(data) == 0:
+            _err(f"{panel}: the panel must keep at least one usable row; got none.")
+            raise typer.Exit(2)
 
 
 @app.command()

@@ -230,7 +230,10 @@ class RunConfig:
         try:
             raw = tomllib.loads(p.read_text(encoding="utf-8"))
         except FileNotFoundError:
-            raise ConfigError(f"{p}: config file not found.") from None
+            raise ConfigError(
+                f"{p}: the run configuration must be an existing TOML file; got no file there. "
+                "Check the --config path, or write an example with `levgap template`."
+            ) from None
         except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
             raise ConfigError(f"{p}: not a valid TOML file: {exc}.") from None
         return cls.from_dict(raw, source=str(p))

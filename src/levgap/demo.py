@@ -186,7 +186,7 @@ def _firm_table(seed: int) -> pd.DataFrame:
     rows = []
     used: set[str] = set()
     n = 0
-    for code, label, count, *_ in INDUSTRIES:
+    for code, _label, count, *_ in INDUSTRIES:
         for _ in range(count):
             n += 1
             while True:

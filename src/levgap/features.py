@@ -27,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from levgap.config import ModelSpec
+from levgap.errors import ModelError
 
 VOL_WINDOW = 5
 VOL_MIN_OBS = 3
@@ -49,11 +50,14 @@ class Features:
         One row per peer group with fewer than ``min_industry_firms`` firms: ``industry``,
         ``firms``, ``borrowed_from`` (a code prefix or the whole sample), ``members``
         (the peer groups whose effects it averages).
+    notes : tuple of str
+        Drivers dropped because no row had the data they need, and why.
     """
 
     frame: pd.DataFrame
     drivers: tuple[str, ...]
     borrowed: pd.DataFrame
+    notes: tuple[str, ...] = ()
 
 
 def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
@@ -125,6 +129,18 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
         raw["rd_missing"] = missing.astype(float)
         drivers.append("rd_missing")
 
+    notes = []
+    why = {
+        "earnings_volatility": "no firm has the three fiscal years of history it needs",
+        "market_to_book": "no row has market_equity (or shares_outstanding and share_price)",
+    }
+    for name in list(drivers):
+        if np.isnan(raw[name]).all():
+            drivers.remove(name)
+            notes.append(f"driver {name} left out of the model: {why.get(name, 'no data')}.")
+    if not drivers:
+        raise ModelError("the model must keep at least one driver; got none with data.")
+
     lo, hi = spec.winsorize
     years = f["fiscal_year"].to_numpy()
     for name in drivers:
@@ -135,7 +151,9 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
 
     groups, borrowed = effect_groups(f["peer_group"], f["firm_id"], spec.min_industry_firms)
     f["effect_group"] = groups
-    return Features(frame=f, drivers=tuple(drivers), borrowed=borrowed)
+    f["flags"] = add_flag(f["flags"], groups != f["peer_group"].to_numpy(),
+                          "industry_effect_borrowed")
+    return Features(frame=f, drivers=tuple(drivers), borrowed=borrowed, notes=tuple(notes))
 
 
 def peer_group(industry: pd.Series, digits: int) -> pd.Series:

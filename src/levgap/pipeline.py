@@ -14,9 +14,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from levgap.attribution import attribute_gap, loo_median, peer_profile
+from levgap.attribution import attribute_gap, peer_profile
 from levgap.config import ModelSpec, RunConfig
-from levgap.errors import ModelError
+from levgap.errors import ConfigError, ModelError
 from levgap.features import POOLED, Features, build_features
 from levgap.models import MODELS
 from levgap.models.crossfit import assign_folds, crossfit_targets
@@ -173,8 +173,12 @@ def analyze(
 
         panel = validate_panel(panel, config=config)
     if len(panel.data) == 0:
+        reasons = panel.exclusions["reason"].value_counts()
+        top = ", ".join(f"{r} ({n})" for r, n in reasons.head(3).items())
         raise ModelError(
-            f"{panel.source}: no usable rows remain after validation; see the exclusion ledger."
+            f"{panel.source}: the panel must keep at least one usable row; got none "
+            f"({top or 'no data rows'}). Run `levgap check PANEL --ledger ledger.csv` to see "
+            "each row's reason."
         )
     feats = build_features(panel.data, spec)
     fit_fn = MODELS[spec.model]
@@ -187,15 +191,17 @@ def analyze(
     firm_codes, _ = pd.factorize(frame["firm_id"], sort=True)
     ind_codes, _ = pd.factorize(frame["industry"], sort=True)
 
-    # Peer profile: industry-year peers without the firm; else its effect group; else the year.
     pg_year = peer_codes.astype(np.int64) * len(years) + year_codes
-    eg_codes, _ = pd.factorize(frame["effect_group"], sort=True)
-    eg_year = eg_codes.astype(np.int64) * len(years) + year_codes
-    X_peer, peer_n, _ = peer_profile(X_all, [pg_year, eg_year, year_codes.astype(np.int64)])
+    _check_finite(X_all, feats.drivers, panel.source)
+    if spec.year is not None and spec.year not in set(years):
+        raise ConfigError(
+            f"--year must be a fiscal year of the panel; got {spec.year}. The panel has "
+            f"{int(years.min())}-{int(years.max())}."
+        )
 
     targets, drivers, coefs, fits = [], [], [], []
     ledger = [panel.exclusions]
-    warnings = list(panel.warnings)
+    warnings = [*panel.warnings, *feats.notes]
     for measure in spec.measures:
         y_all = frame[measure].to_numpy(dtype=float)
         use = np.isfinite(y_all)
@@ -218,13 +224,18 @@ def analyze(
         step = (lambda d, t, m=measure: progress(f"cross-fit {m}", d, t)) if progress else None
         cf = crossfit_targets(fit_fn, y, X, effects=effects, borrow=borrow, n_levels=n_levels,
                               folds=folds, names=feats.drivers, progress=step)
-        attr = attribute_gap(X, X_peer[rows], cf.beta, cf.offset, cf.target)
+        # Peers: the firm's industry in that year, without the firm; else the industries its
+        # industry borrows its effect from; else the whole year. Only rows with this measure.
+        levels = _peer_levels(eff_codes[rows], eff_parent[rows], members, pg_year[rows],
+                              year_codes[rows])
+        base, peer_n, _ = peer_profile(np.column_stack([X, y]), levels)
+        X_peer, peer_med = base[:, :-1], base[:, -1]
+        attr = attribute_gap(X, X_peer, cf.beta, cf.offset, cf.target)
 
         resid = y - cf.target
         a = (1.0 - spec.coverage) / 2.0
         q_lo, q_hi = np.quantile(resid, [a, 1.0 - a])
         scale = MAD_TO_SD * np.median(np.abs(resid - np.median(resid)))
-        peer_med, _ = loo_median(y_all, pg_year)
         gap = y - cf.target
         band_low, band_high = cf.target + q_lo, cf.target + q_hi
         status = np.where(y > band_high, "over", np.where(y < band_low, "under", "within"))
@@ -243,14 +254,14 @@ def analyze(
                 "band_low": band_low,
                 "band_high": band_high,
                 "status": status,
-                "peer_median": peer_med[rows],
-                "peer_count": peer_n[rows],
+                "peer_median": peer_med,
+                "peer_count": peer_n,
                 "peer_target": attr.peer_target,
                 "debt_to_target": _debt_to_target(measure, sub, cf.target),
                 "flags": sub["flags"].to_numpy(),
             }
         )
-        d = _drivers_long(sub, measure, feats.drivers, X, X_peer[rows], attr.contributions)
+        d = _drivers_long(sub, measure, feats.drivers, X, X_peer, attr.contributions)
         if spec.year is not None:
             t = t[t["fiscal_year"] == spec.year]
             d = d[d["fiscal_year"] == spec.year]
@@ -272,7 +283,10 @@ def analyze(
         )
 
     if not targets:
-        raise ModelError(f"{panel.source}: no measure could be estimated; see warnings.")
+        raise ModelError(
+            f"{panel.source}: at least one measure must be estimable; got none "
+            f"({' '.join(warnings)})."
+        )
     targets_df = pd.concat(targets, ignore_index=True)
     drivers_df = pd.concat(drivers, ignore_index=True)
     exclusions = _concat_ledger(ledger)
@@ -309,6 +323,32 @@ def _effect_codes(
     if len(large_labels) == 0:
         raise ModelError("the panel needs at least one industry with its own effect.")
     return codes, parent_of, members, len(large_labels)
+
+
+def _peer_levels(
+    eff_codes: np.ndarray,
+    eff_parent: np.ndarray,
+    members: np.ndarray,
+    pg_year: np.ndarray,
+    year: np.ndarray,
+) -> list[list[tuple[np.ndarray | None, np.ndarray]]]:
+    own = eff_codes >= 0
+    parents = []
+    for pid in np.unique(eff_parent[eff_parent >= 0]):
+        in_members = own & members[pid, np.where(own, eff_codes, 0)]
+        parents.append((in_members | (eff_parent == pid), year))
+    return [[(None, pg_year)], parents, [(None, year)]]
+
+
+def _check_finite(X: np.ndarray, names: tuple[str, ...], source: str) -> None:
+    bad = ~np.isfinite(X)
+    if bad.any():
+        cols = [names[j] for j in np.flatnonzero(bad.any(axis=0))]
+        raise ModelError(
+            f"{source}: every driver must have a finite value on every row; got missing or "
+            f"infinite values in {', '.join(cols)} on {int(bad.any(axis=1).sum())} rows. "
+            "Remove those drivers from [model] drivers in the run configuration."
+        )
 
 
 def _clusters(kind: str, firm: np.ndarray, year: np.ndarray, industry: np.ndarray) -> tuple:
@@ -349,9 +389,9 @@ def _concat_ledger(parts: list[pd.DataFrame]) -> pd.DataFrame:
 def _debt_to_target(measure: str, sub: pd.DataFrame, target: np.ndarray) -> np.ndarray:
     debt = sub["total_debt"].to_numpy(dtype=float)
     if measure == "book":
-        return (target - sub["book"].to_numpy(dtype=float)) * sub["total_assets"].to_numpy(
-            dtype=float
-        )
+        # a target below zero asks for no debt at all, not for negative debt
+        wanted = np.maximum(target, 0.0) * sub["total_assets"].to_numpy(dtype=float)
+        return wanted - debt
     equity = sub["market_equity"].to_numpy(dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         wanted = np.where(target < 1.0, target * equity / (1.0 - target), np.nan)
@@ -421,7 +461,9 @@ def _manifest(
     return {
         "levgap_version": versions["levgap"],
         "schema_version": SCHEMA_VERSION,
-        "inputs": [{"path": panel.source, "sha256": panel.sha256, "rows": panel.n_input_rows}],
+        "inputs": [{"path": panel.source, "sha256": panel.sha256, "rows": panel.n_input_rows}]
+        + ([{"path": config.source, "sha256": digest(config.source), "role": "run configuration"}]
+           if config.source and Path(config.source).is_file() else []),
         "options": config.to_dict(),
         "drivers": list(feats.drivers),
         "versions": versions,

@@ -112,7 +112,8 @@ def _build(coefficients: pd.DataFrame, model_fit: pd.DataFrame,
         (("book", "total debt / total assets"),
          ("market", "total debt / (total debt + market value of equity)"))
         if m in {k[0] for k in keys})
-    clustered = f", clustered by {cluster}" if cluster else ""
+    clustered = (f", clustered by {CLUSTER_LABELS.get(cluster, cluster).lower()}"
+                 + (" (two-way)" if cluster == "firm-year" else "")) if cluster else ""
     note = (f"Standard errors in parentheses{clustered}. {legend}. Industry and year fixed "
             "effects absorbed. Out-of-sample R2 from targets cross-fitted by firm "
             f"(grouped folds). Dependent variables: {dep}.")
