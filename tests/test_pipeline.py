@@ -269,3 +269,21 @@ def test_a_firm_alone_takes_its_parent_industries_as_peers() -> None:
         peers = peers[peers["industry"].isin(["5000", "5007"])]
         assert row["peer_count"] == len(peers)
         assert row["peer_median"] == pytest.approx(peers["actual"].median())
+
+
+def test_lagged_drivers_use_the_previous_year_and_ledger_the_first() -> None:
+    panel, _, _ = _fresh_panel(19)
+    now = analyze(panel, spec=ModelSpec(measures=("book",)))
+    lag = analyze(panel, spec=ModelSpec(measures=("book",), lag_drivers=True))
+    first = panel.groupby("firm_id")["fiscal_year"].transform("min") == panel["fiscal_year"]
+    ex = lag.exclusions[lag.exclusions["reason"] == "no_prior_year"]
+    assert len(ex) == int(first.sum()) and (ex["measure"] == "").all()
+    counts = lag.manifest["counts"]
+    assert counts["rows_used"] + counts["rows_excluded"] == len(panel)
+    d_now = now.drivers.set_index(["firm_id", "fiscal_year", "driver"])["firm_value"]
+    d_lag = lag.drivers.set_index(["firm_id", "fiscal_year", "driver"])["firm_value"]
+    shifted = d_now.rename(index=lambda y: y + 1 if isinstance(y, int | np.integer) else y,
+                           level="fiscal_year")
+    common = d_lag.index.intersection(shifted.index)
+    assert len(common) == len(d_lag)
+    np.testing.assert_allclose(d_lag.loc[common], shifted.loc[common])

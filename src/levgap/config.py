@@ -156,6 +156,10 @@ class ModelSpec:
         Key of the fit function in ``levgap.models.MODELS``.
     year : int or None, default=None
         Report only this fiscal year (the model is still fitted on every year).
+    lag_drivers : bool, default=False
+        Explain each year's leverage with the firm's drivers of the previous fiscal year, as
+        replication studies often do; a row without the firm's previous year is left out with
+        reason ``no_prior_year``.
     """
 
     measures: tuple[str, ...] = MEASURES
@@ -170,6 +174,7 @@ class ModelSpec:
     coverage: float = 0.8
     model: str = "linear"
     year: int | None = None
+    lag_drivers: bool = False
 
     def __post_init__(self) -> None:
         bad = [m for m in self.measures if m not in MEASURES]

@@ -29,6 +29,21 @@ import pandas as pd
 from levgap.config import ModelSpec
 from levgap.errors import ModelError
 
+FLAGS: dict[str, str] = {
+    "volatility_imputed": "fewer than three fiscal years of profitability in the trailing "
+    "five-year window: earnings_volatility is the industry-year median",
+    "mtb_imputed": "no market equity: market_to_book is the industry-year median",
+    "industry_effect_borrowed": "the industry has fewer than [model] min_industry_firms firms "
+    "and takes its parent group's average effect (run.json names the group)",
+    "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
+}
+"""Flags the analysis adds to kept rows (beside those of validation)."""
+
+REASONS: dict[str, str] = {
+    "no_prior_year": "lag_drivers is on and the firm has no row for the previous fiscal year",
+}
+"""Reason codes of rows the analysis leaves out of every measure."""
+
 VOL_WINDOW = 5
 VOL_MIN_OBS = 3
 POOLED = "(all industries)"
@@ -149,11 +164,24 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
             values = winsorize_by(values, years, lo, hi)
         f[name] = values
 
+    if spec.lag_drivers:
+        lag_rows(f, drivers)
     groups, borrowed = effect_groups(f["peer_group"], f["firm_id"], spec.min_industry_firms)
     f["effect_group"] = groups
     f["flags"] = add_flag(f["flags"], groups != f["peer_group"].to_numpy(),
                           "industry_effect_borrowed")
     return Features(frame=f, drivers=tuple(drivers), borrowed=borrowed, notes=tuple(notes))
+
+
+def lag_rows(f: pd.DataFrame, drivers: list[str]) -> None:
+    """Replace each driver by the firm's value in the previous fiscal year (NaN if absent)."""
+    here = pd.MultiIndex.from_arrays([f["firm_id"], f["fiscal_year"]])
+    prev = pd.MultiIndex.from_arrays([f["firm_id"], f["fiscal_year"] - 1])
+    pos = here.get_indexer(prev)
+    found = pos >= 0
+    for name in drivers:
+        values = f[name].to_numpy()
+        f[name] = np.where(found, values[np.where(found, pos, 0)], np.nan)
 
 
 def peer_group(industry: pd.Series, digits: int) -> pd.Series:

@@ -184,6 +184,16 @@ def analyze(
     fit_fn = MODELS[spec.model]
     frame = feats.frame
     X_all = frame[list(feats.drivers)].to_numpy(dtype=float)
+    ledger = [panel.exclusions]
+    if spec.lag_drivers:
+        no_prior = np.isnan(X_all).any(axis=1)
+        ledger.append(_row_ledger(frame, no_prior, "", "no_prior_year",
+                                  "lagged drivers need the firm's previous fiscal year"))
+        frame, X_all = frame.loc[~no_prior].reset_index(drop=True), X_all[~no_prior]
+        feats = replace(feats, frame=frame)
+        if len(frame) == 0:
+            raise ModelError(f"{panel.source}: lagged drivers need firms observed in two "
+                             "consecutive fiscal years; got none.")
 
     year_codes, years = pd.factorize(frame["fiscal_year"], sort=True)
     peer_codes, _ = pd.factorize(frame["peer_group"], sort=True)
@@ -200,7 +210,6 @@ def analyze(
         )
 
     targets, drivers, coefs, fits = [], [], [], []
-    ledger = [panel.exclusions]
     warnings = [*panel.warnings, *feats.notes]
     for measure in spec.measures:
         y_all = frame[measure].to_numpy(dtype=float)
@@ -360,6 +369,14 @@ def _clusters(kind: str, firm: np.ndarray, year: np.ndarray, industry: np.ndarra
 
 
 def _measure_ledger(frame: pd.DataFrame, mask: np.ndarray, measure: str) -> pd.DataFrame:
+    return _row_ledger(frame, mask, measure, "no_market_equity",
+                       "market leverage needs market_equity (or shares_outstanding and "
+                       "share_price); the row is used for book leverage only")
+
+
+def _row_ledger(
+    frame: pd.DataFrame, mask: np.ndarray, measure: str, reason: str, detail: str
+) -> pd.DataFrame:
     sub = frame.loc[mask]
     return pd.DataFrame(
         {
@@ -367,9 +384,8 @@ def _measure_ledger(frame: pd.DataFrame, mask: np.ndarray, measure: str) -> pd.D
             "firm_id": sub["firm_id"].to_numpy(),
             "fiscal_year": sub["fiscal_year"].to_numpy(),
             "measure": measure,
-            "reason": "no_market_equity",
-            "detail": "market leverage needs market_equity (or shares_outstanding and "
-            "share_price); the row is used for book leverage only",
+            "reason": reason,
+            "detail": detail,
         }
     )
 
@@ -468,8 +484,8 @@ def _manifest(
         "drivers": list(feats.drivers),
         "versions": versions,
         "counts": {
-            "rows_in": int(panel.n_input_rows or (len(panel.data) + len(whole))),
-            "rows_used": int(len(panel.data)),
+            "rows_in": int(panel.n_input_rows or (len(frame) + len(whole))),
+            "rows_used": int(len(frame)),
             "rows_excluded": int(len(whole)),
             "firms": int(frame["firm_id"].nunique()),
             "industries": int(frame["industry"].nunique()),

@@ -76,8 +76,11 @@ def template_readme() -> str:
         f"{_minimum(c) if c.kind != 'text' else '-'} | {c.meaning} |"
         for c in COLUMNS
     )
-    reasons = "\n".join(f"| `{k}` | {v} |" for k, v in REASONS.items())
-    flags = "\n".join(f"| `{k}` | {v} |" for k, v in FLAGS.items())
+    from levgap.features import FLAGS as ANALYSIS_FLAGS
+    from levgap.features import REASONS as ANALYSIS_REASONS
+
+    reasons = "\n".join(f"| `{k}` | {v} |" for k, v in {**REASONS, **ANALYSIS_REASONS}.items())
+    flags = "\n".join(f"| `{k}` | {v} |" for k, v in {**FLAGS, **ANALYSIS_FLAGS}.items())
     blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"
     return f"""# levgap input template (schema v{SCHEMA_VERSION})
 
@@ -210,6 +213,7 @@ seed = 0                       # seed of the fold assignment
 coverage = 0.8                 # coverage of the band around each target
 model = "linear"               # fit function
 # year = 2023                  # report only this fiscal year (the model uses every year)
+lag_drivers = false            # true: explain leverage with the previous fiscal year's drivers
 """
 """Annotated example ``run.toml``; parses to the default configuration."""
 
