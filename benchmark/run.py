@@ -460,6 +460,7 @@ def import_check(cmds: dict[str, list[str]], work: Path) -> dict:
                            capture_output=True, text=True, timeout=300)
         stack: list[tuple[int, str]] = []
         chains: dict[str, str] = {}
+        exact: set[str] = set()
         # importtime prints a module after its children, indented by depth; read it backwards
         lines = [ln for ln in p.stderr.splitlines() if ln.startswith("import time:")][::-1]
         for ln in lines:
@@ -470,8 +471,11 @@ def import_check(cmds: dict[str, list[str]], work: Path) -> dict:
                 stack.pop()
             stack.append((depth, mod))
             top = mod.split(".")[0]
-            if top in heavy and top not in chains:
+            # the package's own line (a submodule may be imported later, on first use)
+            if top in heavy and (top not in chains or mod == top) and top not in exact:
                 chains[top] = " -> ".join(m for _, m in stack)
+                if mod == top:
+                    exact.add(top)
         out[name] = {m: chains[m] for m in heavy if m in chains}
     return out
 
