@@ -248,13 +248,18 @@ def analyze(
         gap = y - cf.target
         band_low, band_high = cf.target + q_lo, cf.target + q_hi
         status = np.where(y > band_high, "over", np.where(y < band_low, "under", "within"))
-        sub = frame.iloc[rows]
+        # text columns stay pandas (Arrow) strings: a round trip through Python objects
+        # costs seconds at a million rows
+        keep = ["firm_id", "firm_name", "fiscal_year", "industry", "flags", "total_debt",
+                "total_assets", "market_equity", "book"]
+        sub = frame[keep] if len(rows) == len(frame) else frame[keep].iloc[rows].reset_index(
+            drop=True)
         t = pd.DataFrame(
             {
-                "firm_id": sub["firm_id"].to_numpy(),
-                "firm_name": sub["firm_name"].to_numpy(),
+                "firm_id": sub["firm_id"],
+                "firm_name": sub["firm_name"],
                 "fiscal_year": sub["fiscal_year"].to_numpy(),
-                "industry": sub["industry"].to_numpy(),
+                "industry": sub["industry"],
                 "measure": measure,
                 "actual": y,
                 "target": cf.target,
@@ -267,7 +272,7 @@ def analyze(
                 "peer_count": peer_n,
                 "peer_target": attr.peer_target,
                 "debt_to_target": _debt_to_target(measure, sub, cf.target),
-                "flags": sub["flags"].to_numpy(),
+                "flags": sub["flags"],
             }
         )
         d = _drivers_long(sub, measure, feats.drivers, X, X_peer, attr.contributions)
@@ -425,10 +430,11 @@ def _drivers_long(
     n, k = X.shape
     return pd.DataFrame(
         {
-            "firm_id": np.repeat(sub["firm_id"].to_numpy(), k),
+            "firm_id": sub["firm_id"].repeat(k).reset_index(drop=True),
             "fiscal_year": np.repeat(sub["fiscal_year"].to_numpy(), k),
             "measure": measure,
-            "driver": np.tile(np.array(names, dtype=object), n),
+            "driver": pd.Series(names, dtype=sub["firm_id"].dtype).take(
+                np.tile(np.arange(k), n)).reset_index(drop=True),
             "firm_value": X.reshape(-1),
             "peer_value": X_peer.reshape(-1),
             "contribution": contrib.reshape(-1),

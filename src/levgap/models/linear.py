@@ -259,11 +259,7 @@ def fit_linear(
     local: list[np.ndarray] = []
     present: list[np.ndarray] = []
     for codes in effects:
-        codes = np.asarray(codes)
-        own = codes >= 0
-        levels, inverse = np.unique(codes[own], return_inverse=True)
-        inv = np.full(n, -1, dtype=np.intp)
-        inv[own] = inverse
+        levels, inv = _compress(np.asarray(codes))
         present.append(levels)
         local.append(inv)
     sizes = [len(lv) for lv in present]
@@ -339,7 +335,9 @@ def fit_linear(
             if Zd is not None:
                 U[dense] = Zd @ A_inv_rows.T
             U *= resid[:, None]
-            codes = [np.unique(np.asarray(c), return_inverse=True)[1] for c in clusters]
+            codes = [_compress(np.asarray(c))[1] if np.issubdtype(np.asarray(c).dtype,
+                                                                  np.integer)
+                     else np.unique(np.asarray(c), return_inverse=True)[1] for c in clusters]
             if len(codes) == 1:
                 vcov, g = _cluster_meat(U, codes[0], n, p)
                 n_clusters = (g,)
@@ -374,6 +372,29 @@ def fit_linear(
         rss=rss,
         cov_type=cov_type,
     )
+
+
+def _compress(codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Levels present among non-negative codes, and each row's position among them (-1 else).
+
+    Linear in the number of rows (a count per code) rather than a sort, which matters when
+    the same factor is compressed for every cross-fit fold.
+    """
+    own = codes >= 0
+    if not own.any():
+        return np.empty(0, dtype=np.int64), np.full(len(codes), -1, dtype=np.intp)
+    top = int(codes.max()) + 1
+    if top > 4 * len(codes) + 1024:  # sparse, huge codes: sorting is cheaper than a table
+        levels, inverse = np.unique(codes[own], return_inverse=True)
+        inv = np.full(len(codes), -1, dtype=np.intp)
+        inv[own] = inverse
+        return levels, inv
+    counts = np.bincount(codes[own], minlength=top)
+    levels = np.flatnonzero(counts)
+    lookup = np.full(top, -1, dtype=np.intp)
+    lookup[levels] = np.arange(len(levels))
+    inv = np.where(own, lookup[np.where(own, codes, 0)], -1)
+    return levels, inv
 
 
 def _dense_rows(
