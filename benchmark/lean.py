@@ -5,8 +5,9 @@ write it for one purpose: read with pyarrow; drop invalid rows into a ledger; bu
 measures and drivers (trailing-window earnings volatility with industry-year median
 imputation, winsorising within fiscal year); fit each measure on the full sample (with
 firm-clustered errors) and on five grouped folds by firm (cross-fitted targets); band,
-status and robust gap scale from the cross-fitted residuals; peer medians that exclude the
-firm from order statistics; exact linear contributions of each driver; Parquet writes.
+status and robust gap scale from the cross-fitted residuals; peer medians (drivers and the
+measure, among the rows that have the measure) that exclude the firm, from order statistics;
+exact linear contributions of each driver; Parquet writes.
 
 Run::
 
@@ -244,19 +245,25 @@ def build(cols: dict, keep: np.ndarray, winsor: tuple[float, float] = (0.01, 0.9
     with np.errstate(invalid="ignore", divide="ignore"):
         market = np.where(debt + me > 0, debt / (debt + me), np.nan)
     X = np.column_stack([drivers[d] for d in DRIVERS])
-    # Peer profile: industry-year peers without the firm, else the year's other firms.
-    peer_X = np.empty_like(X)
-    for j in range(X.shape[1]):
-        med, cnt = peer_median(X[:, j], iy)
-        if (cnt == 0).any():
-            med = np.where(cnt > 0, med, peer_median(X[:, j], year)[0])
-        peer_X[:, j] = med
     return {
         "row": idx, "firm": firm, "year": year, "ind": ind, "iy": iy,
         "assets": ta, "debt": debt, "market_equity": me,
         "measures": {"book": debt / ta, "market": market},
-        "X": X, "peer_X": peer_X, "flags": vol_imp.astype(np.int64) + 2 * mtb_imp,
+        "X": X, "flags": vol_imp.astype(np.int64) + 2 * mtb_imp,
     }
+
+
+def peer_profile(X: np.ndarray, iy: np.ndarray, year: np.ndarray) -> tuple[np.ndarray, ...]:
+    """Leave-one-out medians of each column among industry-year peers, else the year's."""
+    out = np.empty_like(X)
+    count = None
+    for j in range(X.shape[1]):
+        med, cnt = peer_median(X[:, j], iy)
+        if (cnt == 0).any():
+            med = np.where(cnt > 0, med, peer_median(X[:, j], year)[0])
+        out[:, j] = med
+        count = cnt if count is None else count
+    return out, count
 
 
 # ---------------------------------------------------------------------------------------------
@@ -283,7 +290,9 @@ def model_measure(b: dict, measure: str, drivers=DRIVERS, folds=5, seed=0, cover
     fold = folds_by_firm(firm, folds, seed)
     target = np.empty(len(y))
     contrib = np.empty_like(X)
-    peer_X = b["peer_X"][sel]
+    # Peers of this measure: rows that have it (the firm left out).
+    base, peer_cnt = peer_profile(np.column_stack([X, y]), b["iy"][sel], b["year"][sel])
+    peer_X, peer_med = base[:, :-1], base[:, -1]
     for f in range(folds):
         test = fold == f
         tr = ~test
@@ -297,8 +306,6 @@ def model_measure(b: dict, measure: str, drivers=DRIVERS, folds=5, seed=0, cover
     gap = y - target
     band_low, band_high = target + q_lo, target + q_hi
     status = np.where(y > band_high, 2, np.where(y < band_low, 0, 1))
-    peer_med, peer_cnt = peer_median(y_all, b["iy"])
-    peer_med, peer_cnt = peer_med[sel], peer_cnt[sel]
     assets, debt, me = b["assets"][sel], b["debt"][sel], b["market_equity"][sel]
     if measure == "book":
         to_target = (target - y) * assets
