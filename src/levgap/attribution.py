@@ -44,13 +44,7 @@ def loo_median(values: np.ndarray, groups: np.ndarray) -> tuple[np.ndarray, np.n
     idx = np.flatnonzero(ok)
     if idx.size == 0:
         return med, cnt
-    # order by (group, value) through one integer key: a third of the time of a lexsort
-    m = len(idx)
-    rank = np.empty(m, dtype=np.int64)
-    rank[np.argsort(values[idx])] = np.arange(m)
-    g = groups[idx].astype(np.int64)
-    g -= g.min()
-    order = idx[np.argsort(g * m + rank)]
+    order = idx[_group_value_order(values[idx], groups[idx])]
     gs, vs = groups[order], values[order]
     first = np.flatnonzero(np.r_[True, gs[1:] != gs[:-1]])
     sizes = np.diff(np.r_[first, len(gs)])
@@ -89,6 +83,63 @@ Partition = tuple[np.ndarray | None, np.ndarray]
 """Rows taking part (a boolean mask, ``None`` for all) and their group codes."""
 
 
+def _narrow(groups: np.ndarray) -> np.ndarray:
+    # the narrowest integer type holding the codes: numpy sorts 16-bit integers by radix
+    if groups.size and groups.dtype.kind in "iu" and groups.min() >= 0:
+        top = int(groups.max())
+        return groups.astype(np.int16 if top < 2**15 else np.int32 if top < 2**31 else np.int64)
+    return groups
+
+
+def _group_value_order(values: np.ndarray, groups: np.ndarray) -> np.ndarray:
+    """Rows sorted by group, then by value: what ``np.lexsort((values, groups))`` gives, up to
+    the order of equal values (which no median depends on), in two faster passes."""
+    order = np.argsort(values)
+    return order[np.argsort(_narrow(groups)[order], kind="stable")]
+
+
+def _loo_medians(X: np.ndarray, groups: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+    """:func:`loo_median` of every column of ``X`` over the same groups.
+
+    Without NaN every column has the same group layout (sizes, starts, the sorted positions
+    of the two middle values once a row is left out); only which row sits at each sorted
+    position differs. So the layout is computed once and each column costs one sort and
+    two gathers. With NaN, column by column.
+    """
+    n, k = X.shape
+    if n == 0 or np.isnan(X).any():
+        return [loo_median(X[:, j], groups) for j in range(k)]
+    gs = groups[np.argsort(_narrow(groups), kind="stable")]
+    first = np.flatnonzero(np.r_[True, gs[1:] != gs[:-1]])
+    sizes = np.diff(np.r_[first, n])
+    start = np.repeat(first, sizes)
+    rank = np.arange(n) - start
+    m = np.repeat(sizes, sizes) - 1
+    half = m // 2
+    # as loo_median's kth(): j-th smallest of the group without the row itself
+    p_hi = np.clip(start + half + (half >= rank), 0, n - 1)
+    lo = np.maximum(half - 1, 0)
+    p_lo = np.clip(start + lo + (lo >= rank), 0, n - 1)
+    odd = m % 2 == 1
+    alone = m == 0
+    out = []
+    cnt = None
+    for j in range(k):
+        v = X[:, j]
+        order = _group_value_order(v, groups)
+        vs = v[order]
+        hi = vs[p_hi]
+        loo = np.where(odd, hi, 0.5 * (vs[p_lo] + hi))
+        loo[alone] = np.nan
+        med = np.empty(n)
+        med[order] = loo
+        if cnt is None:
+            cnt = np.empty(n, dtype=np.int64)
+            cnt[order] = m
+        out.append((med, cnt))
+    return out
+
+
 def peer_profile(
     X: np.ndarray, levels: list[list[Partition]]
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -122,7 +173,12 @@ def peer_profile(
             rows = np.arange(n) if mask is None else np.flatnonzero(mask)
             if not todo[rows].any():
                 continue
-            cols = [loo_median(X[rows, j], groups[rows]) for j in range(k)]
+            if not todo[rows].all():
+                # Only the groups holding rows still without peers (whole groups, so their
+                # medians are the same): a wider level is needed by few rows.
+                g = groups[rows]
+                rows = rows[np.isin(g, np.unique(g[todo[rows]]))]
+            cols = _loo_medians(X[rows], groups[rows])
             c = cols[0][1]
             take = todo[rows] & (c > 0)
             at = rows[take]
