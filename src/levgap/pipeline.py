@@ -5,7 +5,7 @@ from __future__ import annotations
 import hashlib
 import json
 import platform
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
@@ -247,40 +247,40 @@ def analyze(
         scale = MAD_TO_SD * np.median(np.abs(resid - np.median(resid)))
         gap = y - cf.target
         band_low, band_high = cf.target + q_lo, cf.target + q_hi
-        status = np.where(y > band_high, "over", np.where(y < band_low, "under", "within"))
-        # text columns stay pandas (Arrow) strings: a round trip through Python objects
-        # costs seconds at a million rows
-        keep = ["firm_id", "firm_name", "fiscal_year", "industry", "flags", "total_debt",
-                "total_assets", "market_equity", "book"]
-        sub = frame[keep] if len(rows) == len(frame) else frame[keep].iloc[rows].reset_index(
-            drop=True)
-        t = pd.DataFrame(
+        # Status as codes into STATUS. The output frames are assembled once, after the loop,
+        # gathering text columns from the frame's own arrays (no Python string objects, no
+        # concatenation of ten-million-row frames).
+        status = np.where(y > band_high, 2, np.where(y < band_low, 0, 1))
+        money = frame[["total_debt", "total_assets", "market_equity", "book"]].iloc[rows]
+        keep: Any = (slice(None) if spec.year is None
+                     else frame["fiscal_year"].to_numpy()[rows] == spec.year)
+        gap_z = gap / scale if scale > 0 else np.full(len(y), np.nan)
+        targets.append(
             {
-                "firm_id": sub["firm_id"],
-                "firm_name": sub["firm_name"],
-                "fiscal_year": sub["fiscal_year"].to_numpy(),
-                "industry": sub["industry"],
+                "rows": rows[keep],
                 "measure": measure,
-                "actual": y,
-                "target": cf.target,
-                "gap": gap,
-                "gap_z": gap / scale if scale > 0 else np.full(len(y), np.nan),
-                "band_low": band_low,
-                "band_high": band_high,
-                "status": status,
-                "peer_median": peer_med,
-                "peer_count": peer_n,
-                "peer_target": attr.peer_target,
-                "debt_to_target": _debt_to_target(measure, sub, cf.target),
-                "flags": sub["flags"],
+                "actual": y[keep],
+                "target": cf.target[keep],
+                "gap": gap[keep],
+                "gap_z": gap_z[keep],
+                "band_low": band_low[keep],
+                "band_high": band_high[keep],
+                "status": status[keep],
+                "peer_median": peer_med[keep],
+                "peer_count": peer_n[keep],
+                "peer_target": attr.peer_target[keep],
+                "debt_to_target": _debt_to_target(measure, money, cf.target)[keep],
             }
         )
-        d = _drivers_long(sub, measure, feats.drivers, X, X_peer, attr.contributions)
-        if spec.year is not None:
-            t = t[t["fiscal_year"] == spec.year]
-            d = d[d["fiscal_year"] == spec.year]
-        targets.append(t)
-        drivers.append(d)
+        drivers.append(
+            {
+                "rows": rows[keep],
+                "measure": measure,
+                "firm_value": X[keep],
+                "peer_value": X_peer[keep],
+                "contribution": attr.contributions[keep],
+            }
+        )
         coefs.append(_coef_frame(full, measure, spec.model))
         tss = float(((y - y.mean()) ** 2).sum())
         fits.append(
@@ -288,8 +288,8 @@ def analyze(
                 "measure": measure,
                 "model": spec.model,
                 "n_obs": int(len(y)),
-                "n_firms": int(len(np.unique(firm_codes[rows]))),
-                "n_industries": int(len(np.unique(ind_codes[rows]))),
+                "n_firms": int(np.count_nonzero(np.bincount(firm_codes[rows]))),
+                "n_industries": int(np.count_nonzero(np.bincount(ind_codes[rows]))),
                 "r2": full.r2,
                 "r2_oos": 1.0 - float(resid @ resid) / tss if tss > 0 else float("nan"),
                 "rmse_oos": float(np.sqrt(np.mean(resid**2))),
@@ -301,8 +301,8 @@ def analyze(
             f"{panel.source}: at least one measure must be estimable; got none "
             f"({' '.join(warnings)})."
         )
-    targets_df = pd.concat(targets, ignore_index=True)
-    drivers_df = pd.concat(drivers, ignore_index=True)
+    targets_df = _targets_frame(frame, targets)
+    drivers_df = _drivers_frame(frame, drivers, feats.drivers)
     exclusions = _concat_ledger(ledger)
     manifest = _manifest(panel, config, feats, frame, exclusions, warnings)
     return Analysis(
@@ -322,10 +322,14 @@ def _effect_codes(
     borrowed = feats.borrowed
     small = set(borrowed["industry"].astype(str))
     peer = frame["peer_group"].astype(str).to_numpy()
-    is_small = np.isin(peer, list(small)) if small else np.zeros(len(peer), dtype=bool)
-    large_labels = np.unique(peer[~is_small])
-    codes = np.full(len(peer), -1, dtype=np.int64)
-    codes[~is_small] = np.searchsorted(large_labels, peer[~is_small])
+    # Factorise once (hashing) rather than sort and search a million strings.
+    peer_codes, labels = pd.factorize(peer, sort=True)
+    labels = np.asarray(labels, dtype=object)
+    small_label = np.isin(labels, list(small)) if small else np.zeros(len(labels), dtype=bool)
+    large_labels = labels[~small_label]
+    remap = np.full(len(labels), -1, dtype=np.int64)
+    remap[~small_label] = np.arange(len(large_labels))
+    codes = remap[peer_codes]
     parents = sorted(set(borrowed["borrowed_from"])) if len(borrowed) else []
     members = np.zeros((max(len(parents), 1), len(large_labels)), dtype=bool)
     parent_of = np.full(len(peer), -1, dtype=np.int64)
@@ -419,27 +423,55 @@ def _debt_to_target(measure: str, sub: pd.DataFrame, target: np.ndarray) -> np.n
     return np.where(target < 0.0, -debt, wanted - debt)
 
 
-def _drivers_long(
-    sub: pd.DataFrame,
-    measure: str,
-    names: tuple[str, ...],
-    X: np.ndarray,
-    X_peer: np.ndarray,
-    contrib: np.ndarray,
+STATUS = ("under", "within", "over")
+
+
+def _labels(values: Sequence[str]) -> Any:
+    """Text labels as the array type pandas gives a text column, to ``take`` from."""
+    return pd.Series(np.array(list(values), dtype=object)).array
+
+
+def _targets_frame(frame: pd.DataFrame, parts: list[dict[str, Any]]) -> pd.DataFrame:
+    # Each part's arrays are released as soon as they are gathered (pop), and the frame takes
+    # the gathered arrays without another copy: the peak stays near the size of the output.
+    rows = np.concatenate([p.pop("rows") for p in parts]).astype(np.intp)
+    which = np.repeat(np.arange(len(parts), dtype=np.int32),
+                      [len(p["actual"]) for p in parts])
+    cols: dict[str, Any] = {}
+    for c in TARGET_COLUMNS:
+        if c in ("firm_id", "firm_name", "industry", "flags"):
+            cols[c] = frame[c].array.take(rows)
+        elif c == "fiscal_year":
+            cols[c] = frame[c].to_numpy()[rows]
+        elif c == "measure":
+            cols[c] = _labels([p["measure"] for p in parts]).take(which)
+        elif c == "status":
+            cols[c] = _labels(STATUS).take(np.concatenate([p.pop("status") for p in parts]))
+        else:
+            cols[c] = np.concatenate([p.pop(c) for p in parts])
+    return pd.DataFrame(cols, copy=False)
+
+
+def _drivers_frame(
+    frame: pd.DataFrame, parts: list[dict[str, Any]], names: tuple[str, ...]
 ) -> pd.DataFrame:
-    n, k = X.shape
-    return pd.DataFrame(
-        {
-            "firm_id": sub["firm_id"].repeat(k).reset_index(drop=True),
-            "fiscal_year": np.repeat(sub["fiscal_year"].to_numpy(), k),
-            "measure": measure,
-            "driver": pd.Series(names, dtype=sub["firm_id"].dtype).take(
-                np.tile(np.arange(k), n)).reset_index(drop=True),
-            "firm_value": X.reshape(-1),
-            "peer_value": X_peer.reshape(-1),
-            "contribution": contrib.reshape(-1),
-        }
-    )
+    k = len(names)
+    sizes = [len(p["rows"]) for p in parts]
+    # 32-bit gather indices: ten million of them are 40 MB instead of 80.
+    index = np.int32 if len(frame) < 2**31 else np.intp
+    long_rows = np.repeat(np.concatenate([p.pop("rows") for p in parts]).astype(index), k)
+    cols: dict[str, Any] = {
+        "firm_id": frame["firm_id"].array.take(long_rows),
+        "fiscal_year": frame["fiscal_year"].to_numpy()[long_rows],
+    }
+    del long_rows
+    which = np.repeat(np.arange(len(parts), dtype=np.int32), [s * k for s in sizes])
+    cols["measure"] = _labels([p["measure"] for p in parts]).take(which)
+    del which
+    cols["driver"] = _labels(names).take(np.tile(np.arange(k, dtype=np.int32), sum(sizes)))
+    for c in ("firm_value", "peer_value", "contribution"):
+        cols[c] = np.concatenate([p.pop(c).reshape(-1) for p in parts])
+    return pd.DataFrame(cols, copy=False)
 
 
 def _coef_frame(fit: Any, measure: str, model: str) -> pd.DataFrame:
