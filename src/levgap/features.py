@@ -22,6 +22,7 @@ Drivers are winsorised within fiscal year at the quantiles of ``ModelSpec.winsor
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -92,10 +93,10 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
     n = len(data)
     f = pd.DataFrame(
         {
-            "firm_id": data["firm_id"].astype(str).to_numpy(),
+            "firm_id": data["firm_id"].astype(str).array,
             "firm_name": _text(data, "firm_name", n),
             "fiscal_year": data["fiscal_year"].astype("int64").to_numpy(),
-            "industry": data["industry"].astype(str).to_numpy(),
+            "industry": data["industry"].astype(str).array,
             "source_row": data["source_row"].to_numpy() if "source_row" in data
             else np.arange(1, n + 1),
             "flags": _text(data, "flags", n),
@@ -126,7 +127,7 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
         "size": np.log(assets),
     }
     if "earnings_volatility" in spec.drivers:
-        vol = trailing_volatility(f["firm_id"].to_numpy(), f["fiscal_year"].to_numpy(),
+        vol = trailing_volatility(pd.factorize(f["firm_id"])[0], f["fiscal_year"].to_numpy(),
                                   profitability)
         vol, imputed = impute_group_median(vol, ind_year, f["fiscal_year"].to_numpy())
         raw["earnings_volatility"] = vol
@@ -195,11 +196,12 @@ def add_flag(flags: pd.Series, mask: np.ndarray, code: str) -> pd.Series:
     flags = flags.astype(str)
     if not mask.any():
         return flags
-    out = flags.to_numpy(dtype=object).copy()
-    sel = np.asarray(mask, dtype=bool)
-    cur = out[sel]
-    out[sel] = np.where(cur == "", code, cur + ";" + code)
-    return pd.Series(out, index=flags.index, dtype=str)
+    # Only the flagged rows go through Python strings.
+    sel = np.flatnonzero(np.asarray(mask, dtype=bool))
+    cur = flags.iloc[sel].to_numpy(dtype=object)
+    out = flags.copy()
+    out.iloc[sel] = np.where(cur == "", code, cur + ";" + code)
+    return out
 
 
 def trailing_volatility(firm: np.ndarray, year: np.ndarray, values: np.ndarray) -> np.ndarray:
@@ -309,7 +311,7 @@ def _num(data: pd.DataFrame, col: str, n: int) -> np.ndarray:
     return np.full(n, np.nan)
 
 
-def _text(data: pd.DataFrame, col: str, n: int) -> np.ndarray:
+def _text(data: pd.DataFrame, col: str, n: int) -> Any:
     if col in data:
-        return data[col].fillna("").astype(str).to_numpy()
+        return data[col].fillna("").astype(str).array
     return np.full(n, "", dtype=object)
