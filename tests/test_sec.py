@@ -11,6 +11,7 @@ import os
 import re
 import zipfile
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -634,3 +635,81 @@ def test_written_csv_neutralises_formula_like_text(tmp_path: Path, both: SecImpo
     write_sec_import(dataclasses.replace(both, panel=panel), tmp_path / "p.csv")
     back = pd.read_csv(tmp_path / "p.csv", dtype=str)
     assert back.loc[0, "firm_name"] == "'=HYPERLINK(1)"
+
+
+# --- the command line -----------------------------------------------------------------------
+
+
+def _invoke(args: list[str]) -> Any:
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    return CliRunner().invoke(app, args)
+
+
+def test_cli_import_sec_writes_panel_and_sources(tmp_path: Path) -> None:
+    out = tmp_path / "panel.csv"
+    result = _invoke(["import-sec", str(CURRENT), str(OLD), "--out", str(out),
+                      "--forms", "10-K,10-K/A", "--exclude-sic", "6000-6999"])
+    assert result.exit_code == 0, result.output
+    assert "6 firm-years of 4 firms" in result.output
+    assert "excluded by SIC: 1 firms, 1 firm-years" in result.output
+    assert "Latin-1" in result.output
+    back = pd.read_csv(out, dtype={"firm_id": str, "industry": str})
+    expected = _expected().query("firm_id != '9100004'").reset_index(drop=True)
+    pd.testing.assert_frame_equal(_normalise(back), expected)
+    sources = pd.read_csv(tmp_path / "panel.sources.csv", dtype=str)
+    assert set(sources["firm_id"]) == set(expected["firm_id"])
+
+
+def test_cli_import_sec_first_filed_with_prices(tmp_path: Path) -> None:
+    out = tmp_path / "panel.parquet"
+    result = _invoke(["import-sec", str(CURRENT), "--out", str(out), "--forms", "10-K,10-K/A",
+                      "--as-first-filed", "--prices", str(FIXTURE / "prices.csv")])
+    assert result.exit_code == 0, result.output
+    p = pd.read_parquet(out)
+    row = p.loc[(p["firm_id"] == "9100001") & (p["fiscal_year"] == 2020)].iloc[0]
+    assert (row["total_assets"], row["market_equity"]) == (1_000_000, 250_000)
+    assert row["market_equity_source"] == "price_file"
+    assert (tmp_path / "panel.sources.csv").exists()
+
+
+def test_cli_import_sec_help_shows_an_example() -> None:
+    result = _invoke(["import-sec", "--help"])
+    assert result.exit_code == 0
+    assert "Example: levgap import-sec" in result.output
+    for option in ("--out", "--forms", "--as-first-filed", "--prices", "--exclude-sic"):
+        assert option in result.output
+
+
+@pytest.mark.parametrize(
+    ("extra", "pattern"),
+    [
+        (["--exclude-sic", "60-x"], "exclude_sic must be comma-separated"),
+        (["--forms", "10-Q"], "forms must be among"),
+        (["--prices", "missing-prices.csv"], "price file must be a readable CSV"),
+    ],
+)
+def test_cli_import_sec_bad_options_are_one_line(tmp_path: Path, extra: list[str],
+                                                 pattern: str) -> None:
+    result = _invoke(["import-sec", str(CURRENT), "--out", str(tmp_path / "p.csv"), *extra])
+    _one_line_error(result, pattern)
+    assert not (tmp_path / "p.csv").exists()
+
+
+def test_cli_import_sec_bad_inputs_are_one_line(tmp_path: Path) -> None:
+    (tmp_path / "q").mkdir()
+    (tmp_path / "q" / "sub.txt").write_bytes((CURRENT / "sub.txt").read_bytes())
+    _one_line_error(_invoke(["import-sec", str(tmp_path / "q"), "--out",
+                             str(tmp_path / "p.csv")]), "must hold num.txt")
+    _one_line_error(_invoke(["import-sec", str(CURRENT), "--out", str(tmp_path / "p.xlsx")]),
+                    "out must end in .csv or .parquet")
+
+
+def _one_line_error(result: Any, pattern: str) -> None:
+    assert result.exit_code == 2, result.output
+    assert "Traceback" not in result.output
+    lines = [ln for ln in result.output.strip().splitlines() if ln.strip()]
+    assert len(lines) == 1 and lines[0].startswith("levgap: error:"), result.output
+    assert pattern in lines[0], result.output
