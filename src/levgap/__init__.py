@@ -25,6 +25,7 @@ except PackageNotFoundError:  # running from a source tree without installation
 _EXPORTS = {
     "read_panel": "levgap.ingest",
     "validate_panel": "levgap.ingest",
+    "import_sec": "levgap.ingest.sec",
     "analyze": "levgap.pipeline",
     "Analysis": "levgap.pipeline",
     "Panel": "levgap.panel",
