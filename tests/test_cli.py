@@ -220,3 +220,25 @@ def test_check_without_usable_rows_and_demo_into_a_file(tmp_path: Path) -> None:
     blocker = tmp_path / "file.csv"
     blocker.write_text("x")
     _one_line_error(runner.invoke(app, ["demo", "--out", str(blocker)]), "must be a folder")
+
+
+@pytest.mark.parametrize("args", [["screen", "{out}", "--top", "2"], ["template", "--out", "{tmp}"],
+                                  ["--version"], ["--help"]])
+def test_quick_commands_do_not_import_heavy_libraries(args: list[str], out_dir: Path,
+                                                      tmp_path: Path) -> None:
+    import subprocess
+    import sys
+
+    fill = {"out": str(out_dir), "tmp": str(tmp_path / "t")}
+    code = (
+        "import sys\n"
+        "from levgap.cli import main\n"
+        f"sys.argv = ['levgap', *{[a.format(**fill) for a in args]!r}]\n"
+        "try:\n    main()\nexcept SystemExit as e:\n    assert not e.code, e.code\n"
+        "heavy = [m for m in ('pandas', 'statsmodels', 'scipy', 'matplotlib', 'sklearn')"
+        " if m in sys.modules]\n"
+        "print('HEAVY', heavy)\n"
+    )
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert "HEAVY []" in run.stdout, run.stdout + run.stderr

@@ -195,7 +195,8 @@ def test_cli_report_rebuilds_and_records_the_file(tmp_path, outputs):
     from typer.testing import CliRunner
 
     from levgap.cli import app
-    from levgap.report.tables import MARKER, write_tables
+    from levgap.report.files import MARKER
+    from levgap.report.tables import write_tables
 
     tables, manifest = outputs
     out = tmp_path / "run"

@@ -11,12 +11,12 @@ from levgap.config import RunConfig
 from levgap.errors import OutputError
 from levgap.ingest import FLAGS, REASONS, read_panel
 from levgap.ingest.template import TEMPLATE_FILES, template_files
-from levgap.report.tables import write_template
+from levgap.report.files import write_template
 from levgap.schema import BY_NAME, COLUMNS, KEY, MONEY, NUMERIC, OPTIONAL, REQUIRED
 
 TEMPLATES = Path(__file__).resolve().parents[1] / "data_templates"
 REGENERATE = (
-    "regenerate with: python -c \"from levgap.report.tables import write_template; "
+    "regenerate with: python -c \"from levgap.report.files import write_template; "
     "write_template('data_templates', force=True)\""
 )
 

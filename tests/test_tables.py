@@ -10,7 +10,8 @@ import pandas as pd
 import pytest
 
 from levgap.errors import OutputError
-from levgap.report.tables import MARKER, neutralise, read_outputs, write_tables
+from levgap.report.files import MARKER
+from levgap.report.tables import neutralise, read_outputs, write_tables
 
 NASTY = ["=HYPERLINK(\"http://x\",\"y\")", "@SUM(A1)", "+cmd|' /C calc'!A0", "-5 notes",
          "\tTab", "\rCR", "Plain", ""]

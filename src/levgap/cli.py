@@ -219,16 +219,17 @@ def _print_run(result: Any, out: Path, top: int) -> None:
     latest = t[t["fiscal_year"] == t["fiscal_year"].max()]
     for measure in latest["measure"].unique():
         m = latest[latest["measure"] == measure]
-        con.print(_screen_table(m.sort_values("gap", ascending=False).head(top),
-                                f"Most over-levered ({measure}, {int(m['fiscal_year'].max())})"))
-        con.print(_screen_table(m.sort_values("gap").head(top),
-                                f"Most under-levered ({measure}, {int(m['fiscal_year'].max())})"))
+        year = int(m["fiscal_year"].max())
+        over = m.sort_values("gap", ascending=False).head(top).to_dict(orient="records")
+        under = m.sort_values("gap").head(top).to_dict(orient="records")
+        con.print(_screen_table(over, f"Most over-levered ({measure}, {year})"))
+        con.print(_screen_table(under, f"Most under-levered ({measure}, {year})"))
     con.print(f"Outputs written to {out}/ (targets, drivers, coefficients, model_fit, "
               "exclusions, run.json, report.html).")
     con.print("levgap is a statistical peer benchmark, not investment, credit or legal advice.")
 
 
-def _screen_table(rows: pd.DataFrame, title: str) -> Any:
+def _screen_table(rows: list[dict[str, Any]], title: str) -> Any:
     from rich.table import Table
 
     table = Table(title=title, title_justify="left")
@@ -237,12 +238,13 @@ def _screen_table(rows: pd.DataFrame, title: str) -> Any:
                       ("gap pp", "right"), ("gap z", "right"), ("band", "right"),
                       ("status", "left")):
         table.add_column(col, justify=just)  # type: ignore[arg-type]
-    for r in rows.itertuples():
+    for r in rows:
+        z = r["gap_z"]
         table.add_row(
-            str(r.firm_id), str(r.firm_name), str(r.industry), str(r.fiscal_year),
-            f"{r.actual:.1%}", f"{r.target:.1%}", f"{100 * r.gap:+.1f}",
-            "" if r.gap_z != r.gap_z else f"{r.gap_z:+.2f}",
-            f"{r.band_low:.1%} to {r.band_high:.1%}", str(r.status),
+            str(r["firm_id"]), str(r["firm_name"] or ""), str(r["industry"]),
+            str(r["fiscal_year"]), f"{r['actual']:.1%}", f"{r['target']:.1%}",
+            f"{100 * r['gap']:+.1f}", "" if z is None or z != z else f"{z:+.2f}",
+            f"{r['band_low']:.1%} to {r['band_high']:.1%}", str(r["status"]),
         )
     return table
 
@@ -274,7 +276,7 @@ def demo(
 
 
 def _previous_outputs(out: Path) -> list[str]:
-    from levgap.report.tables import MARKER
+    from levgap.report.files import MARKER
 
     marker = out / MARKER
     return marker.read_text(encoding="utf-8").split() if marker.is_file() else []
@@ -339,37 +341,23 @@ def screen(
     Example: levgap screen results/ --status over --top 10
     """
     with _guard():
-        from levgap.report.tables import read_outputs
+        from levgap.report.quick import read_targets, screen_rows
 
         if status is not None and status not in ("over", "under", "within"):
             raise typer.BadParameter(f"must be over, under or within; got {status!r}.",
                                      param_hint="--status")
-        tables, _ = read_outputs(out_dir, names=["targets"])
-        if "targets" not in tables:
-            raise typer.BadParameter(f"{out_dir} holds no targets table.", param_hint="DIR")
-        t = tables["targets"]
-        t = t[t["measure"] == measure]
-        if t.empty:
+        table = read_targets(out_dir)
+        rows, matched, yr = screen_rows(table, measure=measure, status=status,
+                                        industry=industry, year=year, top=top)
+        if yr is None:
             raise typer.BadParameter(f"no {measure} leverage rows in {out_dir}.",
                                      param_hint="--measure")
-        yr = int(t["fiscal_year"].max()) if year is None else year
-        t = t[t["fiscal_year"] == yr]
-        if industry is not None:
-            t = t[_matches(t["industry"], industry)]
-        if status is not None:
-            t = t[t["status"] == status]
-        if status == "under":
-            t = t.sort_values("gap")
-        elif status == "over":
-            t = t.sort_values("gap", ascending=False)
-        else:
-            t = t.reindex(t["gap_z"].abs().sort_values(ascending=False).index)
-        if t.empty:
+        if not rows:
             typer.echo("No firm matches those filters.")
             return
-        title = f"{measure} leverage, fiscal {yr}: {len(t)} firms" + (
+        title = f"{measure} leverage, fiscal {yr}: {matched} firms" + (
             f" {status}" if status else "")
-        _console().print(_screen_table(t.head(top), title))
+        _console().print(_screen_table(rows, title))
 
 
 @app.command()
@@ -559,7 +547,7 @@ def template(
     Example: levgap template --out my-panel/
     """
     with _guard():
-        from levgap.report.tables import write_template
+        from levgap.report.files import write_template
 
         for path in write_template(out):
             typer.echo(f"wrote {path}")

@@ -27,23 +27,12 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from levgap.codes import ANALYSIS_FLAGS, ANALYSIS_REASONS
 from levgap.config import ModelSpec
 from levgap.errors import ModelError
 
-FLAGS: dict[str, str] = {
-    "volatility_imputed": "fewer than three fiscal years of profitability in the trailing "
-    "five-year window: earnings_volatility is the industry-year median",
-    "mtb_imputed": "no market equity: market_to_book is the industry-year median",
-    "industry_effect_borrowed": "the industry has fewer than [model] min_industry_firms firms "
-    "and takes its parent group's average effect (run.json names the group)",
-    "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
-}
-"""Flags the analysis adds to kept rows (beside those of validation)."""
-
-REASONS: dict[str, str] = {
-    "no_prior_year": "lag_drivers is on and the firm has no row for the previous fiscal year",
-}
-"""Reason codes of rows the analysis leaves out of every measure."""
+FLAGS = ANALYSIS_FLAGS
+REASONS = ANALYSIS_REASONS
 
 VOL_WINDOW = 5
 VOL_MIN_OBS = 3

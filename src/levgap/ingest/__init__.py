@@ -6,12 +6,32 @@
 
 from __future__ import annotations
 
+from importlib import import_module
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
-from levgap.config import RunConfig
-from levgap.ingest.readers import RawTable, read_table
-from levgap.ingest.validate import FLAGS, REASONS, resolve_columns, validate_panel
-from levgap.panel import Panel
+from levgap.codes import FLAGS, REASONS
+
+if TYPE_CHECKING:
+    from levgap.config import RunConfig
+    from levgap.ingest.readers import RawTable, read_table
+    from levgap.ingest.validate import resolve_columns, validate_panel
+    from levgap.panel import Panel
+
+# Readers and validation need pandas; they load on first use so that importing a pandas-free
+# module of this package (the template) stays quick.
+_LAZY = {
+    "RawTable": "levgap.ingest.readers",
+    "read_table": "levgap.ingest.readers",
+    "resolve_columns": "levgap.ingest.validate",
+    "validate_panel": "levgap.ingest.validate",
+}
+
+
+def __getattr__(name: str) -> Any:
+    if name in _LAZY:
+        return getattr(import_module(_LAZY[name]), name)
+    raise AttributeError(f"module 'levgap.ingest' has no attribute {name!r}")
 
 __all__ = [
     "FLAGS",
@@ -62,6 +82,10 @@ def read_panel(path: str | Path, *, config: RunConfig | None = None) -> Panel:
     >>> panel = read_panel("panel.csv")  # doctest: +SKIP
     >>> panel.data.head(), panel.exclusions  # doctest: +SKIP
     """
+    from levgap.config import RunConfig
+    from levgap.ingest.readers import read_table
+    from levgap.ingest.validate import validate_panel
+
     config = config or RunConfig()
     raw = read_table(path, config.input)
     return validate_panel(

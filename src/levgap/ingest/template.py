@@ -1,6 +1,6 @@
 """The input template, generated from ``schema.py``: a CSV, its README and an example run.toml.
 
-``levgap template`` writes these three files (``levgap.report.tables.write_template``); the
+``levgap template`` writes these three files (``levgap.report.files.write_template``); the
 repository's ``data_templates/`` holds the same text and a test keeps the two identical, so
 the documentation cannot drift from the schema the reader enforces.
 """
@@ -10,7 +10,7 @@ from __future__ import annotations
 import csv
 import io
 
-from levgap.ingest.validate import FLAGS, NA_TOKENS, REASONS, YEAR_RANGE
+from levgap.codes import ANALYSIS_FLAGS, ANALYSIS_REASONS, FLAGS, NA_TOKENS, REASONS, YEAR_RANGE
 from levgap.schema import COLUMNS, SCHEMA_VERSION, Column
 
 TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml")
@@ -76,9 +76,6 @@ def template_readme() -> str:
         f"{_minimum(c) if c.kind != 'text' else '-'} | {c.meaning} |"
         for c in COLUMNS
     )
-    from levgap.features import FLAGS as ANALYSIS_FLAGS
-    from levgap.features import REASONS as ANALYSIS_REASONS
-
     reasons = "\n".join(f"| `{k}` | {v} |" for k, v in {**REASONS, **ANALYSIS_REASONS}.items())
     flags = "\n".join(f"| `{k}` | {v} |" for k, v in {**FLAGS, **ANALYSIS_FLAGS}.items())
     blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"

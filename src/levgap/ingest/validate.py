@@ -20,48 +20,11 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from levgap.codes import FLAGS, NA_TOKENS, YEAR_RANGE
 from levgap.config import InputOptions, RunConfig
 from levgap.errors import SchemaError, warn_data
 from levgap.panel import EXCLUSION_COLUMNS, Panel
 from levgap.schema import BY_NAME, COLUMNS, KEY, NUMERIC, REQUIRED
-
-REASONS: dict[str, str] = {
-    "non_numeric": "a required number (or fx_rate) holds text that is not a number",
-    "missing_value": "a required value is blank (or fx_rate is blank where several "
-    "currencies appear)",
-    "bad_fiscal_year": "fiscal_year is not a whole number between 1800 and 2200",
-    "bad_fx_rate": "fx_rate is zero or negative",
-    "assets_not_positive": "total_assets is zero or negative",
-    "negative_debt": "total_debt is negative",
-    "negative_ppe": "ppe_net is negative",
-    "debt_above_assets": "total_debt is larger than total_assets",
-    "ppe_above_assets": "ppe_net is larger than total_assets",
-    "ebitda_above_assets": "the absolute value of ebitda is larger than total_assets",
-    "duplicate_row": "an exact copy of an earlier row (the first copy is kept)",
-    "conflicting_duplicate": "the same firm_id and fiscal_year appear in several rows that "
-    "differ; every copy is left out",
-}
-"""Reason codes of whole-row exclusions, in the order they are tested (a row gets the first)."""
-
-FLAGS: dict[str, str] = {
-    "negative_book_equity": "book_equity is negative; the row is kept",
-    "market_equity_from_shares": "market_equity was blank and is shares_outstanding * "
-    "share_price",
-    "no_market_equity": "no usable market_equity (nor shares and price); the row gets a book "
-    "target only and a ledger line for the market measure",
-    **{
-        f"invalid_{c.name}": f"{c.name} was not a number or below its minimum and is treated "
-        "as missing"
-        for c in COLUMNS
-        if not c.required and c.kind == "number" and c.name != "fx_rate"  # fx_rate excludes
-    },
-}
-"""Flags of kept rows, written ``;``-joined into the ``flags`` column."""
-
-NA_TOKENS: tuple[str, ...] = ("", "na", "n/a", "#n/a", "nan", "null", "none", "-", "--", ".")
-"""Cell texts (compared without case and surrounding spaces) read as a blank value."""
-
-YEAR_RANGE: tuple[int, int] = (1800, 2200)
 
 _TEXT = tuple(c.name for c in COLUMNS if c.kind == "text")
 _NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"

@@ -22,7 +22,7 @@ from typing import Any
 import pandas as pd
 
 from levgap.errors import OutputError
-from levgap.report.tables import atomic_file, register_outputs
+from levgap.report.files import atomic_file, register_outputs
 
 REPORT_NAME = "report.html"
 CAUTION = (

@@ -90,8 +90,9 @@ def write_workbook(
     """
     from openpyxl import Workbook
 
+    from levgap.report.files import atomic_file
     from levgap.report.html import _check_tables
-    from levgap.report.tables import atomic_file, neutralise
+    from levgap.report.tables import neutralise
 
     _check_tables(tables)
     wb = Workbook(write_only=True)

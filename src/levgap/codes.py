@@ -1,0 +1,64 @@
+"""Reason codes, flags and reading constants as data (no pandas: the quick commands use them).
+
+Validation (``levgap.ingest.validate``) and the analysis (``levgap.features``,
+``levgap.pipeline``) write these codes; the template README lists them from here.
+"""
+
+from __future__ import annotations
+
+from levgap.schema import COLUMNS
+
+REASONS: dict[str, str] = {
+    "non_numeric": "a required number (or fx_rate) holds text that is not a number",
+    "missing_value": "a required value is blank (or fx_rate is blank where several "
+    "currencies appear)",
+    "bad_fiscal_year": "fiscal_year is not a whole number between 1800 and 2200",
+    "bad_fx_rate": "fx_rate is zero or negative",
+    "assets_not_positive": "total_assets is zero or negative",
+    "negative_debt": "total_debt is negative",
+    "negative_ppe": "ppe_net is negative",
+    "debt_above_assets": "total_debt is larger than total_assets",
+    "ppe_above_assets": "ppe_net is larger than total_assets",
+    "ebitda_above_assets": "the absolute value of ebitda is larger than total_assets",
+    "duplicate_row": "an exact copy of an earlier row (the first copy is kept)",
+    "conflicting_duplicate": "the same firm_id and fiscal_year appear in several rows that "
+    "differ; every copy is left out",
+}
+"""Reason codes of whole-row exclusions, in the order they are tested (a row gets the first)."""
+
+FLAGS: dict[str, str] = {
+    "negative_book_equity": "book_equity is negative; the row is kept",
+    "market_equity_from_shares": "market_equity was blank and is shares_outstanding * "
+    "share_price",
+    "no_market_equity": "no usable market_equity (nor shares and price); the row gets a book "
+    "target only and a ledger line for the market measure",
+    **{
+        f"invalid_{c.name}": f"{c.name} was not a number or below its minimum and is treated "
+        "as missing"
+        for c in COLUMNS
+        if not c.required and c.kind == "number" and c.name != "fx_rate"  # fx_rate excludes
+    },
+}
+"""Flags of kept rows, written ``;``-joined into the ``flags`` column."""
+
+NA_TOKENS: tuple[str, ...] = ("", "na", "n/a", "#n/a", "nan", "null", "none", "-", "--", ".")
+"""Cell texts (compared without case and surrounding spaces) read as a blank value."""
+
+YEAR_RANGE: tuple[int, int] = (1800, 2200)
+
+
+ANALYSIS_FLAGS: dict[str, str] = {
+    "volatility_imputed": "fewer than three fiscal years of profitability in the trailing "
+    "five-year window: earnings_volatility is the industry-year median",
+    "mtb_imputed": "no market equity: market_to_book is the industry-year median",
+    "industry_effect_borrowed": "the industry has fewer than [model] min_industry_firms firms "
+    "and takes its parent group's average effect (run.json names the group)",
+    "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
+}
+"""Flags the analysis adds to kept rows (beside those of validation)."""
+
+ANALYSIS_REASONS: dict[str, str] = {
+    "no_prior_year": "lag_drivers is on and the firm has no row for the previous fiscal year",
+}
+"""Reason codes of rows the analysis leaves out of every measure."""
+
