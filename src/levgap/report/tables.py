@@ -65,7 +65,7 @@ def neutralise(frame: pd.DataFrame) -> pd.DataFrame:
     >>> neutralise(pd.DataFrame({"name": ["=1+1", "ok"]}))["name"].tolist()
     ["'=1+1", 'ok']
     """
-    out = frame.copy()
+    out = frame.copy(deep=False)  # columns are replaced, never changed in place
     for col in out.columns:
         s = out[col]
         if isinstance(s.dtype, pd.StringDtype):
