@@ -176,9 +176,20 @@ from levgap.ingest.sec import import_sec
 result = import_sec([sys.argv[1]])
 seconds = time.perf_counter() - t0
 p = result.panel
+# VmHWM belongs to this process image; ru_maxrss would carry over the high-water mark of the
+# parent at fork (the parent may just have built the quarter in memory)
+def peak_kb():
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return float(line.split()[1])
+    except OSError:
+        pass
+    return float(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 print(json.dumps({
     "seconds": seconds,
-    "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0,
+    "peak_rss_mb": peak_kb() / 1024.0,
     "panel_rows": int(len(p)),
     "assets_share": float(p["total_assets"].notna().mean()) if len(p) else 0.0,
     "source_rows": int(len(result.sources)),

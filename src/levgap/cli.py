@@ -161,19 +161,27 @@ def _run_analysis(
             _console(stderr=True).print(f"note: {note}")
     show = not quiet and len(panel.data) >= BIG_PANEL
     with _progress_bar(show) as bar:
-        tasks: dict[str, Any] = {}
-
-        def step(stage: str, done: int, total: int) -> None:
-            if bar is None:
-                return
-            if stage not in tasks:
-                tasks[stage] = bar.add_task(stage, total=total)
-            bar.update(tasks[stage], completed=done)
-
-        result = analyze(panel, config=config, progress=step)
+        result = analyze(panel, config=config, progress=_stepper(bar))
+    # The bar's refresh thread would compete with the writers for the interpreter: it is
+    # shown again only while the report renders.
+    with _progress_bar(show and report) as bar:
         written = result.write(out, fmt=fmt, force=force, report=report, xlsx=xlsx,
-                               inputs=(str(panel_path),), progress=step)
+                               inputs=(str(panel_path),), progress=_stepper(bar))
     return result, written
+
+
+def _stepper(bar: Any) -> Any:
+    """A ``progress(stage, done, total)`` callback drawing on ``bar`` (None: no callback)."""
+    if bar is None:
+        return None
+    tasks: dict[str, Any] = {}
+
+    def step(stage: str, done: int, total: int) -> None:
+        if stage not in tasks:
+            tasks[stage] = bar.add_task(stage, total=total)
+        bar.update(tasks[stage], completed=done)
+
+    return step
 
 
 def _summary(result: Any, out: Path) -> dict[str, Any]:
