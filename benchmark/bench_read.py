@@ -28,6 +28,9 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.csv as pacsv
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from peak_memory import child_prelude  # noqa: E402
+
 HERE = Path(__file__).resolve().parent
 DATA = HERE / "data"
 GOAL_RSS_MB = 2048.0
@@ -37,18 +40,6 @@ CHILD = """
 import json, resource, sys, time, warnings
 import levgap.ingest
 from levgap.errors import DataWarning
-
-def peak_kb():
-    # VmHWM belongs to this process image; ru_maxrss would carry the high-water mark of the
-    # process this one was forked from
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return float(line.split()[1])
-    except OSError:
-        pass
-    return float(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 
 base = peak_kb()
 t0 = time.perf_counter()
@@ -174,7 +165,8 @@ def run(n_rows: int = 1_000_000, *, rebuild: bool = False) -> dict[str, Any]:
     else:
         build = 0.0
     proc = subprocess.run(
-        [sys.executable, "-c", CHILD, str(path)], capture_output=True, text=True, check=False
+        [sys.executable, "-c", child_prelude() + CHILD, str(path)],
+        capture_output=True, text=True, check=False,
     )
     if proc.returncode != 0:
         raise RuntimeError(f"read_panel failed on {path}: {proc.stderr.strip()[-2000:]}")

@@ -30,6 +30,9 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.csv as pacsv
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from peak_memory import child_prelude  # noqa: E402
+
 HERE = Path(__file__).resolve().parent
 DATA = HERE / "data"
 GOAL_RSS_MB = 1536.0
@@ -176,17 +179,6 @@ from levgap.ingest.sec import import_sec
 result = import_sec([sys.argv[1]])
 seconds = time.perf_counter() - t0
 p = result.panel
-# VmHWM belongs to this process image; ru_maxrss would carry over the high-water mark of the
-# parent at fork (the parent may just have built the quarter in memory)
-def peak_kb():
-    try:
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return float(line.split()[1])
-    except OSError:
-        pass
-    return float(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 print(json.dumps({
     "seconds": seconds,
     "peak_rss_mb": peak_kb() / 1024.0,
@@ -221,8 +213,8 @@ def run(facts: int = FACTS, *, rebuild: bool = False, data_dir: Path = DATA) -> 
     build_seconds = time.perf_counter() - t0
     with zipfile.ZipFile(path) as zf:
         num_mb = zf.getinfo("num.txt").file_size / 2**20
-    proc = subprocess.run([sys.executable, "-c", _CHILD, str(path)], capture_output=True,
-                          text=True, check=False)
+    proc = subprocess.run([sys.executable, "-c", child_prelude() + _CHILD, str(path)],
+                          capture_output=True, text=True, check=False)
     if proc.returncode != 0:
         raise RuntimeError(f"the import subprocess failed:\n{proc.stderr[-2000:]}")
     child = json.loads(proc.stdout.strip().splitlines()[-1])
