@@ -8,10 +8,11 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from levgap.analysis import COEF_COLUMNS, DRIVER_COLUMNS, FIT_COLUMNS, TARGET_COLUMNS
 from levgap.config import ModelSpec, RunConfig
 from levgap.demo import TRUE_COEFFICIENTS, make_panel, planted_shocks
 from levgap.errors import ConfigError, ModelError
-from levgap.pipeline import COEF_COLUMNS, DRIVER_COLUMNS, FIT_COLUMNS, TARGET_COLUMNS, analyze
+from levgap.pipeline import analyze
 
 
 @pytest.fixture(scope="module")

@@ -27,7 +27,7 @@ _EXPORTS = {
     "validate_panel": "levgap.ingest",
     "import_sec": "levgap.ingest.sec",
     "analyze": "levgap.pipeline",
-    "Analysis": "levgap.pipeline",
+    "Analysis": "levgap.analysis",
     "Panel": "levgap.panel",
     "RunConfig": "levgap.config",
     "ModelSpec": "levgap.config",

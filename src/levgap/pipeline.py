@@ -2,142 +2,31 @@
 
 from __future__ import annotations
 
-import hashlib
-import json
-import platform
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field, replace
-from importlib.metadata import PackageNotFoundError, version
-from pathlib import Path
+from collections.abc import Sequence
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from levgap.analysis import (
+    COEF_COLUMNS,
+    FIT_COLUMNS,
+    TARGET_COLUMNS,
+    Analysis,
+    ProgressFn,
+)
 from levgap.attribution import attribute_gap, peer_profile
 from levgap.config import ModelSpec, RunConfig
 from levgap.errors import ConfigError, ModelError
-from levgap.features import POOLED, Features, build_features
+from levgap.features import Features, build_features
+from levgap.manifest import build_manifest
 from levgap.models import MODELS
 from levgap.models.crossfit import assign_folds, crossfit_targets
 from levgap.models.linear import Borrow
 from levgap.panel import EXCLUSION_COLUMNS, Panel
-from levgap.schema import SCHEMA_VERSION
 
-ProgressFn = Callable[[str, int, int], None]
-
-TARGET_COLUMNS = (
-    "firm_id", "firm_name", "fiscal_year", "industry", "measure", "actual", "target", "gap",
-    "gap_z", "band_low", "band_high", "status", "peer_median", "peer_count", "peer_target",
-    "debt_to_target", "flags",
-)
-DRIVER_COLUMNS = (
-    "firm_id", "fiscal_year", "measure", "driver", "firm_value", "peer_value", "contribution"
-)
-COEF_COLUMNS = (
-    "measure", "model", "term", "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high"
-)
-FIT_COLUMNS = (
-    "measure", "model", "n_obs", "n_firms", "n_industries", "r2", "r2_oos", "rmse_oos"
-)
 MAD_TO_SD = 1.4826  # scale of the median absolute deviation under normality (common practice)
-
-
-@dataclass(frozen=True, slots=True)
-class Analysis:
-    """Everything one run of levgap produces; every output table is built from these frames.
-
-    Parameters
-    ----------
-    targets : pandas.DataFrame
-        One row per firm-year and measure (columns ``TARGET_COLUMNS``).
-    drivers : pandas.DataFrame
-        One row per firm-year, measure and driver (``DRIVER_COLUMNS``).
-    coefficients : pandas.DataFrame
-        One row per measure, model and driver (``COEF_COLUMNS``), from the full-sample fit.
-    model_fit : pandas.DataFrame
-        One row per measure and model (``FIT_COLUMNS``).
-    exclusions : pandas.DataFrame
-        The ledger of rows left out of every measure (``measure`` empty) or of one measure.
-    manifest : dict
-        The run record written as ``run.json``.
-    """
-
-    targets: pd.DataFrame
-    drivers: pd.DataFrame
-    coefficients: pd.DataFrame
-    model_fit: pd.DataFrame
-    exclusions: pd.DataFrame
-    manifest: dict[str, Any] = field(default_factory=dict)
-
-    def tables(self) -> dict[str, pd.DataFrame]:
-        """The contract's tables by file stem."""
-        return {
-            "targets": self.targets,
-            "drivers": self.drivers,
-            "coefficients": self.coefficients,
-            "model_fit": self.model_fit,
-            "exclusions": self.exclusions,
-        }
-
-    def tidy(self) -> pd.DataFrame:
-        """The targets table, from which screens and charts are built."""
-        return self.targets
-
-    def write(
-        self,
-        out_dir: str | Path,
-        *,
-        fmt: str = "csv",
-        force: bool = False,
-        report: bool = True,
-        xlsx: bool = False,
-        inputs: tuple[str, ...] = (),
-        progress: ProgressFn | None = None,
-    ) -> list[Path]:
-        """Write the output contract (and the HTML report, and a workbook on request).
-
-        Parameters
-        ----------
-        out_dir : str or Path
-            Output folder; created if absent. A folder holding files levgap did not write is
-            refused unless ``force``.
-        fmt : {"csv", "parquet"}, default="csv"
-        force : bool, default=False
-        report : bool, default=True
-            Also write ``report.html``.
-        xlsx : bool, default=False
-            Also write ``workbook.xlsx``.
-        inputs : tuple of str, default=()
-            Input files that must never be overwritten.
-        progress : callable, optional
-            ``progress(stage, done, total)`` while the report renders.
-        """
-        from levgap.report.tables import write_tables
-
-        out = Path(out_dir)
-        sources = list(inputs or [i["path"] for i in self.manifest.get("inputs", [])])
-        also = [Path(s).name for s in sources if Path(s).parent.resolve() == out.resolve()]
-        also += ["report.html"] if report else []
-        also += ["workbook.xlsx"] if xlsx else []
-        written = write_tables(self.tables(), self.manifest, out, fmt=fmt, force=force,
-                               inputs=sources, also=also)
-        if report:
-            from levgap.report.html import write_report
-
-            written.append(write_report(self.tables(), self.manifest, out_dir,
-                                        progress=progress))
-        if xlsx:
-            from levgap.report.workbook import write_workbook
-
-            path = Path(out_dir) / "workbook.xlsx"
-            write_workbook(self.tables(), self.manifest, path)
-            written.append(path)
-        return written
-
-    def _repr_html_(self) -> str:
-        head = self.model_fit.to_html(index=False, float_format=lambda v: f"{v:.4f}")
-        return f"<p>levgap analysis: {len(self.targets)} target rows</p>{head}"
 
 
 def analyze(
@@ -304,7 +193,7 @@ def analyze(
     targets_df = _targets_frame(frame, targets)
     drivers_df = _drivers_frame(frame, drivers, feats.drivers)
     exclusions = _concat_ledger(ledger)
-    manifest = _manifest(panel, config, feats, frame, exclusions, warnings)
+    manifest = build_manifest(panel, config, feats, frame, exclusions, warnings)
     return Analysis(
         targets=targets_df,
         drivers=drivers_df,
@@ -483,76 +372,3 @@ def _coef_frame(fit: Any, measure: str, model: str) -> pd.DataFrame:
     return df.reset_index(drop=True)[list(COEF_COLUMNS)]
 
 
-def _manifest(
-    panel: Panel,
-    config: RunConfig,
-    feats: Features,
-    frame: pd.DataFrame,
-    exclusions: pd.DataFrame,
-    warnings: list[str],
-) -> dict[str, Any]:
-    whole = exclusions[exclusions["measure"] == ""]
-    by_reason = whole["reason"].value_counts().sort_index()
-    by_measure = exclusions[exclusions["measure"] != ""].groupby(
-        ["measure", "reason"]).size()
-    versions = {}
-    for pkg in ("levgap", "numpy", "pandas", "scipy", "statsmodels", "pyarrow"):
-        try:
-            versions[pkg] = version(pkg)
-        except PackageNotFoundError:
-            versions[pkg] = None
-    versions["python"] = platform.python_version()
-    borrowed = [
-        {
-            "industry": r["industry"],
-            "firms": int(r["firms"]),
-            "borrowed_from": "whole sample" if r["borrowed_from"] == POOLED
-            else f"industries with code prefix {r['borrowed_from'][:-1]}",
-            "members": r["members"].split(";"),
-        }
-        for _, r in feats.borrowed.iterrows()
-    ]
-    return {
-        "levgap_version": versions["levgap"],
-        "schema_version": SCHEMA_VERSION,
-        "inputs": [{"path": panel.source, "sha256": panel.sha256, "rows": panel.n_input_rows}]
-        + ([{"path": config.source, "sha256": digest(config.source), "role": "run configuration"}]
-           if config.source and Path(config.source).is_file() else []),
-        "options": config.to_dict(),
-        "drivers": list(feats.drivers),
-        "versions": versions,
-        "counts": {
-            "rows_in": int(panel.n_input_rows or (len(frame) + len(whole))),
-            "rows_used": int(len(frame)),
-            "rows_excluded": int(len(whole)),
-            "firms": int(frame["firm_id"].nunique()),
-            "industries": int(frame["industry"].nunique()),
-            "years": sorted(int(y) for y in frame["fiscal_year"].unique()),
-            "by_reason": {str(k): int(v) for k, v in by_reason.items()},
-            "measure_omissions": {f"{m}:{r}": int(v) for (m, r), v in by_measure.items()},
-        },
-        "borrowed_industries": borrowed,
-        "standard_errors": {
-            "cluster": config.model.cluster,
-            "convention": "Stata-style small-sample factor G/(G-1)*(N-1)/(N-P) for each "
-            "clustering dimension; two-way = V_firm + V_year - V_firm-year, each with its own "
-            "factor (the convention of Petersen's published figures)",
-        },
-        "band": {"coverage": config.model.coverage,
-                 "method": "empirical quantiles of the cross-fitted residuals"},
-        "warnings": list(warnings),
-    }
-
-
-def digest(path: str | Path) -> str:
-    """SHA-256 of a file, for the run record."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
-
-
-def dumps_manifest(manifest: dict[str, Any]) -> str:
-    """The run record as JSON text."""
-    return json.dumps(manifest, indent=2, default=str)

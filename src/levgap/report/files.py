@@ -48,6 +48,18 @@ def atomic_file(path: str | Path) -> Iterator[Path]:
             tmp.unlink()
 
 
+def atomic_write_bytes(path: str | Path, data: bytes) -> None:
+    """Write ``data`` to ``path`` through :func:`atomic_file`.
+
+    Raises
+    ------
+    OutputError
+        If the folder cannot be created or the file cannot be written.
+    """
+    with atomic_file(path) as tmp:
+        tmp.write_bytes(data)
+
+
 def register_outputs(out_dir: str | Path, names: Iterable[str]) -> None:
     """Add ``names`` to the folder's output marker, so a later run accepts them as levgap's."""
     out = Path(out_dir)

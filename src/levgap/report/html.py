@@ -22,7 +22,7 @@ from typing import Any
 import pandas as pd
 
 from levgap.errors import OutputError
-from levgap.report.files import atomic_file, register_outputs
+from levgap.report.files import atomic_write_bytes, register_outputs
 
 REPORT_NAME = "report.html"
 CAUTION = (
@@ -51,18 +51,6 @@ class ReportOptions:
     top: int = 10
     step_firms: int = 3
     max_points: int = 4000
-
-
-def atomic_write_bytes(path: str | Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` through a temporary file in the same folder and a rename.
-
-    Raises
-    ------
-    OutputError
-        If the folder cannot be created or the file cannot be written.
-    """
-    with atomic_file(path) as tmp:
-        tmp.write_bytes(data)
 
 
 def write_report(

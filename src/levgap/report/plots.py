@@ -172,7 +172,7 @@ def plot_steps(steps: pd.DataFrame, path: str | Path, *, title: str | None = Non
     ConfigError
         If the suffix is neither ``.png`` nor ``.svg``.
     """
-    from levgap.report.html import atomic_write_bytes
+    from levgap.report.files import atomic_write_bytes
 
     p = Path(path)
     fmt = _PLOT_FORMATS.get(p.suffix.lower())

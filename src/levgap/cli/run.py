@@ -1,0 +1,247 @@
+"""Commands that read a panel: ``demo``, ``analyze``, ``check``, ``template``."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import typer
+
+from levgap.cli.app import app
+from levgap.cli.common import (
+    BIG_PANEL,
+    collect_notes,
+    console,
+    err,
+    guard,
+    load_config,
+    merge_notes,
+    parse_measures,
+    progress_bar,
+    screen_table,
+    stepper,
+)
+
+if TYPE_CHECKING:
+    from levgap.config import RunConfig
+
+def _run_analysis(
+    panel_path: Path,
+    out: Path,
+    *,
+    config: RunConfig,
+    fmt: str,
+    force: bool,
+    xlsx: bool,
+    report: bool,
+    quiet: bool,
+) -> tuple[Any, list[Path]]:
+    from levgap.ingest import read_panel
+    from levgap.pipeline import analyze
+
+    notes: list[str] = []
+    with collect_notes(notes):
+        panel = read_panel(panel_path, config=config)
+    if not quiet:
+        for note in merge_notes(panel.warnings, notes):
+            console(stderr=True).print(f"note: {note}")
+    show = not quiet and len(panel.data) >= BIG_PANEL
+    with progress_bar(show) as bar:
+        result = analyze(panel, config=config, progress=stepper(bar))
+    # The bar's refresh thread would compete with the writers for the interpreter: it is
+    # shown again only while the report renders.
+    with progress_bar(show and report) as bar:
+        written = result.write(out, fmt=fmt, force=force, report=report, xlsx=xlsx,
+                               inputs=(str(panel_path),), progress=stepper(bar))
+    return result, written
+
+
+
+def _summary(result: Any, out: Path) -> dict[str, Any]:
+    counts = result.manifest["counts"]
+    fits = result.model_fit.to_dict(orient="records")
+    status = (
+        result.targets.groupby(["measure", "status"]).size().unstack(fill_value=0).to_dict(
+            orient="index")
+    )
+    return {
+        "out": str(out),
+        "rows_in": counts["rows_in"],
+        "rows_used": counts["rows_used"],
+        "rows_excluded": counts["rows_excluded"],
+        "excluded_by_reason": counts["by_reason"],
+        "measure_omissions": counts["measure_omissions"],
+        "model_fit": fits,
+        "status": status,
+        "borrowed_industries": [b["industry"] for b in result.manifest["borrowed_industries"]],
+    }
+
+
+def _print_run(result: Any, out: Path, top: int) -> None:
+    con = console()
+    counts = result.manifest["counts"]
+    con.print(
+        f"Read {counts['rows_in']} rows: {counts['rows_used']} used, "
+        f"{counts['rows_excluded']} excluded."
+    )
+    for reason, n in counts["by_reason"].items():
+        con.print(f"  excluded, {reason}: {n}")
+    for key, n in counts["measure_omissions"].items():
+        measure, reason = key.split(":", 1)
+        con.print(f"  left out of {measure} leverage only, {reason}: {n}")
+    for b in result.manifest["borrowed_industries"]:
+        con.print(f"  industry {b['industry']} ({b['firms']} firms) borrows its effect from "
+                  f"{b['borrowed_from']}")
+    for f in result.model_fit.itertuples():
+        con.print(f"{f.measure} leverage: {f.n_obs} firm-years, {f.n_firms} firms, "
+                  f"R² {f.r2:.3f} in sample, {f.r2_oos:.3f} out of sample "
+                  f"(RMSE {100 * f.rmse_oos:.1f} pp)")
+    t = result.targets
+    latest = t[t["fiscal_year"] == t["fiscal_year"].max()]
+    for measure in latest["measure"].unique():
+        m = latest[latest["measure"] == measure]
+        year = int(m["fiscal_year"].max())
+        over = m.sort_values("gap", ascending=False).head(top).to_dict(orient="records")
+        under = m.sort_values("gap").head(top).to_dict(orient="records")
+        con.print(screen_table(over, f"Most over-levered ({measure}, {year})"))
+        con.print(screen_table(under, f"Most under-levered ({measure}, {year})"))
+    con.print(f"Outputs written to {out}/ (targets, drivers, coefficients, model_fit, "
+              "exclusions, run.json, report.html).")
+    con.print("levgap is a statistical peer benchmark, not investment, credit or legal advice.")
+
+
+
+@app.command()
+def demo(
+    out: Path = typer.Option(Path("demo-out"), "--out", help="Folder for the demo's outputs."),
+    force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
+    top: int = typer.Option(5, "--top", min=1, help="Firms listed at each end."),
+) -> None:
+    """Run the whole job on the invented demo panel (the Tarrow Reach, a fictional region).
+
+    Example: levgap demo --out demo-out
+    """
+    with guard():
+        from levgap.demo import make_panel
+        from levgap.report.tables import write_tables
+
+        if out.exists() and not out.is_dir():
+            raise typer.BadParameter(f"must be a folder; got the file {out}.", param_hint="--out")
+        out.mkdir(parents=True, exist_ok=True)
+        panel_path = out / "demo_panel.csv"
+        write_tables({"demo_panel": make_panel()}, {"what": "the invented demo panel"}, out,
+                     fmt="csv", force=force, also=_previous_outputs(out))
+        result, _ = _run_analysis(panel_path, out, config=load_config(None), fmt="csv",
+                                  force=True, xlsx=False, report=True, quiet=False)
+        _print_run(result, out, top)
+        typer.echo(f"The demo's input panel is {panel_path}.")
+
+
+def _previous_outputs(out: Path) -> list[str]:
+    from levgap.report.files import MARKER
+
+    marker = out / MARKER
+    return marker.read_text(encoding="utf-8").split() if marker.is_file() else []
+
+
+@app.command()
+def analyze(
+    panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX) in schema v1."),
+    out: Path = typer.Option(..., "--out", help="Output folder."),
+    measure: str = typer.Option("both", "--measure", help="book, market or both."),
+    cluster: str = typer.Option(
+        None, "--cluster", help="Clustering of standard errors: firm, firm-year or industry."),
+    year: int = typer.Option(None, "--year", help="Report only this fiscal year."),
+    config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
+    fmt: str = typer.Option("csv", "--format", help="Table format: csv or parquet."),
+    xlsx: bool = typer.Option(False, "--xlsx", help="Also write workbook.xlsx."),
+    no_report: bool = typer.Option(False, "--no-report", help="Skip report.html."),
+    force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
+    quiet: bool = typer.Option(False, "--quiet", help="No progress bar or tables."),
+    as_json: bool = typer.Option(False, "--json", help="Print a machine-readable summary."),
+    top: int = typer.Option(5, "--top", min=1, help="Firms listed at each end."),
+) -> None:
+    """Estimate targets, gaps and driver contributions for every firm-year of a panel.
+
+    Example: levgap analyze panel.csv --out results/ --measure book --cluster firm-year
+    """
+    with guard():
+        from dataclasses import replace
+
+        if fmt not in ("csv", "parquet"):
+            raise typer.BadParameter(f"must be csv or parquet; got {fmt!r}.",
+                                     param_hint="--format")
+        cfg = load_config(config)
+        changes: dict[str, Any] = {}
+        if measure != "both" or config is None:
+            changes["measures"] = parse_measures(measure)
+        if cluster is not None:
+            changes["cluster"] = cluster
+        if year is not None:
+            changes["year"] = year
+        if changes:
+            cfg = replace(cfg, model=replace(cfg.model, **changes))
+        result, _ = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force, xlsx=xlsx,
+                                  report=not no_report, quiet=quiet or as_json)
+        if as_json:
+            typer.echo(json.dumps(_summary(result, out), indent=2, default=str))
+        elif not quiet:
+            _print_run(result, out, top)
+
+
+
+@app.command()
+def check(
+    panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX)."),
+    config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
+    ledger: Path = typer.Option(None, "--ledger", help="Write the exclusion ledger to this CSV."),
+) -> None:
+    """Validate a panel without fitting anything: what would be used and what left out.
+
+    Example: levgap check panel.csv --ledger exclusions.csv
+    """
+    with guard():
+        from levgap.ingest import read_panel
+
+        notes: list[str] = []
+        with collect_notes(notes):
+            p = read_panel(panel, config=load_config(config))
+        con = console()
+        data = p.data
+        whole = p.exclusions
+        con.print(f"{panel}: {p.n_input_rows} rows; {len(data)} usable, {len(whole)} excluded.")
+        if len(data):
+            years = data["fiscal_year"]
+            con.print(f"  {data['firm_id'].nunique()} firms, {data['industry'].nunique()} "
+                      f"industries, fiscal years {int(years.min())}-{int(years.max())}")
+            no_mkt = int(data["market_equity"].isna().sum()) if "market_equity" in data else 0
+            if no_mkt:
+                con.print(f"  {no_mkt} rows have no market equity (book leverage only)")
+        for reason, n in whole["reason"].value_counts().sort_index().items():
+            con.print(f"  excluded, {reason}: {n}")
+        for w in merge_notes(p.warnings, notes):
+            con.print(f"  note: {w}")
+        if ledger is not None:
+            from levgap.report.tables import write_table
+
+            write_table(whole, ledger, inputs=[panel])
+            con.print(f"Exclusion ledger written to {ledger}.")
+        if len(data) == 0:
+            err(f"{panel}: the panel must keep at least one usable row; got none.")
+            raise typer.Exit(2)
+
+
+@app.command()
+def template(
+    out: Path = typer.Option(Path("."), "--out", help="Folder for the template files."),
+) -> None:
+    """Write an empty panel template, its column guide and an annotated run configuration.
+
+    Example: levgap template --out my-panel/
+    """
+    with guard():
+        from levgap.report.files import write_template
+
+        for path in write_template(out):
+            typer.echo(f"wrote {path}")
