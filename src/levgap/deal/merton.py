@@ -89,12 +89,13 @@ def distance_to_default(
 
 def merton_equity(value: float, debt: float, volatility: float, rate: float,
                   horizon: float = HORIZON) -> tuple[float, float]:
-    """Equity value and equity volatility the model gives for an asset value and volatility."""
+    """Equity value and equity volatility the model gives for an asset value and volatility
+    (the volatility is infinite where the equity is worth nothing)."""
     scale = volatility * math.sqrt(horizon)
     d1 = (math.log(value / debt) + (rate + 0.5 * volatility**2) * horizon) / scale
     n1, n2 = float(norm_cdf(d1)[0]), float(norm_cdf(d1 - scale)[0])
     equity = value * n1 - debt * math.exp(-rate * horizon) * n2
-    return equity, n1 * volatility * value / equity
+    return equity, (n1 * volatility * value / equity if equity > 0 else math.inf)
 
 
 def solve_assets(equity: float, equity_volatility: float, debt: float, rate: float,

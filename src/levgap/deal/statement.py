@@ -185,7 +185,8 @@ def apply_scenario(
         _merge(v, missing, flags, before, s, partner, where)
     # after the merger, liabilities move with assets minus book equity (the balance-sheet
     # identity, change by change): the other firm brings its own total liabilities
-    assets0, equity0 = v["total_assets"], v["book_equity"]
+    assets0 = v["total_assets"] - (s.merge_price or 0.0)  # the price leaves with the cash
+    equity0 = v["book_equity"]
     if s.acquires:
         _acquire(v, missing, flags, s)
     if s.expand_assets:
