@@ -280,8 +280,56 @@ def parse_scenarios(raw: dict[str, Any], *, source: str = "<memory>") -> tuple[S
                 f"scenario #{seen[key]})."
             )
         seen[key] = i
+        check_name_free(scenario)
         out.append(scenario)
     return tuple(out)
+
+
+def debt_change(x: float, *, fund_assets: bool = False) -> Scenario:
+    """The scenario of one change in debt (``levgap explain --add-debt X``).
+
+    Parameters
+    ----------
+    x : float
+        Additional debt (negative repays).
+    fund_assets : bool, default=False
+        The debt buys new assets in the firm's current mix (``expand_assets``); otherwise a
+        recapitalisation: shares bought back (or, for a repayment, issued) at market value.
+
+    Returns
+    -------
+    Scenario
+
+    Raises
+    ------
+    ConfigError
+        A repayment with ``fund_assets`` (selling assets is not a scenario move).
+    """
+    name = f"debt {x:+,.6g}" + (" into assets" if fund_assets else " (recap)")
+    if fund_assets:
+        if x < 0:
+            raise ConfigError(
+                f"--add-debt must be >= 0 with --fund-assets; got {x:g}. Repay debt without "
+                "--fund-assets (shares are issued to repay it)."
+            )
+        return Scenario(name=name, debt_raised=x, expand_assets=x, source="--add-debt")
+    if x >= 0:
+        return Scenario(name=name, debt_raised=x, equity_bought_back=x, source="--add-debt")
+    return Scenario(name=name, debt_repaid=-x, equity_issued=-x, source="--add-debt")
+
+
+def check_name_free(scenario: Scenario) -> None:
+    """Refuse a scenario named like the firm's position before any scenario.
+
+    Raises
+    ------
+    ConfigError
+    """
+    if scenario.name.strip().casefold() == BEFORE:
+        raise ConfigError(
+            f"{scenario.where()}: key name must not be {BEFORE!r}, which names the firm's "
+            "position before any scenario; choose another name."
+        )
 
 
 def _build(values: dict[str, Any], source: str, where: str) -> Scenario:
@@ -323,9 +371,6 @@ def _check_value(key: Key, v: Any, where: str) -> None:
             if len(v) > MAX_NAME:
                 raise ConfigError(f"{where}: key name must be at most {MAX_NAME} characters; got "
                                   f"{len(v)}.")
-            if v.strip().casefold() == BEFORE:
-                raise ConfigError(f"{where}: key name must not be {BEFORE!r}, which names the "
-                                  "firm's position before any scenario; choose another name.")
         if key.name == "merge_with" and not v.strip():
             raise ConfigError(f"{where}: key merge_with must be a firm_id; got a blank.")
         return

@@ -1,0 +1,367 @@
+"""``check_deal``: every scenario of a deal scored against the saved model, with capacity, credit
+and the trade-off in money. In memory, no file I/O (``levgap.deal.api`` reads the folder).
+
+For each scenario and measure, beside the firm as it is (``before``): the pro forma statement
+lines, actual leverage, the saved model's full-sample target, band, status, gap and gap_z,
+driver contributions against the firm's own peer profile (``drivers.csv``), debt capacity to
+the target and to the band's top under both conventions, credit ratios, the Altman score, the
+Merton distance to default, the tax shield and expected distress cost at the scenario's debt,
+and the trade-off grid with its best debt level. Nothing is refitted and no other firm's row
+changes.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from levgap.deal.capacity import CONVENTIONS, capacity
+from levgap.deal.credit import altman, credit_ratios
+from levgap.deal.distress import asset_value, distress_at, grid
+from levgap.deal.scenario import ASSUMPTIONS, BEFORE, Scenario, check_name_free
+from levgap.deal.scoring import HELD_DRIVERS, level_function, score_rows
+from levgap.deal.statement import LINES, ProForma, Statement, apply_scenario
+from levgap.errors import ConfigError, ModelError
+
+IDENTITY_TOL = 1e-9
+CAPACITY_COLUMNS = tuple(f"capacity_to_{goal}_{conv}" for conv in CONVENTIONS
+                         for goal in ("target", "band_top"))
+PROFORMA_COLUMNS: tuple[str, ...] = (
+    "scenario", "measure", "firm_id", "fiscal_year", *LINES,
+    "actual", "target", "band_low", "band_high", "status", "gap", "gap_z", "peer_target",
+    "peer_median", *CAPACITY_COLUMNS,
+    "net_debt_to_ebitda", "debt_to_ebitda", "ebitda_to_interest",
+    "altman_model", "altman_score", "altman_zone",
+    "asset_value", "asset_volatility", "asset_volatility_source", "distance_to_default",
+    "default_probability", "tax_shield_pv", "expected_distress_cost", "tradeoff_best_debt",
+    "tradeoff_best_net", "flags", "notes",
+)
+"""Columns of ``proforma.csv``: one row per scenario (``before`` first) and measure."""
+HISTORY_YEARS = 5
+
+
+@dataclass(frozen=True, slots=True)
+class DealCheck:
+    """A deal check of one firm-year: every scenario beside the firm as it is.
+
+    Parameters
+    ----------
+    firm_id, firm_name, industry : str
+    fiscal_year : int
+    run_id : str
+        Run of the saved model.
+    scenarios : tuple of Scenario
+        As given (``before`` is not among them).
+    table : pandas.DataFrame
+        ``PROFORMA_COLUMNS``, one row per scenario and measure, ``before`` first.
+    contributions : pandas.DataFrame
+        ``scenario, measure, driver, value, raw_value, peer_value, contribution``;
+        contributions sum to ``target - peer_target`` (checked here, 1e-9).
+    tradeoff : pandas.DataFrame
+        ``scenario, measure, debt, tax_shield, default_probability, distress_cost, net``.
+    history : pandas.DataFrame
+        The firm's rows of ``targets.csv`` (every year and measure).
+    peers : pandas.DataFrame
+        Rows of ``targets.csv`` of the firm's industry in its year, the firm left out.
+    assumptions : dict
+        Conventions, horizon, model, each scenario's rates and shares (``proforma.json``).
+    notes : tuple of str
+    """
+
+    firm_id: str
+    firm_name: str
+    industry: str
+    fiscal_year: int
+    run_id: str
+    scenarios: tuple[Scenario, ...]
+    table: pd.DataFrame
+    contributions: pd.DataFrame
+    tradeoff: pd.DataFrame
+    history: pd.DataFrame
+    peers: pd.DataFrame
+    assumptions: dict[str, Any] = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
+
+    def __post_init__(self) -> None:
+        c = self.contributions.groupby(["scenario", "measure"], sort=False)["contribution"].sum()
+        t = self.table.set_index(["scenario", "measure"])
+        resid = (t["target"] - t["peer_target"]).reindex(c.index) - c
+        if (resid.abs() > IDENTITY_TOL).any():
+            raise ModelError(
+                "driver contributions must sum to target - peer_target; got a difference of "
+                f"{float(resid.abs().max()):.3g}. Please report this."
+            )
+
+    def tidy(self) -> pd.DataFrame:
+        """The ``proforma.csv`` table."""
+        return self.table
+
+    def write(self, out_dir: str | Path, *, force: bool = False) -> list[Path]:
+        """Write ``proforma.csv``, ``proforma.json`` and ``proforma.html`` into ``out_dir``."""
+        from levgap.report.proforma import write_proforma
+
+        return write_proforma(self, out_dir, force=force)
+
+    def _repr_html_(self) -> str:
+        cols = ["scenario", "measure", "actual", "target", "band_high", "status",
+                "capacity_to_band_top_recap"]
+        return (f"<p>levgap deal check: {self.firm_id}, fiscal {self.fiscal_year}</p>"
+                + self.table[cols].to_html(index=False, float_format=lambda v: f"{v:.4f}"))
+
+
+def check_deal(
+    model: Any,
+    panel: pd.DataFrame,
+    targets: pd.DataFrame,
+    drivers: pd.DataFrame,
+    firm_id: str,
+    scenarios: Sequence[Scenario],
+    *,
+    year: int | None = None,
+    source: str = "the results",
+) -> DealCheck:
+    """Score each scenario against the saved model (see the module docstring).
+
+    Parameters
+    ----------
+    model : levgap.models.saved.SavedModel
+    panel : pandas.DataFrame
+        The run's validated panel (``Panel.data``): statement lines of every firm-year.
+    targets, drivers : pandas.DataFrame
+        The run's ``targets`` and ``drivers`` tables.
+    firm_id : str
+    scenarios : sequence of Scenario
+    year : int, optional
+        Fiscal year of the firm to start from; default its latest year in ``targets``.
+    source : str
+        The results folder, for messages.
+
+    Returns
+    -------
+    DealCheck
+
+    Raises
+    ------
+    ConfigError
+        An unknown firm or year, a scenario named ``before`` or twice, a scenario the firm's
+        statements cannot carry (one line naming file, scenario and key).
+    """
+    firm_targets = targets[targets["firm_id"].astype(str) == str(firm_id)]
+    if firm_targets.empty:
+        raise ConfigError(f"{source}: FIRM_ID must be a firm of the results; got {firm_id!r}, "
+                          "which has no row in targets.csv.")
+    years = sorted(int(y) for y in firm_targets["fiscal_year"].unique())
+    year = years[-1] if year is None else int(year)
+    firm_rows = panel[panel["firm_id"].astype(str) == str(firm_id)]
+    row = firm_rows[firm_rows["fiscal_year"] == year]
+    if year not in years or row.empty:
+        raise ConfigError(f"{source}: --year must be a fiscal year of firm {firm_id}; got "
+                          f"{year}. It has {', '.join(map(str, years))}.")
+    base = Statement.from_row(row.iloc[0].to_dict())
+    scenarios = tuple(scenarios)
+    _check_names(scenarios)
+    before = _common_assumptions(scenarios)
+    proformas = [apply_scenario(base, before)] + [
+        apply_scenario(base, s, _partner(panel, s, year)) for s in scenarios]
+    labels = [BEFORE] + [s.name for s in scenarios]
+    histories = [_history(panel, firm_id, year, p) for p in proformas]
+    rows = pd.concat([_score_input(p, h, k) for k, (p, h) in
+                      enumerate(zip(proformas, histories, strict=True))], ignore_index=True)
+    peer = _peer_profiles(drivers, firm_id, year, model, len(rows))
+    scored = score_rows(model, rows, peer)
+    scored = scored[scored["fiscal_year"] == year]
+    peer_median = {m: float(r["peer_median"]) for m, r in
+                   firm_targets[firm_targets["fiscal_year"] == year].set_index("measure")
+                   .iterrows()}
+    table, contributions, tradeoff = [], [], []
+    for k, (label, p, hist) in enumerate(zip(labels, proformas, histories, strict=True)):
+        mine = scored[scored["firm_id"] == _scenario_id(k)]
+        assets, note = asset_value(p.after, p.scenario, hist["fiscal_year"].tolist(),
+                                   (hist["total_debt"] + hist["market_equity"]).tolist())
+        for r in mine.to_dict("records"):
+            measure = str(r["measure"])
+            held = {d: r[f"{d}_raw"] for d in HELD_DRIVERS if d in model.drivers}
+            caps, cap_flags = _capacities(model, p.after, measure, held)
+            top_debt = p.after.total_debt + caps["capacity_to_band_top_recap"]
+            trade = grid(p.scenario, assets, top_debt) if math.isfinite(top_debt) else None
+            table.append(_row(label, measure, p, r, caps, cap_flags, assets, note, trade,
+                              peer_median.get(measure, math.nan)))
+            contributions.append(_contributions(label, measure, r, model.drivers))
+            if trade is not None:
+                tradeoff.append(pd.DataFrame({
+                    "scenario": label, "measure": measure, "debt": trade.debt,
+                    "tax_shield": trade.tax_shield,
+                    "default_probability": trade.default_probability,
+                    "distress_cost": trade.distress_cost, "net": trade.net}))
+    return DealCheck(
+        firm_id=str(firm_id), firm_name=base.firm_name, industry=base.industry,
+        fiscal_year=year, run_id=str(getattr(model, "run_id", "")), scenarios=scenarios,
+        table=pd.DataFrame(table, columns=list(PROFORMA_COLUMNS)),
+        contributions=pd.concat(contributions, ignore_index=True),
+        tradeoff=pd.concat(tradeoff, ignore_index=True) if tradeoff else pd.DataFrame(
+            columns=["scenario", "measure", "debt", "tax_shield", "default_probability",
+                     "distress_cost", "net"]),
+        history=firm_targets.sort_values(["measure", "fiscal_year"], ignore_index=True),
+        peers=_peers(targets, firm_id, base.industry, year),
+        assumptions=_assumptions(model, [before, *scenarios], labels),
+        notes=tuple(dict.fromkeys(f for p in proformas for f in p.flags)),
+    )
+
+
+def _check_names(scenarios: tuple[Scenario, ...]) -> None:
+    seen: set[str] = set()
+    for s in scenarios:
+        check_name_free(s)
+        key = s.name.strip().casefold()
+        if key in seen:
+            raise ConfigError(f"{s.where()}: key name must be unique; got {s.name!r} again.")
+        seen.add(key)
+
+
+def _common_assumptions(scenarios: tuple[Scenario, ...]) -> Scenario:
+    """The firm as it is, with the assumptions every scenario shares."""
+    shared = {}
+    for key in ASSUMPTIONS:
+        values = {getattr(s, key) for s in scenarios}
+        if len(values) == 1:
+            shared[key] = values.pop()
+    return Scenario(name="as is", source=scenarios[0].source if scenarios else "<memory>",
+                    **{k: v for k, v in shared.items() if v is not None})
+
+
+def _partner(panel: pd.DataFrame, s: Scenario, year: int) -> Statement | None:
+    if s.merge_with is None:
+        return None
+    rows = panel[(panel["firm_id"].astype(str) == s.merge_with) & (panel["fiscal_year"] <= year)]
+    if rows.empty:
+        return None
+    return Statement.from_row(rows.sort_values("fiscal_year").iloc[-1].to_dict())
+
+
+def _history(panel: pd.DataFrame, firm_id: str, year: int, p: ProForma) -> pd.DataFrame:
+    """The firm's rows of earlier years and its year as it is (each combined with the other
+    firm's row of the same year for a merger, as if they had always been one firm)."""
+    rows = panel[(panel["firm_id"].astype(str) == str(firm_id))
+                 & (panel["fiscal_year"] < year) & (panel["fiscal_year"] >= year - 9)]
+    out = [Statement.from_row(r) for r in rows.sort_values("fiscal_year").to_dict("records")]
+    out.append(p.before)
+    merge = p.scenario.merge_with
+    if merge is not None and p.partner is not None:
+        other = {int(r["fiscal_year"]): Statement.from_row(r) for r in
+                 panel[panel["firm_id"].astype(str) == merge].to_dict("records")}
+        other[year] = p.partner
+        combined = Scenario(name="history", merge_with=merge)
+        out = [apply_scenario(s, combined, other[s.fiscal_year]).after for s in out
+               if s.fiscal_year in other]
+    return pd.DataFrame([s.row() for s in out])
+
+
+def _scenario_id(k: int) -> str:
+    return f"scenario-{k}"
+
+
+def _score_input(p: ProForma, history: pd.DataFrame, k: int) -> pd.DataFrame:
+    # the history (for earnings volatility) and the pro forma row, under the scenario's own id
+    rows = pd.concat([history.iloc[:-1], pd.DataFrame([p.after.row()])], ignore_index=True)
+    rows["firm_id"] = _scenario_id(k)
+    return rows
+
+
+def _peer_profiles(drivers: pd.DataFrame, firm_id: str, year: int, model: Any,
+                   n: int) -> dict[str, pd.DataFrame]:
+    d = drivers[(drivers["firm_id"].astype(str) == str(firm_id))
+                & (drivers["fiscal_year"] == year)]
+    out = {}
+    for measure in model.measures:
+        values = d[d["measure"] == measure].set_index("driver")["peer_value"]
+        if len(values):
+            out[measure] = pd.DataFrame({c: np.full(n, float(values.get(c, np.nan)))
+                                         for c in model.drivers})
+    return out
+
+
+def _capacities(model: Any, after: Statement, measure: str,
+                held: dict[str, float]) -> tuple[dict[str, float], list[str]]:
+    if measure == "market" and math.isnan(after.market_equity):
+        return dict.fromkeys(CAPACITY_COLUMNS, math.nan), []
+    out: dict[str, float] = {}
+    flags = []
+    for goal, column in (("target", "target"), ("band_top", "band_high")):
+        level = level_function(model, measure, column, held)
+        for conv in CONVENTIONS:
+            cap = capacity(after, measure, conv, level)
+            out[f"capacity_to_{goal}_{conv}"] = cap.amount
+            if cap.flag:
+                flags.append(f"capacity_to_{goal}_{conv}:{cap.flag}")
+    return out, flags
+
+
+def _row(label: str, measure: str, p: ProForma, r: dict[str, Any], caps: dict[str, float],
+         cap_flags: list[str], assets: Any, asset_note: str, trade: Any,
+         peer_median: float) -> dict[str, Any]:
+    after = p.after
+    ratios = credit_ratios(after, p.missing)
+    z = altman(after, p.missing)
+    d = distress_at(after, p.scenario, assets, asset_note)
+    notes = [f"{k.replace('_', ' ')}: {v.note}" for k, v in ratios.items() if v.note]
+    notes += [f"altman {z.model}: {z.note}"] if z.note else []
+    notes += list(d.notes)
+    flags = [f for f in str(r.get("flags") or "").split(";") if f]
+    flags += list(p.flags) + list(d.flags)
+    flags += cap_flags
+    out: dict[str, Any] = {"scenario": label, "measure": measure, "firm_id": after.firm_id,
+                           "fiscal_year": after.fiscal_year, **after.lines()}
+    for c in ("actual", "target", "band_low", "band_high", "status", "gap", "gap_z",
+              "peer_target"):
+        out[c] = r[c]
+    out["peer_median"] = peer_median
+    out.update({c: caps[c] for c in CAPACITY_COLUMNS})
+    out.update({k: v.value for k, v in ratios.items()})
+    out.update(altman_model=z.model, altman_score=z.score, altman_zone=z.zone)
+    out.update(
+        asset_value=assets.value if assets else math.nan,
+        asset_volatility=assets.volatility if assets else math.nan,
+        asset_volatility_source=assets.source if assets else "",
+        distance_to_default=d.distance_to_default, default_probability=d.default_probability,
+        tax_shield_pv=d.tax_shield_pv, expected_distress_cost=d.expected_distress_cost,
+        tradeoff_best_debt=trade.best_debt if trade is not None else math.nan,
+        tradeoff_best_net=trade.best_net if trade is not None else math.nan,
+        flags=";".join(dict.fromkeys(flags)), notes="; ".join(notes))
+    return out
+
+
+def _contributions(label: str, measure: str, r: dict[str, Any],
+                   names: Sequence[str]) -> pd.DataFrame:
+    return pd.DataFrame({
+        "scenario": label, "measure": measure, "driver": list(names),
+        "value": [r[d] for d in names], "raw_value": [r.get(f"{d}_raw", r[d]) for d in names],
+        "peer_value": [r[f"{d}_peer"] for d in names],
+        "contribution": [r[f"{d}_contribution"] for d in names],
+    })
+
+
+def _peers(targets: pd.DataFrame, firm_id: str, industry: str, year: int) -> pd.DataFrame:
+    t = targets[(targets["industry"].astype(str) == industry) & (targets["fiscal_year"] == year)
+                & (targets["firm_id"].astype(str) != str(firm_id))]
+    cols = [c for c in ("measure", "firm_id", "firm_name", "actual", "target", "status")
+            if c in t.columns]
+    return t[cols].sort_values(["measure", "firm_id"], ignore_index=True)
+
+
+def _assumptions(model: Any, scenarios: list[Scenario], labels: list[str]) -> dict[str, Any]:
+    return {
+        "model": {"name": str(getattr(model, "model", "")), "fit": "full sample",
+                  "run_id": str(getattr(model, "run_id", "")),
+                  "drivers": list(model.drivers)},
+        "conventions": dict(CONVENTIONS),
+        "horizon_years": 1.0,
+        "debt_due_at_horizon": "all interest-bearing debt",
+        "scenarios": {label: {k: getattr(s, k) for k in ASSUMPTIONS}
+                      for label, s in zip(labels, scenarios, strict=True)},
+    }
