@@ -31,6 +31,8 @@ _EXPORTS = {
     "proforma": "levgap.deal.api",
     "DealCheck": "levgap.deal.check",
     "Scenario": "levgap.deal.scenario",
+    "load_model": "levgap.models.saved",
+    "SavedModel": "levgap.models.saved",
     "Panel": "levgap.panel",
     "RunConfig": "levgap.config",
     "ModelSpec": "levgap.config",

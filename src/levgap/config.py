@@ -28,6 +28,8 @@ A run configuration has four tables; every key is optional::
     folds = 5
     seed = 0
     coverage = 0.8
+    model = "fractional"   # fractional | linear
+    band_prior_rows = 20
 """
 
 from __future__ import annotations
@@ -152,10 +154,14 @@ class ModelSpec:
         Seed of the fold assignment.
     coverage : float, default=0.8
         Coverage of the band around each target.
-    model : str, default="linear"
-        Key of the fit function in ``levgap.models.MODELS``.
+    model : str, default="fractional"
+        Key of the fit function in ``levgap.models.MODELS``: ``fractional`` (Papke and
+        Wooldridge's fractional logit, targets in [0, 1]) or ``linear`` (replication).
     year : int or None, default=None
         Report only this fiscal year (the model is still fitted on every year).
+    band_prior_rows : float, default=20.0
+        Firm-years at which an industry's own residual spread gets half the weight in its
+        band scale (the rest goes to the pooled scale).
     lag_drivers : bool, default=False
         Explain each year's leverage with the firm's drivers of the previous fiscal year, as
         replication studies often do; a row without the firm's previous year is left out with
@@ -172,9 +178,10 @@ class ModelSpec:
     folds: int = 5
     seed: int = 0
     coverage: float = 0.8
-    model: str = "linear"
+    model: str = "fractional"
     year: int | None = None
     lag_drivers: bool = False
+    band_prior_rows: float = 20.0
 
     def __post_init__(self) -> None:
         bad = [m for m in self.measures if m not in MEASURES]
@@ -203,6 +210,9 @@ class ModelSpec:
             raise ConfigError(f"peer_digits must be 0 or more; got {self.peer_digits}.")
         if self.folds < 2:
             raise ConfigError(f"folds must be at least 2; got {self.folds}.")
+        if not (0.0 <= self.band_prior_rows < float("inf")):
+            raise ConfigError(
+                f"band_prior_rows must be a number >= 0; got {self.band_prior_rows}.")
         if not (0.0 < self.coverage < 1.0):
             raise ConfigError(f"coverage must lie strictly between 0 and 1; got {self.coverage}.")
 
