@@ -23,18 +23,18 @@ def _write(tmp_path: Path, text: str, name: str = "deal.toml") -> Path:
 
 def test_template_parses_and_lists_every_key(tmp_path):
     scenarios = read_scenarios(TEMPLATES / "deal.toml")
-    assert [s.name for s in scenarios] == ["as is", "bolt-on mill", "merge TR0075",
-                                           "recap 100", "deleverage"]
+    assert [s.name for s in scenarios] == ["bolt-on mill", "merge TR0145", "recap 200",
+                                           "deleverage"]
     text = deal_template()
     for key in KEYS:
         assert f"#   {key.name} " in text, key.name
     # [assumptions] are inherited, and a scenario's own value wins
     assert all(s.tax_rate == 0.25 for s in scenarios)
-    assert scenarios[2].interest_rate == 0.07 and scenarios[1].interest_rate == 0.065
-    assert scenarios[0].is_empty and not scenarios[1].is_empty
+    assert scenarios[1].interest_rate == 0.07 and scenarios[0].interest_rate == 0.065
+    assert not any(s.is_empty for s in scenarios) and Scenario(name="x").is_empty
     # the defaults: the cost share of Andrade and Kaplan (1998), 10-20%, middle 15%
     assert scenarios[0].distress_cost_share == 0.15
-    assert scenarios[1].to_dict()["acquire_price"] == 150.0
+    assert scenarios[0].to_dict()["acquire_price"] == 150.0
 
 
 def test_a_file_with_a_bom_reads(tmp_path):

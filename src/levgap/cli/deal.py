@@ -30,7 +30,10 @@ def proforma(
     """
     with guard():
         from levgap.deal.api import proforma as run
+        from levgap.report.proforma import check_destination
 
+        if out is not None:
+            check_destination(out)  # before any work: a foreign file there stops the run
         check = run(results, firm_id, scenario, year=year, panel=panel)
         _print_check(check)
         if out is not None:

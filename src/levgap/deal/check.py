@@ -21,11 +21,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from levgap.deal.capacity import CONVENTIONS, capacity
+from levgap.deal.capacity import CONVENTIONS, Capacity, Problem, moved, solve_capacities
 from levgap.deal.credit import altman, credit_ratios
 from levgap.deal.distress import asset_value, distress_at, grid
 from levgap.deal.scenario import ASSUMPTIONS, BEFORE, Scenario, check_name_free
-from levgap.deal.scoring import HELD_DRIVERS, level_function, score_rows
+from levgap.deal.scoring import HELD_DRIVERS, batch_levels, score_rows
 from levgap.deal.statement import LINES, ProForma, Statement, apply_scenario
 from levgap.errors import ConfigError, ModelError
 
@@ -171,14 +171,21 @@ def check_deal(
         apply_scenario(base, s, _partner(panel, s, year)) for s in scenarios]
     labels = [BEFORE] + [s.name for s in scenarios]
     histories = [_history(panel, firm_id, year, p) for p in proformas]
-    rows = pd.concat([_score_input(p, h, k) for k, (p, h) in
-                      enumerate(zip(proformas, histories, strict=True))], ignore_index=True)
+    # each scenario under its own id, and beside it the statement with all its debt repaid
+    # under each convention (the lower end of every capacity search), scored in one batch
+    rows = pd.concat([_score_input(p.after, h, _scenario_id(k)) for k, (p, h) in
+                      enumerate(zip(proformas, histories, strict=True))]
+                     + [_score_input(moved(p.after, conv, -p.after.total_debt), h,
+                                     _floor_id(k, conv))
+                        for k, (p, h) in enumerate(zip(proformas, histories, strict=True))
+                        for conv in CONVENTIONS], ignore_index=True)
     peer = _peer_profiles(drivers, firm_id, year, model, len(rows))
     scored = score_rows(model, rows, peer)
     scored = scored[scored["fiscal_year"] == year]
     peer_median = {m: float(r["peer_median"]) for m, r in
                    firm_targets[firm_targets["fiscal_year"] == year].set_index("measure")
                    .iterrows()}
+    caps = _capacities(model, proformas, scored)
     table, contributions, tradeoff = [], [], []
     for k, (label, p, hist) in enumerate(zip(labels, proformas, histories, strict=True)):
         mine = scored[scored["firm_id"] == _scenario_id(k)]
@@ -186,11 +193,11 @@ def check_deal(
                                    (hist["total_debt"] + hist["market_equity"]).tolist())
         for r in mine.to_dict("records"):
             measure = str(r["measure"])
-            held = {d: r[f"{d}_raw"] for d in HELD_DRIVERS if d in model.drivers}
-            caps, cap_flags = _capacities(model, p.after, measure, held)
-            top_debt = p.after.total_debt + caps["capacity_to_band_top_recap"]
+            cap, cap_flags = caps.get((k, measure), (dict.fromkeys(CAPACITY_COLUMNS,
+                                                                   math.nan), []))
+            top_debt = p.after.total_debt + cap["capacity_to_band_top_recap"]
             trade = grid(p.scenario, assets, top_debt) if math.isfinite(top_debt) else None
-            table.append(_row(label, measure, p, r, caps, cap_flags, assets, note, trade,
+            table.append(_row(label, measure, p, r, cap, cap_flags, assets, note, trade,
                               peer_median.get(measure, math.nan)))
             contributions.append(_contributions(label, measure, r, model.drivers))
             if trade is not None:
@@ -201,7 +208,7 @@ def check_deal(
                     "distress_cost": trade.distress_cost, "net": trade.net}))
     return DealCheck(
         firm_id=str(firm_id), firm_name=base.firm_name, industry=base.industry,
-        fiscal_year=year, run_id=str(getattr(model, "run_id", "")), scenarios=scenarios,
+        fiscal_year=year, run_id=str(getattr(model, "run_id", None) or ""), scenarios=scenarios,
         table=pd.DataFrame(table, columns=list(PROFORMA_COLUMNS)),
         contributions=pd.concat(contributions, ignore_index=True),
         tradeoff=pd.concat(tradeoff, ignore_index=True) if tradeoff else pd.DataFrame(
@@ -266,10 +273,14 @@ def _scenario_id(k: int) -> str:
     return f"scenario-{k}"
 
 
-def _score_input(p: ProForma, history: pd.DataFrame, k: int) -> pd.DataFrame:
-    # the history (for earnings volatility) and the pro forma row, under the scenario's own id
-    rows = pd.concat([history.iloc[:-1], pd.DataFrame([p.after.row()])], ignore_index=True)
-    rows["firm_id"] = _scenario_id(k)
+def _floor_id(k: int, convention: str) -> str:
+    return f"floor-{k}-{convention}"
+
+
+def _score_input(s: Statement, history: pd.DataFrame, firm: str) -> pd.DataFrame:
+    # the history (for earnings volatility) and the statement's row, under an id of its own
+    rows = pd.concat([history.iloc[:-1], pd.DataFrame([s.row()])], ignore_index=True)
+    rows["firm_id"] = firm
     return rows
 
 
@@ -286,20 +297,38 @@ def _peer_profiles(drivers: pd.DataFrame, firm_id: str, year: int, model: Any,
     return out
 
 
-def _capacities(model: Any, after: Statement, measure: str,
-                held: dict[str, float]) -> tuple[dict[str, float], list[str]]:
-    if measure == "market" and math.isnan(after.market_equity):
-        return dict.fromkeys(CAPACITY_COLUMNS, math.nan), []
-    out: dict[str, float] = {}
-    flags = []
-    for goal, column in (("target", "target"), ("band_top", "band_high")):
-        level = level_function(model, measure, column, held)
-        for conv in CONVENTIONS:
-            cap = capacity(after, measure, conv, level)
-            out[f"capacity_to_{goal}_{conv}"] = cap.amount
-            if cap.flag:
-                flags.append(f"capacity_to_{goal}_{conv}:{cap.flag}")
-    return out, flags
+def _capacities(model: Any, proformas: list[ProForma], scored: pd.DataFrame
+                ) -> dict[tuple[int, str], tuple[dict[str, float], list[str]]]:
+    """Capacity to the target and the band's top, both conventions, every scenario and
+    measure, solved together (each round of the root search is one batch for the model)."""
+    problems, held, start = [], {}, []
+    at = {(str(r["firm_id"]), str(r["measure"])): r for r in scored.to_dict("records")}
+    for k, p in enumerate(proformas):
+        rows = scored[scored["firm_id"] == _scenario_id(k)]
+        if rows.empty:
+            continue
+        first = rows.iloc[0]
+        held[k] = {d: float(first[f"{d}_raw"]) for d in HELD_DRIVERS if d in model.drivers}
+        for measure in rows["measure"].astype(str):
+            if measure == "market" and math.isnan(p.after.market_equity):
+                continue
+            for column in ("target", "band_high"):
+                for conv in CONVENTIONS:
+                    problems.append(Problem(p.after, measure, conv, (k, column)))
+                    start.append((float(at[(_scenario_id(k), measure)][column]),
+                                  float(at[(_floor_id(k, conv), measure)][column])))
+    answers: list[Capacity] = solve_capacities(problems, batch_levels(model, held),
+                                               start=start)
+    out: dict[tuple[int, str], tuple[dict[str, float], list[str]]] = {}
+    for prob, cap in zip(problems, answers, strict=True):
+        k, column = prob.key
+        values, flags = out.setdefault((k, prob.measure), ({}, []))
+        goal = "target" if column == "target" else "band_top"
+        name = f"capacity_to_{goal}_{prob.convention}"
+        values[name] = cap.amount
+        if cap.flag:
+            flags.append(f"{name}:{cap.flag}")
+    return out
 
 
 def _row(label: str, measure: str, p: ProForma, r: dict[str, Any], caps: dict[str, float],
@@ -314,6 +343,9 @@ def _row(label: str, measure: str, p: ProForma, r: dict[str, Any], caps: dict[st
     notes += list(d.notes)
     flags = [f for f in str(r.get("flags") or "").split(";") if f]
     flags += list(p.flags) + list(d.flags)
+    if trade is not None and math.isfinite(trade.best_debt) and \
+            trade.best_debt >= 0.999 * float(trade.debt[-1]):
+        flags.append("tradeoff_best_at_grid_end")
     flags += cap_flags
     out: dict[str, Any] = {"scenario": label, "measure": measure, "firm_id": after.firm_id,
                            "fiscal_year": after.fiscal_year, **after.lines()}
@@ -357,7 +389,7 @@ def _peers(targets: pd.DataFrame, firm_id: str, industry: str, year: int) -> pd.
 def _assumptions(model: Any, scenarios: list[Scenario], labels: list[str]) -> dict[str, Any]:
     return {
         "model": {"name": str(getattr(model, "model", "")), "fit": "full sample",
-                  "run_id": str(getattr(model, "run_id", "")),
+                  "run_id": str(getattr(model, "run_id", None) or ""),
                   "drivers": list(model.drivers)},
         "conventions": dict(CONVENTIONS),
         "horizon_years": 1.0,

@@ -3,7 +3,8 @@
 Pro forma statements become schema-v1 rows; the saved model scores them exactly as
 ``analyze`` scored the panel (drivers with the saved winsorising limits, values outside the
 fitted range flagged, the full-sample fit, band, status, gap and contributions against a peer
-profile). Capacity solves call :func:`level_function`, which scores one statement at a time.
+profile). Capacity solves call :func:`batch_levels`, which scores each round's statements in
+one batch.
 """
 
 from __future__ import annotations
@@ -11,8 +12,10 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
+from levgap.deal.capacity import Problem
 from levgap.deal.statement import Statement
 
 HELD_DRIVERS = ("earnings_volatility",)
@@ -46,21 +49,20 @@ def score_rows(model: Any, rows: pd.DataFrame,
     return pd.concat(parts, ignore_index=True)
 
 
-def level_function(model: Any, measure: str, column: str,
-                   held: Mapping[str, float]) -> Callable[[Statement], float]:
-    """Statement -> the model's ``column`` (``target`` or ``band_high``) for ``measure``.
+def batch_levels(model: Any,
+                 held: Mapping[Any, Mapping[str, float]]) -> Callable[..., np.ndarray]:
+    """A ``levels`` function for :func:`levgap.deal.capacity.solve_capacities`.
 
-    Parameters
-    ----------
-    model : levgap.models.saved.SavedModel
-    measure : {"book", "market"}
-    column : {"target", "band_high"}
-    held : mapping of str to float
-        Driver overrides (raw values) held fixed while the statement moves.
+    Each problem's ``key`` is ``(group, column)``: ``held[group]`` holds the driver overrides
+    (raw values) kept fixed while its statement moves, ``column`` is ``target`` or
+    ``band_high``. Every round's statements are scored in one call of the saved model.
     """
-    def level(s: Statement) -> float:
-        row = pd.DataFrame([{**s.row(), **held}])
-        scored = model.score(row)
-        return float(scored.loc[scored["measure"] == measure, column].iloc[0])
+    def levels(items: list[tuple[Problem, Statement]]) -> np.ndarray:
+        rows = pd.DataFrame([{**m.row(), **held[p.key[0]], "firm_id": f"capacity-{j}"}
+                             for j, (p, m) in enumerate(items)])
+        scored = model.score(rows)
+        at = {(str(r.firm_id), str(r.measure)): r for r in scored.itertuples(index=False)}
+        return np.array([float(getattr(at[(f"capacity-{j}", p.measure)], p.key[1]))
+                         for j, (p, _) in enumerate(items)])
 
-    return level
+    return levels

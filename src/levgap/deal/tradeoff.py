@@ -152,22 +152,32 @@ def tradeoff_grid(
 def _refine(debt: np.ndarray, net: np.ndarray, assets: AssetValue | None,
             rate: float | None, horizon: float, share: float,
             gain: float) -> tuple[float, float]:
-    # The grid's best point, then a bounded scalar search between its neighbours.
-    from scipy.optimize import minimize_scalar
-
+    # The grid's best point, then a golden-section search between its neighbours (the net
+    # benefit is smooth there; a fine direct search in the tests agrees).
     i = int(np.argmax(net))
-    if assets is None or rate is None:
-        return float(debt[i]), float(net[i])
-    lo, hi = debt[max(i - 1, 0)], debt[min(i + 1, len(debt) - 1)]
-    if hi <= lo:
+    lo, hi = float(debt[max(i - 1, 0)]), float(debt[min(i + 1, len(debt) - 1)])
+    if hi <= lo or assets is None or rate is None:
         return float(debt[i]), float(net[i])
 
-    def minus_net(d: float) -> float:
+    def value(d: float) -> float:
         prob = distance_to_default(assets.value, d, assets.volatility, rate, horizon)[1][0]
-        return -(gain * d - prob * share * assets.value)
+        return gain * d - prob * share * assets.value
 
-    res = minimize_scalar(minus_net, bounds=(lo, hi), method="bounded",
-                          options={"xatol": 1e-10 * max(hi, 1.0)})
-    if -res.fun >= net[i]:
-        return float(res.x), float(-res.fun)
+    ratio = (math.sqrt(5.0) - 1.0) / 2.0
+    a, b = lo, hi
+    c, d = b - ratio * (b - a), a + ratio * (b - a)
+    fc, fd = value(c), value(d)
+    while b - a > 1e-10 * max(hi, 1.0):
+        if fc >= fd:
+            b, d, fd = d, c, fc
+            c = b - ratio * (b - a)
+            fc = value(c)
+        else:
+            a, c, fc = c, d, fd
+            d = a + ratio * (b - a)
+            fd = value(d)
+    x = 0.5 * (a + b)
+    best = value(x)
+    if best >= net[i]:
+        return x, best
     return float(debt[i]), float(net[i])

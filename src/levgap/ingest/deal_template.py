@@ -4,7 +4,7 @@
 the same text and a test keeps the two identical and checks that it parses. The key reference
 at the top is generated from :data:`levgap.deal.scenario.KEYS`, so it cannot drift from what
 the reader accepts. The example scenarios are written for the invented demo (``levgap demo``):
-firm ``TR0069`` and its fellow sawmill ``TR0075``.
+firm ``TR0144`` (an ironworks) and its fellow ironworks ``TR0145``.
 """
 
 from __future__ import annotations
@@ -32,12 +32,13 @@ _HEADER = """\
 # of a results folder, beside the firm as it is ("before"), without refitting anything.
 #
 #   levgap analyze panel.csv --out results/            # or: levgap demo --out results/
-#   levgap proforma results/ TR0069 --scenario deal.toml --out deal-out/
+#   levgap proforma results/ TR0144 --scenario deal.toml --out deal-out/
 #
 # Money is in the results' money unit (the panel's, after [units] scale and fx_rate); rates
 # and shares are fractions (0.25 for 25%). A key left out is zero (or the default stated).
 # Unknown keys, wrong types and values outside their range stop with one line naming the
-# scenario and the key. A scenario without moves reproduces the firm's current target.
+# scenario and the key. The firm as it is ("before") is always shown first; a scenario
+# without moves reproduces it exactly.
 #
 # What the outputs assume (also on the page and in proforma.json):
 # - debt capacity under two conventions: "funded" (debt buys new assets in the firm's current
@@ -63,11 +64,8 @@ distress_cost_share = 0.15    # the default; Andrade and Kaplan (1998) find 10-2
 # asset_volatility = 0.25     # default: estimated from the firm's history, flagged
 
 [[scenario]]
-name = "as is"                # no moves: reproduces the firm's current target and leverage
-
-[[scenario]]
 name = "bolt-on mill"
-description = "Buy a small mill for 150, paid with new debt"
+description = "Buy a rolling mill for 150, paid with new debt"
 debt_raised = 150.0
 acquire_price = 150.0
 acquire_assets = 120.0        # at fair value; goodwill = 150 - (120 - 10) = 40
@@ -81,18 +79,18 @@ acquire_ebit = 9.0
 acquire_revenue = 90.0
 
 [[scenario]]
-name = "merge TR0075"
-description = "Buy a fellow sawmill for 260 in cash, funded with new debt"
-merge_with = "TR0075"
-merge_price = 260.0
-debt_raised = 200.0
+name = "merge TR0145"
+description = "Buy a fellow ironworks for 250 in cash, partly funded with new debt"
+merge_with = "TR0145"
+merge_price = 250.0
+debt_raised = 150.0
 interest_rate = 0.07          # a scenario's own value overrides [assumptions]
 
 [[scenario]]
-name = "recap 100"
-description = "Borrow 100 and buy back shares"
-debt_raised = 100.0
-equity_bought_back = 100.0
+name = "recap 200"
+description = "Borrow 200 and buy back shares"
+debt_raised = 200.0
+equity_bought_back = 200.0
 
 [[scenario]]
 name = "deleverage"

@@ -101,7 +101,7 @@ def template_readme() -> str:
 `firm_id` + `fiscal_year` unique. The example rows are invented. `run.toml` is an annotated
 run configuration (`levgap analyze PANEL --config run.toml`); every key in it is optional.
 `deal.toml` is an annotated deal scenario file (`levgap proforma RESULTS FIRM_ID --scenario
-deal.toml`), written for the demo's firm TR0069.
+deal.toml`), written for the demo's firm TR0144.
 
 Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without BOM), Parquet
 or XLSX (the first sheet, or `[input] sheet`; formulas are read as the values the spreadsheet

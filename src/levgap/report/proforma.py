@@ -59,19 +59,11 @@ def write_proforma(check: DealCheck, out_dir: str | Path, *, force: bool = False
     OutputError
         A file of the same name that levgap did not write, or a folder that cannot be written.
     """
-    from levgap.report.tables import _marker_names, neutralise
+    from levgap.report.tables import neutralise
 
     del force
     out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise OutputError(f"{out}: --out must be a folder; got a file. Choose another --out.")
-    listed = _marker_names(out) if out.is_dir() else set()
-    clash = [n for n in NAMES if (out / n).exists() and n not in listed]
-    if clash:
-        raise OutputError(
-            f"{out / clash[0]}: levgap must not replace a file it did not write; got an "
-            "existing file of that name. Choose another --out, or move the file."
-        )
+    listed = check_destination(out)
     try:
         out.mkdir(parents=True, exist_ok=True)
         _atomic_text(out / MARKER, "\n".join(sorted(listed | set(NAMES))) + "\n")
@@ -84,6 +76,33 @@ def write_proforma(check: DealCheck, out_dir: str | Path, *, force: bool = False
     atomic_write_bytes(out / NAMES[1], (body + "\n").encode("utf-8"))
     atomic_write_bytes(out / NAMES[2], render_proforma(check).encode("utf-8"))
     return [out / n for n in NAMES]
+
+
+def check_destination(out_dir: str | Path) -> set[str]:
+    """Refuse a destination that is a file or holds a deal-check file levgap did not write.
+
+    Returns
+    -------
+    set of str
+        The names the folder's output marker lists (empty for a new folder).
+
+    Raises
+    ------
+    OutputError
+    """
+    from levgap.report.tables import _marker_names
+
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise OutputError(f"{out}: --out must be a folder; got a file. Choose another --out.")
+    listed = _marker_names(out) if out.is_dir() else set()
+    clash = [n for n in NAMES if (out / n).exists() and n not in listed]
+    if clash:
+        raise OutputError(
+            f"{out / clash[0]}: levgap must not replace a file it did not write; got an "
+            "existing file of that name. Choose another --out, or move the file."
+        )
+    return listed
 
 
 def _clean(v: Any) -> Any:
@@ -171,13 +190,15 @@ def terminal_tables(check: DealCheck) -> list[Any]:
 
     tables = []
     for measure, rows in check.table.groupby("measure", sort=False):
-        t = Table(title=Text(f"{check.firm_id} {check.fiscal_year}, {measure} leverage "
-                             "(money in the results' unit)"), title_justify="left")
-        for col in ("scenario", "actual", "target", "band", "status", "gap pp",
-                    "to band top (recap)", "to band top (funded)", "net debt/EBITDA",
-                    "EBITDA/interest", "Altman", "default prob."):
-            t.add_column(col, justify="left" if col in ("scenario", "status", "Altman")
-                         else "right", no_wrap=col != "scenario")
+        t = Table(title=Text(f"{check.firm_id} {check.fiscal_year}, {measure} leverage; debt "
+                             "to the band's top in the results' money unit"),
+                  title_justify="left")
+        width = min(max(len(str(x)) for x in rows["scenario"]), 24)
+        t.add_column("scenario", min_width=width, no_wrap=True, overflow="ellipsis")
+        for col in ("actual", "target", "band", "status", "gap pp", "to top (recap)",
+                    "to top (funded)", "ND/EBITDA", "EBITDA/int", "Altman", "PD 1y"):
+            t.add_column(col, justify="left" if col in ("status", "Altman") else "right",
+                         no_wrap=True)
         for r in rows.to_dict("records"):
             z = "" if not math.isfinite(r["altman_score"]) else \
                 f"{r['altman_model']} {r['altman_score']:.2f} {r['altman_zone']}"

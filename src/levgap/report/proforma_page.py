@@ -196,6 +196,7 @@ def _history_svg(check: DealCheck, measure: str, rows: pd.DataFrame) -> str:
     for i, (label, r) in enumerate(rows.iterrows()):
         colour = PALETTE[(i + 2) % len(PALETTE)]
         c.point(float(check.fiscal_year), float(r["actual"]), colour=colour, r=4.5,
+                label=str(label),
                 tip=f"{label}: actual {pct(r['actual'])}, target {pct(r['target'])}")
     ticks = sorted(set(int(y) for y in years) | {check.fiscal_year})
     return c.svg(x_ticks=ticks, x_labels=[str(y) for y in ticks], x_title="fiscal year")
@@ -231,15 +232,15 @@ def _waterfall(label: str, steps: pd.DataFrame, measure: str) -> str:
     lo = min(0.0, float(steps[["start", "end"]].min().min()))
     hi = max(0.05, float(steps[["start", "end"]].max().max()))
     n = len(steps)
-    c = Canvas((-0.5, n - 0.5), (lo, hi), width=420, height=220,
+    c = Canvas((-0.5, n - 0.5), (lo, hi), width=420, height=250,
                title=f"{label}: {measure} leverage from peer median to target and actual",
-               margin=(14, 10, 54, 52))
+               margin=(14, 10, 84, 52))
     for i, s in enumerate(steps.itertuples(index=False)):
         colour = PALETTE[0] if s.kind == "level" else ("#d95f02" if s.delta > 0 else "#1b9e77")
         c.bar(i - 0.35, i + 0.35, s.start, s.end, colour=colour,
               tip=f"{s.label}: {pct(s.end) if s.kind == 'level' else pp(s.delta)}")
-    short = [str(x)[:11] for x in steps["label"]]
-    return c.svg(x_ticks=list(range(n)), x_labels=short)
+    return c.svg(x_ticks=list(range(n)), x_labels=[str(x) for x in steps["label"]],
+                 rotate=True)
 
 
 def _tradeoff_svgs(check: DealCheck, measure: str, rows: pd.DataFrame) -> list[dict[str, Any]]:

@@ -24,13 +24,8 @@ def nice_ticks(lo: float, hi: float, count: int = 5) -> list[float]:
     raw = (hi - lo) / max(count, 1)
     power = 10.0 ** math.floor(math.log10(raw))
     step = next(m * power for m in (1.0, 2.0, 5.0, 10.0) if m * power >= raw)
-    first = math.floor(lo / step) * step
-    ticks = []
-    v = first
-    while v <= hi + step * 1e-9:
-        ticks.append(round(v, 12))
-        v += step
-    return ticks
+    first, last = math.floor(lo / step + 1e-9), math.ceil(hi / step - 1e-9)
+    return [round(k * step, 12) for k in range(first, last + 1)]
 
 
 @dataclass(slots=True)
@@ -60,6 +55,18 @@ class Canvas:
         yt = nice_ticks(*self.y_range)
         if yt:
             self.y_range = (min(yt[0], self.y_range[0]), max(yt[-1], self.y_range[1]))
+
+    def _legend_rows(self) -> list[list[tuple[int, tuple[str, str, str]]]]:
+        rows: list[list[tuple[int, tuple[str, str, str]]]] = [[]]
+        x = self.margin[3]
+        for item in self.legend:
+            size = 26 + 6 * len(item[2])
+            if rows[-1] and x + size > self.width - self.margin[1]:
+                rows.append([])
+                x = self.margin[3]
+            rows[-1].append((x, item))
+            x += size
+        return rows if rows[0] else []
 
     def x(self, v: float) -> float:
         lo, hi = self.x_range
@@ -146,13 +153,21 @@ class Canvas:
 
     def svg(self, *, x_ticks: Sequence[float] | None = None,
             x_labels: Sequence[str] | None = None, y_format: str = "{:.0%}",
-            x_format: str = "{:,.0f}", x_title: str = "", y_title: str = "") -> str:
-        """The chart as an ``<svg>`` element (axes, ticks, legend and the drawn parts)."""
+            x_format: str = "{:,.0f}", x_title: str = "", y_title: str = "",
+            rotate: bool = False) -> str:
+        """The chart as an ``<svg>`` element (axes, ticks, legend and the drawn parts).
+
+        The legend wraps onto as many rows as it needs above the plot (the plot moves down);
+        ``rotate`` slants the x labels so that long ones do not overlap.
+        """
+        rows = self._legend_rows()
         top, right, bottom, left = self.margin
+        grow = 16 * max(len(rows) - 1, 0)  # the plot moves down below a legend of many rows
         w, h = self.width, self.height
-        out = [f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {w} {h}" role="img" '
-               f'aria-label="{escape(self.title)}" font-size="11" '
-               f'font-family="system-ui,sans-serif"><title>{escape(self.title)}</title>']
+        out = [f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {w} {h + grow}" '
+               f'role="img" aria-label="{escape(self.title)}" font-size="11" '
+               f'font-family="system-ui,sans-serif"><title>{escape(self.title)}</title>',
+               f'<g transform="translate(0 {grow})">']
         for t in nice_ticks(*self.y_range):
             if self.y_range[0] - 1e-12 <= t <= self.y_range[1] + 1e-12:
                 yy = self.y(t)
@@ -165,8 +180,13 @@ class Canvas:
         for t, lab in zip(ticks, labels, strict=True):
             if self.x_range[0] - 1e-9 <= t <= self.x_range[1] + 1e-9:
                 xx = self.x(t)
-                out.append(f'<text x="{xx:.1f}" y="{h - bottom + 15}" text-anchor="middle" '
-                           f'fill="#5b6675">{escape(lab)}</text>')
+                if rotate:
+                    yy = h - bottom + 12
+                    out.append(f'<text x="{xx:.1f}" y="{yy}" text-anchor="end" fill="#5b6675" '
+                               f'transform="rotate(-35 {xx:.1f} {yy})">{escape(lab)}</text>')
+                else:
+                    out.append(f'<text x="{xx:.1f}" y="{h - bottom + 15}" '
+                               f'text-anchor="middle" fill="#5b6675">{escape(lab)}</text>')
         out.append(f'<line x1="{left}" x2="{w - right}" y1="{h - bottom}" y2="{h - bottom}" '
                    'stroke="#9aa3ad"/>')
         if x_title:
@@ -177,14 +197,17 @@ class Canvas:
                        f'fill="#5b6675" transform="rotate(-90 12 {(top + h - bottom) / 2:.1f})">'
                        f"{escape(y_title)}</text>")
         out.extend(self.parts)
-        x = left
-        for kind, colour, label in self.legend:
-            mark = (f'<rect x="{x}" y="6" width="12" height="8" fill="{colour}" '
-                    'fill-opacity="0.35"/>' if kind == "area" else
-                    f'<circle cx="{x + 6}" cy="10" r="4" fill="{colour}"/>' if kind == "point"
-                    else f'<line x1="{x}" x2="{x + 12}" y1="10" y2="10" stroke="{colour}" '
-                    'stroke-width="2"/>')
-            out.append(mark + f'<text x="{x + 16}" y="14" fill="#1f2733">{escape(label)}</text>')
-            x += 26 + 6 * len(label)
+        out.append("</g>")
+        for r, row in enumerate(rows):
+            y = 10 + 16 * r
+            for x, (kind, colour, label) in row:
+                mark = (f'<rect x="{x}" y="{y - 4}" width="12" height="8" fill="{colour}" '
+                        'fill-opacity="0.35"/>' if kind == "area" else
+                        f'<circle cx="{x + 6}" cy="{y}" r="4" fill="{colour}"/>'
+                        if kind == "point" else
+                        f'<line x1="{x}" x2="{x + 12}" y1="{y}" y2="{y}" stroke="{colour}" '
+                        'stroke-width="2"/>')
+                out.append(mark + f'<text x="{x + 16}" y="{y + 4}" fill="#1f2733">'
+                           f"{escape(label)}</text>")
         out.append("</svg>")
         return "".join(out)
