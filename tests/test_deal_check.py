@@ -14,7 +14,7 @@ from typer.testing import CliRunner
 
 import levgap
 from levgap.cli import app
-from levgap.deal.check import PROFORMA_COLUMNS
+from levgap.deal.result import PROFORMA_COLUMNS
 
 runner = CliRunner()
 

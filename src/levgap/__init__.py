@@ -29,7 +29,7 @@ _EXPORTS = {
     "analyze": "levgap.pipeline",
     "Analysis": "levgap.analysis",
     "proforma": "levgap.deal.api",
-    "DealCheck": "levgap.deal.check",
+    "DealCheck": "levgap.deal.result",
     "Scenario": "levgap.deal.scenario",
     "load_model": "levgap.models.saved",
     "SavedModel": "levgap.models.saved",

@@ -11,9 +11,15 @@ Modules, from the inputs to the money:
 - ``tradeoff``: tax-shield value (Modigliani-Miller 1963, Miller 1977), expected distress cost
   and the grid of debt levels;
 - ``capacity``: the debt that brings a firm to its target or its band's top, under the two
-  stated conventions, and ``debt_to_target`` for ``targets.csv``.
+  stated conventions, and ``debt_to_target`` for ``targets.csv``;
+- ``distress``: the Merton and trade-off figures of one pro forma statement;
+- ``scoring``: the only link to the saved model (``levgap.load_model``);
+- ``check``: ``check_deal``, every scenario scored beside the firm as it is;
+- ``result``: ``DealCheck`` and the columns of ``proforma.csv``;
+- ``api``: ``levgap.proforma(results_dir, firm_id, scenarios)``, which reads the folder.
 
-Every function here is pure: statements, scenarios and numbers in, frozen results out.
+Everything but ``api`` is pure: statements, scenarios, frames and numbers in, frozen results
+out.
 """
 
 from __future__ import annotations

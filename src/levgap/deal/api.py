@@ -6,7 +6,8 @@ from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
-from levgap.deal.check import DealCheck, check_deal
+from levgap.deal.check import check_deal
+from levgap.deal.result import DealCheck
 from levgap.deal.scenario import Scenario
 from levgap.errors import ConfigError, OutputError
 

@@ -14,8 +14,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -24,95 +22,11 @@ import pandas as pd
 from levgap.deal.capacity import CONVENTIONS, Capacity, Problem, moved, solve_capacities
 from levgap.deal.credit import altman, credit_ratios
 from levgap.deal.distress import asset_value, distress_at, grid
+from levgap.deal.result import CAPACITY_COLUMNS, PROFORMA_COLUMNS, DealCheck
 from levgap.deal.scenario import ASSUMPTIONS, BEFORE, Scenario, check_name_free
 from levgap.deal.scoring import HELD_DRIVERS, batch_levels, score_rows
-from levgap.deal.statement import LINES, ProForma, Statement, apply_scenario
-from levgap.errors import ConfigError, ModelError
-
-IDENTITY_TOL = 1e-9
-CAPACITY_COLUMNS = tuple(f"capacity_to_{goal}_{conv}" for conv in CONVENTIONS
-                         for goal in ("target", "band_top"))
-PROFORMA_COLUMNS: tuple[str, ...] = (
-    "scenario", "measure", "firm_id", "fiscal_year", *LINES,
-    "actual", "target", "band_low", "band_high", "status", "gap", "gap_z", "peer_target",
-    "peer_median", *CAPACITY_COLUMNS,
-    "net_debt_to_ebitda", "debt_to_ebitda", "ebitda_to_interest",
-    "altman_model", "altman_score", "altman_zone",
-    "asset_value", "asset_volatility", "asset_volatility_source", "distance_to_default",
-    "default_probability", "tax_shield_pv", "expected_distress_cost", "tradeoff_best_debt",
-    "tradeoff_best_net", "flags", "notes",
-)
-"""Columns of ``proforma.csv``: one row per scenario (``before`` first) and measure."""
-HISTORY_YEARS = 5
-
-
-@dataclass(frozen=True, slots=True)
-class DealCheck:
-    """A deal check of one firm-year: every scenario beside the firm as it is.
-
-    Parameters
-    ----------
-    firm_id, firm_name, industry : str
-    fiscal_year : int
-    run_id : str
-        Run of the saved model.
-    scenarios : tuple of Scenario
-        As given (``before`` is not among them).
-    table : pandas.DataFrame
-        ``PROFORMA_COLUMNS``, one row per scenario and measure, ``before`` first.
-    contributions : pandas.DataFrame
-        ``scenario, measure, driver, value, raw_value, peer_value, contribution``;
-        contributions sum to ``target - peer_target`` (checked here, 1e-9).
-    tradeoff : pandas.DataFrame
-        ``scenario, measure, debt, tax_shield, default_probability, distress_cost, net``.
-    history : pandas.DataFrame
-        The firm's rows of ``targets.csv`` (every year and measure).
-    peers : pandas.DataFrame
-        Rows of ``targets.csv`` of the firm's industry in its year, the firm left out.
-    assumptions : dict
-        Conventions, horizon, model, each scenario's rates and shares (``proforma.json``).
-    notes : tuple of str
-    """
-
-    firm_id: str
-    firm_name: str
-    industry: str
-    fiscal_year: int
-    run_id: str
-    scenarios: tuple[Scenario, ...]
-    table: pd.DataFrame
-    contributions: pd.DataFrame
-    tradeoff: pd.DataFrame
-    history: pd.DataFrame
-    peers: pd.DataFrame
-    assumptions: dict[str, Any] = field(default_factory=dict)
-    notes: tuple[str, ...] = ()
-
-    def __post_init__(self) -> None:
-        c = self.contributions.groupby(["scenario", "measure"], sort=False)["contribution"].sum()
-        t = self.table.set_index(["scenario", "measure"])
-        resid = (t["target"] - t["peer_target"]).reindex(c.index) - c
-        if (resid.abs() > IDENTITY_TOL).any():
-            raise ModelError(
-                "driver contributions must sum to target - peer_target; got a difference of "
-                f"{float(resid.abs().max()):.3g}. Please report this."
-            )
-
-    def tidy(self) -> pd.DataFrame:
-        """The ``proforma.csv`` table."""
-        return self.table
-
-    def write(self, out_dir: str | Path, *, force: bool = False) -> list[Path]:
-        """Write ``proforma.csv``, ``proforma.json`` and ``proforma.html`` into ``out_dir``."""
-        from levgap.report.proforma import write_proforma
-
-        return write_proforma(self, out_dir, force=force)
-
-    def _repr_html_(self) -> str:
-        cols = ["scenario", "measure", "actual", "target", "band_high", "status",
-                "capacity_to_band_top_recap"]
-        return (f"<p>levgap deal check: {self.firm_id}, fiscal {self.fiscal_year}</p>"
-                + self.table[cols].to_html(index=False, float_format=lambda v: f"{v:.4f}"))
+from levgap.deal.statement import ProForma, Statement, apply_scenario
+from levgap.errors import ConfigError
 
 
 def check_deal(
@@ -171,27 +85,48 @@ def check_deal(
         apply_scenario(base, s, _partner(panel, s, year)) for s in scenarios]
     labels = [BEFORE] + [s.name for s in scenarios]
     histories = [_history(panel, firm_id, year, p) for p in proformas]
-    # each scenario under its own id, and beside it the statement with all its debt repaid
-    # under each convention (the lower end of every capacity search), scored in one batch
-    rows = pd.concat([_score_input(p.after, h, _scenario_id(k)) for k, (p, h) in
-                      enumerate(zip(proformas, histories, strict=True))]
-                     + [_score_input(moved(p.after, conv, -p.after.total_debt), h,
-                                     _floor_id(k, conv))
-                        for k, (p, h) in enumerate(zip(proformas, histories, strict=True))
-                        for conv in CONVENTIONS], ignore_index=True)
-    peer = _peer_profiles(drivers, firm_id, year, model, len(rows))
-    scored = score_rows(model, rows, peer)
-    scored = scored[scored["fiscal_year"] == year]
+    scored = _score_all(model, proformas, histories, drivers, firm_id, year)
     peer_median = {m: float(r["peer_median"]) for m, r in
                    firm_targets[firm_targets["fiscal_year"] == year].set_index("measure")
                    .iterrows()}
+    table, contributions, tradeoff = _assemble(model, labels, proformas, histories, scored,
+                                               peer_median)
+    return DealCheck(
+        firm_id=str(firm_id), firm_name=base.firm_name, industry=base.industry,
+        fiscal_year=year, run_id=str(getattr(model, "run_id", None) or ""), scenarios=scenarios,
+        table=table, contributions=contributions, tradeoff=tradeoff,
+        history=firm_targets.sort_values(["measure", "fiscal_year"], ignore_index=True),
+        peers=_peers(targets, firm_id, base.industry, year),
+        assumptions=_assumptions(model, [before, *scenarios], labels),
+        notes=tuple(dict.fromkeys(f for p in proformas for f in p.flags)),
+    )
+
+
+def _score_all(model: Any, proformas: list[ProForma], histories: list[pd.DataFrame],
+               drivers: pd.DataFrame, firm_id: str, year: int) -> pd.DataFrame:
+    """Every scenario under its own id, and beside it its statement with all the debt repaid
+    under each convention (the lower end of every capacity search), scored in one batch per
+    measure (each measure with its own peer profile); the rows of ``year``."""
+    pairs = list(enumerate(zip(proformas, histories, strict=True)))
+    rows = pd.concat([_score_input(p.after, h, _scenario_id(k)) for k, (p, h) in pairs]
+                     + [_score_input(moved(p.after, conv, -p.after.total_debt), h,
+                                     _floor_id(k, conv))
+                        for k, (p, h) in pairs for conv in CONVENTIONS], ignore_index=True)
+    scored = score_rows(model, rows, _peer_profiles(drivers, firm_id, year, model, len(rows)))
+    return scored[scored["fiscal_year"] == year]
+
+
+def _assemble(model: Any, labels: list[str], proformas: list[ProForma],
+              histories: list[pd.DataFrame], scored: pd.DataFrame,
+              peer_median: dict[str, float]) -> tuple[pd.DataFrame, pd.DataFrame,
+                                                      pd.DataFrame]:
+    """The ``proforma.csv`` rows, the contributions and the trade-off grids."""
     caps = _capacities(model, proformas, scored)
     table, contributions, tradeoff = [], [], []
     for k, (label, p, hist) in enumerate(zip(labels, proformas, histories, strict=True)):
-        mine = scored[scored["firm_id"] == _scenario_id(k)]
         assets, note = asset_value(p.after, p.scenario, hist["fiscal_year"].tolist(),
                                    (hist["total_debt"] + hist["market_equity"]).tolist())
-        for r in mine.to_dict("records"):
+        for r in scored[scored["firm_id"] == _scenario_id(k)].to_dict("records"):
             measure = str(r["measure"])
             cap, cap_flags = caps.get((k, measure), (dict.fromkeys(CAPACITY_COLUMNS,
                                                                    math.nan), []))
@@ -206,19 +141,12 @@ def check_deal(
                     "tax_shield": trade.tax_shield,
                     "default_probability": trade.default_probability,
                     "distress_cost": trade.distress_cost, "net": trade.net}))
-    return DealCheck(
-        firm_id=str(firm_id), firm_name=base.firm_name, industry=base.industry,
-        fiscal_year=year, run_id=str(getattr(model, "run_id", None) or ""), scenarios=scenarios,
-        table=pd.DataFrame(table, columns=list(PROFORMA_COLUMNS)),
-        contributions=pd.concat(contributions, ignore_index=True),
-        tradeoff=pd.concat(tradeoff, ignore_index=True) if tradeoff else pd.DataFrame(
-            columns=["scenario", "measure", "debt", "tax_shield", "default_probability",
-                     "distress_cost", "net"]),
-        history=firm_targets.sort_values(["measure", "fiscal_year"], ignore_index=True),
-        peers=_peers(targets, firm_id, base.industry, year),
-        assumptions=_assumptions(model, [before, *scenarios], labels),
-        notes=tuple(dict.fromkeys(f for p in proformas for f in p.flags)),
-    )
+    grid_columns = ["scenario", "measure", "debt", "tax_shield", "default_probability",
+                    "distress_cost", "net"]
+    return (pd.DataFrame(table, columns=list(PROFORMA_COLUMNS)),
+            pd.concat(contributions, ignore_index=True),
+            pd.concat(tradeoff, ignore_index=True) if tradeoff else
+            pd.DataFrame(columns=grid_columns))
 
 
 def _check_names(scenarios: tuple[Scenario, ...]) -> None:

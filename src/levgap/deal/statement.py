@@ -1,7 +1,7 @@
 """Pro forma statement lines: the firm's row of one fiscal year, after a scenario's moves.
 
-Arithmetic (money in the results' unit; every move is additive, so the order below only
-decides which mix ``expand_assets`` copies and which checks run at the end):
+Arithmetic (money in the results' unit; every move is additive, and the checks run on the
+end result, so the order below is only the order of the explanation):
 
 1. **Merger** (``merge_with``): the other firm's row is added line by line (a merger in
    shares). With ``merge_price`` the firm pays that price in cash instead: the other firm's

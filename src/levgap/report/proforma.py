@@ -22,7 +22,7 @@ from levgap.errors import OutputError
 from levgap.report.files import MARKER, _atomic_text, atomic_write_bytes
 
 if TYPE_CHECKING:
-    from levgap.deal.check import DealCheck
+    from levgap.deal.result import DealCheck
 
 NAMES = ("proforma.csv", "proforma.json", "proforma.html")
 CAUTION = (

@@ -10,7 +10,7 @@ import pandas as pd
 from levgap.report.svg import PALETTE, Canvas
 
 if TYPE_CHECKING:
-    from levgap.deal.check import DealCheck
+    from levgap.deal.result import DealCheck
 
 LINE_LABELS = {
     "total_assets": "Total assets", "total_debt": "Total debt", "book_equity": "Book equity",
