@@ -39,8 +39,9 @@ CONVENTIONS: dict[str, str] = {
     "fixed; debt plus market equity fixed)",
 }
 MIX_LINES = ("ppe_net", "cash", "current_assets", "ebitda", "ebit", "revenue", "rd_expense")
-ROOT_TOL = 1e-12
-"""A closed-form answer is kept when it leaves ``|leverage - level|`` at most this."""
+ROOT_TOL = 1e-10
+"""A root search stops when ``|leverage - level|`` is at most this (fed back as a scenario,
+a capacity lands on its level to 1e-9, as tested)."""
 FLAGS: dict[str, str] = {
     "target_below_zero": "the level sought is below zero: the capacity is to repay all debt",
     "market_target_at_or_above_one": "a market level of 1 or more: no amount of debt reaches "
@@ -137,6 +138,12 @@ class Problem:
 LevelsFn = Callable[[list[tuple[Problem, Statement]]], np.ndarray]
 """Problems and their moved statements -> the level sought for each (one batched call)."""
 MAX_ROUNDS = 80
+LADDER = (-0.3, -0.2, -0.1, -0.05, -0.02, -0.005, 0.0, 0.005, 0.02, 0.05, 0.1, 0.15, 0.2,
+          0.3, 0.4, 0.5, 0.65, 0.8, 1.0, 1.25, 1.5, 2.0, 3.0)
+"""Offsets (in total assets) around the first step at which the first round scores the
+level: the interpolation between the two that bracket the root is close from the start."""
+LEVEL_EPS = 1e-15
+"""Levels closer than this at ``-D`` and ``0`` did not move (rounding in the drivers)."""
 
 
 def capacity(s: Statement, measure: str, convention: str, target_of: TargetFn) -> Capacity:
@@ -168,14 +175,7 @@ def solve_capacities(problems: Sequence[Problem], levels: LevelsFn, *,
                      start: Sequence[tuple[float, float]] | None = None) -> list[Capacity]:
     """Solve many capacity questions at once, one call of ``levels`` per round for all.
 
-    Each question is the root of ``f(x) = leverage(x) - level(x)`` over ``x >= -D``. The first
-    round evaluates ``x = 0`` and ``x = -D`` (a level below zero asks to repay everything).
-    Each later round solves the exact leverage against the level interpolated linearly
-    through the last two points (at first ``-D`` and ``0``; when the level did not move, no
-    driver moves with the debt and this is the closed form, exact in one round: a
-    recapitalisation), kept inside the bracket found so far (bisection when a step leaves it,
-    doubling while no upper end is known), until
-    ``|f| <= 1e-12`` or the bracket is narrower than ``1e-12`` of total assets.
+    See :class:`CapacitySearch` for the method.
 
     Parameters
     ----------
@@ -192,62 +192,122 @@ def solve_capacities(problems: Sequence[Problem], levels: LevelsFn, *,
     list of Capacity
         In the order of ``problems``.
     """
-    for p in problems:
-        if p.convention not in CONVENTIONS:
-            raise ValueError(f"convention must be one of {sorted(CONVENTIONS)}; got "
-                             f"{p.convention!r}")
-    n = len(problems)
-    out: list[Capacity | None] = [None] * n
-    if n == 0:
-        return []
-    if start is None:
-        got = levels([(p, moved(p.statement, p.convention, x)) for p in problems
-                      for x in (0.0, -p.statement.total_debt)])
-        start = [(float(got[2 * i]), float(got[2 * i + 1])) for i in range(n)]
-    states = []
-    for i, p in enumerate(problems):
-        s, lo = p.statement, -p.statement.total_debt
-        level0, level_lo = start[i]
-        f_lo = moved(s, p.convention, lo).leverage(p.measure) - level_lo
-        top = _top(s, p.measure, p.convention)
-        if f_lo > 0:
-            out[i] = Capacity(lo, level_lo, "bound", "target_below_zero")
-        elif level0 >= 1.0 and (p.measure == "market" or p.convention == "recap"):
-            flag = f"{p.measure}_target_at_or_above_one"
-            out[i] = Capacity(math.inf if p.convention == "funded" else top, level0, "bound",
-                              flag)
-        else:
+    search = CapacitySearch(problems, start=start)
+    while not search.done:
+        search.feed(levels(search.pending()))
+    return search.results()
+
+
+class CapacitySearch:
+    """Capacity questions solved in lockstep, so that each round is one batch for the model.
+
+    Each question is the root of ``f(x) = leverage(x) - level(x)`` over ``x >= -D``. It starts
+    from the levels at ``x = 0`` and ``x = -D`` (a level below zero at ``-D`` asks to repay
+    everything). Each round then solves the exact leverage against the level interpolated
+    linearly through two points: at first ``-D`` and ``0`` (when the level did not move there,
+    no driver moves with the debt and this is the closed form, exact in one round: a
+    recapitalisation); the first round scores a ladder of points around that step and the
+    next step goes through the two that bracket the root; afterwards each round scores the
+    step and a point a millionth of total assets beyond it (a Newton step with the level's
+    slope measured where the search is). Steps stay inside the bracket found so far
+    (bisection when one leaves it, doubling while no upper end is known), until
+    ``|f| <= ROOT_TOL`` or the bracket is narrower than ``1e-12`` of total assets.
+
+    Use: ``pending()`` lists the (problem, moved statement) pairs whose levels the next round
+    needs; ``feed(levels)`` takes their levels in that order; ``results()`` once ``done``.
+    """
+
+    def __init__(self, problems: Sequence[Problem], *,
+                 start: Sequence[tuple[float, float]] | None = None) -> None:
+        for p in problems:
+            if p.convention not in CONVENTIONS:
+                raise ValueError(f"convention must be one of {sorted(CONVENTIONS)}; got "
+                                 f"{p.convention!r}")
+        self.problems = list(problems)
+        self.out: list[Capacity | None] = [None] * len(self.problems)
+        self.states: list[_State] = []
+        self.rounds = 0
+        self._open: list[_State] = []
+        self._points: list[list[float]] = []
+        self._needs_start = start is None
+        if start is not None:
+            self._begin(start)
+
+    @property
+    def done(self) -> bool:
+        """Whether every question is settled (or the rounds are spent)."""
+        if self._needs_start:
+            return False
+        return self.rounds >= MAX_ROUNDS or all(self.out[st.i] is not None
+                                                for st in self.states)
+
+    def pending(self) -> list[tuple[Problem, Statement]]:
+        """The statements whose levels the next round needs, in the order ``feed`` expects."""
+        if self._needs_start:
+            return [(p, moved(p.statement, p.convention, x)) for p in self.problems
+                    for x in (0.0, -p.statement.total_debt)]
+        self._open = [st for st in self.states if self.out[st.i] is None]
+        self._points = [st.points() for st in self._open]
+        return [(st.p, moved(st.p.statement, st.p.convention, x))
+                for st, xs in zip(self._open, self._points, strict=True) for x in xs]
+
+    def feed(self, levels: Sequence[float] | np.ndarray) -> None:
+        """Take the levels of the statements :meth:`pending` listed."""
+        got = [float(v) for v in levels]
+        if self._needs_start:
+            self._needs_start = False
+            self._begin([(got[2 * i], got[2 * i + 1]) for i in range(len(self.problems))])
+            return
+        k = 0
+        for st, xs in zip(self._open, self._points, strict=True):
+            done = st.absorb_round(xs, got[k:k + len(xs)])
+            k += len(xs)
+            if done is not None:
+                method = "closed form" if self.rounds == 0 and not st.pair and \
+                    done.method == "root solve" else done.method
+                self.out[st.i] = Capacity(done.amount, done.level, method, done.flag)
+        self.rounds += 1
+
+    def results(self) -> list[Capacity]:
+        """One answer per problem (a question the rounds did not settle: its best point)."""
+        for st in self.states:
+            if self.out[st.i] is None:
+                self.out[st.i] = Capacity(st.best[0], st.best[2], "root solve")
+        return [c for c in self.out if c is not None]
+
+    def _begin(self, start: Sequence[tuple[float, float]]) -> None:
+        for i, p in enumerate(self.problems):
+            s, lo = p.statement, -p.statement.total_debt
+            level0, level_lo = start[i]
+            f_lo = moved(s, p.convention, lo).leverage(p.measure) - level_lo
+            top = _top(s, p.measure, p.convention)
+            if f_lo > 0:
+                self.out[i] = Capacity(lo, level_lo, "bound", "target_below_zero")
+                continue
+            if level0 >= 1.0 and (p.measure == "market" or p.convention == "recap"):
+                flag = f"{p.measure}_target_at_or_above_one"
+                self.out[i] = Capacity(math.inf if p.convention == "funded" else top, level0,
+                                       "bound", flag)
+                continue
             f0 = s.leverage(p.measure) - level0
-            x1 = closed_form(s, p.measure, p.convention, level0)
             st = _State(i, p, lo=lo, f_lo=f_lo, top=top, prev=(lo, f_lo, level_lo),
                         next_x=0.0)
             settled = st.absorb(0.0, f0, level0)
             if settled is not None:
-                out[i] = Capacity(0.0, level0, "closed form", settled.flag)
+                self.out[i] = Capacity(0.0, level0, "closed form", settled.flag)
                 continue
-            if level_lo == level0 or not math.isfinite(st.next_x):
-                # no driver moves with the debt: the closed form is the answer
+            still = abs(level_lo - level0) <= LEVEL_EPS
+            chord = st._step(lo, level_lo, 0.0, level0) if not still else math.nan
+            if math.isfinite(chord):
+                st.next_x = chord
+            else:
+                # no driver moves with the debt: the closed form is the answer (and where
+                # the chord through -D and 0 misses, the closed form starts the search)
+                x1 = closed_form(s, p.measure, p.convention, level0)
                 st.next_x = min(max(x1, lo), top) if math.isfinite(x1) else (
                     top if math.isfinite(top) else max(s.total_assets, 1.0))
-            states.append(st)
-    for rounds in range(MAX_ROUNDS):
-        open_ = [st for st in states if out[st.i] is None]
-        if not open_:
-            break
-        got = levels([(st.p, moved(st.p.statement, st.p.convention, st.next_x))
-                      for st in open_])
-        for st, level in zip(open_, got, strict=True):
-            x = st.next_x
-            f = moved(st.p.statement, st.p.convention, x).leverage(st.p.measure) - float(level)
-            done = st.absorb(x, f, float(level))
-            if done is not None:
-                method = "closed form" if rounds == 0 and done.method == "root solve" \
-                    else done.method
-                out[st.i] = Capacity(done.amount, done.level, method, done.flag)
-    for st in states:  # a question the rounds did not settle: the bracket's best point
-        if out[st.i] is None:
-            out[st.i] = Capacity(st.best[0], st.best[2], "root solve")
-    return [c for c in out if c is not None]
+            st.pair = not still
+            self.states.append(st)
 
 
 @dataclass(slots=True)
@@ -264,6 +324,56 @@ class _State:
     hi: float = math.inf
     f_hi: float = math.nan
     best: tuple[float, float, float] = (math.nan, math.inf, math.nan)
+    pair: bool = True
+    ladder: bool = True
+    third: tuple[float, float] | None = None
+
+    def points(self) -> list[float]:
+        """The points of the next round: at first a ladder around the first step (the level
+        is scored along it in the same batch), then the step and one beside it (the level's
+        slope where the search is)."""
+        scale = max(self.p.statement.total_assets, 1.0)
+        if not self.pair:
+            return [self.next_x]
+        if self.ladder:
+            self.ladder = False
+            pts = {min(max(self.next_x + scale * t, self.lo), self.top) for t in LADDER}
+            return sorted(x for x in pts if math.isfinite(x))
+        h = 1e-6 * scale
+        beside = self.next_x + h if self.next_x + h <= self.top else self.next_x - h
+        return [self.next_x, beside]
+
+    def absorb_round(self, xs: list[float], levels: list[float]) -> Capacity | None:
+        """Take a round's points: the step goes through the two that bracket the root (else
+        the best point and its neighbour)."""
+        pts = sorted((x, moved(self.p.statement, self.p.convention, x).leverage(self.p.measure)
+                      - lv, lv) for x, lv in zip(xs, levels, strict=True))
+        if len(pts) == 1:
+            return self.absorb(*pts[0])
+        best = min(range(len(pts)), key=lambda j: abs(pts[j][1]))
+        cross = [j for j in range(1, len(pts)) if (pts[j - 1][1] < 0) != (pts[j][1] < 0)]
+        j = min(cross, key=lambda c: min(abs(pts[c][1]), abs(pts[c - 1][1]))) if cross else \
+            max(best, 1)
+        anchor = j if abs(pts[j][1]) <= abs(pts[j - 1][1]) else j - 1
+        other = j - 1 if anchor == j else j
+        for k, (x, f, lv) in enumerate(pts):
+            if k not in (anchor,):
+                self._bracket(x, f, lv)
+        self.prev = pts[other]
+        near = [k for k in (min(anchor, other) - 1, max(anchor, other) + 1)
+                if 0 <= k < len(pts)]
+        if near:
+            k = min(near, key=lambda k: abs(pts[k][0] - pts[anchor][0]))
+            self.third = (pts[k][0], pts[k][2])
+        return self.absorb(*pts[anchor])
+
+    def _bracket(self, x: float, f: float, level: float) -> None:
+        if abs(f) < abs(self.best[1]):
+            self.best = (x, f, level)
+        if f < 0:
+            self.lo, self.f_lo = max(self.lo, x), f
+        else:
+            self.hi, self.f_hi = min(self.hi, x), f
 
     def absorb(self, x: float, f: float, level: float) -> Capacity | None:
         """Take a new point; return the answer once settled, else set the next point."""
@@ -298,17 +408,35 @@ class _State:
         return None
 
     def _step(self, x0: float, level0: float, x1: float, level1: float) -> float:
-        # The leverage side is known exactly; only the level is interpolated (linearly through
-        # the last two points), so the step is exact when the level moves linearly.
+        # The leverage side is known exactly; only the level is interpolated: linearly through
+        # the last two points (exact when the level moves linearly), or through a third one
+        # too when the round scored a ladder (a parabola: close from the first round).
         s, conv, measure = self.p.statement, self.p.convention, self.p.measure
         slope = (level1 - level0) / (x1 - x0)
+        third, self.third = self.third, None
+        curve = 0.0
+        if third is not None and third[0] not in (x0, x1):
+            x2, level2 = third
+            curve = ((level2 - level1) / (x2 - x1) - slope) / (x2 - x0)
 
         def g(z: float) -> float:
-            return moved(s, conv, z).leverage(measure) - (level1 + slope * (z - x1))
+            level = level1 + slope * (z - x1) + curve * (z - x1) * (z - x0)
+            return moved(s, conv, z).leverage(measure) - level
 
-        hi = self.hi if math.isfinite(self.hi) else min(self.top, max(4.0 * abs(x1), 4.0 *
-                                                                       s.total_assets))
-        return bracketed_root(g, self.lo, hi, xtol=1e-14 * max(s.total_assets, 1.0))
+        # the root of g nearest the last point, within the bracket known so far
+        lo, hi = self.lo, min(self.hi, self.top)
+        scale = max(s.total_assets, 1.0)
+        g1 = g(x1)
+        if g1 == 0.0:
+            return x1
+        d = max(abs(x1 - x0), 1e-9 * scale)
+        while d <= 1e4 * scale:
+            for z in (min(x1 + d, hi), max(x1 - d, lo)):
+                if z != x1 and (g(z) > 0) != (g1 > 0):
+                    a, b = sorted((x1, z))
+                    return bracketed_root(g, a, b, xtol=1e-14 * scale)
+            d *= 4.0
+        return math.nan
 
 
 def bracketed_root(g: Callable[[float], float], lo: float, hi: float, *,

@@ -19,12 +19,12 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from levgap.deal.capacity import CONVENTIONS, Capacity, Problem, moved, solve_capacities
+from levgap.deal.capacity import CONVENTIONS, Capacity, CapacitySearch, Problem, moved
 from levgap.deal.credit import altman, credit_ratios
 from levgap.deal.distress import asset_value, distress_at, grid
 from levgap.deal.result import CAPACITY_COLUMNS, PROFORMA_COLUMNS, DealCheck
 from levgap.deal.scenario import ASSUMPTIONS, BEFORE, Scenario, check_name_free
-from levgap.deal.scoring import HELD_DRIVERS, batch_levels, score_rows
+from levgap.deal.scoring import HELD_DRIVERS, batch_levels, capacity_rows, read_levels
 from levgap.deal.statement import ProForma, Statement, apply_scenario
 from levgap.errors import ConfigError
 
@@ -85,12 +85,12 @@ def check_deal(
         apply_scenario(base, s, _partner(panel, s, year)) for s in scenarios]
     labels = [BEFORE] + [s.name for s in scenarios]
     histories = [_history(panel, firm_id, year, p) for p in proformas]
-    scored = _score_all(model, proformas, histories, drivers, firm_id, year)
+    scored, caps = _score_all(model, proformas, histories, drivers, firm_id, year)
     peer_median = {m: float(r["peer_median"]) for m, r in
                    firm_targets[firm_targets["fiscal_year"] == year].set_index("measure")
                    .iterrows()}
     table, contributions, tradeoff = _assemble(model, labels, proformas, histories, scored,
-                                               peer_median)
+                                               caps, peer_median)
     return DealCheck(
         firm_id=str(firm_id), firm_name=base.firm_name, industry=base.industry,
         fiscal_year=year, run_id=str(getattr(model, "run_id", None) or ""), scenarios=scenarios,
@@ -103,25 +103,59 @@ def check_deal(
 
 
 def _score_all(model: Any, proformas: list[ProForma], histories: list[pd.DataFrame],
-               drivers: pd.DataFrame, firm_id: str, year: int) -> pd.DataFrame:
-    """Every scenario under its own id, and beside it its statement with all the debt repaid
-    under each convention (the lower end of every capacity search), scored in one batch per
-    measure (each measure with its own peer profile); the rows of ``year``."""
+               drivers: pd.DataFrame, firm_id: str, year: int
+               ) -> tuple[pd.DataFrame, dict[tuple[int, str], tuple[dict[str, float],
+                                                                   list[str]]]]:
+    """Score every scenario and solve every capacity question, in as few batches as they need.
+
+    The first batch holds each scenario under its own id and beside it its statement with all
+    the debt repaid under each convention (the lower end of every capacity search), scored
+    with the first measure's peer profile; it gives every level the searches start from. Each
+    further measure's batch (its own peer profile, for its contributions) also carries the
+    first round of the searches; the remaining rounds are batches of their own.
+
+    Returns
+    -------
+    (pandas.DataFrame, dict)
+        The scored rows of ``year`` (each measure with its own peer profile), and the
+        capacities by (scenario index, measure).
+    """
     pairs = list(enumerate(zip(proformas, histories, strict=True)))
-    rows = pd.concat([_score_input(p.after, h, _scenario_id(k)) for k, (p, h) in pairs]
-                     + [_score_input(moved(p.after, conv, -p.after.total_debt), h,
+    rows = pd.concat([_score_input(p.after, h, _scenario_id(k)) for k, (p, h) in pairs],
+                     ignore_index=True)
+    floors = pd.concat([_score_input(moved(p.after, conv, -p.after.total_debt), h,
                                      _floor_id(k, conv))
                         for k, (p, h) in pairs for conv in CONVENTIONS], ignore_index=True)
-    scored = score_rows(model, rows, _peer_profiles(drivers, firm_id, year, model, len(rows)))
-    return scored[scored["fiscal_year"] == year]
+    measures = list(model.measures)
+    first_rows = pd.concat([rows, floors], ignore_index=True)
+    first = model.score(first_rows, peer_profile=_peer_profile(drivers, firm_id, year, model,
+                                                               measures[0], len(first_rows)))
+    first = first[first["fiscal_year"] == year]
+    kept = [first[(first["measure"] == measures[0])
+                  & first["firm_id"].astype(str).str.startswith("scenario-")]]
+    problems, held, start = _problems(model, proformas, first)
+    search = CapacitySearch(problems, start=start)
+    for measure in measures[1:]:
+        items = [] if search.done else search.pending()
+        batch = pd.concat([rows, capacity_rows(items, held)], ignore_index=True)
+        scored = model.score(batch, peer_profile=_peer_profile(drivers, firm_id, year, model,
+                                                               measure, len(batch)))
+        if items:
+            search.feed(read_levels(scored, items))
+        kept.append(scored[(scored["measure"] == measure) & (scored["fiscal_year"] == year)
+                           & scored["firm_id"].astype(str).str.startswith("scenario-")])
+    levels = batch_levels(model, held)
+    while not search.done:
+        search.feed(levels(search.pending()))
+    return pd.concat(kept, ignore_index=True), _collect(problems, search.results())
 
 
 def _assemble(model: Any, labels: list[str], proformas: list[ProForma],
               histories: list[pd.DataFrame], scored: pd.DataFrame,
+              caps: dict[tuple[int, str], tuple[dict[str, float], list[str]]],
               peer_median: dict[str, float]) -> tuple[pd.DataFrame, pd.DataFrame,
                                                       pd.DataFrame]:
     """The ``proforma.csv`` rows, the contributions and the trade-off grids."""
-    caps = _capacities(model, proformas, scored)
     table, contributions, tradeoff = [], [], []
     for k, (label, p, hist) in enumerate(zip(labels, proformas, histories, strict=True)):
         assets, note = asset_value(p.after, p.scenario, hist["fiscal_year"].tolist(),
@@ -212,31 +246,29 @@ def _score_input(s: Statement, history: pd.DataFrame, firm: str) -> pd.DataFrame
     return rows
 
 
-def _peer_profiles(drivers: pd.DataFrame, firm_id: str, year: int, model: Any,
-                   n: int) -> dict[str, pd.DataFrame]:
+def _peer_profile(drivers: pd.DataFrame, firm_id: str, year: int, model: Any,
+                  measure: str, n: int) -> pd.DataFrame | None:
+    """The firm's own peer profile of one measure (``drivers.csv``), for ``n`` input rows."""
     d = drivers[(drivers["firm_id"].astype(str) == str(firm_id))
-                & (drivers["fiscal_year"] == year)]
-    out = {}
-    for measure in model.measures:
-        values = d[d["measure"] == measure].set_index("driver")["peer_value"]
-        if len(values):
-            out[measure] = pd.DataFrame({c: np.full(n, float(values.get(c, np.nan)))
-                                         for c in model.drivers})
-    return out
+                & (drivers["fiscal_year"] == year) & (drivers["measure"] == measure)]
+    values = d.set_index("driver")["peer_value"]
+    if values.empty:
+        return None
+    return pd.DataFrame({c: np.full(n, float(values.get(c, np.nan))) for c in model.drivers})
 
 
-def _capacities(model: Any, proformas: list[ProForma], scored: pd.DataFrame
-                ) -> dict[tuple[int, str], tuple[dict[str, float], list[str]]]:
-    """Capacity to the target and the band's top, both conventions, every scenario and
-    measure, solved together (each round of the root search is one batch for the model)."""
+def _problems(model: Any, proformas: list[ProForma], first: pd.DataFrame
+              ) -> tuple[list[Problem], dict[int, dict[str, float]], list[tuple[float, float]]]:
+    """Capacity to the target and to the band's top, both conventions, every scenario and
+    measure: the questions, the drivers each scenario holds, and the levels at 0 and -D."""
     problems, held, start = [], {}, []
-    at = {(str(r["firm_id"]), str(r["measure"])): r for r in scored.to_dict("records")}
+    at = {(str(r["firm_id"]), str(r["measure"])): r for r in first.to_dict("records")}
     for k, p in enumerate(proformas):
-        rows = scored[scored["firm_id"] == _scenario_id(k)]
+        rows = first[first["firm_id"] == _scenario_id(k)]
         if rows.empty:
             continue
-        first = rows.iloc[0]
-        held[k] = {d: float(first[f"{d}_raw"]) for d in HELD_DRIVERS if d in model.drivers}
+        one = rows.iloc[0]
+        held[k] = {d: float(one[f"{d}_raw"]) for d in HELD_DRIVERS if d in model.drivers}
         for measure in rows["measure"].astype(str):
             if measure == "market" and math.isnan(p.after.market_equity):
                 continue
@@ -245,8 +277,11 @@ def _capacities(model: Any, proformas: list[ProForma], scored: pd.DataFrame
                     problems.append(Problem(p.after, measure, conv, (k, column)))
                     start.append((float(at[(_scenario_id(k), measure)][column]),
                                   float(at[(_floor_id(k, conv), measure)][column])))
-    answers: list[Capacity] = solve_capacities(problems, batch_levels(model, held),
-                                               start=start)
+    return problems, held, start
+
+
+def _collect(problems: list[Problem], answers: list[Capacity]
+             ) -> dict[tuple[int, str], tuple[dict[str, float], list[str]]]:
     out: dict[tuple[int, str], tuple[dict[str, float], list[str]]] = {}
     for prob, cap in zip(problems, answers, strict=True):
         k, column = prob.key
