@@ -240,7 +240,11 @@ def estimate(
                 "industry": (ctx.industry[rows],)}[spec.cluster]
     structure = ctx.feats.levels.structure()
     components, pool_for = None, None
-    if structure.small[level].any():
+    if structure.small[level].any() and spec.pooling == "parent":
+        def pool_for(train: np.ndarray | None) -> Pooling:
+            return hard(structure)
+
+    elif structure.small[level].any():
         first = fit_fn(y, X, effects=effects, n_levels=n_levels, names=names,
                        pooling=hard(structure), cov=False, check=True)
         fitted = first.predict(X, effects)

@@ -402,8 +402,8 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
         raise ModelError(
             f"every driver must vary within industries and years; got {', '.join(absorbed)} "
             "explained entirely by the industry and year effects (constant within every "
-            "industry, for example). Drop it from [model] drivers, or set [model] "
-            "industry_digits to a coarser industry level."
+            "industry, for example). Drop it from [model] drivers, or group industries more "
+            "coarsely ([model] peer_digits)."
         )
     scaled = resid / np.sqrt(np.einsum("ij,ij->j", resid, resid))
     _, s, vt = np.linalg.svd(scaled, full_matrices=False)
