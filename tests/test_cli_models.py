@@ -37,7 +37,7 @@ def test_analyze_with_each_model_writes_its_saved_model(tmp_path: Path) -> None:
 
 def test_compare_prints_and_writes_three_models(tmp_path: Path) -> None:
     src = tmp_path / "panel.csv"
-    panel(6, industries=6, firms=(8, 12)).drop(columns=["true_target", "spread"]).to_csv(
+    panel(6, industries=5, firms=(6, 8), years=6).drop(columns=["true_target", "spread"]).to_csv(
         src, index=False)
     out = tmp_path / "comparison.csv"
     r = runner.invoke(app, ["compare", str(src), "--measure", "book", "--out", str(out)])
