@@ -34,6 +34,7 @@ COMPARE_COLUMNS = (
 BENCHMARK = "gradient_boosting"
 MAX_CATEGORIES = 250  # HistGradientBoosting takes at most 255 categories per feature
 COVERAGE_MIN_ROWS = 100
+SMALL = 100_000
 
 
 def compare_models(
@@ -103,6 +104,7 @@ def _row(measure: str, model: str, y: np.ndarray, target: np.ndarray, level: np.
 def _boosted(ctx: Any, rows: np.ndarray, y: np.ndarray, spec: ModelSpec) -> np.ndarray:
     """Cross-fitted predictions of the gradient-boosting benchmark (same folds)."""
     from sklearn.ensemble import HistGradientBoostingRegressor
+    from threadpoolctl import threadpool_limits
 
     level = ctx.level[rows]
     categorical = len(ctx.feats.levels.labels) <= MAX_CATEGORIES
@@ -110,10 +112,13 @@ def _boosted(ctx: Any, rows: np.ndarray, y: np.ndarray, spec: ModelSpec) -> np.n
     mask = [False] * ctx.X.shape[1] + [categorical, False]
     folds = assign_folds(ctx.firm[rows], level, spec.folds, spec.seed)
     target = np.empty(len(y))
-    for f in np.unique(folds):
-        test = folds == f
-        model = HistGradientBoostingRegressor(categorical_features=mask,
-                                              random_state=spec.seed)
-        model.fit(features[~test], y[~test])
-        target[test] = model.predict(features[test])
+    # Below SMALL rows OpenMP threads cost more than they save (and spin when the cores are
+    # busy): one thread.
+    with threadpool_limits(1 if len(y) < SMALL else None):
+        for f in np.unique(folds):
+            test = folds == f
+            model = HistGradientBoostingRegressor(categorical_features=mask,
+                                                  random_state=spec.seed)
+            model.fit(features[~test], y[~test])
+            target[test] = model.predict(features[test])
     return target
