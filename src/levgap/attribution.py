@@ -11,7 +11,6 @@ actual ratio this splits ``actual - peer_median`` into the peers' own offset
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -219,7 +218,7 @@ def attribute_gap(
     beta: np.ndarray,
     offset: np.ndarray,
     target: np.ndarray,
-    inverse_link: Callable[[np.ndarray], np.ndarray] | None = None,
+    link: str = "identity",
 ) -> Attribution:
     """Exact contributions, checked against the accounting identity.
 
@@ -233,9 +232,9 @@ def attribute_gap(
         Constant plus fixed effects of each row in that fit (link scale).
     target : numpy.ndarray, shape (n,)
         The row's target, ``inverse_link(offset + X @ beta)``.
-    inverse_link : callable, optional
-        From the linear predictor to the target; the identity when absent (the linear model,
-        whose contributions are ``beta_j * (x_j - x_peer_j)``).
+    link : {"identity", "logit"}, default="identity"
+        The model's link (``levgap.models.result.INVERSE_LINKS``); with the identity the
+        contributions are ``beta_j * (x_j - x_peer_j)``.
 
     Raises
     ------
@@ -243,8 +242,10 @@ def attribute_gap(
         If the contributions do not sum to ``target - peer_target`` within ``IDENTITY_TOL``
         (relative to the size of the target).
     """
-    link = inverse_link if inverse_link is not None else (lambda eta: eta)
-    contributions, peer_target, method = shapley(offset, X * beta, X_peer * beta, link)
+    from levgap.models.result import INVERSE_LINKS
+
+    contributions, peer_target, method = shapley(offset, X * beta, X_peer * beta,
+                                                 INVERSE_LINKS[link], linear=link == "identity")
     resid = target - peer_target - contributions.sum(axis=1)
     bad = np.abs(resid) > IDENTITY_TOL * np.maximum(1.0, np.abs(target))
     if bad.any():

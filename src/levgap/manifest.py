@@ -90,7 +90,7 @@ def build_manifest(
         },
         "band": {"coverage": config.model.coverage,
                  "method": "location-scale: cross-fitted residuals scaled by their industry's "
-                 "robust scale (shrunk toward the pooled scale with weight n/(n + "
+                 "interdecile range (shrunk toward the pooled scale with weight n/(n + "
                  f"{config.model.band_prior_rows:g})), quantiles of the scaled residuals, "
                  "clipped to [0, 1]"},
         "warnings": list(warnings),

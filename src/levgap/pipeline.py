@@ -240,7 +240,11 @@ def estimate(
                 "industry": (ctx.industry[rows],)}[spec.cluster]
     structure = ctx.feats.levels.structure()
     components, pool_for = None, None
-    if structure.small[level].any():
+    if structure.small[level].any() and spec.pooling == "parent":
+        def pool_for(train: np.ndarray | None) -> Pooling:
+            return hard(structure)
+
+    elif structure.small[level].any():
         first = fit_fn(y, X, effects=effects, n_levels=n_levels, names=names,
                        pooling=hard(structure), cov=False, check=True)
         fitted = first.predict(X, effects)
@@ -300,7 +304,7 @@ def attribute(ctx: Context, rows: np.ndarray, y: np.ndarray, est: Estimate) -> d
     contributions = np.full(X.shape, np.nan)
     peer_target = np.full(len(rows), np.nan)
     attr = attribute_gap(X[has], X_peer[has], est.cf.beta[has], est.cf.offset[has],
-                         est.cf.target[has], est.full.inverse_link)
+                         est.cf.target[has], est.full.link)
     contributions[has], peer_target[has] = attr.contributions, attr.peer_target
     return {"X_peer": X_peer, "peer_median": peer_med, "peer_count": count,
             "peer_target": peer_target, "contributions": contributions,
@@ -353,7 +357,7 @@ def _fit_row(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, measure
     tss = float(((y - y.mean()) ** 2).sum())
     cov, cmin, cmax, n_big = bands.coverage_by_level(y, low, high, ctx.level[rows],
                                                      COVERAGE_MIN_ROWS)
-    oot, oot_year = out_of_time(fit_fn, ctx, rows, measure, y, spec)
+    oot, oot_year = out_of_time(fit_fn, ctx, rows, measure, y, est, spec)
     return {
         "measure": measure, "model": spec.model, "n_obs": int(len(y)),
         "n_firms": int(np.count_nonzero(np.bincount(ctx.firm[rows]))),
@@ -368,27 +372,36 @@ def _fit_row(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, measure
 
 
 def out_of_time(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, measure: str,
-                y: np.ndarray, spec: ModelSpec) -> tuple[float, int | None]:
-    """Coverage of the last fiscal year's rows by a model and band fitted without that year.
+                y: np.ndarray, est: Estimate, spec: ModelSpec) -> tuple[float, int | None]:
+    """Coverage of the last fiscal year's rows by a model fitted without that year.
 
-    The model is fitted and cross-fitted on the earlier years (band calibrated on those
-    years' cross-fitted residuals); the last year's year effect is carried forward from the
-    latest earlier year. NaN when the panel has a single year."""
+    The model is refitted on the earlier years (small industries pooled with the run's
+    variance components), the last year's year effect carried forward from the latest earlier
+    year; the band is calibrated on the earlier years' cross-fitted residuals. NaN when the
+    panel has a single year."""
     year = ctx.year[rows]
     last = int(year.max())
     train = year < last
-    if not train.any() or len(np.unique(ctx.firm[rows][train])) < spec.folds:
+    if not train.any() or len(np.unique(ctx.firm[rows][train])) < 2:
         return float("nan"), None
     sub = rows[train]
+    effects = [ctx.level[sub], ctx.year[sub]]
+    pooling = None
+    if est.components is not None:
+        structure = ctx.feats.levels.structure()
+        pooling = (hard(structure) if spec.pooling == "parent" else
+                   penalised(structure, est.components, ctx.level[sub], ctx.firm[sub]))
     try:
-        past = estimate(fit_fn, ctx, sub, measure, spec, None)
+        past = fit_fn(y[train], ctx.X[sub], effects=effects,
+                      n_levels=[len(ctx.feats.levels.labels), len(ctx.years)],
+                      names=ctx.feats.drivers, pooling=pooling, cov=False, check=False,
+                      start=est.full.offset(effects) + ctx.X[sub] @ est.full.coef[1:])
     except ModelError:
         return float("nan"), None
-    band = bands.calibrate(y[train] - past.cf.target, ctx.level[sub],
+    band = bands.calibrate(y[train] - est.cf.target[train], ctx.level[sub],
                            len(ctx.feats.levels.labels), spec.coverage, spec.band_prior_rows)
     test = rows[~train]
-    target = past.full.predict(ctx.X[test], [ctx.level[test], ctx.year[test]])
+    target = past.predict(ctx.X[test], [ctx.level[test], ctx.year[test]])
     low, high = band.limits(target, ctx.level[test])
     inside = (y[~train] >= low) & (y[~train] <= high)
     return float(inside.mean()), int(ctx.years[last])
-

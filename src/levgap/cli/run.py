@@ -151,6 +151,9 @@ def analyze(
     panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX) in schema v1."),
     out: Path = typer.Option(..., "--out", help="Output folder."),
     measure: str = typer.Option("both", "--measure", help="book, market or both."),
+    model: str = typer.Option(
+        None, "--model", help="Target model: fractional (default; targets in [0, 1]) or linear "
+        "(replication)."),
     cluster: str = typer.Option(
         None, "--cluster", help="Clustering of standard errors: firm, firm-year or industry."),
     year: int = typer.Option(None, "--year", help="Report only this fiscal year."),
@@ -179,6 +182,8 @@ def analyze(
             changes["measures"] = parse_measures(measure)
         if cluster is not None:
             changes["cluster"] = cluster
+        if model is not None:
+            changes["model"] = model
         if year is not None:
             changes["year"] = year
         if changes:

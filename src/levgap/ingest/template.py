@@ -229,7 +229,8 @@ coverage = 0.8                 # coverage of the band around each target
 model = "fractional"           # "fractional" (logit, targets in [0, 1]) or "linear"
 # year = 2023                  # report only this fiscal year (the model uses every year)
 lag_drivers = false            # true: explain leverage with the previous fiscal year's drivers
-band_prior_rows = 20           # firm-years at which an industry's own spread sets half its band
+pooling = "shrink"             # small industries: "shrink" toward the parent, or "parent" outright
+band_prior_rows = 10           # firm-years at which an industry's own spread sets half its band
 """
 """Annotated example ``run.toml``; parses to the default configuration."""
 

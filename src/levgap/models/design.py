@@ -350,6 +350,35 @@ def inverse_rows(factor: tuple[np.ndarray, bool], d: np.ndarray, m: int) -> np.n
     return cho_apply(factor, d, eye).T
 
 
+SUSPECT_TOL = 1e-8
+"""A driver's variance share after the effects (or a correlation eigenvalue) below this, in the
+normal equations, sends the fit to the exact data-space test."""
+
+
+def suspicious(A: np.ndarray, k: int) -> bool:
+    """A cheap screen in the normal equations: could a driver be absorbed or collinear?
+
+    The Schur complement of the drivers after the constant and the effects
+    (:math:`A_{xx} - A_{xe} A_{ee}^{-1} A_{ex}`) loses precision with the condition of the
+    effects block, so it only screens; :func:`check_identified` decides in data space."""
+    kw = k + 1
+    if k == 0:
+        return False
+    D = A[1:kw, 1:kw]
+    E = np.delete(np.delete(A, np.s_[1:kw], axis=0), np.s_[1:kw], axis=1)
+    C = np.delete(A[1:kw], np.s_[1:kw], axis=1)
+    try:
+        factor, d = solve(E)
+    except (np.linalg.LinAlgError, scipy.linalg.LinAlgError):
+        return True
+    S = D - C @ cho_apply(factor, d, C.T)
+    diag = np.diag(S)
+    if np.any(diag <= SUSPECT_TOL * np.diag(D)):
+        return True
+    corr = S / np.sqrt(np.outer(diag, diag))
+    return bool(np.linalg.eigvalsh(corr)[0] < SUSPECT_TOL)
+
+
 def check_identified(design: Design, names: Sequence[str]) -> None:
     """Refuse drivers that the effects absorb or that are collinear with each other.
 
@@ -402,8 +431,8 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
         raise ModelError(
             f"every driver must vary within industries and years; got {', '.join(absorbed)} "
             "explained entirely by the industry and year effects (constant within every "
-            "industry, for example). Drop it from [model] drivers, or set [model] "
-            "industry_digits to a coarser industry level."
+            "industry, for example). Drop it from [model] drivers, or group industries more "
+            "coarsely ([model] peer_digits)."
         )
     scaled = resid / np.sqrt(np.einsum("ij,ij->j", resid, resid))
     _, s, vt = np.linalg.svd(scaled, full_matrices=False)

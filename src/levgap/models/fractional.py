@@ -34,7 +34,7 @@ from scipy import special
 
 from levgap.errors import ModelError
 from levgap.models.assemble import factorise, make_fit, prepare
-from levgap.models.design import Design, Pooling, check_identified, cho_apply
+from levgap.models.design import Design, Pooling, check_identified, cho_apply, suspicious
 from levgap.models.result import Fit
 
 MAX_ITER = 100
@@ -100,7 +100,7 @@ def fit_fractional(
             f"{ybar:g}."
         )
     check = cov if check is None else check
-    if check:
+    if check and suspicious(design.gram(), design.k):
         check_identified(design, names)
     theta = np.zeros(design.layout.n_params)
     if start is not None:

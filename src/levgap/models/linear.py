@@ -35,7 +35,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from levgap.models.assemble import factorise, make_fit, prepare, refine
-from levgap.models.design import Pooling, check_identified, cho_apply
+from levgap.models.design import Pooling, check_identified, cho_apply, suspicious
 from levgap.models.result import Fit
 
 
@@ -91,9 +91,9 @@ def fit_linear(
     """
     y, design, names, totals = prepare(y, X, effects, names, n_levels, pooling)
     check = cov if check is None else check
-    if check:
-        check_identified(design, names)
     A = design.gram()
+    if check and suspicious(A, design.k):
+        check_identified(design, names)
     factor, d = factorise(design, A, names, check)
     theta = cho_apply(factor, d, design.rmatvec(y))
     theta = refine(design, factor, d, theta, y)

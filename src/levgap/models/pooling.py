@@ -11,10 +11,11 @@ is the empirical-Bayes (best linear unbiased predictor) weight
 with :math:`m_s` firms and :math:`n_s` firm-years in the industry, :math:`\sigma_e^2` the
 within-firm residual variance, :math:`\sigma_f^2` the variance of firm means within an
 industry (firms' own persistent deviations, estimated by the method of moments), and
-:math:`\tau^2` the variance of industries' effects around their parent group (the industries
-with effects of their own, each against the other members of its own parent group, less their
-sampling variance), all from a first fit in which small industries take their parent's effect
-outright, on the response scale. :math:`\tau^2` is floored at 1% of
+:math:`\tau^2` the variance of industries' effects around their parent group, by the method of
+moments over every industry: an industry with an effect of its own against the other members
+of its parent group, a small industry by its rows' mean residual when it takes its parent's
+effect, each less its sampling variance; all from a first fit in which small industries take
+their parent's effect outright, on the response scale. :math:`\tau^2` is floored at 1% of
 :math:`\sigma_f^2 + \sigma_e^2`, so an industry with rows of its own always keeps some of its
 own level. The fit applies the weight as a ridge penalty
 :math:`\lambda_s = n_s \bar h (1 - w_s) / w_s` on :math:`u_s`, where :math:`\bar h` is the mean
@@ -133,7 +134,17 @@ def estimate_components(
     firm_dof = max(int(has.sum()) - int((m_l > 0).sum()), 1)
     firm2 = max(float(dev @ dev) / firm_dof - float(np.mean(resid2 / t_f[has])), 0.0)
     info = float(np.mean(_slope(fit, fitted)))
-    tau2 = _between(fit, level, firm, labels, firm2, resid2, info)
+    dev2, noise = _between(fit, level, firm, labels, firm2, resid2, info)
+    # the small levels' own mean residuals (their deviation from the parent they borrowed)
+    small = fit.pooled.small if fit.pooled is not None else np.zeros(0, dtype=bool)
+    n_l2 = max(int(level.max()) + 1, len(small))
+    rows_l = np.bincount(level, minlength=n_l2).astype(float)
+    sum_l = np.bincount(level, weights=r, minlength=n_l2)
+    for s_code in np.flatnonzero(small[:n_l2] & (rows_l[: len(small)] > 0)):
+        dev2.append((sum_l[s_code] / rows_l[s_code]) ** 2)
+        noise.append(firm2 / max(m_l[s_code] if s_code < len(m_l) else 1.0, 1.0)
+                     + resid2 / rows_l[s_code])
+    tau2 = float(np.mean(dev2) - np.mean(noise)) if dev2 else 0.0
     tau2 = max(tau2, TAU_FLOOR * (firm2 + resid2))
     return Components(tau2=tau2, firm2=firm2, resid2=resid2, info=info)
 
@@ -151,12 +162,13 @@ def _between(
     firm2: float,
     resid2: float,
     info: float,
-) -> float:
-    """Variance of own-level effects around the other members of their parent group."""
+) -> tuple[list[float], list[float]]:
+    """Squared deviations of own-level effects from the other members of their parent group
+    (response scale), and the sampling variance of each."""
     alpha = fit.effects[0]
     own = np.flatnonzero(~np.isnan(alpha))
     if len(own) < 3:
-        return 0.0
+        return [], []
     rows = np.bincount(level, minlength=len(alpha)).astype(float)
     pairs = np.unique(level.astype(np.int64) * (int(firm.max()) + 1) + firm)
     firms = np.bincount(pairs // (int(firm.max()) + 1), minlength=len(alpha)).astype(float)
@@ -171,9 +183,7 @@ def _between(
         parent = float(alpha[own[others]] @ w / w.sum())
         dev2.append((scale * (alpha[g] - parent)) ** 2)
         noise.append(firm2 / max(firms[g], 1.0) + resid2 / max(rows[g], 1.0))
-    if not dev2:
-        return 0.0
-    return float(np.mean(dev2) - np.mean(noise))
+    return dev2, noise
 
 
 def _parent_members(code: str, names: Sequence[str], exclude: int) -> np.ndarray:

@@ -212,7 +212,8 @@ class Fit:
         Returns the contributions (n x k), the target at the peer profile, and the method
         (``levgap.models.shapley``)."""
         beta = self.coef[1:]
-        return shapley(offset, X * beta, X_peer * beta, self.inverse_link)
+        return shapley(offset, X * beta, X_peer * beta, self.inverse_link,
+                       linear=self.link == "identity")
 
     # -- tables -----------------------------------------------------------------------------
 

@@ -77,14 +77,16 @@ def _peer_table(ctx: Context, rows: np.ndarray, y: np.ndarray) -> dict[str, Any]
     frame["fiscal_year"] = ctx.years[ctx.year[rows]].astype(np.int64)
     cols = [*ctx.feats.drivers, "leverage"]
     by = frame.groupby(["industry", "fiscal_year"], sort=True)
-    med, cnt = by[cols].median(), by.size()
+    med, cnt = by[cols].median(), by.size().to_numpy()
+    keys = [f"{i}|{int(t)}" for i, t in med.index]
+    values = med.to_numpy().tolist()
     by_year = frame.groupby("fiscal_year", sort=True)
+    ymed, ycnt = by_year[cols].median(), by_year.size().to_numpy()
     return {
         "columns": cols,
-        "industry_year": {f"{i}|{int(t)}": [int(cnt[(i, t)]), *map(float, med.loc[(i, t)])]
-                          for i, t in med.index},
-        "year": {str(int(t)): [int(n), *map(float, r)] for (t, r), n in
-                 zip(by_year[cols].median().iterrows(), by_year.size(), strict=True)},
+        "industry_year": {k: [int(n), *v] for k, n, v in zip(keys, cnt, values, strict=True)},
+        "year": {str(int(t)): [int(n), *v]
+                 for t, n, v in zip(ymed.index, ycnt, ymed.to_numpy().tolist(), strict=True)},
     }
 
 
@@ -269,10 +271,11 @@ class SavedModel:
         low, high = band.limits(target, np.where(level >= 0, level, len(band.scale)))
         actual = f[measure].to_numpy(dtype=float)
         X_peer, peer_med, peer_n = self._peers(measure, industry, f, peer_profile)
-        link = self.fit(measure).inverse_link
+        fit = self.fit(measure)
         from levgap.models.shapley import shapley
 
-        contrib, peer_target, _ = shapley(offset, X * beta, X_peer * beta, link)
+        contrib, peer_target, _ = shapley(offset, X * beta, X_peer * beta, fit.inverse_link,
+                                          linear=fit.link == "identity")
         flags = f["flags"].astype(str).to_numpy(dtype=object)
         extra = {"industry_not_in_model": new_ind, "year_not_in_model": new_year}
         for code, mask in extra.items():

@@ -51,6 +51,8 @@ def shapley(
     firm_terms: np.ndarray,
     peer_terms: np.ndarray,
     inverse_link: Callable[[np.ndarray], np.ndarray],
+    *,
+    linear: bool = False,
 ) -> tuple[np.ndarray, np.ndarray, str]:
     """Contributions of each driver and the prediction at the peer profile.
 
@@ -62,6 +64,9 @@ def shapley(
         :math:`\\beta_j x_j` at the firm's values and at the peer profile.
     inverse_link : callable
         :math:`h`, applied elementwise to the linear predictor.
+    linear : bool, default=False
+        ``h`` is the identity: the contributions are the linear terms' differences (what every
+        coalition average reduces to), computed directly.
 
     Returns
     -------
@@ -75,6 +80,8 @@ def shapley(
     peer_target = inverse_link(peer_eta)
     if k == 0:
         return np.zeros((n, 0)), peer_target, "shapley"
+    if linear:
+        return firm_terms - peer_terms, peer_target, "shapley"
     if k > MAX_EXACT:
         return _aumann_shapley(offset, firm_terms, peer_terms, inverse_link), peer_target, \
             "aumann-shapley"
