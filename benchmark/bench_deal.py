@@ -43,7 +43,7 @@ risk_free_rate = 0.03
 name = "merge TR0145"
 merge_with = "TR0145"
 merge_price = 250.0
-debt_raised = 150.0
+debt_raised = 250.0
 """,
     "recap": """
 [assumptions]

@@ -80,10 +80,10 @@ acquire_revenue = 90.0
 
 [[scenario]]
 name = "merge TR0145"
-description = "Buy a fellow ironworks for 250 in cash, partly funded with new debt"
+description = "Buy a fellow ironworks for 250 in cash, funded with new debt"
 merge_with = "TR0145"
 merge_price = 250.0
-debt_raised = 150.0
+debt_raised = 250.0
 interest_rate = 0.07          # a scenario's own value overrides [assumptions]
 
 [[scenario]]
