@@ -152,6 +152,19 @@ def test_merger_with_another_panel_firm(deal_run):
                                             abs=1e-15)
 
 
+def test_a_firm_without_market_value_gets_book_leverage_only(deal_run):
+    last = deal_run.panel[deal_run.panel["fiscal_year"] == deal_run.panel["fiscal_year"].max()]
+    private = sorted(last.loc[last["market_equity"].isna(), "firm_id"])[0]
+    check = levgap.proforma(deal_run.out, private, [
+        {"name": "recap", "debt_raised": 5.0, "equity_bought_back": 5.0}])
+    assert set(check.table["measure"]) == {"book"}
+    assert "market leverage not scored in 'recap': no market_equity" in check.notes
+    r = _row(check, "recap", "book")
+    assert "distance to default: not computable: needs market_equity" in r["notes"]
+    expect = _target_row(deal_run, private, "book")
+    assert abs(_row(check, "before", "book")["target"] - expect["target_full"]) <= 1e-12
+
+
 def _cli(*args: str):
     return runner.invoke(app, [str(a) for a in args])
 

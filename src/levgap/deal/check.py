@@ -98,7 +98,10 @@ def check_deal(
         history=firm_targets.sort_values(["measure", "fiscal_year"], ignore_index=True),
         peers=_peers(targets, firm_id, base.industry, year),
         assumptions=_assumptions(model, [before, *scenarios], labels),
-        notes=tuple(dict.fromkeys(f for p in proformas for f in p.flags)),
+        notes=tuple(dict.fromkeys([f for p in proformas for f in p.flags] + [
+            f"{m} leverage not scored in '{label}': no market_equity" for label, p in
+            zip(labels, proformas, strict=True) for m in model.measures
+            if m == "market" and math.isnan(p.after.market_equity)])),
     )
 
 
@@ -162,6 +165,8 @@ def _assemble(model: Any, labels: list[str], proformas: list[ProForma],
                                    (hist["total_debt"] + hist["market_equity"]).tolist())
         for r in scored[scored["firm_id"] == _scenario_id(k)].to_dict("records"):
             measure = str(r["measure"])
+            if not math.isfinite(float(r["actual"])):
+                continue  # no market value: the measure is not defined (as in analyze)
             cap, cap_flags = caps.get((k, measure), (dict.fromkeys(CAPACITY_COLUMNS,
                                                                    math.nan), []))
             top_debt = p.after.total_debt + cap["capacity_to_band_top_recap"]

@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING, Any
 import pandas as pd
 
 from levgap.errors import OutputError
-from levgap.report.files import MARKER, _atomic_text, atomic_write_bytes
+from levgap.report.files import MARKER, atomic_write_bytes
 
 if TYPE_CHECKING:
     from levgap.deal.result import DealCheck
@@ -66,7 +66,8 @@ def write_proforma(check: DealCheck, out_dir: str | Path, *, force: bool = False
     listed = check_destination(out)
     try:
         out.mkdir(parents=True, exist_ok=True)
-        _atomic_text(out / MARKER, "\n".join(sorted(listed | set(NAMES))) + "\n")
+        marker = "\n".join(sorted(listed | set(NAMES))) + "\n"
+        atomic_write_bytes(out / MARKER, marker.encode("utf-8"))
     except OSError as exc:
         raise OutputError(f"{out}: the output folder must be writable; got "
                           f"{exc.strerror or exc}.") from None

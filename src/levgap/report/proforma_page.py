@@ -121,6 +121,13 @@ def _measure_block(check: DealCheck, measure: str) -> dict[str, Any]:
             side.append((f"Debt to {name} ({CONVENTION_LABELS[conv]})",
                          _cells(rows, labels, f"capacity_to_{goal}_{conv}", money)))
     side += [
+        ("Debt now", _cells(rows, labels, "total_debt", amount)),
+        ("Debt at the target (recapitalisation)",
+         [amount(rows.at[x, "total_debt"] + rows.at[x, "capacity_to_target_recap"])
+          for x in labels]),
+        ("Debt at the band's top (recapitalisation)",
+         [amount(rows.at[x, "total_debt"] + rows.at[x, "capacity_to_band_top_recap"])
+          for x in labels]),
         ("Tax shield PV", _cells(rows, labels, "tax_shield_pv", amount)),
         ("Expected distress cost", _cells(rows, labels, "expected_distress_cost", amount)),
         ("Trade-off: best debt (grid to 2x band top)",
