@@ -231,7 +231,12 @@ class SavedModel:
         Returns
         -------
         pandas.DataFrame
-            One row per input row and measure (see ``/work/notes`` in DEVELOPERS.md).
+            One row per input row and measure: ``firm_id, fiscal_year, industry, measure,
+            actual, target, band_low, band_high, status, gap, gap_z, peer_target,
+            peer_median, peer_count, fold, flags`` and, per driver, ``<driver>`` (the value
+            used), ``<driver>_raw``, ``<driver>_peer`` and ``<driver>_contribution`` (the
+            contributions sum to ``target - peer_target``). ``fold`` is -1 for the
+            full-sample fit.
         """
         from levgap.features import build_features, peer_group
 
