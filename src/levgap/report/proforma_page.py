@@ -33,16 +33,19 @@ def _f(v: Any) -> float | None:
 
 
 def pct(v: Any, digits: int = 1) -> str:
+    """A ratio as a percentage (an en dash when missing)."""
     f = _f(v)
     return "–" if f is None else f"{100 * f:.{digits}f}%"
 
 
 def pp(v: Any) -> str:
+    """A change in percentage points."""
     f = _f(v)
     return "–" if f is None else f"{100 * f:+.1f}"
 
 
 def money(v: Any) -> str:
+    """A signed amount of money ('unbounded' for infinity)."""
     f = _f(v)
     if f is None:
         return "–"
@@ -50,16 +53,19 @@ def money(v: Any) -> str:
 
 
 def amount(v: Any) -> str:
+    """An amount of money."""
     f = _f(v)
     return "–" if f is None else f"{f:,.1f}"
 
 
 def ratio(v: Any) -> str:
+    """A multiple (2.50x)."""
     f = _f(v)
     return "–" if f is None else f"{f:.2f}x"
 
 
 def num(v: Any, digits: int = 2) -> str:
+    """A plain number."""
     f = _f(v)
     return "–" if f is None else f"{f:.{digits}f}"
 

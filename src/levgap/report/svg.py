@@ -69,12 +69,14 @@ class Canvas:
         return rows if rows[0] else []
 
     def x(self, v: float) -> float:
+        """Pixel column of a data value."""
         lo, hi = self.x_range
         top, right, bottom, left = self.margin
         span = hi - lo or 1.0
         return left + (v - lo) / span * (self.width - left - right)
 
     def y(self, v: float) -> float:
+        """Pixel row of a data value."""
         lo, hi = self.y_range
         top, right, bottom, left = self.margin
         span = hi - lo or 1.0
@@ -87,6 +89,7 @@ class Canvas:
 
     def line(self, xs: Sequence[float], ys: Sequence[float], *, colour: str, label: str = "",
              dash: str = "", width: float = 2.0) -> None:
+        """A line through the finite points."""
         pts = self._path(xs, ys)
         if not pts:
             return
@@ -98,6 +101,7 @@ class Canvas:
 
     def area(self, xs: Sequence[float], low: Sequence[float], high: Sequence[float], *,
              colour: str, label: str = "", opacity: float = 0.18) -> None:
+        """A shaded area between two lines (points with a missing value are skipped)."""
         keep = [(a, lo, hi) for a, lo, hi in zip(xs, low, high, strict=True)
                 if all(math.isfinite(v) for v in (a, lo, hi))]
         if not keep:
@@ -111,6 +115,7 @@ class Canvas:
 
     def vspan(self, x0: float, x1: float, *, colour: str, label: str = "",
               opacity: float = 0.14) -> None:
+        """A shaded vertical span between two x values, across the plot's height."""
         if not (math.isfinite(x0) and math.isfinite(x1)):
             return
         a, b = sorted((self.x(x0), self.x(x1)))
@@ -122,6 +127,7 @@ class Canvas:
             self.legend.append(("area", colour, label))
 
     def vline(self, v: float, *, colour: str, label: str = "", dash: str = "4 3") -> None:
+        """A dashed vertical marker."""
         if not math.isfinite(v):
             return
         top, _, bottom, _ = self.margin
@@ -133,6 +139,7 @@ class Canvas:
 
     def point(self, x: float, y: float, *, colour: str, label: str = "", r: float = 4.0,
               tip: str = "") -> None:
+        """A point with a hover text."""
         if not (math.isfinite(x) and math.isfinite(y)):
             return
         title = f"<title>{escape(tip)}</title>" if tip else ""
@@ -143,6 +150,7 @@ class Canvas:
 
     def bar(self, x0: float, x1: float, y0: float, y1: float, *, colour: str,
             tip: str = "") -> None:
+        """A bar from ``(x0, y0)`` to ``(x1, y1)`` with a hover text."""
         if not all(math.isfinite(v) for v in (x0, x1, y0, y1)):
             return
         a, b = sorted((self.x(x0), self.x(x1)))
