@@ -276,7 +276,8 @@ def _tradeoff_svgs(check: DealCheck, measure: str, rows: pd.DataFrame) -> list[d
                label="tax shield PV")
         c.line(list(grid["debt"]), list(grid["distress_cost"]), colour=PALETTE[1],
                label="expected distress cost")
-        c.line(list(grid["debt"]), list(grid["net"]), colour=PALETTE[3], label="net")
+        c.line(list(grid["debt"]), list(grid["net"]), colour=PALETTE[3], label="net",
+               dash="6 3")
         c.vline(float(r["total_debt"]), colour="#1f2733", label="debt")
         c.vline(float(r["tradeoff_best_debt"]), colour=PALETTE[3], label="best", dash="2 2")
         out.append({"label": label, "why": "",
