@@ -32,6 +32,7 @@ from typing import Any
 import numpy as np
 
 from levgap.deal.statement import Statement
+from levgap.recap import debt_to_target  # noqa: F401  (re-exported: the same convention)
 
 CONVENTIONS: dict[str, str] = {
     "funded": "debt funds new assets in the firm's current mix (equity unchanged)",
@@ -477,43 +478,3 @@ def _top(s: Statement, measure: str, convention: str) -> float:
     # a recapitalisation cannot replace more than all the equity (market) or finance more
     # than all the assets with debt (book)
     return s.total_assets - s.total_debt if measure == "book" else s.market_equity
-
-
-def debt_to_target(
-    measure: str,
-    debt: np.ndarray,
-    assets: np.ndarray,
-    market_equity: np.ndarray,
-    target: np.ndarray,
-) -> tuple[np.ndarray, np.ndarray]:
-    """Change in debt that brings each row to its target in a recapitalisation.
-
-    The convention of ``targets.csv``'s ``debt_to_target``: debt replaces equity (or equity
-    replaces debt), so book assets stay fixed and, for market leverage, debt plus market
-    equity stays fixed. Book: ``T A - D``; market: ``T (D + E) - D``. A target below zero asks
-    for no debt (``-D``, flagged ``target_below_zero``); a market target of 1 or more asks to
-    replace every share (``E``, flagged ``market_target_at_or_above_one``), never NaN; a book
-    target of 1 or more finances all assets (``A - D``, flagged).
-
-    Parameters
-    ----------
-    measure : {"book", "market"}
-    debt, assets, market_equity, target : numpy.ndarray
-        Per row, money in the output's unit (``market_equity`` unused for book; NaN where a
-        row has none, which gives NaN for market).
-
-    Returns
-    -------
-    amount : numpy.ndarray of float
-    flag : numpy.ndarray of object
-        ``""`` or a key of :data:`FLAGS`.
-    """
-    d = np.asarray(debt, dtype=float)
-    t = np.asarray(target, dtype=float)
-    base = np.asarray(assets, dtype=float) if measure == "book" else \
-        d + np.asarray(market_equity, dtype=float)
-    amount = np.clip(t, 0.0, 1.0) * base - d
-    flag = np.full(t.shape, "", dtype=object)
-    flag[t < 0.0] = "target_below_zero"
-    flag[t >= 1.0] = f"{measure}_target_at_or_above_one"
-    return amount, flag
