@@ -40,6 +40,7 @@ import os
 import re
 from collections.abc import Sequence
 from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from multiprocessing import get_context
 from pathlib import Path
@@ -80,6 +81,10 @@ __all__ = [
 #: SIC ranges left out unless the caller says otherwise: financials and utilities, whose
 #: balance sheets answer to regulators (common practice in leverage studies).
 DEFAULT_EXCLUDE_SIC = "6000-6999,4900-4999"
+
+#: Inputs (zips or folders, bytes in all) from which quarters are read in parallel processes
+#: by default.
+PARALLEL_FROM_BYTES = 64 << 20
 
 #: Panel columns: schema v1 in its order, then the import's own columns.
 PANEL_COLUMNS: tuple[str, ...] = (
@@ -213,8 +218,9 @@ def import_sec(
     drop_subsidiaries : bool, default=False
         Leave out (rather than flag) firm-years whose total assets equal another filer's.
     workers : int, optional
-        Processes reading quarters in parallel; default: the smaller of the number of
-        quarters and of CPUs. Each process holds one quarter at a time.
+        Processes reading quarters in parallel (each holds one quarter at a time); default:
+        one for inputs under 64 MB in all, else the smaller of the number of quarters and
+        of CPUs.
     limits : ReadLimits, default=DEFAULT_LIMITS
         Bounds on what a quarter may make the importer read (hostile files).
 
@@ -284,18 +290,33 @@ def _extract_all(paths: list[Path], forms: tuple[str, ...], limits: ReadLimits,
                  workers: int | None) -> list[QuarterExtract]:
     if workers is not None and (not isinstance(workers, int) or workers < 1):
         raise ConfigError(f"workers must be a whole number >= 1; got {workers!r}. Use e.g. 2.")
-    n = workers if workers is not None else min(len(paths), os.cpu_count() or 1)
-    n = max(1, min(n, len(paths)))
+    if workers is None:  # starting a process costs seconds: worth it for big quarters only
+        big = sum(_size(p) for p in paths) >= PARALLEL_FROM_BYTES
+        workers = min(len(paths), os.cpu_count() or 1) if big else 1
+    n = max(1, min(workers, len(paths)))
     if n == 1:
         return [extract_quarter(p, forms=forms, index=i, limits=limits)
                 for i, p in enumerate(paths)]
     # One fresh process per quarter (spawned, not forked: pyarrow's threads do not survive a
-    # fork), so each quarter's memory is returned to the system when it is done.
-    with ProcessPoolExecutor(max_workers=n, mp_context=get_context("spawn"),
-                             max_tasks_per_child=1) as pool:
-        futures = [pool.submit(extract_quarter, p, forms=forms, index=i, limits=limits)
-                   for i, p in enumerate(paths)]
-        return [f.result() for f in futures]
+    # fork), so each quarter's memory is returned to the system when it is done. A process
+    # that cannot be spawned (a main program read from standard input) falls back to one.
+    try:
+        with ProcessPoolExecutor(max_workers=n, mp_context=get_context("spawn"),
+                                 max_tasks_per_child=1) as pool:
+            futures = [pool.submit(extract_quarter, p, forms=forms, index=i, limits=limits)
+                       for i, p in enumerate(paths)]
+            return [f.result() for f in futures]
+    except BrokenProcessPool:
+        return [extract_quarter(p, forms=forms, index=i, limits=limits)
+                for i, p in enumerate(paths)]
+
+
+def _size(path: Path) -> int:
+    if path.is_file():
+        return path.stat().st_size
+    if path.is_dir():
+        return sum(f.stat().st_size for f in path.iterdir() if f.is_file())
+    return 0
 
 
 def _currency_exclusions(extracts: list[QuarterExtract], fx: pd.DataFrame | None) -> pd.Series:

@@ -211,7 +211,8 @@ def choose_entity(facts: pd.DataFrame, filings: pd.DataFrame) -> tuple[pd.DataFr
         (ParentCompany facts that do not balance: nothing kept) or ``"none"``.
     """
     period = filings.set_index("adsh")["period"]
-    at_end = facts["ddate"].to_numpy() == facts["adsh"].map(period).to_numpy()
+    at_end = facts["ddate"].to_numpy() == facts["adsh"].map(period).fillna(0).to_numpy(
+        dtype="int64")
     totals = facts.loc[at_end & facts["tag"].isin(["Assets", "LiabilitiesAndStockholdersEquity"])
                        & ~facts["custom"] & (facts["qtrs"] == 0)]
     plain_ok = set(totals.loc[~totals["parent"], "adsh"])
@@ -243,7 +244,8 @@ def filing_currency(facts: pd.DataFrame, filings: pd.DataFrame) -> pd.Series:
     period = filings.set_index("adsh")["period"]
     assets = facts.loc[(facts["tag"].isin(["Assets", "LiabilitiesAndStockholdersEquity"]))
                        & ~facts["custom"] & (facts["qtrs"] == 0)
-                       & (facts["ddate"].to_numpy() == facts["adsh"].map(period).to_numpy())]
+                       & (facts["ddate"].to_numpy()
+                          == facts["adsh"].map(period).fillna(0).to_numpy(dtype="int64"))]
     unit = assets.sort_values("tag").drop_duplicates("adsh").set_index("adsh")["uom"]
     return unit.reindex(filings["adsh"].to_numpy()).fillna("USD").astype(object)
 
@@ -355,7 +357,7 @@ def wide_values(facts: pd.DataFrame, dates: pd.DataFrame, currency: pd.Series,
 def _cover_page(facts: pd.DataFrame, filings: pd.DataFrame) -> tuple[pd.Series, pd.Series]:
     period = filings.set_index("adsh")["period"]
     dei = facts.loc[facts["dei"] & (facts["qtrs"] == 0)]
-    dei = dei.assign(period=dei["adsh"].map(period))
+    dei = dei.assign(period=dei["adsh"].map(period).fillna(0).astype("int64"))
     shares = dei.loc[(dei["tag"] == DEI_TAGS[0]) & (dei["uom"] == "shares")
                      & (dei["ddate"] >= dei["period"])]
     plain = ~shares["class_segment"]

@@ -96,14 +96,16 @@ def _numbers(path: Path, what: str, text: pd.Series, column: str, strict: bool) 
     return value.astype(float)
 
 
-def _unique(path: Path, what: str, frame: pd.DataFrame, key: str, text: pd.Series) -> None:
+def _unique(path: Path, what: str, frame: pd.DataFrame, key: str, name: str,
+            text: pd.Series) -> None:
     dup = frame.duplicated([key, "date"], keep="first")
     if dup.any():
         row = int(np.flatnonzero(dup.to_numpy())[0]) + 1
+        value = "price" if what == "price file" else "rate"
         raise SchemaError(
-            f"{path}: {what} must hold one value per {key} and date; got a second one for "
-            f"{key} {frame[key].iloc[row - 1]} on {text.iloc[row - 1]} at data row {row}, "
-            "column date. Remove the duplicate."
+            f"{path}: {what} must hold one {value} per {name} and date; got a second one "
+            f"for {name} {frame[key].iloc[row - 1]} on {text.iloc[row - 1]} at data row "
+            f"{row}, column date. Remove the duplicate."
         )
 
 
@@ -140,7 +142,7 @@ def read_prices(path: str | Path) -> pd.DataFrame:
         "date": _dates(p, what, date_text),
         "price": _numbers(p, what, frame["price"].str.strip(), "price", strict=False),
     })
-    _unique(p, what, out, "firm_id", date_text)
+    _unique(p, what, out, "firm_id", "cik", date_text)
     return out.sort_values("date", kind="stable").reset_index(drop=True)
 
 
@@ -175,7 +177,7 @@ def read_fx_rates(path: str | Path) -> pd.DataFrame:
         "date": _dates(p, what, date_text),
         "rate": _numbers(p, what, frame["rate"].str.strip(), "rate", strict=True),
     })
-    _unique(p, what, out, "currency", date_text)
+    _unique(p, what, out, "currency", "currency", date_text)
     return out.sort_values("date", kind="stable").reset_index(drop=True)
 
 
