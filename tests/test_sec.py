@@ -59,7 +59,7 @@ def _normalise(frame: pd.DataFrame) -> pd.DataFrame:
             out[c] = out[c].astype("int64")
         else:
             out[c] = out[c].astype(float)
-    out["import_flags"] = out["import_flags"].map(lambda v: "" if v is None else v)
+    out["import_flags"] = out["import_flags"].fillna("").astype(object)
     return out.reset_index(drop=True)
 
 

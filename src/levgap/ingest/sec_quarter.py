@@ -148,8 +148,9 @@ def extract_quarter(path: str | Path, *, forms: tuple[str, ...], index: int = 0,
     facts = facts.loc[facts["adsh"].isin(cand["adsh"])]
     currency = filing_currency(facts, cand)
     filings["currency"] = filings["adsh"].map(currency).fillna("USD")
-    money = facts.loc[facts["uom"].to_numpy() == facts["adsh"].map(currency).to_numpy()]
-    dates = year_dates(money, cand)
+    unit = facts["uom"].to_numpy()
+    dated = facts.loc[(unit == facts["adsh"].map(currency).to_numpy()) | (unit == "shares")]
+    dates = year_dates(dated, cand)
     wide, bs_long = wide_values(facts, dates, currency, cand, notes)
     cells = _cells(dates, wide, bs_long, pre, keep.outside_debt)
     _flag_missing_facts(filings, pre, facts, cand, notes, q.path.name)
