@@ -26,8 +26,7 @@ naming the file (one line, exit code 2 on the command line), never a crash:
 * the decompressed bytes read from each member are counted and capped (a zip bomb stops at
   the cap, whatever the sizes its directory claims);
 * the header line is read with a bounded length;
-* a row longer than the parser's block (4 MiB) is a parse error, not a reason to grow the
-  block;
+* a row longer than two blocks (8 MiB) is refused, not a reason to grow the block;
 * malformed rows (a wrong number of fields) are skipped and counted, but past
   ``malformed_rows`` of them, or when they outnumber the good rows, the file is refused as
   not being the data sets' text;
@@ -372,26 +371,62 @@ def read_filtered(
         If the file cannot be parsed even as Latin-1, is not the data sets' text (too many
         malformed rows, a row longer than a block), crosses a limit of
         :class:`ReadLimits`, or is a corrupt, encrypted or unsupported zip member.
+
+    Notes
+    -----
+    The member is decompressed here, in Python, in blocks of about ``BLOCK_SIZE`` bytes cut
+    at line ends (outside quoted fields in the current layout), and each block is parsed by
+    pyarrow from memory: pyarrow never holds a Python file object, so no background thread
+    of its own calls back into Python (which could crash the interpreter at exit after an
+    error). Blocks are checked as UTF-8 before parsing; a file that is not valid UTF-8 is
+    read again as Latin-1, each block converted to UTF-8.
     """
     try:
-        return _read(quarter, key, columns, keep, "utf8", per, max_rows)
-    except pa.ArrowInvalid as exc:
-        if "UTF8" not in str(exc) and "utf8" not in str(exc).lower():
-            raise _parse_error(quarter, key, exc) from None
-    try:
-        return _read(quarter, key, columns, keep, "latin-1", per, max_rows)
-    except pa.ArrowInvalid as exc:
-        raise _parse_error(quarter, key, exc) from None
+        return _read(quarter, key, columns, keep, False, per, max_rows)
+    except _NotUtf8:
+        pass
+    return _read(quarter, key, columns, keep, True, per, max_rows)
+
+
+class _NotUtf8(Exception):
+    """A block of the file is not valid UTF-8."""
 
 
 def _parse_error(quarter: Quarter, key: str, exc: Exception) -> SchemaError:
     first = _first_line(exc)
-    if "straddl" in first:
-        first = f"a row longer than {BLOCK_SIZE:,} bytes"
     return SchemaError(
         f"{quarter.where(key)} must be tab-delimited text of the SEC data sets; got a parse "
         f"error ({first}). Give an unmodified file."
     )
+
+
+def _blocks(fh: IO[bytes], quoted: bool, quarter: Quarter, key: str) -> Iterator[bytes]:
+    """Blocks of whole rows: cut at a line end that is not inside a quoted field."""
+    carry = b""
+    while True:
+        data = fh.read(BLOCK_SIZE)
+        if not data:
+            if carry:
+                yield carry
+            return
+        data = carry + data
+        cut = data.rfind(b"\n")
+        # With standard quoting, a line end inside a quoted field is not a row end: keep the
+        # quotes before the cut balanced (doubled quotes count twice and cancel out).
+        tries = 0
+        while quoted and cut >= 0 and data.count(b'"', 0, cut) % 2 and tries < 10_000:
+            cut = data.rfind(b"\n", 0, cut)
+            tries += 1
+        if cut < 0:
+            if len(data) > 2 * BLOCK_SIZE:
+                raise SchemaError(
+                    f"{quarter.where(key)} must be tab-delimited text of the SEC data sets; got "
+                    f"a row longer than {2 * BLOCK_SIZE:,} bytes. Give an unmodified file."
+                )
+            carry = data
+            continue
+        yield data[: cut + 1]
+        carry = data[cut + 1:]
 
 
 def _read(
@@ -399,19 +434,19 @@ def _read(
     key: str,
     columns: Sequence[str],
     keep: BatchFilter | None,
-    encoding: str,
+    latin1: bool,
     per: str | None,
     max_rows: int | None,
 ) -> tuple[pa.Table, ReadReport]:
     header = quarter.headers[key]
     present = [c for c in columns if c in header]
     limits = quarter.limits
-    skipped = {"n": 0, "first": None}
+    skipped = {"n": 0, "first": None, "offset": 0}
 
     def on_invalid(row: pacsv.InvalidRow) -> str:
         skipped["n"] += 1
         if skipped["first"] is None and row.number is not None:
-            skipped["first"] = row.number - 1  # the header is line 1
+            skipped["first"] = skipped["offset"] + row.number
         # Past the limit the parser stops with an error rather than skim a file of garbage.
         return "skip" if skipped["n"] <= limits.malformed_rows else "error"
 
@@ -425,54 +460,62 @@ def _read(
         ignore_empty_lines=True,
         invalid_row_handler=on_invalid,
     )
-    read = pacsv.ReadOptions(
-        column_names=list(header),
-        skip_rows=1,
-        block_size=BLOCK_SIZE,
-        encoding=encoding,
-        use_threads=False,
-    )
+    read = pacsv.ReadOptions(column_names=list(header), use_threads=False,
+                             block_size=4 * BLOCK_SIZE)
     convert = pacsv.ConvertOptions(
         include_columns=present,
         column_types={c: pa.string() for c in present},
         strings_can_be_null=False,
         quoted_strings_can_be_null=False,
     )
+    schema = pa.schema([(c, pa.string()) for c in present])
     batches: list[pa.RecordBatch] = []
     counts: dict[str, int] = {}
     kept = good = 0
     with _open_member(quarter, key) as fh:
-        reader = pacsv.open_csv(fh, read_options=read, parse_options=parse,
-                                convert_options=convert)
-        schema = reader.schema
-        for batch in reader:
-            good += batch.num_rows
-            if keep is not None:
-                batch = batch.filter(keep(batch))
-            if not batch.num_rows:
-                continue
-            kept += batch.num_rows
-            if max_rows is not None and kept > max_rows:
-                raise SchemaError(
-                    f"{quarter.where(key)} must hold at most {max_rows:,} rows of interest; "
-                    "it holds more. Give an unmodified file of the SEC data sets."
-                )
-            if per is not None:
-                _count_per(batch, per, counts, limits.rows_per_submission, quarter, key)
-            batches.append(batch)
+        fh.readline(limits.header_bytes + 1)  # the header, read (bounded) when located
+        for block in _blocks(fh, quoted, quarter, key):
+            if latin1:
+                block = block.decode("latin-1").encode("utf-8")
+            else:
+                try:
+                    block.decode("utf-8")
+                except UnicodeDecodeError:
+                    raise _NotUtf8() from None
+            try:
+                table = pacsv.read_csv(pa.py_buffer(block), read_options=read,
+                                       parse_options=parse, convert_options=convert)
+            except pa.ArrowInvalid as exc:
+                raise _parse_error(quarter, key, exc) from None
+            skipped["offset"] += block.count(b"\n")
+            good += table.num_rows
+            for batch in table.select(present).to_batches():
+                if keep is not None:
+                    batch = batch.filter(keep(batch))
+                if not batch.num_rows:
+                    continue
+                kept += batch.num_rows
+                if max_rows is not None and kept > max_rows:
+                    raise SchemaError(
+                        f"{quarter.where(key)} must hold at most {max_rows:,} rows of "
+                        "interest; it holds more. Give an unmodified file of the SEC data sets."
+                    )
+                if per is not None:
+                    _count_per(batch, per, counts, limits.rows_per_submission, quarter, key)
+                batches.append(batch)
     if skipped["n"] and skipped["n"] > good:
         raise SchemaError(
             f"{quarter.where(key)} must be tab-delimited text of the SEC data sets; got "
             f"{skipped['n']:,} malformed rows against {good:,} readable ones. Give an "
             "unmodified file."
         )
-    table = pa.Table.from_batches(batches, schema=schema)
+    out = pa.Table.from_batches(batches, schema=schema)
     for c in columns:
         if c not in present:
-            table = table.append_column(c, pa.array([""] * table.num_rows, pa.string()))
-    table = table.select(list(columns))
-    report = ReadReport(encoding != "utf8", int(skipped["n"]), skipped["first"])
-    return table, report
+            out = out.append_column(c, pa.array([""] * out.num_rows, pa.string()))
+    out = out.select(list(columns))
+    report = ReadReport(latin1, int(skipped["n"]), skipped["first"])
+    return out, report
 
 
 def _count_per(batch: pa.RecordBatch, column: str, counts: dict[str, int], limit: int,
