@@ -145,25 +145,37 @@ def classify_lines(lines: pd.DataFrame) -> LineKind:
     """
     tag = lines["tag"].astype(str).to_numpy()
     custom = lines["custom"].to_numpy(dtype=bool)
-    label = lines["label"].astype(str)
     liab = lines["liabilities"].to_numpy(dtype=bool)
-    says = label.map(_names_borrowing).to_numpy(dtype=bool).copy()
+    # Labels and tags repeat across filings: each distinct text is looked at once.
+    label_codes, labels = pd.factorize(lines["label"].astype(str).to_numpy(dtype=object))
+    texts = pd.Series(labels, dtype=object)
+
+    def per_label(test: object) -> np.ndarray:
+        if callable(test):
+            return texts.map(test).to_numpy(dtype=bool)[label_codes]
+        return texts.str.contains(test).to_numpy(dtype=bool)[label_codes]
+
+    says = per_label(_names_borrowing).copy()
     # A filer-defined tag's name counts as a second label ("Machinery and Engines" under a
     # tag named ShortTermBorrowingsMachineryAndEngines).
-    words = pd.Series(tag).str.replace(r"(?<=[a-z0-9])(?=[A-Z])", " ", regex=True)
-    says |= custom & words.map(_names_borrowing).to_numpy(dtype=bool)
-    mixed = label.str.contains(_MIXED).to_numpy(dtype=bool)
+    tag_codes, tag_names = pd.factorize(tag)
+    words = pd.Series(tag_names, dtype=object).str.replace(r"(?<=[a-z0-9])(?=[A-Z])", " ",
+                                                           regex=True)
+    by_name = words.map(_names_borrowing).to_numpy(dtype=bool)[tag_codes]
+    says |= custom & by_name
+    mixed = per_label(_MIXED)
+    not_debt_tag = pd.Series(tag_names, dtype=object).str.contains(_NOT_DEBT_TAG).to_numpy(
+        dtype=bool)[tag_codes]
     standard_debt = ~custom & np.isin(tag, list(DEBT_TAGS))
-    broader = ~custom & ~standard_debt & ~pd.Series(tag).str.contains(_NOT_DEBT_TAG).to_numpy(
-        dtype=bool)
+    broader = ~custom & ~standard_debt & ~not_debt_tag
     totals = np.isin(tag, list(_LIABILITY_TOTALS))
     says_debt = liab & says & ~totals
     by_label = (custom | broader) & says_debt & ~mixed
     doubtful = says_debt & ~standard_debt & ~by_label & (custom | broader)
-    doubtful &= ~label.str.contains(_TOTAL).to_numpy(dtype=bool)
-    side = np.array([DEBT_TAGS.get(t, "either") for t in tag], dtype=object)
-    is_current = label.str.contains(_CURRENT).to_numpy(dtype=bool)
-    is_noncurrent = label.str.contains(_NONCURRENT).to_numpy(dtype=bool)
+    doubtful &= ~per_label(_TOTAL)
+    side = np.array([DEBT_TAGS.get(t, "either") for t in tag_names], dtype=object)[tag_codes]
+    is_current = per_label(_CURRENT)
+    is_noncurrent = per_label(_NONCURRENT)
     label_side = np.where(is_noncurrent, "noncurrent", np.where(is_current, "current", "either"))
     side = np.where(custom | broader, label_side, side)
     return LineKind(standard_debt | by_label, doubtful, ~standard_debt & by_label,
@@ -244,39 +256,41 @@ def presented_debt(
 
 def _one_balance_sheet(c: dict[str, np.ndarray], has_outside: bool) -> tuple[float, str, str]:
     value = c["value"].astype(float)
-    signed = np.where(c["negating"].astype(bool), -value, value)
+    negating = c["negating"].astype(bool)
+    signed = np.where(negating, -value, value)
     debt = c["_debt"].astype(bool)
     report = c["report"]
     tag = c["tag"]
     label = c["label"]
     side = c["_side"]
-    n = len(value)
     status = np.where(debt, "in", "").astype(object)
-    for i in range(n):
-        if not debt[i] or np.isnan(value[i]):
+    valued = ~np.isnan(value)
+    for i in np.flatnonzero(debt & valued):
+        total_label = bool(_TOTAL.search(str(label[i])))
+        total_like = total_label or tag[i] in DEBT_AGGREGATES
+        above = (np.arange(len(value)) < i) & (report == report[i]) & valued
+        # Only a total-like line, or a line below a "less ..." line, can be a subtotal.
+        if not total_like and not (negating & above).any():
             continue
-        comps = _components(signed, report, i, bool(_TOTAL.search(str(label[i]))))
+        comps = _components(signed, np.flatnonzero(above), signed[i], total_label)
         if comps is None:
             continue
-        total_like = bool(_TOTAL.search(str(label[i]))) or (
-            tag[i] in DEBT_AGGREGATES and _sides_fit(side[i], side[comps], signed[comps]))
-        has_less = bool(c["negating"][comps].astype(bool).any())
-        if all(debt[j] for j in comps):
+        if tag[i] in DEBT_AGGREGATES and not total_label:
+            total_like = _sides_fit(side[i], side[comps], signed[comps])
+        has_less = bool(negating[comps].any())
+        if debt[comps].all():
             if total_like or has_less:
                 status[i] = "subtotal"
         elif total_like:
-            for j in comps:
-                if debt[j]:
-                    status[j] = "covered"
-    counted = (status == "in") & ~np.isnan(value)
+            status[comps[debt[comps]]] = "covered"
+    counted = (status == "in") & valued
     flags = []
-    if c["_doubt"].astype(bool)[~np.isnan(value) & (value != 0)].any():
+    if c["_doubt"].astype(bool)[valued & (value != 0)].any():
         flags.append("debt_partial")
     if not counted.any():
         if has_outside:
             return np.nan, "", ""
-        has_lines = debt.any()
-        why = ("no value on the balance sheet's debt lines (nil)" if has_lines
+        why = ("no value on the balance sheet's debt lines (nil)" if debt.any()
                else "no debt line on the balance sheet")
         return 0.0, f"0 ({why})", ";".join(["debt_zero", *flags])
     if (c["_custom"].astype(bool) & counted).any():
@@ -285,31 +299,23 @@ def _one_balance_sheet(c: dict[str, np.ndarray], has_outside: bool) -> tuple[flo
     text = ""
     for j in np.flatnonzero(counted):
         name = f"custom:{tag[j]}" if c["_filer"][j] else str(tag[j])
-        minus = bool(c["negating"][j])
+        minus = bool(negating[j])
         text = (f"-{name}" if minus else name) if not text else \
             f"{text} {'-' if minus else '+'} {name}"
     return total, text, ";".join(flags)
 
 
-def _components(signed: np.ndarray, report: np.ndarray, i: int, total_label: bool
+def _components(signed: np.ndarray, above: np.ndarray, target: float, total_label: bool
                 ) -> np.ndarray | None:
-    """Indices of the valued lines right above ``i`` that sum to it, nearest first."""
-    target = signed[i]
-    acc = 0.0
-    picked: list[int] = []
-    for j in range(i - 1, -1, -1):
-        if report[j] != report[i]:
-            break
-        if np.isnan(signed[j]):
-            continue
-        acc += signed[j]
-        picked.append(j)
-        k = len(picked)
-        if (k >= 2 or total_label) and abs(acc - target) <= 0.5 + 1e-9 * abs(target):
-            return np.array(picked)
-        if k >= MAX_COMPONENTS:
-            break
-    return None
+    """Indices of the valued lines right above a line that sum to it, nearest first."""
+    if not len(above):
+        return None
+    near = above[::-1][:MAX_COMPONENTS]
+    sums = np.cumsum(signed[near])
+    k = np.arange(1, len(near) + 1)
+    hit = np.flatnonzero((np.abs(sums - target) <= 0.5 + 1e-9 * abs(target))
+                         & ((k >= 2) | total_label))
+    return near[: hit[0] + 1] if len(hit) else None
 
 
 def _sides_fit(total_side: str, sides: np.ndarray, signed: np.ndarray) -> bool:

@@ -350,22 +350,34 @@ def _iso(dates: np.ndarray) -> np.ndarray:
     return np.where(d > 0, iso, "").astype(object)
 
 
+_STATEMENT_BITS = {"BS": 1, "BS*": 2, "CF": 4, "IS": 8}
+
+
 def _statements(cells: pd.DataFrame, pre: pd.DataFrame) -> pd.DataFrame:
+    """The statements on which the filing presented the tags of each value's formula."""
     cells = cells.copy()
     if pre.empty or cells.empty:
         cells["statement"] = ""
         return cells
-    p = pre.assign(stmt=pre["stmt"].astype(str) + np.where(pre["inpth"], "*", ""),
-                   tag=np.where(pre["custom"], "custom:" + pre["tag"].astype(str),
-                                pre["tag"].astype(str)))
-    p = p[["adsh", "tag", "stmt"]].drop_duplicates()
-    tags = cells[["adsh", "source"]].assign(
-        tag=cells["source"].astype(str).str.findall(_TAG_IN_LABEL))
+    stmt = pre["stmt"].astype(str).to_numpy() + np.where(pre["inpth"], "*", "")
+    bits = pd.Series(stmt).map(_STATEMENT_BITS).fillna(0).to_numpy(dtype="int64")
+    tag = np.where(pre["custom"], "custom:" + pre["tag"].astype(str), pre["tag"].astype(str))
+    p = pd.DataFrame({"adsh": pre["adsh"].to_numpy(), "tag": tag, "bits": bits})
+    p = p.loc[p["bits"] > 0].drop_duplicates()
+    # Each (adsh, tag) presented on several statements: OR of its bits (distinct powers of
+    # two, so the sum of the distinct ones).
+    p = p.groupby(["adsh", "tag"], sort=False)["bits"].sum().reset_index()
+    tags = cells[["adsh"]].assign(tag=cells["source"].astype(str).str.findall(_TAG_IN_LABEL))
     tags = tags.explode("tag").dropna(subset=["tag"])
     tags = tags.reset_index().merge(p, on=["adsh", "tag"])
-    stmt = (tags.drop_duplicates(["index", "stmt"]).sort_values(["index", "stmt"])
-            .groupby("index")["stmt"].agg(";".join))
-    cells["statement"] = stmt.reindex(cells.index).fillna("").astype(object).to_numpy()
+    tags = tags.drop_duplicates(["index", "bits"])
+    mask = np.zeros(len(cells), dtype="int64")
+    if len(tags):
+        pos = cells.index.get_indexer(tags["index"])
+        np.bitwise_or.at(mask, pos, tags["bits"].to_numpy(dtype="int64"))
+    names = {m: ";".join(k for k, b in sorted(_STATEMENT_BITS.items()) if m & b)
+             for m in range(16)}
+    cells["statement"] = pd.Series(mask).map(names).to_numpy(dtype=object)
     return cells
 
 

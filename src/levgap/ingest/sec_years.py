@@ -132,11 +132,16 @@ def _latest_period(cells: pd.DataFrame, notes: list[str]) -> pd.DataFrame:
     """Keep, per firm and fiscal year, the values dated at its latest period end."""
     if cells.empty:
         return cells
-    key = [cells["f_firm_id"], cells["fiscal_year"]]
-    assets_date = cells["fact_date"].where(cells["column"] == "total_assets")
+    # Integer keys: grouping on text columns is slow at a modern quarter's size.
+    firm = pd.to_numeric(cells["f_firm_id"], errors="coerce").fillna(-1).to_numpy(
+        dtype="int64")
+    key = [firm, cells["fiscal_year"].to_numpy(dtype="int64")]
+    date, _ = pd.factorize(cells["fact_date"].to_numpy(dtype=object), sort=True)
+    date = pd.Series(date, index=cells.index)
+    assets_date = date.where((cells["column"] == "total_assets").to_numpy())
     row_date = assets_date.groupby(key).transform("max")
-    row_date = row_date.fillna(cells["fact_date"].groupby(key).transform("max"))
-    clash = cells["fact_date"] != row_date
+    row_date = row_date.fillna(date.groupby(key).transform("max"))
+    clash = (date != row_date).to_numpy()
     if clash.any():
         firms = sorted(set(cells.loc[clash, "f_firm_id"]))
         notes.append(
