@@ -7,7 +7,6 @@ variable LEVGAP_SEC_DATA and skip, saying why, when it is not set.
 
 from __future__ import annotations
 
-import os
 import re
 import zipfile
 from pathlib import Path
