@@ -59,6 +59,7 @@ INSTANT_COLUMNS: frozenset[str] = frozenset({
 #: Columns of the extract's cells (schema columns plus the cover-page public float).
 CELL_COLUMNS = ("adsh", "fiscal_year", "fact_date", "column", "value", "source", "statement",
                 "flags")
+CATEGORY_COLUMNS = ("adsh", "fact_date", "column", "source", "statement", "flags")
 FILING_COLUMNS = ("quarter", "adsh", "firm_id", "name", "sic", "form", "period", "fp", "filed",
                   "accepted", "fiscal_year", "currency", "status", "detail", "flags")
 
@@ -158,8 +159,11 @@ def extract_quarter(path: str | Path, *, forms: tuple[str, ...], index: int = 0,
     on_bs = (cells["column"] == "total_debt") & cells["adsh"].isin(
         set(pre.loc[pre["stmt"] == "BS", "adsh"])) & (cells["statement"] == "")
     cells.loc[on_bs, "statement"] = "BS"
-    return QuarterExtract(filings.reindex(columns=list(FILING_COLUMNS)),
-                          cells.reindex(columns=list(CELL_COLUMNS)), tuple(notes))
+    # Text repeats across values (tags, formulas, dates, flags): categories keep the extract
+    # small in the parent process that gathers every quarter's.
+    cells = cells.reindex(columns=list(CELL_COLUMNS)).astype(
+        {c: "category" for c in CATEGORY_COLUMNS})
+    return QuarterExtract(filings.reindex(columns=list(FILING_COLUMNS)), cells, tuple(notes))
 
 
 def _no_cells() -> pd.DataFrame:

@@ -84,7 +84,7 @@ def assemble(extracts: Sequence[QuarterExtract], *, restated: bool = True,
     """
     notes: list[str] = [n for e in extracts for n in e.notes]
     filings = pd.concat([e.filings for e in extracts], ignore_index=True)
-    cells = pd.concat([e.cells for e in extracts], ignore_index=True)
+    cells = _concat([e.cells for e in extracts])
     if excluded_filings is not None and len(excluded_filings):
         hit = filings["adsh"].isin(excluded_filings.index) & (filings["status"] == "")
         filings.loc[hit, "status"] = filings.loc[hit, "adsh"].map(excluded_filings)
@@ -104,8 +104,11 @@ def assemble(extracts: Sequence[QuarterExtract], *, restated: bool = True,
     filing_flags = cells["f_flags"].astype(str)
     cells["flags"] = _join(cells["flags"].astype(str), filing_flags)
     cells = _latest_period(cells, notes)
-    order = ["firm_id_", "fiscal_year", "column", "f_filed", "f_accepted", "adsh", "f_quarter"]
-    cells = cells.assign(firm_id_=cells["f_firm_id"]).sort_values(order, kind="stable")
+    order = ["firm_id_", "fiscal_year", "column_", "f_filed", "f_accepted", "adsh_", "f_quarter"]
+    cells = cells.assign(firm_id_=cells["f_firm_id"], column_=cells["column"].astype(str),
+                         adsh_=cells["adsh"].astype(str)).sort_values(order, kind="stable")
+    cells["column"] = cells["column_"]
+    cells = cells.drop(columns=["column_", "adsh_"])
     chosen = cells.drop_duplicates(["firm_id_", "fiscal_year", "column"],
                                    keep="last" if restated else "first")
     superseded = len(cells) - len(chosen)
@@ -120,6 +123,21 @@ def assemble(extracts: Sequence[QuarterExtract], *, restated: bool = True,
     ledger = _ledger(filings, meta, rows, cells)
     sources = _sources(chosen, rows)
     return Assembled(rows, sources, ledger, tuple(notes))
+
+
+def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
+    """Concatenate the quarters' values, keeping text columns categorical (one copy of each
+    distinct text, whatever the number of quarters)."""
+    from pandas.api.types import union_categoricals
+
+    out = {}
+    for c in frames[0].columns:
+        parts = [f[c] for f in frames]
+        if isinstance(parts[0].dtype, pd.CategoricalDtype):
+            out[c] = pd.Series(union_categoricals(parts, ignore_order=True))
+        else:
+            out[c] = pd.concat(parts, ignore_index=True)
+    return pd.DataFrame(out)
 
 
 def _join(a: pd.Series, b: pd.Series) -> pd.Series:
@@ -170,7 +188,7 @@ def _rows(chosen: pd.DataFrame, meta: pd.DataFrame) -> pd.DataFrame:
     date = chosen.assign(_a=chosen["column"] == "total_assets").sort_values("_a")
     date = date.groupby(["firm_id_", "fiscal_year"])["fact_date"].last()
     date.index.names = ["firm_id", "fiscal_year"]
-    rows = rows.join(date.rename("row_date"), on=["firm_id", "fiscal_year"])
+    rows = rows.join(date.astype(object).rename("row_date"), on=["firm_id", "fiscal_year"])
     flags = (chosen.loc[chosen["flags"] != ""]
              .assign(flag=chosen["flags"].str.split(";")).explode("flag")
              .groupby(["firm_id_", "fiscal_year"])["flag"]
