@@ -134,7 +134,8 @@ def make_outputs(
                    "industries": len(industries), "years": n_years,
                    "by_reason": {"total_assets_not_positive": 1, "duplicate_firm_year": 1,
                                  "required_value_missing": 1, "market_equity_missing": 1}},
-        "borrowed_industries": [{"industry": "1311", "parent": "13", "firms": 3}],
+        "pooled_industries": [{"industry": "1311", "parent": "industries with code prefix 13",
+                               "firms": 3, "members": ["1312"], "weight": {"book": 0.4}}],
         "warnings": ["3 firms have <3 years of history; earnings_volatility imputed"],
     }
     tables = {"targets": targets, "drivers": drivers, "coefficients": pd.DataFrame(coef_rows),

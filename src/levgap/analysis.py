@@ -14,7 +14,7 @@ ProgressFn = Callable[[str, int, int], None]
 TARGET_COLUMNS = (
     "firm_id", "firm_name", "fiscal_year", "industry", "measure", "actual", "target", "gap",
     "gap_z", "band_low", "band_high", "status", "peer_median", "peer_count", "peer_target",
-    "debt_to_target", "flags",
+    "debt_to_target", "target_full", "fold", "flags",
 )
 DRIVER_COLUMNS = (
     "firm_id", "fiscal_year", "measure", "driver", "firm_value", "peer_value", "contribution"
@@ -23,8 +23,11 @@ COEF_COLUMNS = (
     "measure", "model", "term", "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high"
 )
 FIT_COLUMNS = (
-    "measure", "model", "n_obs", "n_firms", "n_industries", "r2", "r2_oos", "rmse_oos"
+    "measure", "model", "n_obs", "n_firms", "n_industries", "r2", "r2_oos", "rmse_oos",
+    "coverage", "coverage_industry_min", "coverage_industry_max", "coverage_industries",
+    "coverage_out_of_time", "out_of_time_year",
 )
+FOLD_COEF_COLUMNS = ("measure", "model", "fold", "term", "estimate")
 
 
 @dataclass(frozen=True, slots=True)
@@ -41,6 +44,9 @@ class Analysis:
         One row per measure, model and driver (``COEF_COLUMNS``), from the full-sample fit.
     model_fit : pandas.DataFrame
         One row per measure and model (``FIT_COLUMNS``).
+    fold_coefficients : pandas.DataFrame
+        Constant and slopes of each cross-fit fold's fit (``FOLD_COEF_COLUMNS``): a row's
+        target and contributions come from the fit of its ``fold``.
     exclusions : pandas.DataFrame
         The ledger of rows left out of every measure (``measure`` empty) or of one measure.
     manifest : dict
@@ -55,6 +61,7 @@ class Analysis:
     coefficients: pd.DataFrame
     model_fit: pd.DataFrame
     exclusions: pd.DataFrame
+    fold_coefficients: pd.DataFrame = field(default_factory=pd.DataFrame)
     manifest: dict[str, Any] = field(default_factory=dict)
     saved_model: dict[str, Any] = field(default_factory=dict)
 
@@ -65,6 +72,7 @@ class Analysis:
             "drivers": self.drivers,
             "coefficients": self.coefficients,
             "model_fit": self.model_fit,
+            "fold_coefficients": self.fold_coefficients,
             "exclusions": self.exclusions,
         }
 
@@ -108,8 +116,17 @@ class Analysis:
         also = [Path(s).name for s in sources if Path(s).parent.resolve() == out.resolve()]
         also += ["report.html"] if report else []
         also += ["workbook.xlsx"] if xlsx else []
+        also += ["model.json"] if self.saved_model else []
         written = write_tables(self.tables(), self.manifest, out, fmt=fmt, force=force,
                                inputs=sources, also=also)
+        if self.saved_model:
+            import json
+
+            from levgap.report.files import atomic_write_bytes
+
+            body = json.dumps(self.saved_model, allow_nan=False, separators=(",", ":"))
+            atomic_write_bytes(out / "model.json", body.encode("utf-8"))
+            written.append(out / "model.json")
         if report:
             from levgap.report.html import write_report
 

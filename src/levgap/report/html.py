@@ -31,6 +31,11 @@ CAUTION = (
     "firm should borrow. Decisions belong with qualified professionals and must respect local "
     "rules (accounting standards, covenants, regulation)."
 )
+MODEL_TEXT = {
+    "fractional": "fractional logit (Papke and Wooldridge 1996) with industry and year effects; "
+    "targets between 0 and 1",
+    "linear": "least squares with industry and year effects (targets can fall below 0)",
+}
 _REQUIRED = ("targets", "drivers", "coefficients", "model_fit", "exclusions")
 
 
@@ -241,25 +246,31 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         "omissions": omissions,
         "measures": measures,
         "model": model_opts.get("model", ",".join(sorted(set(fit["model"].astype(str))))),
+        "model_text": MODEL_TEXT.get(str(model_opts.get("model")),
+                                     str(model_opts.get("model", "not recorded"))),
         "cluster": {"firm": "firm", "firm-year": "firm and year (two-way)",
                     "industry": "industry"}.get(model_opts.get("cluster"),
                                                 model_opts.get("cluster", "not recorded")),
         "coverage": _num(model_opts.get("coverage")),
         "folds": model_opts.get("folds"),
         "fit": fit_rows,
-        "borrowed": [_borrowed(b) for b in manifest.get("borrowed_industries", []) or []],
+        "pooled": [_pooled(b) for b in manifest.get("pooled_industries", []) or []],
         "warnings": [str(w) for w in manifest.get("warnings", [])],
         "version": manifest.get("levgap_version", ""),
     }
 
 
-def _borrowed(item: Any) -> str:
+def _pooled(item: Any) -> str:
     if not isinstance(item, Mapping):
         return str(item)
     industry = item.get("industry", "?")
     firms = f" ({item['firms']} firms)" if item.get("firms") is not None else ""
-    source = item.get("borrowed_from") or item.get("parent")
-    return f"{industry}{firms}" + (f" from {source}" if source else "")
+    source = item.get("parent")
+    weights = item.get("weight") or {}
+    kept = ", ".join(f"{m} {100 * w:.0f}%" for m, w in weights.items()
+                     if isinstance(w, int | float))
+    return (f"{industry}{firms}" + (f" toward {source}" if source else "")
+            + (f", own level kept: {kept}" if kept else ""))
 
 
 def _step_title(row: Mapping[str, Any]) -> str:
