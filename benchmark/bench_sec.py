@@ -106,13 +106,20 @@ def _filler_tags(n: int) -> list[str]:
     return [f"{stems[i % len(stems)]}SyntheticLineItem{i:04d}" for i in range(n)]
 
 
-def _submissions(rng: np.random.Generator, seed: int) -> dict[str, np.ndarray]:
-    n = SUBMISSIONS
+def _sizes(facts: int) -> tuple[int, int]:
+    """Submissions and annual reports of a quarter: the modern counts, scaled down with the
+    facts for small (test) quarters."""
+    n = max(200, round(SUBMISSIONS * min(1.0, facts / FACTS)))
+    return n, round(n * ANNUAL / SUBMISSIONS)
+
+
+def _submissions(rng: np.random.Generator, seed: int, facts: int) -> dict[str, np.ndarray]:
+    n, n_annual = _sizes(facts)
     ciks = rng.choice(np.arange(1_000_000, 9_000_000), size=n, replace=False)
     adsh = np.array([f"{9_000_000_000 + c:010d}-{21 + seed:02d}-{i:06d}"
                      for i, c in enumerate(ciks)])
     annual = np.zeros(n, dtype=bool)
-    annual[rng.choice(n, size=ANNUAL, replace=False)] = True
+    annual[rng.choice(n, size=n_annual, replace=False)] = True
     year = 2020 + seed // 4
     period = np.where(annual, f"{year}1231", f"{year + 1}0331")
     return {"adsh": adsh, "cik": ciks.astype(str), "annual": annual, "period": period,
@@ -263,7 +270,7 @@ def build_quarter(facts: int = FACTS, *, rebuild: bool = False, seed: int = 0,
     if out.exists() and not rebuild:
         return out
     rng = np.random.default_rng(seed)
-    subs = _submissions(rng, seed)
+    subs = _submissions(rng, seed, facts)
     filler = np.array(_filler_tags(2_000))
     work = data_dir / f"sec-synthetic-v2-{facts}-q{seed}"
     work.mkdir(exist_ok=True)
@@ -366,7 +373,7 @@ def run(facts: int = FACTS, *, quarters: int = 4, workers: int = 2, rebuild: boo
         "facts": facts,
         "pre_rows": _rows(first, "pre.txt"),
         "tag_rows": _rows(first, "tag.txt"),
-        "annual_reports": ANNUAL,
+        "annual_reports": _sizes(facts)[1],
         "num_txt_mb": round(num_mb, 1),
         "zip_mb": round(first.stat().st_size / 2**20, 1),
         "seconds": round(one["seconds"], 2),

@@ -541,10 +541,14 @@ def test_bench_sec_runs_on_a_small_synthetic_quarter(tmp_path: Path) -> None:
     assert spec is not None and spec.loader is not None
     bench = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(bench)
-    figures = bench.run(60_000, data_dir=tmp_path)
+    figures = bench.run(60_000, quarters=2, workers=2, data_dir=tmp_path)
     assert figures["facts"] == 60_000 and figures["num_txt_mb"] > 5
-    assert figures["panel_rows"] > 1000 and figures["assets_share"] == 1.0
+    assert figures["pre_rows"] > 50_000 and figures["tag_rows"] > 2_000
+    # Every 10-K gives its own year and its comparative, with total assets and debt.
+    assert figures["panel_rows"] == 2 * figures["annual_reports"] > 200
+    assert figures["assets_share"] == 1.0 and figures["debt_share"] == 1.0
     assert figures["peak_rss_mb"] > 0 and figures["seconds"] > 0
+    assert figures["parallel_quarters"] == 2 and figures["parallel_worker_peak_rss_mb"] > 0
     assert figures["rss_ok"] is True
 
 
