@@ -76,3 +76,18 @@ def test_zero_debt_and_zero_market_equity_has_its_own_reason() -> None:
     counts = r.manifest["counts"]
     assert counts["measure_omissions"] == {"market:no_market_equity": 1,
                                            "market:no_market_value": 1}
+
+
+def test_peer_digits_change_the_peers_not_the_model() -> None:
+    p = _data(9)
+    base = analyze(p, spec=ModelSpec(measures=("book",)))
+    wide = analyze(p, spec=ModelSpec(measures=("book",), peer_digits=1))
+    pd.testing.assert_frame_equal(base.coefficients, wide.coefficients)
+    np.testing.assert_array_equal(base.targets["target"], wide.targets["target"])
+    # one-digit peers: every firm of the year but itself
+    per_year = p.groupby("fiscal_year").size()
+    expected = wide.targets["fiscal_year"].map(per_year) - 1
+    assert (wide.targets["peer_count"] == expected).all()
+    assert (base.targets["peer_count"] < expected).all()
+    coarse = analyze(p, spec=ModelSpec(measures=("book",), industry_digits=1))
+    assert not np.allclose(coarse.targets["target"], base.targets["target"])

@@ -69,4 +69,4 @@ def test_write_template_generates_without_checkout(tmp_path):
         assert p.read_text(encoding="utf-8") == template_files()[p.name]
     with pytest.raises(OutputError, match="must not replace existing files"):
         write_template(tmp_path / "tpl")
-    assert len(write_template(tmp_path / "tpl", force=True)) == 3
+    assert len(write_template(tmp_path / "tpl", force=True)) == len(TEMPLATE_FILES)

@@ -441,7 +441,7 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
             f"every driver must vary within industries and years; got {', '.join(absorbed)} "
             "explained entirely by the industry and year effects (constant within every "
             "industry, for example). Drop it from [model] drivers, or group industries more "
-            "coarsely ([model] peer_digits)."
+            "coarsely ([model] industry_digits)."
         )
     scaled = resid / np.sqrt(np.einsum("ij,ij->j", resid, resid))
     _, s, vt = np.linalg.svd(scaled, full_matrices=False)

@@ -79,7 +79,7 @@ def _atomic_text(target: Path, text: str) -> None:
 
 
 def write_template(out_dir: str | Path, *, force: bool = False) -> list[Path]:
-    """Write the input template: ``panel_template.csv``, ``README.md`` and ``run.toml``.
+    """Write the input template: ``panel_template.csv``, ``README.md``, ``run.toml``, ``deal.toml``.
 
     The files are generated from ``levgap.schema`` (see ``levgap.ingest.template``), so they
     need no repository checkout.
