@@ -90,3 +90,61 @@ MEASURE_REASONS: dict[str, str] = {
 }
 """Reason codes of rows the analysis leaves out of every measure."""
 
+
+
+SEC_REASONS: dict[str, str] = {
+    "foreign_private_issuer_form": "a 20-F or 40-F annual report of a foreign private issuer "
+    "(import-sec reads 10-K reports)",
+    "form_not_selected": "an annual report of a form not asked for with --forms (a 10-K/A "
+    "or 10-KT with no 10-K for that firm-year)",
+    "not_fiscal_year_report": "a 10-K whose fiscal period (fp) is neither FY nor empty",
+    "bad_submission_row": "sub.txt gives no usable CIK or period end for the report",
+    "ifrs_filer": "the statements use the IFRS taxonomy, not US-GAAP",
+    "non_usd_currency": "money is reported in a currency other than U.S. dollars and no "
+    "--fx-rates file was given",
+    "no_fx_rate": "the --fx-rates file has no rate for the filer's currency within 31 days "
+    "before to 7 days after the balance-sheet date",
+    "no_consolidated_facts": "every total-assets fact carries a co-registrant and the "
+    "ParentCompany facts do not balance (assets differ from liabilities and equity)",
+    "no_balance_sheet": "the year appears only in a comparative income or cash-flow "
+    "statement (two years back); its balance sheet is in an earlier 10-K not given",
+    "excluded_industry": "the SIC code lies in an --exclude-sic range (default financials "
+    "6000-6999 and utilities 4900-4999; --all-industries keeps them)",
+    "subsidiary_duplicate": "total assets equal another filer's at the same date: a "
+    "subsidiary filing its own 10-K, left out with --drop-subsidiaries",
+}
+"""Reason codes of ``levgap import-sec``'s ledger (``PANEL.excluded.csv``): firm-years filed
+but not in the panel."""
+
+SEC_FLAGS: dict[str, str] = {
+    "debt_zero": "the balance sheet presents no debt line (or its debt lines are nil) and "
+    "the filing has no debt facts outside its consolidated statements: total_debt is 0",
+    "debt_partial": "total_debt may leave debt out: a liabilities line that names borrowing "
+    "with something else is not counted, or (without pre.txt) only one side of the balance "
+    "sheet was found",
+    "debt_by_label": "total_debt includes a line counted by its label: a filer-defined tag, "
+    "or a standard tag for something broader than debt, whose label names borrowing",
+    "debt_from_tags": "the filing has no presentation lines (pre.txt): total_debt is built "
+    "from the debt tags alone",
+    "ppe_net_from_gross_tag": "ppe_net is a line tagged gross whose label says net (no "
+    "accumulated depreciation is filed)",
+    "ppe_real_estate": "ppe_net is the real estate of a REIT (no property, plant and "
+    "equipment line)",
+    "dna_sign_flipped": "depreciation and amortisation was filed negative; its absolute value "
+    "is used in ebitda",
+    "interest_sign_flipped": "interest expense was filed negative; its absolute value is used",
+    "dividends_sign_flipped": "dividends paid were filed negative; the absolute value is used",
+    "ebitda_from_pretax": "no operating income: ebitda is pretax income + interest expense + "
+    "D&A (the alternative definition)",
+    "liabilities_derived": "total_liabilities is total liabilities and equity minus equity "
+    "(with noncontrolling interests) and temporary equity",
+    "shares_weighted_average": "no period-end share count: shares_outstanding is the "
+    "weighted-average basic count",
+    "parent_company_facts": "the filing's consolidated figures sit under coreg "
+    "ParentCompany; they balance and are used",
+    "statement_facts_missing": "the filing presents a statement line of interest that has no "
+    "fact in num.txt (lost in the file); values built from it are missing",
+    "subsidiary_duplicate": "total assets equal another filer's at the same date (a "
+    "subsidiary filing its own 10-K); the sources name the filer taken for the parent",
+}
+"""Flags of ``levgap import-sec``'s panel rows, ``;``-joined in the ``import_flags`` column."""

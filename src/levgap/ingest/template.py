@@ -18,6 +18,8 @@ from levgap.codes import (
     MEASURE_REASONS,
     NA_TOKENS,
     REASONS,
+    SEC_FLAGS,
+    SEC_REASONS,
     YEAR_RANGE,
 )
 from levgap.ingest.deal_template import deal_template
@@ -95,6 +97,8 @@ def template_readme() -> str:
                         {**REASONS, **ANALYSIS_REASONS, **MEASURE_REASONS}.items())
     flags = "\n".join(f"| `{k}` | {v} |" for k, v in {**FLAGS, **ANALYSIS_FLAGS}.items())
     blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"
+    sec_reasons = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_REASONS.items())
+    sec_flags = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_FLAGS.items())
     return f"""# levgap input template (schema v{SCHEMA_VERSION})
 
 `panel_template.csv` shows the layout levgap reads: one row per firm and fiscal year,
@@ -170,6 +174,37 @@ Flags appear, `;`-joined, in the `flags` column of the outputs.
 
 Optional numbers that are not numbers, or below their allowed minimum, are treated as blank,
 the row is flagged `invalid_<column>`, and a warning names the rows.
+
+## Panels built by `levgap import-sec`
+
+A panel written by `levgap import-sec` (the SEC's Financial Statement Data Sets) carries,
+beside the columns above, `industry_name` (the SEC's title of the SIC code),
+`market_equity_source` and `import_flags`, which levgap's analysis ignores. Its conventions:
+
+- `book_equity` excludes noncontrolling interests: StockholdersEquity; else PartnersCapital
+  or MembersEquity; else the total including noncontrolling interests minus the
+  noncontrolling-interest line.
+- `total_debt` is the sum of the debt lines the filer presents on its balance sheet
+  (subtotals not added; finance and capital leases presented there included), so
+  `lease_liabilities` holds operating leases only and `leases_as_debt` adds just those.
+- `fiscal_year` is the calendar year of the balance-sheet date, one less for dates in
+  January to May; a 10-K also gives the previous year (its comparatives), and the latest
+  filing's figure is used for a year reported twice unless `--as-first-filed`.
+- `PANEL.sources.csv` names, for every number, the tag or formula (every line summed), the
+  filing (`adsh`), the date of the fact, whether it is the filing's own year or a
+  comparative, the statement that presented it and its flags.
+
+### Import flags (`import_flags`, the row is kept)
+
+| flag | meaning |
+|---|---|
+{sec_flags}
+
+### Import reasons (`PANEL.excluded.csv`, the firm-year is not in the panel)
+
+| reason | meaning |
+|---|---|
+{sec_reasons}
 
 ## Whole-file errors (exit code 2, one line naming the file)
 
