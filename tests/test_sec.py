@@ -422,7 +422,7 @@ def test_write_panel_and_sources_beside_it(tmp_path: Path, both: SecImport, suff
     src = pd.read_csv(sources_path, dtype=str, keep_default_na=False)
     assert list(src.columns) == list(SOURCE_COLUMNS) and len(src) == len(both.sources)
     assert sorted(p.name for p in out.parent.iterdir()) == sorted(
-        [out.name, "panel.sources.csv"])  # no temporary file left behind
+        [out.name, "panel.sources.csv", ".levgap-output"])  # no temporary file left behind
 
 
 def test_write_refuses_other_suffixes(tmp_path: Path, both: SecImport) -> None:

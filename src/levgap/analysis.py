@@ -2,12 +2,17 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-import pandas as pd
+from levgap.panel import EXCLUSION_COLUMNS
+
+if TYPE_CHECKING:  # the readers of quick commands use the column constants without pandas
+    import pandas as pd
+
+    from levgap.outputs import Committed
 
 ProgressFn = Callable[[str, int, int], None]
 
@@ -25,6 +30,70 @@ COEF_COLUMNS = (
 FIT_COLUMNS = (
     "measure", "model", "n_obs", "n_firms", "n_industries", "r2", "r2_oos", "rmse_oos"
 )
+
+TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
+    "targets": TARGET_COLUMNS,
+    "drivers": DRIVER_COLUMNS,
+    "coefficients": COEF_COLUMNS,
+    "model_fit": FIT_COLUMNS,
+    "exclusions": EXCLUSION_COLUMNS,
+}
+"""Columns each output table has at least; readers refuse a table that lacks one."""
+
+COLUMN_KINDS: dict[str, str] = {
+    **dict.fromkeys(("fiscal_year", "peer_count", "n_obs", "n_firms", "n_industries",
+                     "source_row"), "integer"),
+    **dict.fromkeys(("actual", "target", "gap", "gap_z", "band_low", "band_high", "peer_median",
+                     "peer_target", "debt_to_target", "firm_value", "peer_value", "contribution",
+                     "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high", "r2",
+                     "r2_oos", "rmse_oos"), "number"),
+}
+"""What output columns hold when they are not text: ``integer`` (whole numbers, blanks allowed)
+or ``number``. Columns not named here are read as text."""
+
+
+def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
+                        example: Callable[[str], str] = lambda c: "") -> None:
+    """Refuse a table read back from an output folder that lacks a column or holds a wrong type.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The file, for the message.
+    name : str
+        The table (``targets``, ...); tables levgap does not know are not checked.
+    found : mapping of str to str
+        Column -> what the reader found in it: ``integer`` (whole numbers or blanks),
+        ``number``, ``text`` or ``other``.
+    example : callable, optional
+        A short example of a column's offending value, for the message.
+
+    Raises
+    ------
+    OutputError
+        Naming the file and the column.
+    """
+    from levgap.errors import OutputError
+
+    wanted = TABLE_COLUMNS.get(name, ())
+    missing = [c for c in wanted if c not in found]
+    if missing:
+        raise OutputError(
+            f"{path}: the {name} table must have the column {missing[0]}"
+            f"{f' (and {len(missing) - 1} more)' if len(missing) > 1 else ''}; got none. The "
+            "file was edited or comes from another program; re-run `levgap analyze`."
+        )
+    for col in wanted:
+        kind = COLUMN_KINDS.get(col)
+        ok = {"integer": ("integer",), "number": ("integer", "number")}.get(kind or "")
+        if ok is not None and found[col] not in ok:
+            shown = example(col)
+            what = "whole numbers" if kind == "integer" else "numbers"
+            raise OutputError(
+                f"{path}: column {col} must hold {what}; got {found[col]}"
+                f"{f' such as {shown}' if shown else ''}. The file was edited or damaged; "
+                "re-run `levgap analyze`."
+            )
 
 
 @dataclass(frozen=True, slots=True)
@@ -85,11 +154,13 @@ class Analysis:
     ) -> list[Path]:
         """Write the output contract (and the HTML report, and a workbook on request).
 
+        The files are one unit with one run id (see :func:`write_analysis`).
+
         Parameters
         ----------
         out_dir : str or Path
             Output folder; created if absent. A folder holding files levgap did not write is
-            refused unless ``force``.
+            refused unless ``force`` (they are left alone, and never replaced).
         fmt : {"csv", "parquet"}, default="csv"
         force : bool, default=False
         report : bool, default=True
@@ -97,32 +168,65 @@ class Analysis:
         xlsx : bool, default=False
             Also write ``workbook.xlsx``.
         inputs : tuple of str, default=()
-            Input files that must never be overwritten.
+            Input files, never replaced or removed; default the manifest's inputs.
         progress : callable, optional
             ``progress(stage, done, total)`` while the report renders.
+
+        Returns
+        -------
+        list of pathlib.Path
+            The files written, ``run.json`` last.
         """
-        from levgap.report.tables import write_tables
-
-        out = Path(out_dir)
-        sources = list(inputs or [i["path"] for i in self.manifest.get("inputs", [])])
-        also = [Path(s).name for s in sources if Path(s).parent.resolve() == out.resolve()]
-        also += ["report.html"] if report else []
-        also += ["workbook.xlsx"] if xlsx else []
-        written = write_tables(self.tables(), self.manifest, out, fmt=fmt, force=force,
-                               inputs=sources, also=also)
-        if report:
-            from levgap.report.html import write_report
-
-            written.append(write_report(self.tables(), self.manifest, out_dir,
-                                        progress=progress))
-        if xlsx:
-            from levgap.report.workbook import write_workbook
-
-            path = Path(out_dir) / "workbook.xlsx"
-            write_workbook(self.tables(), self.manifest, path)
-            written.append(path)
-        return written
+        return list(write_analysis(self, out_dir, fmt=fmt, force=force, report=report,
+                                   xlsx=xlsx, inputs=inputs, progress=progress).written)
 
     def _repr_html_(self) -> str:
         head = self.model_fit.to_html(index=False, float_format=lambda v: f"{v:.4f}")
         return f"<p>levgap analysis: {len(self.targets)} target rows</p>{head}"
+
+
+def write_analysis(
+    analysis: Analysis,
+    out_dir: str | Path,
+    *,
+    fmt: str = "csv",
+    force: bool = False,
+    report: bool = True,
+    xlsx: bool = False,
+    inputs: tuple[str, ...] = (),
+    progress: ProgressFn | None = None,
+) -> Committed:
+    """Write an analysis as one run: tables, ``model.json``, report, workbook, ``run.json``.
+
+    Every file is staged and swapped in together under one new run id (``levgap.outputs``),
+    which ``run.json`` and ``model.json`` carry; files of a previous run in the folder that
+    this run does not replace (``report.html`` under ``report=False``, tables in the other
+    format) are removed when they are verifiably levgap's. Parameters as :meth:`Analysis.write`.
+
+    Returns
+    -------
+    levgap.outputs.Committed
+        The files written and the previous run's files removed.
+    """
+    from levgap.outputs import RunWriter, json_bytes, new_run_id
+    from levgap.report.tables import stage_tables
+
+    run_id = new_run_id()
+    manifest = {**analysis.manifest, "run_id": run_id}
+    sources = list(inputs or [i["path"] for i in analysis.manifest.get("inputs", [])
+                              if isinstance(i, Mapping) and i.get("path")])
+    tables = analysis.tables()
+    with RunWriter(out_dir, run_id=run_id, inputs=sources, force=force) as run:
+        stage_tables(run, tables, fmt=fmt)
+        if analysis.saved_model:
+            run.add("model.json", json_bytes({**analysis.saved_model, "run_id": run_id}))
+        if report:
+            from levgap.report.html import render_report
+
+            html = render_report(tables, manifest, progress=progress)
+            run.add("report.html", html.encode("utf-8"))
+        if xlsx:
+            from levgap.report.workbook import build_workbook
+
+            run.add_path("workbook.xlsx", lambda p: build_workbook(tables, manifest, p))
+        return run.commit(manifest)

@@ -33,15 +33,115 @@ A run configuration has four tables; every key is optional::
 from __future__ import annotations
 
 import dataclasses
+import functools
+import math
 import tomllib
+import types
+import typing
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 from levgap.errors import ConfigError
 from levgap.schema import BY_NAME, DRIVERS, MEASURES, OPTIONAL_DRIVERS
 
 CLUSTERS: tuple[str, ...] = ("firm", "firm-year", "industry")
+_MAX_TOML = 1 << 20
+
+
+def check_fields(obj: Any) -> None:
+    """Check every field of an option object against its annotation, where it is built.
+
+    Lists become tuples and whole numbers become floats where the annotation asks for them;
+    anything else that does not fit raises one line naming the table and key. Per-field rules
+    (ranges, choices) follow in each class's ``__post_init__``.
+
+    Raises
+    ------
+    ConfigError
+        ``[table] key must be <kind>; got <value>.``
+    """
+    table = getattr(type(obj), "TABLE", type(obj).__name__)
+    for name, hint in _hints(type(obj)).items():
+        value = getattr(obj, name)
+        ok, conformed = _conform(value, hint)
+        if not ok:
+            raise ConfigError(f"[{table}] {name} must be {_describe(hint)}; got {value!r}.")
+        if conformed is not value:
+            object.__setattr__(obj, name, conformed)
+
+
+@functools.cache
+def _hints(kind: type) -> dict[str, Any]:
+    hints = typing.get_type_hints(kind)
+    return {f.name: hints[f.name] for f in dataclasses.fields(kind)}
+
+
+def _conform(v: Any, hint: Any) -> tuple[bool, Any]:
+    """Whether ``v`` fits ``hint``, and the value as stored (tuples, floats)."""
+    origin, args = typing.get_origin(hint), typing.get_args(hint)
+    if hint is Any:
+        return True, v
+    if hint is type(None):
+        return v is None, v
+    if hint is bool:
+        return isinstance(v, bool), v
+    if hint is int:
+        return isinstance(v, int) and not isinstance(v, bool), v
+    if hint is float:
+        ok = isinstance(v, int | float) and not isinstance(v, bool) and math.isfinite(v)
+        return ok, float(v) if ok else v
+    if hint is str:
+        return isinstance(v, str), v
+    if origin in (types.UnionType, typing.Union):
+        for a in args:
+            ok, out = _conform(v, a)
+            if ok:
+                return True, out
+        return False, v
+    if origin is typing.Literal:
+        return v in args, v
+    if origin is tuple:
+        if not isinstance(v, list | tuple):
+            return False, v
+        items = args[:1] * len(v) if len(args) == 2 and args[1] is Ellipsis else args
+        if len(items) != len(v):
+            return False, v
+        out = [_conform(x, a) for x, a in zip(v, items, strict=True)]
+        return all(ok for ok, _ in out), tuple(x for _, x in out)
+    if origin is dict:
+        if not isinstance(v, dict):
+            return False, v
+        ok = all(_conform(k, args[0])[0] and _conform(x, args[1])[0] for k, x in v.items())
+        return ok, v
+    return True, v  # a type this check does not know: the class's own checks decide
+
+
+def _describe(hint: Any) -> str:
+    origin, args = typing.get_origin(hint), typing.get_args(hint)
+    simple = {bool: "true or false", int: "a whole number", float: "a number", str: "a text",
+              type(None): "absent"}
+    if hint in simple:
+        return simple[hint]
+    if origin in (types.UnionType, typing.Union):
+        return " or ".join(_describe(a) for a in args)
+    if origin is typing.Literal:
+        return "one of " + ", ".join(repr(a) for a in args)
+    if origin is tuple:
+        if len(args) == 2 and args[1] is Ellipsis:
+            return f"a list of {_plural(args[0])}"
+        if len(set(args)) == 1:
+            count = {2: "two", 3: "three"}.get(len(args), str(len(args)))
+            return f"a list of {count} {_plural(args[0])}"
+        return "a list of " + ", ".join(_describe(a) for a in args)
+    if origin is dict:
+        return f"a table of {_plural(args[1])}"
+    return str(hint)
+
+
+def _plural(hint: Any) -> str:
+    return {bool: "true/false values", int: "whole numbers", float: "numbers",
+            str: "texts"}.get(hint, _describe(hint))
 
 
 @dataclass(frozen=True, slots=True)
@@ -65,6 +165,8 @@ class InputOptions:
         Lines above the header line.
     """
 
+    TABLE: ClassVar[str] = "input"
+
     delimiter: str | None = None
     decimal: str = "."
     thousands: str | None = None
@@ -73,6 +175,7 @@ class InputOptions:
     skip_rows: int = 0
 
     def __post_init__(self) -> None:
+        check_fields(self)
         for name in ("delimiter", "decimal", "thousands"):
             v = getattr(self, name)
             if v is not None and (not isinstance(v, str) or len(v) != 1 or v in "\r\n\""):
@@ -112,18 +215,26 @@ class Units:
         Reference currency, recorded in ``run.json``.
     """
 
+    TABLE: ClassVar[str] = "units"
+
     scale: float = 1.0
     currency: str | None = None
 
     def __post_init__(self) -> None:
-        if not (isinstance(self.scale, int | float) and 0 < self.scale < float("inf")):
+        if isinstance(self.scale, int | float) and not isinstance(self.scale, bool) and not (
+                0 < self.scale < float("inf")):
             raise ConfigError(f"[units] scale must be a number > 0; got {self.scale!r}.")
-        if self.currency is not None and (
-            not isinstance(self.currency, str) or not self.currency.strip()
-        ):
-            raise ConfigError(
-                f"[units] currency must be a code such as 'EUR'; got {self.currency!r}."
-            )
+        check_fields(self)
+        if self.currency is not None:
+            from levgap.currencies import CURRENCIES
+
+            code = self.currency.strip().upper()
+            if code not in CURRENCIES:
+                raise ConfigError(
+                    f"[units] currency must be an ISO 4217 code such as 'EUR'; got "
+                    f"{self.currency!r}."
+                )
+            object.__setattr__(self, "currency", code)
 
 
 @dataclass(frozen=True, slots=True)
@@ -153,7 +264,7 @@ class ModelSpec:
     coverage : float, default=0.8
         Coverage of the band around each target.
     model : str, default="linear"
-        Key of the fit function in ``levgap.models.MODELS``.
+        Key of the fit function in ``levgap.models.MODELS`` (checked when the spec is built).
     year : int or None, default=None
         Report only this fiscal year (the model is still fitted on every year).
     lag_drivers : bool, default=False
@@ -161,6 +272,8 @@ class ModelSpec:
         replication studies often do; a row without the firm's previous year is left out with
         reason ``no_prior_year``.
     """
+
+    TABLE: ClassVar[str] = "model"
 
     measures: tuple[str, ...] = MEASURES
     cluster: str = "firm"
@@ -177,34 +290,47 @@ class ModelSpec:
     lag_drivers: bool = False
 
     def __post_init__(self) -> None:
+        check_fields(self)
         bad = [m for m in self.measures if m not in MEASURES]
         if bad or not self.measures:
             raise ConfigError(
-                f"measures must be among {list(MEASURES)}; got {list(self.measures)}."
+                f"[model] measures must be among {list(MEASURES)}; got {list(self.measures)}."
             )
         if self.cluster not in CLUSTERS:
-            raise ConfigError(f"cluster must be one of {list(CLUSTERS)}; got {self.cluster!r}.")
+            raise ConfigError(
+                f"[model] cluster must be one of {list(CLUSTERS)}; got {self.cluster!r}.")
         lo, hi = self.winsorize
         if not (0.0 <= lo < hi <= 1.0):
             raise ConfigError(
-                f"winsorize must be two quantiles 0 <= low < high <= 1; got {list(self.winsorize)}."
+                f"[model] winsorize must be two quantiles 0 <= low < high <= 1; got "
+                f"{list(self.winsorize)}."
             )
         allowed = DRIVERS + OPTIONAL_DRIVERS
         bad = [d for d in self.drivers if d not in allowed]
         if bad or not self.drivers:
             raise ConfigError(
-                f"drivers must be among {list(allowed)}; got {list(self.drivers)}."
+                f"[model] drivers must be among {list(allowed)}; got {list(self.drivers)}."
             )
         if self.min_industry_firms < 1:
             raise ConfigError(
-                f"min_industry_firms must be at least 1; got {self.min_industry_firms}."
+                f"[model] min_industry_firms must be at least 1; got {self.min_industry_firms}."
             )
         if self.peer_digits < 0:
-            raise ConfigError(f"peer_digits must be 0 or more; got {self.peer_digits}.")
+            raise ConfigError(f"[model] peer_digits must be 0 or more; got {self.peer_digits}.")
         if self.folds < 2:
-            raise ConfigError(f"folds must be at least 2; got {self.folds}.")
+            raise ConfigError(f"[model] folds must be at least 2; got {self.folds}.")
+        if self.seed < 0:
+            raise ConfigError(f"[model] seed must be 0 or more; got {self.seed}.")
         if not (0.0 < self.coverage < 1.0):
-            raise ConfigError(f"coverage must lie strictly between 0 and 1; got {self.coverage}.")
+            raise ConfigError(
+                f"[model] coverage must lie strictly between 0 and 1; got {self.coverage}.")
+        if self.year is not None and not (1800 <= self.year <= 2200):
+            raise ConfigError(f"[model] year must be a fiscal year 1800..2200; got {self.year}.")
+        from levgap.models import MODELS  # here, not at import: config stays light
+
+        if self.model not in MODELS:
+            raise ConfigError(
+                f"[model] model must be one of {sorted(MODELS)}; got {self.model!r}.")
 
 
 @dataclass(frozen=True, slots=True)
@@ -228,17 +354,62 @@ class RunConfig:
     model: ModelSpec = field(default_factory=ModelSpec)
     source: str | None = None
 
+    def __post_init__(self) -> None:
+        if not isinstance(self.columns, dict):
+            raise ConfigError(f"[columns] must be a table of schema column = header; got "
+                              f"{self.columns!r}.")
+        bad = sorted(str(k) for k in self.columns if k not in BY_NAME)
+        if bad:
+            raise ConfigError(
+                f"unknown key {bad[0]!r} in [columns]; allowed keys are the schema columns "
+                f"{sorted(BY_NAME)}."
+            )
+        for k, v in self.columns.items():
+            if not isinstance(v, str) or not v.strip():
+                raise ConfigError(f"[columns] {k} must be a header name; got {v!r}.")
+        by_header: dict[str, list[str]] = {}
+        for k, v in self.columns.items():
+            by_header.setdefault(v.strip().lower(), []).append(k)
+        shared = [ks for ks in by_header.values() if len(ks) > 1]
+        if shared:
+            ks = shared[0]
+            raise ConfigError(
+                f"[columns] {' and '.join(ks)} must name different headers; got each = "
+                f"{self.columns[ks[0]]!r}. Map each schema column to its own header."
+            )
+        for name, kind in (("input", InputOptions), ("units", Units), ("model", ModelSpec)):
+            if not isinstance(getattr(self, name), kind):
+                raise ConfigError(f"[{name}] must be a {kind.__name__}; got "
+                                  f"{getattr(self, name)!r}.")
+
     @classmethod
     def from_toml(cls, path: str | Path) -> RunConfig:
-        """Read a run configuration; unknown tables or keys are an error naming them."""
+        """Read a run configuration; unknown tables or keys are an error naming them.
+
+        The file is UTF-8 (a byte-order mark is allowed) and at most 1 MB.
+        """
+        import stat
+
         p = Path(path)
         try:
-            raw = tomllib.loads(p.read_text(encoding="utf-8"))
+            if not stat.S_ISREG(p.stat().st_mode):
+                raise ConfigError(f"{p}: the run configuration must be a regular file; got a "
+                                  "folder, device or pipe.")
+            with open(p, "rb") as fh:
+                data = fh.read(_MAX_TOML + 1)
         except FileNotFoundError:
             raise ConfigError(
                 f"{p}: the run configuration must be an existing TOML file; got no file there. "
                 "Check the --config path, or write an example with `levgap template`."
             ) from None
+        except OSError as exc:
+            raise ConfigError(f"{p}: the run configuration must be readable; got "
+                              f"{exc.strerror or exc}.") from None
+        if len(data) > _MAX_TOML:
+            raise ConfigError(f"{p}: a run configuration must be at most 1 MB; got a larger "
+                              "file. Is this the right --config file?")
+        try:
+            raw = tomllib.loads(data.decode("utf-8-sig"))
         except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
             raise ConfigError(f"{p}: not a valid TOML file: {exc}.") from None
         return cls.from_dict(raw, source=str(p))
@@ -254,22 +425,17 @@ class RunConfig:
                 f"{where}unknown table [{unknown[0]}]; allowed tables are {sorted(tables)}."
             )
         columns = raw.get("columns", {})
-        bad = sorted(set(columns) - set(BY_NAME))
-        if bad:
-            raise ConfigError(
-                f"{where}unknown key {bad[0]!r} in [columns]; allowed keys are the schema "
-                f"columns {sorted(BY_NAME)}."
-            )
-        for k, v in columns.items():
-            if not isinstance(v, str) or not v:
-                raise ConfigError(f"{where}[columns] {k} must be a header name; got {v!r}.")
-        return cls(
-            columns=dict(columns),
-            input=_build(InputOptions, raw.get("input", {}), "input", where),
-            units=_build(Units, raw.get("units", {}), "units", where),
-            model=_build(ModelSpec, raw.get("model", {}), "model", where),
-            source=source,
-        )
+        if not isinstance(columns, dict):
+            raise ConfigError(f"{where}[columns] must be a table of keys; got {columns!r}.")
+        parts = {
+            "input": _build(InputOptions, raw.get("input", {}), "input", where),
+            "units": _build(Units, raw.get("units", {}), "units", where),
+            "model": _build(ModelSpec, raw.get("model", {}), "model", where),
+        }
+        try:
+            return cls(columns=dict(columns), source=source, **parts)
+        except ConfigError as exc:
+            raise ConfigError(f"{where}{exc}") from None
 
     def to_dict(self) -> dict[str, Any]:
         """The resolved configuration, as echoed into ``run.json``."""
@@ -288,32 +454,14 @@ class RunConfig:
 def _build(kind: type, values: Any, table: str, where: str) -> Any:
     if not isinstance(values, dict):
         raise ConfigError(f"{where}[{table}] must be a table of keys; got {values!r}.")
-    fields = {f.name: f for f in dataclasses.fields(kind)}
-    unknown = sorted(set(values) - set(fields))
+    fields = {f.name for f in dataclasses.fields(kind)}
+    unknown = sorted(set(values) - fields)
     if unknown:
         raise ConfigError(
             f"{where}unknown key {unknown[0]!r} in [{table}]; allowed keys are {sorted(fields)}."
         )
-    kwargs: dict[str, Any] = {}
-    for k, v in values.items():
-        default = getattr(kind(), k)
-        if isinstance(default, tuple) and isinstance(v, list):
-            v = tuple(v)
-        if isinstance(default, bool) and not isinstance(v, bool):
-            raise ConfigError(f"{where}[{table}] {k} must be true or false; got {v!r}.")
-        if isinstance(default, int) and not isinstance(default, bool) and (
-            isinstance(v, bool) or not isinstance(v, int)
-        ):
-            raise ConfigError(f"{where}[{table}] {k} must be a whole number; got {v!r}.")
-        if isinstance(default, float) and (isinstance(v, bool) or not isinstance(v, int | float)):
-            raise ConfigError(f"{where}[{table}] {k} must be a number; got {v!r}.")
-        if isinstance(default, float):
-            v = float(v)
-        kwargs[k] = v
     try:
-        return kind(**kwargs)
-    except TypeError as exc:
-        raise ConfigError(f"{where}[{table}]: {exc}.") from None
+        return kind(**values)
     except ConfigError as exc:
         if where and not str(exc).startswith(where):
             raise ConfigError(f"{where}{exc}") from None

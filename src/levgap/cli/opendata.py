@@ -34,7 +34,10 @@ def import_sec_command(
     """
     with guard():
         from levgap.ingest.sec import import_sec, write_sec_import
+        from levgap.outputs import refuse_inputs
 
+        sources = out.with_name(out.stem + ".sources.csv")  # as write_sec_import names it
+        refuse_inputs([out, sources], [*quarters, *([prices] if prices else [])])
         result = import_sec(quarters, forms=tuple(forms.split(",")),
                             restated=not as_first_filed, prices=prices,
                             exclude_sic=exclude_sic)

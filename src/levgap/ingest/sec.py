@@ -829,8 +829,7 @@ def write_sec_import(result: SecImport, out_path: str | Path) -> tuple[Path, Pat
     sources_path = out.with_name(out.stem + ".sources.csv")
     # The project's one atomic writer (temporary name beside the target, then os.replace)
     # and its formula neutraliser for CSV cells.
-    from levgap.report.files import atomic_file
-    from levgap.report.tables import neutralise
+    from levgap.outputs import atomic_file, neutralise
 
     with atomic_file(out) as tmp:
         if suffix == ".csv":
