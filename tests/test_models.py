@@ -8,7 +8,6 @@ import pytest
 import statsmodels.api as sm
 
 from levgap.errors import ModelError
-from levgap.models import MODELS
 from levgap.models.linear import Borrow, fit_linear
 
 
@@ -165,6 +164,3 @@ def test_bad_inputs_are_model_errors() -> None:
         fit_linear(np.arange(10.0), np.random.default_rng(0).normal(size=(10, 1)),
                    clusters=[np.zeros(10)])
 
-
-def test_models_dispatch_table() -> None:
-    assert MODELS["linear"] is fit_linear

@@ -247,3 +247,14 @@ def test_one_measure_blank_names_and_missing_values():
     empty = {**tables, "targets": targets.iloc[:0], "drivers": tables["drivers"].iloc[:0],
              "coefficients": tables["coefficients"].iloc[:0]}
     assert "Leverage against industry peers" in render_report(empty, manifest)
+
+
+def test_fabricated_outputs_use_the_real_codes(outputs):
+    from levgap.codes import ANALYSIS_FLAGS, ANALYSIS_REASONS, FLAGS, REASONS
+
+    tables, manifest = outputs
+    assert set(tables["exclusions"]["reason"]) <= {*REASONS, *ANALYSIS_REASONS,
+                                                   "no_market_equity"}
+    flags = {f for cell in tables["targets"]["flags"] for f in cell.split(";") if f}
+    assert flags and flags <= {*FLAGS, *ANALYSIS_FLAGS}
+    assert set(manifest["counts"]["by_reason"]) <= set(REASONS)

@@ -42,8 +42,8 @@ from levgap.outputs.files import (
     is_own_name,
     is_temp_name,
     refuse_inputs,
-    replacing,
     same_file,
+    temp_path,
     write_hashed,
 )
 from levgap.outputs.marker import (
@@ -179,18 +179,32 @@ class RunWriter:
         pathlib.Path
             Where the file will be once the run is committed.
         """
-        stage = self._prepare(name)
-        digest = None
-        with replacing(stage / name) as tmp:
-            digest = write_hashed(tmp, write)
-        return self._staged_as(name, digest)
+        return self._stage_file(name, lambda tmp: write_hashed(tmp, write))
 
     def add_path(self, name: str, write: Callable[[Path], None]) -> Path:
         """Stage one file of the run written by ``write(path)`` (for writers that need a path)."""
+        return self._stage_file(name, lambda tmp: write(tmp))
+
+    def _stage_file(self, name: str, write: Callable[[Path], Any]) -> Path:
+        # written under a temporary name, recorded in the stage's marker, then renamed: a kill
+        # at any point leaves only temporary files and recorded files, both removable
         stage = self._prepare(name)
-        with replacing(stage / name) as tmp:
-            write(tmp)
-        return self._staged_as(name, None)
+        tmp = temp_path(stage, Path(name).suffix)
+        try:
+            digest = write(tmp)
+            self._staged[name] = record_file(tmp, "output", digest)
+            self._save_stage_marker()
+            os.replace(tmp, stage / name)
+        except OSError as exc:
+            self._staged.pop(name, None)
+            raise OutputError(
+                f"{self.out / name}: the file must be writable; got {exc.strerror or exc}. "
+                "Check the folder's permissions and free space."
+            ) from None
+        finally:
+            with contextlib.suppress(OSError):
+                tmp.unlink()
+        return self.out / name
 
     def _prepare(self, name: str) -> Path:
         if self._stage is None:
@@ -212,13 +226,6 @@ class RunWriter:
                 "since); levgap never replaces such a file, even with --force. Move it or "
                 "choose another --out."
             )
-
-    def _staged_as(self, name: str, digest: Any) -> Path:
-        assert self._stage is not None
-        self._staged[name] = _io(lambda: record_file(self._stage / name, "output", digest),
-                                 self._stage / name, "read back")
-        self._save_stage_marker()
-        return self.out / name
 
     def _save_stage_marker(self) -> None:
         assert self._stage is not None

@@ -89,7 +89,7 @@ def verify_run(out_dir: str | Path) -> RunFolder:
             f"--out {out}` again."
         )
     path = out / RUN_FILE
-    if not path.is_file():
+    if not path.exists():
         raise OutputError(
             f"{out}: the folder must hold levgap outputs (run.json); got none. Run "
             f"`levgap analyze PANEL --out {out}` first."
