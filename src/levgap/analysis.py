@@ -208,15 +208,21 @@ def write_analysis(
     levgap.outputs.Committed
         The files written and the previous run's files removed.
     """
+    from levgap.errors import OutputError
     from levgap.outputs import RunWriter, json_bytes, new_run_id
-    from levgap.report.tables import stage_tables
+    from levgap.report.tables import FORMATS, stage_tables
 
+    if fmt not in FORMATS:
+        raise OutputError(f"format must be one of {sorted(FORMATS)}; got {fmt!r}.")
     run_id = new_run_id()
     manifest = {**analysis.manifest, "run_id": run_id}
     sources = list(inputs or [i["path"] for i in analysis.manifest.get("inputs", [])
                               if isinstance(i, Mapping) and i.get("path")])
     tables = analysis.tables()
     with RunWriter(out_dir, run_id=run_id, inputs=sources, force=force) as run:
+        run.expect([*(f"{name}{FORMATS[fmt]}" for name in tables),
+                    *(["model.json"] if analysis.saved_model else []),
+                    *(["report.html"] if report else []), *(["workbook.xlsx"] if xlsx else [])])
         stage_tables(run, tables, fmt=fmt)
         if analysis.saved_model:
             run.add("model.json", json_bytes({**analysis.saved_model, "run_id": run_id}))

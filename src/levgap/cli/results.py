@@ -192,7 +192,7 @@ def table(
 
 
 def _refuse_run_files(out_dir: Path, target: Path) -> list[Path]:
-    """Refuse an output path that is a file of the run or one of its inputs; return them all.
+    """Refuse an output path that is a file of the run or one of its inputs; return the inputs.
 
     Inputs are recognised by path (as recorded in run.json) and, for a file already at the
     target, by content (its SHA-256 equals a recorded input's), so a panel moved since the run
@@ -202,8 +202,7 @@ def _refuse_run_files(out_dir: Path, target: Path) -> list[Path]:
     from levgap.outputs import check_replaceable, file_digest, verify_run
 
     run = verify_run(out_dir)
-    protected = run.protected()
-    check_replaceable(target, protected)
+    inputs = [p for p, _ in run.inputs()]
     if target.is_file():
         sha = file_digest(target)[1]
         for path, digest in run.inputs():
@@ -212,4 +211,5 @@ def _refuse_run_files(out_dir: Path, target: Path) -> list[Path]:
                     f"{target}: an output must never replace an input file; got a file with "
                     f"the content of the run's input {path}. Choose another output path."
                 )
-    return protected
+    check_replaceable(target, inputs)  # the run's own files: its marker says whose they are
+    return inputs

@@ -171,6 +171,11 @@ class RunWriter:
         self._stage = stage
         self._save_stage_marker()
 
+    def expect(self, names: Iterable[str]) -> None:
+        """Refuse now, before any work, a file of the run that could not be swapped in."""
+        for name in names:
+            self._check_target(name)
+
     def add(self, name: str, write: bytes | Callable[[BinaryIO], None]) -> Path:
         """Stage one file of the run: ``write`` is its bytes or writes them to a handle.
 

@@ -11,7 +11,7 @@ from typing import Any
 
 from levgap.errors import OutputError
 from levgap.outputs.files import is_own_name, read_bounded
-from levgap.outputs.marker import MARKER, Marker, read_marker
+from levgap.outputs.marker import Marker, read_marker
 from levgap.outputs.runs import _RUN_ID, RUN_FILE, _names
 
 _MAX_RUN_JSON = 64 << 20
@@ -51,10 +51,6 @@ class RunFolder:
                 sha = i.get("sha256")
                 out.append((Path(i["path"]), sha if isinstance(sha, str) else None))
         return out
-
-    def protected(self) -> list[Path]:
-        """Files a command reading this run must never replace: the run's files and inputs."""
-        return [*self.files.values(), self.folder / MARKER, *(p for p, _ in self.inputs())]
 
 
 def verify_run(out_dir: str | Path) -> RunFolder:
