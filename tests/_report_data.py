@@ -136,7 +136,8 @@ def make_outputs(
                    "by_reason": {"assets_not_positive": 1, "duplicate_row": 1,
                                  "missing_value": 1},
                    "measure_omissions": {"market:no_market_equity": 1}},
-        "borrowed_industries": [{"industry": "1311", "parent": "13", "firms": 3}],
+        "pooled_industries": [{"industry": "1311", "parent": "industries with code prefix 13",
+                               "firms": 3, "members": ["1312"], "weight": {"book": 0.4}}],
         "warnings": ["3 firms have <3 years of history; earnings_volatility imputed"],
     }
     tables = {"targets": targets, "drivers": drivers, "coefficients": pd.DataFrame(coef_rows),

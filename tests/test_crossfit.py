@@ -36,12 +36,12 @@ def test_prediction_never_uses_the_firms_own_rows() -> None:
     X = rng.normal(size=(len(firm), 2))
     y = X @ np.array([0.5, -0.5]) + rng.normal(size=len(firm))
     folds = assign_folds(firm, ind, 5, 0)
-    cf = crossfit_targets(fit_linear, y, X, effects=[ind, yr], borrow=[None, None],
-                          n_levels=[6, t], folds=folds, names=["a", "b"])
+    cf = crossfit_targets(fit_linear, y, X, effects=[ind, yr], n_levels=[6, t], folds=folds,
+                          names=["a", "b"])
     # Changing one firm's outcomes must leave its own targets unchanged.
     y2 = y.copy()
     y2[firm == 17] += 100.0
-    cf2 = crossfit_targets(fit_linear, y2, X, effects=[ind, yr], borrow=[None, None],
-                           n_levels=[6, t], folds=folds, names=["a", "b"])
+    cf2 = crossfit_targets(fit_linear, y2, X, effects=[ind, yr], n_levels=[6, t], folds=folds,
+                           names=["a", "b"])
     np.testing.assert_allclose(cf.target[firm == 17], cf2.target[firm == 17], atol=1e-10)
     np.testing.assert_allclose(cf.target, cf.offset + np.einsum("ij,ij->i", X, cf.beta))

@@ -7,13 +7,9 @@ import pandas as pd
 import pytest
 
 from levgap.config import ModelSpec
-from levgap.features import (
-    POOLED,
-    build_features,
-    effect_groups,
-    trailing_volatility,
-    winsorize_by,
-)
+from levgap.features import build_features, trailing_volatility
+from levgap.groups import WHOLE_SAMPLE, industry_levels
+from levgap.transforms import clip_to_limits, year_limits
 
 
 def _panel() -> pd.DataFrame:
@@ -75,23 +71,47 @@ def test_winsorize_within_year() -> None:
     rng = np.random.default_rng(0)
     v = rng.normal(size=1000)
     g = np.repeat([1, 2], 500)
-    out = winsorize_by(v, g, 0.01, 0.99)
+    years = np.array([1, 2])
+    out, clipped = clip_to_limits(v, g, years, year_limits(v, g, years, 0.01, 0.99))
     for k in (1, 2):
         sel = g == k
+        # an independent computation: numpy's quantiles of that year alone
         lo, hi = np.quantile(v[sel], [0.01, 0.99])
         assert out[sel].min() == pytest.approx(lo) and out[sel].max() == pytest.approx(hi)
+        assert clipped[sel].sum() == ((v[sel] < lo) | (v[sel] > hi)).sum()
 
 
-def test_effect_groups_borrow_from_prefix_then_whole_sample() -> None:
+def test_winsorising_is_by_year_in_the_features() -> None:
+    # A year with a wide spread must not set the other year's limits (pooled winsorising would).
+    rows = []
+    rng = np.random.default_rng(3)
+    for year, spread in ((2020, 1.0), (2021, 10.0)):
+        for i in range(200):
+            rows.append({"firm_id": f"f{i}", "fiscal_year": year, "industry": "1000",
+                         "total_assets": 100.0, "total_debt": 10.0, "ppe_net": 30.0,
+                         "ebitda": float(np.clip(rng.normal(0, spread), -99, 99)),
+                         "book_equity": 50.0, "source_row": len(rows) + 1, "flags": ""})
+    p = pd.DataFrame(rows)
+    f = build_features(p, ModelSpec(drivers=("profitability",))).frame
+    for year in (2020, 2021):
+        raw = p.loc[p["fiscal_year"] == year, "ebitda"] / 100.0
+        got = f.loc[f["fiscal_year"] == year, "profitability"]
+        lo, hi = np.quantile(raw, [0.01, 0.99])
+        assert got.min() == pytest.approx(lo) and got.max() == pytest.approx(hi)
+    assert f["flags"].str.contains("winsorised").sum() == 8
+
+
+def test_industry_levels_pool_toward_prefix_then_whole_sample() -> None:
     peer = pd.Series(["3711"] * 6 + ["3716"] * 2 + ["9990"] * 2 + ["2834"] * 5)
     firm = pd.Series([f"f{i}" for i in range(len(peer))])
-    labels, borrowed = effect_groups(peer, firm, 5)
-    assert set(labels[:6]) == {"3711"}
-    assert set(labels[6:8]) == {"371*"}
-    assert set(labels[8:10]) == {POOLED}
-    b = borrowed.set_index("industry")
-    assert b.loc["3716", "members"] == "3711"
-    assert b.loc["9990", "members"] == "2834;3711"
+    lv = industry_levels(peer, firm, 5)
+    labels = list(lv.labels)
+    assert labels == ["2834", "3711", "3716", "9990"]
+    assert list(lv.small) == [False, False, True, True]
+    p3716, p9990 = lv.parent[2], lv.parent[3]
+    assert lv.parent_labels[p3716] == "371" and lv.parent_labels[p9990] == WHOLE_SAMPLE
+    assert list(lv.labels[lv.members[p3716]]) == ["3711"]
+    assert list(lv.labels[lv.members[p9990]]) == ["2834", "3711"]
 
 
 def test_peer_digits_group_codes_and_leases() -> None:

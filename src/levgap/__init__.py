@@ -28,6 +28,8 @@ _EXPORTS = {
     "import_sec": "levgap.ingest.sec",
     "analyze": "levgap.pipeline",
     "Analysis": "levgap.analysis",
+    "load_model": "levgap.models.saved",
+    "SavedModel": "levgap.models.saved",
     "Panel": "levgap.panel",
     "RunConfig": "levgap.config",
     "ModelSpec": "levgap.config",

@@ -19,7 +19,7 @@ ProgressFn = Callable[[str, int, int], None]
 TARGET_COLUMNS = (
     "firm_id", "firm_name", "fiscal_year", "industry", "measure", "actual", "target", "gap",
     "gap_z", "band_low", "band_high", "status", "peer_median", "peer_count", "peer_target",
-    "debt_to_target", "flags",
+    "debt_to_target", "target_full", "fold", "flags",
 )
 DRIVER_COLUMNS = (
     "firm_id", "fiscal_year", "measure", "driver", "firm_value", "peer_value", "contribution"
@@ -28,25 +28,30 @@ COEF_COLUMNS = (
     "measure", "model", "term", "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high"
 )
 FIT_COLUMNS = (
-    "measure", "model", "n_obs", "n_firms", "n_industries", "r2", "r2_oos", "rmse_oos"
+    "measure", "model", "n_obs", "n_firms", "n_industries", "r2", "r2_oos", "rmse_oos",
+    "coverage", "coverage_industry_min", "coverage_industry_max", "coverage_industries",
+    "coverage_out_of_time", "out_of_time_year",
 )
+FOLD_COEF_COLUMNS = ("measure", "model", "fold", "term", "estimate")
 
 TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "targets": TARGET_COLUMNS,
     "drivers": DRIVER_COLUMNS,
     "coefficients": COEF_COLUMNS,
     "model_fit": FIT_COLUMNS,
+    "fold_coefficients": FOLD_COEF_COLUMNS,
     "exclusions": EXCLUSION_COLUMNS,
 }
 """Columns each output table has at least; readers refuse a table that lacks one."""
 
 COLUMN_KINDS: dict[str, str] = {
     **dict.fromkeys(("fiscal_year", "peer_count", "n_obs", "n_firms", "n_industries",
-                     "source_row"), "integer"),
+                     "source_row", "fold", "coverage_industries", "out_of_time_year"), "integer"),
     **dict.fromkeys(("actual", "target", "gap", "gap_z", "band_low", "band_high", "peer_median",
-                     "peer_target", "debt_to_target", "firm_value", "peer_value", "contribution",
-                     "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high", "r2",
-                     "r2_oos", "rmse_oos"), "number"),
+                     "peer_target", "debt_to_target", "target_full", "firm_value", "peer_value",
+                     "contribution", "estimate", "std_error", "t_stat", "p_value", "ci_low",
+                     "ci_high", "r2", "r2_oos", "rmse_oos", "coverage", "coverage_industry_min",
+                     "coverage_industry_max", "coverage_out_of_time"), "number"),
 }
 """What output columns hold when they are not text: ``integer`` (whole numbers, blanks allowed)
 or ``number``. Columns not named here are read as text."""
@@ -110,6 +115,9 @@ class Analysis:
         One row per measure, model and driver (``COEF_COLUMNS``), from the full-sample fit.
     model_fit : pandas.DataFrame
         One row per measure and model (``FIT_COLUMNS``).
+    fold_coefficients : pandas.DataFrame
+        Constant and slopes of each cross-fit fold's fit (``FOLD_COEF_COLUMNS``): a row's
+        target and contributions come from the fit of its ``fold``.
     exclusions : pandas.DataFrame
         The ledger of rows left out of every measure (``measure`` empty) or of one measure.
     manifest : dict
@@ -124,6 +132,7 @@ class Analysis:
     coefficients: pd.DataFrame
     model_fit: pd.DataFrame
     exclusions: pd.DataFrame
+    fold_coefficients: pd.DataFrame = field(default_factory=lambda: _empty_frame())
     manifest: dict[str, Any] = field(default_factory=dict)
     saved_model: dict[str, Any] = field(default_factory=dict)
 
@@ -134,6 +143,7 @@ class Analysis:
             "drivers": self.drivers,
             "coefficients": self.coefficients,
             "model_fit": self.model_fit,
+            "fold_coefficients": self.fold_coefficients,
             "exclusions": self.exclusions,
         }
 
@@ -208,8 +218,10 @@ def write_analysis(
     levgap.outputs.Committed
         The files written and the previous run's files removed.
     """
+    import json
+
     from levgap.errors import OutputError
-    from levgap.outputs import RunWriter, json_bytes, new_run_id
+    from levgap.outputs import RunWriter, new_run_id
     from levgap.report.tables import FORMATS, stage_tables
 
     if fmt not in FORMATS:
@@ -225,7 +237,9 @@ def write_analysis(
                     *(["report.html"] if report else []), *(["workbook.xlsx"] if xlsx else [])])
         stage_tables(run, tables, fmt=fmt)
         if analysis.saved_model:
-            run.add("model.json", json_bytes({**analysis.saved_model, "run_id": run_id}))
+            body = json.dumps({**analysis.saved_model, "run_id": run_id}, allow_nan=False,
+                              separators=(",", ":"))
+            run.add("model.json", body.encode("utf-8"))
         if report:
             from levgap.report.html import render_report
 
@@ -236,3 +250,9 @@ def write_analysis(
 
             run.add_path("workbook.xlsx", lambda p: build_workbook(tables, manifest, p))
         return run.commit(manifest)
+
+
+def _empty_frame() -> pd.DataFrame:
+    import pandas as pd
+
+    return pd.DataFrame()

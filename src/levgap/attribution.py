@@ -1,10 +1,10 @@
 """Peer baselines and driver contributions (pure functions).
 
 For each firm-year and measure the baseline is the median driver profile of the firm's
-industry peers in the same fiscal year, the firm itself excluded. For the linear model
-``target = offset + x'beta``, the contribution of driver ``j`` is
-``beta_j * (x_j - x_peer_j)``, and the contributions sum exactly to
-``target - peer_target`` with ``peer_target = offset + x_peer'beta``. With the peers' median
+industry peers in the same fiscal year, the firm itself excluded. Each driver's contribution
+is its exact Shapley value in ``target - peer_target`` (``levgap.models.shapley``), with
+``peer_target`` the model's target at the peer profile and the firm's own effects; for the
+linear model it is ``beta_j * (x_j - x_peer_j)``. With the peers' median
 actual ratio this splits ``actual - peer_median`` into the peers' own offset
 (``peer_target - peer_median``), each driver's contribution, and the unexplained ``gap``.
 """
@@ -16,8 +16,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from levgap.errors import ModelError
+from levgap.models.shapley import shapley
 
-IDENTITY_TOL = 1e-9
+IDENTITY_TOL = 1e-12
 
 
 def loo_median(values: np.ndarray, groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -201,11 +202,14 @@ class Attribution:
     peer_target : numpy.ndarray, shape (n,)
         Model target at the peer profile.
     contributions : numpy.ndarray, shape (n, k)
-        ``beta_j * (x_j - x_peer_j)``; each row sums to ``target - peer_target``.
+        Exact additive contributions; each row sums to ``target - peer_target``.
+    method : str
+        ``"shapley"`` or ``"aumann-shapley"`` (``levgap.models.shapley``).
     """
 
     peer_target: np.ndarray
     contributions: np.ndarray
+    method: str = "shapley"
 
 
 def attribute_gap(
@@ -214,8 +218,9 @@ def attribute_gap(
     beta: np.ndarray,
     offset: np.ndarray,
     target: np.ndarray,
+    link: str = "identity",
 ) -> Attribution:
-    """Exact contributions of a linear model, checked against the accounting identity.
+    """Exact contributions, checked against the accounting identity.
 
     Parameters
     ----------
@@ -224,22 +229,28 @@ def attribute_gap(
     beta : numpy.ndarray, shape (n, k)
         Slopes of the fit that produced each row's target (the row's cross-fit fold).
     offset : numpy.ndarray, shape (n,)
-        Constant plus fixed effects of each row in that fit.
+        Constant plus fixed effects of each row in that fit (link scale).
     target : numpy.ndarray, shape (n,)
-        The row's target, ``offset + X @ beta``.
+        The row's target, ``inverse_link(offset + X @ beta)``.
+    link : {"identity", "logit"}, default="identity"
+        The model's link (``levgap.models.result.INVERSE_LINKS``); with the identity the
+        contributions are ``beta_j * (x_j - x_peer_j)``.
 
     Raises
     ------
     ModelError
-        If the contributions do not sum to ``target - peer_target`` within 1e-9.
+        If the contributions do not sum to ``target - peer_target`` within ``IDENTITY_TOL``
+        (relative to the size of the target).
     """
-    contributions = beta * (X - X_peer)
-    peer_target = offset + np.einsum("ij,ij->i", X_peer, beta)
+    from levgap.models.result import INVERSE_LINKS
+
+    contributions, peer_target, method = shapley(offset, X * beta, X_peer * beta,
+                                                 INVERSE_LINKS[link], linear=link == "identity")
     resid = target - peer_target - contributions.sum(axis=1)
-    bad = np.abs(resid) > IDENTITY_TOL
+    bad = np.abs(resid) > IDENTITY_TOL * np.maximum(1.0, np.abs(target))
     if bad.any():
         raise ModelError(
             f"driver contributions must sum to target - peer_target; got a difference of "
             f"{np.abs(resid).max():.3g} on {int(bad.sum())} rows. Please report this."
         )
-    return Attribution(peer_target=peer_target, contributions=contributions)
+    return Attribution(peer_target=peer_target, contributions=contributions, method=method)

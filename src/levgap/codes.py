@@ -58,14 +58,36 @@ ANALYSIS_FLAGS: dict[str, str] = {
     "volatility_imputed": "fewer than three fiscal years of profitability in the trailing "
     "five-year window: earnings_volatility is the industry-year median",
     "mtb_imputed": "no market equity: market_to_book is the industry-year median",
-    "industry_effect_borrowed": "the industry has fewer than [model] min_industry_firms firms "
-    "and takes its parent group's average effect (run.json names the group)",
+    "industry_effect_pooled": "the industry has fewer than [model] min_industry_firms firms: "
+    "its effect is its parent group's plus a share of its own level, shrunk by empirical "
+    "Bayes (run.json names the group and the share kept)",
+    "industry_effect_from_parent": "in the cross-fit, the fit that left this firm out had no "
+    "row of its industry: the target uses the parent group's effect",
+    "winsorised": "at least one driver was clipped to its fiscal year's winsorising limits",
+    "outside_fitted_range": "scored by a saved model: at least one driver lay outside the "
+    "fitted range of its year and was clipped to it (the raw value is kept beside it)",
+    "debt_above_assets_with_leases": "leases_as_debt is on and debt plus leases exceed "
+    "total_assets: the row is left out of book leverage",
+    "peers_other_years": "no other firm in the fiscal year: the peer profile and median come "
+    "from every other firm-year of the panel",
+    "no_peers": "the only firm-year of the panel with this measure: no peer profile, no "
+    "contributions",
     "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
 }
 """Flags the analysis adds to kept rows (beside those of validation)."""
 
 ANALYSIS_REASONS: dict[str, str] = {
     "no_prior_year": "lag_drivers is on and the firm has no row for the previous fiscal year",
+}
+"""Reason codes of rows the analysis leaves out of every measure."""
+
+MEASURE_REASONS: dict[str, str] = {
+    "no_market_equity": "no usable market_equity (nor shares and price): left out of market "
+    "leverage only",
+    "no_market_value": "total_debt and market_equity are both zero: market leverage is "
+    "undefined; left out of market leverage only",
+    "debt_above_assets_with_leases": "leases_as_debt is on and debt plus leases exceed "
+    "total_assets: left out of book leverage only",
 }
 """Reason codes of rows the analysis leaves out of every measure."""
 

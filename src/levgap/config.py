@@ -28,6 +28,9 @@ A run configuration has four tables; every key is optional::
     folds = 5
     seed = 0
     coverage = 0.8
+    model = "fractional"   # fractional | linear
+    pooling = "shrink"     # shrink | parent
+    band_prior_rows = 10
 """
 
 from __future__ import annotations
@@ -46,6 +49,7 @@ from levgap.errors import ConfigError
 from levgap.schema import BY_NAME, DRIVERS, MEASURES, OPTIONAL_DRIVERS
 
 CLUSTERS: tuple[str, ...] = ("firm", "firm-year", "industry")
+POOLINGS: tuple[str, ...] = ("shrink", "parent")
 _MAX_TOML = 1 << 20
 
 
@@ -263,10 +267,19 @@ class ModelSpec:
         Seed of the fold assignment.
     coverage : float, default=0.8
         Coverage of the band around each target.
-    model : str, default="linear"
-        Key of the fit function in ``levgap.models.MODELS`` (checked when the spec is built).
+    model : str, default="fractional"
+        Key of the fit function in ``levgap.models.MODELS``: ``fractional`` (Papke and
+        Wooldridge's fractional logit, targets in [0, 1]) or ``linear`` (replication);
+        checked when the spec is built.
     year : int or None, default=None
         Report only this fiscal year (the model is still fitted on every year).
+    pooling : {"shrink", "parent"}, default="shrink"
+        How an industry with fewer than ``min_industry_firms`` firms gets its effect: its
+        parent group's plus its own deviation shrunk by empirical Bayes, or its parent's
+        outright (levgap 0.1; for comparison).
+    band_prior_rows : float, default=10.0
+        Firm-years at which an industry's own residual spread gets half the weight in its
+        band scale (the rest goes to the pooled scale).
     lag_drivers : bool, default=False
         Explain each year's leverage with the firm's drivers of the previous fiscal year, as
         replication studies often do; a row without the firm's previous year is left out with
@@ -285,9 +298,11 @@ class ModelSpec:
     folds: int = 5
     seed: int = 0
     coverage: float = 0.8
-    model: str = "linear"
+    model: str = "fractional"
     year: int | None = None
     lag_drivers: bool = False
+    pooling: str = "shrink"
+    band_prior_rows: float = 10.0
 
     def __post_init__(self) -> None:
         check_fields(self)
@@ -321,6 +336,12 @@ class ModelSpec:
             raise ConfigError(f"[model] folds must be at least 2; got {self.folds}.")
         if self.seed < 0:
             raise ConfigError(f"[model] seed must be 0 or more; got {self.seed}.")
+        if self.pooling not in POOLINGS:
+            raise ConfigError(
+                f"[model] pooling must be one of {list(POOLINGS)}; got {self.pooling!r}.")
+        if not (0.0 <= self.band_prior_rows < float("inf")):
+            raise ConfigError(
+                f"[model] band_prior_rows must be a number >= 0; got {self.band_prior_rows}.")
         if not (0.0 < self.coverage < 1.0):
             raise ConfigError(
                 f"[model] coverage must lie strictly between 0 and 1; got {self.coverage}.")

@@ -30,13 +30,15 @@ import pandas as pd
 from levgap.codes import ANALYSIS_FLAGS, ANALYSIS_REASONS
 from levgap.config import ModelSpec
 from levgap.errors import ModelError
+from levgap.groups import WHOLE_SAMPLE, IndustryLevels, industry_levels
+from levgap.transforms import IMPUTED, DriverTransforms, apply, learn
 
 FLAGS = ANALYSIS_FLAGS
 REASONS = ANALYSIS_REASONS
 
 VOL_WINDOW = 5
 VOL_MIN_OBS = 3
-POOLED = "(all industries)"
+POOLED = WHOLE_SAMPLE
 
 
 @dataclass(frozen=True, slots=True)
@@ -46,26 +48,29 @@ class Features:
     Parameters
     ----------
     frame : pandas.DataFrame
-        ``firm_id, firm_name, fiscal_year, industry, peer_group, effect_group, source_row,
-        flags, total_assets, total_debt, market_equity, book, market`` and one column per
-        driver, in the row order of the panel.
+        ``firm_id, firm_name, fiscal_year, industry, peer_group, source_row, flags,
+        total_assets, total_debt, market_equity, book, market`` and one column per driver, in
+        the row order of the panel.
     drivers : tuple of str
         Driver columns, in model order.
-    borrowed : pandas.DataFrame
-        One row per peer group with fewer than ``min_industry_firms`` firms: ``industry``,
-        ``firms``, ``borrowed_from`` (a code prefix or the whole sample), ``members``
-        (the peer groups whose effects it averages).
+    levels : IndustryLevels
+        Levels of the industry effect, small industries and their parents.
+    transforms : DriverTransforms
+        Imputation medians and winsorising limits learned from the panel (or given).
     notes : tuple of str
         Drivers dropped because no row had the data they need, and why.
     """
 
     frame: pd.DataFrame
     drivers: tuple[str, ...]
-    borrowed: pd.DataFrame
+    levels: IndustryLevels
+    transforms: DriverTransforms
     notes: tuple[str, ...] = ()
 
 
-def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
+def build_features(
+    data: pd.DataFrame, spec: ModelSpec, transforms: DriverTransforms | None = None
+) -> Features:
     """Compute measures and drivers for a validated panel.
 
     Parameters
@@ -74,12 +79,40 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
         ``Panel.data``: schema-v1 columns, ``source_row`` and ``flags``.
     spec : ModelSpec
         Drivers, winsorising limits, lease treatment, peer grouping and minimum firms.
+    transforms : DriverTransforms, optional
+        Imputation medians and winsorising limits to apply (a saved model's); learned from
+        ``data`` when absent. Given transforms flag clipped rows ``outside_fitted_range``
+        instead of ``winsorised``.
 
     Returns
     -------
     Features
     """
     n = len(data)
+    f = _identity_columns(data, spec, n)
+    _measures(f, data, spec, n)
+    raw, drivers, notes = raw_drivers(data, f, spec, n, keep_all=transforms is not None)
+    group, years = f["peer_group"].to_numpy(dtype=object), f["fiscal_year"].to_numpy()
+    learned = transforms is None
+    if transforms is None:
+        transforms = learn(raw, drivers, group, years, spec.winsorize)
+    values, imputed, clipped = apply(raw, drivers, group, years, transforms)
+    for name, mask in imputed.items():
+        f["flags"] = add_flag(f["flags"], mask, IMPUTED[name])
+    for name in drivers:
+        f[name] = values[name]
+        f[name + "_raw"] = raw[name]
+    f["flags"] = add_flag(f["flags"], clipped, "winsorised" if learned
+                          else "outside_fitted_range")
+    if spec.lag_drivers:
+        lag_rows(f, drivers)
+    levels = industry_levels(f["peer_group"], f["firm_id"], spec.min_industry_firms)
+    f["flags"] = add_flag(f["flags"], levels.small[levels.codes], "industry_effect_pooled")
+    return Features(frame=f, drivers=tuple(drivers), levels=levels, transforms=transforms,
+                    notes=tuple(notes))
+
+
+def _identity_columns(data: pd.DataFrame, spec: ModelSpec, n: int) -> pd.DataFrame:
     f = pd.DataFrame(
         {
             "firm_id": data["firm_id"].astype(str).array,
@@ -92,6 +125,10 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
         }
     )
     f["peer_group"] = peer_group(f["industry"], spec.peer_digits)
+    return f
+
+
+def _measures(f: pd.DataFrame, data: pd.DataFrame, spec: ModelSpec, n: int) -> None:
     assets = data["total_assets"].to_numpy(dtype=float)
     debt = data["total_debt"].to_numpy(dtype=float)
     if spec.leases_as_debt:
@@ -99,6 +136,7 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
         missing = np.isnan(leases)
         debt = debt + np.where(missing, 0.0, leases)
         f["flags"] = add_flag(f["flags"], missing, "no_lease_data")
+        f["flags"] = add_flag(f["flags"], debt > assets, "debt_above_assets_with_leases")
     equity_mkt = _num(data, "market_equity", n)
     f["total_assets"] = assets
     f["total_debt"] = debt
@@ -108,7 +146,16 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
     with np.errstate(invalid="ignore", divide="ignore"):
         f["market"] = np.where(denom > 0, debt / denom, np.nan)
 
-    ind_year = pd.MultiIndex.from_arrays([f["peer_group"], f["fiscal_year"]])
+
+def raw_drivers(
+    data: pd.DataFrame, f: pd.DataFrame, spec: ModelSpec, n: int, *, keep_all: bool = False
+) -> tuple[dict[str, np.ndarray], list[str], list[str]]:
+    """Drivers from the statements, before imputation and winsorising.
+
+    Returns the raw values by name, the drivers kept (``rd_intensity`` adds ``rd_missing``)
+    and notes on drivers left out because no row has their data (``keep_all``: none left out,
+    for a saved model that must keep its drivers)."""
+    assets = f["total_assets"].to_numpy()
     profitability = data["ebitda"].to_numpy(dtype=float) / assets
     raw: dict[str, np.ndarray] = {
         "tangibility": data["ppe_net"].to_numpy(dtype=float) / assets,
@@ -116,16 +163,15 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
         "size": np.log(assets),
     }
     if "earnings_volatility" in spec.drivers:
+        given = _num(data, "earnings_volatility", n) if "earnings_volatility" in data else None
         vol = trailing_volatility(pd.factorize(f["firm_id"])[0], f["fiscal_year"].to_numpy(),
                                   profitability)
-        vol, imputed = impute_group_median(vol, ind_year, f["fiscal_year"].to_numpy())
-        raw["earnings_volatility"] = vol
-        f["flags"] = add_flag(f["flags"], imputed, "volatility_imputed")
+        raw["earnings_volatility"] = vol if given is None else np.where(np.isnan(given), vol,
+                                                                        given)
     if "market_to_book" in spec.drivers:
-        mtb = (assets - data["book_equity"].to_numpy(dtype=float) + equity_mkt) / assets
-        mtb, imputed = impute_group_median(mtb, ind_year, f["fiscal_year"].to_numpy())
-        raw["market_to_book"] = mtb
-        f["flags"] = add_flag(f["flags"], imputed, "mtb_imputed")
+        equity = f["market_equity"].to_numpy()
+        raw["market_to_book"] = (assets - data["book_equity"].to_numpy(dtype=float)
+                                 + equity) / assets
     drivers = list(spec.drivers)
     if "rd_intensity" in spec.drivers:
         rd = _num(data, "rd_expense", n)
@@ -133,34 +179,18 @@ def build_features(data: pd.DataFrame, spec: ModelSpec) -> Features:
         raw["rd_intensity"] = np.where(missing, 0.0, rd) / assets
         raw["rd_missing"] = missing.astype(float)
         drivers.append("rd_missing")
-
     notes = []
     why = {
         "earnings_volatility": "no firm has the three fiscal years of history it needs",
         "market_to_book": "no row has market_equity (or shares_outstanding and share_price)",
     }
     for name in list(drivers):
-        if np.isnan(raw[name]).all():
+        if not keep_all and np.isnan(raw[name]).all():
             drivers.remove(name)
             notes.append(f"driver {name} left out of the model: {why.get(name, 'no data')}.")
     if not drivers:
         raise ModelError("the model must keep at least one driver; got none with data.")
-
-    lo, hi = spec.winsorize
-    years = f["fiscal_year"].to_numpy()
-    for name in drivers:
-        values = raw[name]
-        if name != "rd_missing" and (lo > 0.0 or hi < 1.0):
-            values = winsorize_by(values, years, lo, hi)
-        f[name] = values
-
-    if spec.lag_drivers:
-        lag_rows(f, drivers)
-    groups, borrowed = effect_groups(f["peer_group"], f["firm_id"], spec.min_industry_firms)
-    f["effect_group"] = groups
-    f["flags"] = add_flag(f["flags"], groups != f["peer_group"].to_numpy(),
-                          "industry_effect_borrowed")
-    return Features(frame=f, drivers=tuple(drivers), borrowed=borrowed, notes=tuple(notes))
+    return raw, drivers, notes
 
 
 def lag_rows(f: pd.DataFrame, drivers: list[str]) -> None:
@@ -219,79 +249,6 @@ def trailing_volatility(firm: np.ndarray, year: np.ndarray, values: np.ndarray) 
     out = np.empty(n)
     out[order] = sd
     return out
-
-
-def impute_group_median(
-    values: np.ndarray, groups: pd.MultiIndex, year: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """Fill NaN with the median of the row's group, else of its year, else of all rows."""
-    missing = np.isnan(values)
-    if not missing.any():
-        return values, missing
-    s = pd.Series(values)
-    by_group = s.groupby([groups.get_level_values(0), groups.get_level_values(1)]).transform(
-        "median"
-    )
-    by_year = s.groupby(year).transform("median")
-    filled = by_group.fillna(by_year).fillna(s.median()).to_numpy()
-    return np.where(missing, filled, values), missing
-
-
-def winsorize_by(values: np.ndarray, groups: np.ndarray, lo: float, hi: float) -> np.ndarray:
-    """Clip ``values`` to the ``lo`` and ``hi`` quantiles (linear interpolation) of its group."""
-    s = pd.Series(values)
-    g = s.groupby(groups)
-    low = g.transform("quantile", lo)
-    high = g.transform("quantile", hi)
-    return np.clip(values, low.to_numpy(), high.to_numpy())
-
-
-def effect_groups(
-    peer: pd.Series, firm: pd.Series, min_firms: int
-) -> tuple[np.ndarray, pd.DataFrame]:
-    """Assign each row the group that carries its industry effect.
-
-    A peer group with at least ``min_firms`` distinct firms carries its own effect. A smaller
-    one borrows: its rows take the average effect of the large groups that share the longest
-    leading part of its (numeric) code, else of the whole sample. The borrowed rows are marked
-    in the returned labels as ``"<parent>*"``.
-
-    Returns
-    -------
-    labels : numpy.ndarray of str
-        Own peer group for large groups; ``"<prefix>*"`` or ``"(all industries)"`` for small.
-    borrowed : pandas.DataFrame
-        ``industry, firms, borrowed_from, members`` for each small group.
-    """
-    firms = firm.groupby(peer.to_numpy()).nunique()
-    large = firms[firms >= min_firms].index.astype(str)
-    small = firms[firms < min_firms]
-    labels = peer.astype(str).to_numpy(dtype=object).copy()
-    rows = []
-    if len(large) == 0:
-        # Nothing to borrow from: every group keeps its own effect.
-        return labels.astype(str), pd.DataFrame(
-            columns=["industry", "firms", "borrowed_from", "members"]
-        )
-    for code, count in small.items():
-        code = str(code)
-        parent, members = POOLED, list(large)
-        if code.isdigit():
-            for cut in range(len(code) - 1, 0, -1):
-                prefix = code[:cut]
-                under = [g for g in large if g.startswith(prefix)]
-                if under:
-                    parent, members = prefix, under
-                    break
-        label = POOLED if parent == POOLED else parent + "*"
-        labels[labels == code] = label
-        rows.append(
-            {"industry": code, "firms": int(count), "borrowed_from": label,
-             "members": ";".join(sorted(members))}
-        )
-    return labels.astype(str), pd.DataFrame(
-        rows, columns=["industry", "firms", "borrowed_from", "members"]
-    )
 
 
 def _num(data: pd.DataFrame, col: str, n: int) -> np.ndarray:

@@ -9,6 +9,7 @@ from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from levgap.config import RunConfig
@@ -24,7 +25,13 @@ def build_manifest(
     frame: pd.DataFrame,
     exclusions: pd.DataFrame,
     warnings: list[str],
+    records: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
+    """The run record: inputs and digests, options, versions, counts, pooling, conventions.
+
+    ``records`` are the saved model's per-measure records (pooled industries' weights and
+    the contribution method are reported from them).
+    """
     whole = exclusions[exclusions["measure"] == ""]
     by_reason = whole["reason"].value_counts().sort_index()
     by_measure = exclusions[exclusions["measure"] != ""].groupby(
@@ -36,16 +43,18 @@ def build_manifest(
         except PackageNotFoundError:
             versions[pkg] = None
     versions["python"] = platform.python_version()
-    borrowed = [
-        {
-            "industry": r["industry"],
-            "firms": int(r["firms"]),
-            "borrowed_from": "whole sample" if r["borrowed_from"] == POOLED
-            else f"industries with code prefix {r['borrowed_from'][:-1]}",
-            "members": r["members"].split(";"),
-        }
-        for _, r in feats.borrowed.iterrows()
-    ]
+    records = records or {}
+    pooled: dict[str, dict[str, Any]] = {}
+    for measure, rec in records.items():
+        for item in rec.get("pooled", []):
+            entry = pooled.setdefault(item["industry"], {
+                "industry": item["industry"], "firms": item["firms"],
+                "parent": "whole sample" if item["parent"] == POOLED
+                else f"industries with code prefix {item['parent']}",
+                "members": _members(feats, item["industry"]), "weight": {},
+            })
+            entry["weight"][measure] = item["weight"]
+    methods = sorted({rec.get("contributions", "") for rec in records.values()})
     return {
         "levgap_version": versions["levgap"],
         "schema_version": SCHEMA_VERSION,
@@ -65,7 +74,14 @@ def build_manifest(
             "by_reason": {str(k): int(v) for k, v in by_reason.items()},
             "measure_omissions": {f"{m}:{r}": int(v) for (m, r), v in by_measure.items()},
         },
-        "borrowed_industries": borrowed,
+        "pooled_industries": list(pooled.values()),
+        "model": {
+            "name": config.model.model,
+            "pooling": "industries with fewer than min_industry_firms firms take their parent "
+            "group's effect plus their own deviation, shrunk by its empirical-Bayes weight "
+            "(weight: the share of the industry's own level kept)",
+            "contributions": methods,
+        },
         "standard_errors": {
             "cluster": config.model.cluster,
             "convention": "Stata-style small-sample factor G/(G-1)*(N-1)/(N-P) for each "
@@ -73,9 +89,18 @@ def build_manifest(
             "factor (the convention of Petersen's published figures)",
         },
         "band": {"coverage": config.model.coverage,
-                 "method": "empirical quantiles of the cross-fitted residuals"},
+                 "method": "location-scale: cross-fitted residuals scaled by their industry's "
+                 "interdecile range (shrunk toward the pooled scale with weight n/(n + "
+                 f"{config.model.band_prior_rows:g})), quantiles of the scaled residuals, "
+                 "clipped to [0, 1]"},
         "warnings": list(warnings),
     }
+
+
+def _members(feats: Features, industry: str) -> list[str]:
+    lv = feats.levels
+    i = int(np.flatnonzero(lv.labels == industry)[0])
+    return [str(x) for x in lv.labels[lv.members[lv.parent[i]]]]
 
 
 def digest(path: str | Path) -> str:

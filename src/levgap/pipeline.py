@@ -1,32 +1,69 @@
-"""``analyze``: panel in, targets, gaps and driver contributions out (in memory, no file I/O)."""
+"""``analyze``: panel in, targets, gaps and driver contributions out (in memory, no file I/O).
+
+The stages, each a function below: features (``levgap.features``) -> fit and cross-fit
+(:func:`estimate`) -> band (:func:`band_stage`) -> attribution (:func:`attribute`) -> tables
+(``levgap.frames``) and the saved model (``levgap.models.saved``). ``analyze`` picks the fit
+function from ``levgap.models.MODELS`` and never branches on the model's name.
+"""
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from dataclasses import replace
+from collections.abc import Callable
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from levgap.analysis import (
-    COEF_COLUMNS,
-    FIT_COLUMNS,
-    TARGET_COLUMNS,
-    Analysis,
-    ProgressFn,
-)
+from levgap import band as bands
+from levgap.analysis import FIT_COLUMNS, Analysis, ProgressFn
 from levgap.attribution import attribute_gap, peer_profile
+from levgap.codes import MEASURE_REASONS
 from levgap.config import ModelSpec, RunConfig
 from levgap.errors import ConfigError, ModelError
 from levgap.features import Features, build_features
+from levgap.frames import (
+    coef_frame,
+    concat_ledger,
+    drivers_frame,
+    fold_coef_frame,
+    row_ledger,
+    targets_frame,
+)
 from levgap.manifest import build_manifest
 from levgap.models import MODELS
-from levgap.models.crossfit import assign_folds, crossfit_targets
-from levgap.models.linear import Borrow
-from levgap.panel import EXCLUSION_COLUMNS, Panel
+from levgap.models.crossfit import CrossFit, assign_folds, crossfit_targets
+from levgap.models.design import Pooling
+from levgap.models.pooling import Components, estimate_components, hard, penalised
+from levgap.models.result import Fit
+from levgap.models.saved import measure_record, saved_record
+from levgap.panel import Panel
 
-MAD_TO_SD = 1.4826  # scale of the median absolute deviation under normality (common practice)
+COVERAGE_MIN_ROWS = 100  # industries with at least this many firm-years in the coverage range
+
+
+
+@dataclass(frozen=True, slots=True)
+class Context:
+    """Codes shared by every measure's fit."""
+
+    feats: Features
+    X: np.ndarray
+    level: np.ndarray  # industry level code of each row
+    year: np.ndarray  # fiscal-year code of each row
+    years: np.ndarray  # fiscal-year labels
+    firm: np.ndarray  # firm code of each row
+    industry: np.ndarray  # code of the industry as given (for counts)
+
+
+@dataclass(frozen=True, slots=True)
+class Estimate:
+    """Fit and cross-fit of one measure."""
+
+    full: Fit
+    cf: CrossFit
+    components: Components | None
+    target_full: np.ndarray
 
 
 def analyze(
@@ -53,10 +90,58 @@ def analyze(
     -------
     Analysis
     """
+    config, panel = _inputs(panel, config, spec)
+    spec = config.model
+    ledger = [panel.exclusions]
+    ctx = context(build_features(panel.data, spec), spec, panel.source, ledger)
+    fit_fn = MODELS[spec.model]
+    targets, drivers, coefs, folds, fits, records = [], [], [], [], [], {}
+    notes = [*panel.warnings, *ctx.feats.notes]
+    for measure in spec.measures:
+        rows = measure_rows(ctx, measure, ledger, notes)
+        if rows is None:
+            continue
+        step = (lambda d, t, m=measure: progress(f"cross-fit {m}", d, t)) if progress else None
+        est = estimate(fit_fn, ctx, rows, measure, spec, step)
+        y = ctx.feats.frame[measure].to_numpy(dtype=float)[rows]
+        band, low, high = band_stage(y, est, ctx.level[rows], ctx, spec)
+        attr = attribute(ctx, rows, y, est)
+        notes += [f"{measure}: {n}" for n in est.full.notes]
+        part = _target_part(ctx, rows, measure, y, est, band, low, high, attr, spec)
+        targets.append(part)
+        drivers.append({"rows": part["rows"], "measure": measure,
+                        "firm_value": ctx.X[rows][part["keep"]],
+                        "peer_value": attr["X_peer"][part["keep"]],
+                        "contribution": attr["contributions"][part["keep"]]})
+        del part["keep"]
+        coefs.append(coef_frame(est.full, measure, spec.model))
+        folds.append(fold_coef_frame(est.cf.fits, est.cf.fold_ids, measure, spec.model))
+        fits.append(_fit_row(fit_fn, ctx, rows, measure, y, est, band, low, high, spec))
+        records[measure] = measure_record(est, band, ctx, rows, y, attr["method"])
+    if not targets:
+        raise ModelError(f"{panel.source}: at least one measure must be estimable; got none "
+                         f"({' '.join(notes)}).")
+    exclusions = concat_ledger(ledger)
+    manifest = build_manifest(panel, config, ctx.feats, ctx.feats.frame, exclusions, notes,
+                              records)
+    return Analysis(
+        targets=targets_frame(ctx.feats.frame, targets),
+        drivers=drivers_frame(ctx.feats.frame, drivers, ctx.feats.drivers),
+        coefficients=pd.concat(coefs, ignore_index=True),
+        model_fit=pd.DataFrame(fits, columns=list(FIT_COLUMNS)),
+        exclusions=exclusions,
+        fold_coefficients=pd.concat(folds, ignore_index=True),
+        manifest=manifest,
+        saved_model=saved_record(ctx, spec, records, manifest),
+    )
+
+
+def _inputs(
+    panel: Panel | pd.DataFrame, config: RunConfig | None, spec: ModelSpec | None
+) -> tuple[RunConfig, Panel]:
     config = config or RunConfig()
     if spec is not None:
         config = replace(config, model=spec)
-    spec = config.model
     if not isinstance(panel, Panel):
         from levgap.ingest import validate_panel
 
@@ -69,241 +154,194 @@ def analyze(
             f"({top or 'no data rows'}). Run `levgap check PANEL --ledger ledger.csv` to see "
             "each row's reason."
         )
-    feats = build_features(panel.data, spec)
-    fit_fn = MODELS[spec.model]
+    if config.model.model not in MODELS:
+        raise ConfigError(f"model must be one of {sorted(MODELS)}; got {config.model.model!r}.")
+    return config, panel
+
+
+# -- stage: features and codes -----------------------------------------------------------
+
+
+def context(feats: Features, spec: ModelSpec, source: str, ledger: list) -> Context:
+    """Drop rows without lagged drivers (ledgered), check drivers, factorise the codes."""
     frame = feats.frame
-    X_all = frame[list(feats.drivers)].to_numpy(dtype=float)
-    ledger = [panel.exclusions]
+    X = frame[list(feats.drivers)].to_numpy(dtype=float)
     if spec.lag_drivers:
-        no_prior = np.isnan(X_all).any(axis=1)
-        ledger.append(_row_ledger(frame, no_prior, "", "no_prior_year",
-                                  "lagged drivers need the firm's previous fiscal year"))
-        frame, X_all = frame.loc[~no_prior].reset_index(drop=True), X_all[~no_prior]
-        feats = replace(feats, frame=frame)
+        no_prior = np.isnan(X).any(axis=1)
+        ledger.append(row_ledger(frame, no_prior, "", "no_prior_year",
+                                 "lagged drivers need the firm's previous fiscal year"))
+        frame, X = frame.loc[~no_prior].reset_index(drop=True), X[~no_prior]
         if len(frame) == 0:
-            raise ModelError(f"{panel.source}: lagged drivers need firms observed in two "
+            raise ModelError(f"{source}: lagged drivers need firms observed in two "
                              "consecutive fiscal years; got none.")
-
-    year_codes, years = pd.factorize(frame["fiscal_year"], sort=True)
-    peer_codes, _ = pd.factorize(frame["peer_group"], sort=True)
-    eff_codes, eff_parent, members, n_large = _effect_codes(frame, feats)
-    firm_codes, _ = pd.factorize(frame["firm_id"], sort=True)
-    ind_codes, _ = pd.factorize(frame["industry"], sort=True)
-
-    pg_year = peer_codes.astype(np.int64) * len(years) + year_codes
-    _check_finite(X_all, feats.drivers, panel.source)
-    if spec.year is not None and spec.year not in set(years):
-        raise ConfigError(
-            f"--year must be a fiscal year of the panel; got {spec.year}. The panel has "
-            f"{int(years.min())}-{int(years.max())}."
-        )
-
-    targets, drivers, coefs, fits = [], [], [], []
-    warnings = [*panel.warnings, *feats.notes]
-    for measure in spec.measures:
-        y_all = frame[measure].to_numpy(dtype=float)
-        use = np.isfinite(y_all)
-        if measure == "market" and (~use).any():
-            ledger.append(_measure_ledger(frame, ~use, measure))
-        if use.sum() == 0:
-            warnings.append(f"{measure}: no row has the data this measure needs; skipped.")
-            continue
-        rows = np.flatnonzero(use)
-        y, X = y_all[rows], X_all[rows]
-        effects = [eff_codes[rows], year_codes[rows]]
-        borrow = [Borrow(parent=eff_parent[rows], members=members), None]
-        n_levels = [n_large, len(years)]
-        clusters = _clusters(spec.cluster, firm_codes[rows], year_codes[rows], ind_codes[rows])
-        full = fit_fn(y, X, effects=effects, borrow=borrow, n_levels=n_levels,
-                      clusters=clusters, names=feats.drivers)
-        folds = assign_folds(firm_codes[rows], np.where(eff_codes[rows] >= 0, eff_codes[rows],
-                                                        n_large + eff_parent[rows]),
-                             spec.folds, spec.seed)
-        step = (lambda d, t, m=measure: progress(f"cross-fit {m}", d, t)) if progress else None
-        cf = crossfit_targets(fit_fn, y, X, effects=effects, borrow=borrow, n_levels=n_levels,
-                              folds=folds, names=feats.drivers, progress=step)
-        # Peers: the firm's industry in that year, without the firm; else the industries its
-        # industry borrows its effect from; else the whole year. Only rows with this measure.
-        levels = _peer_levels(eff_codes[rows], eff_parent[rows], members, pg_year[rows],
-                              year_codes[rows])
-        base, peer_n, _ = peer_profile(np.column_stack([X, y]), levels)
-        X_peer, peer_med = base[:, :-1], base[:, -1]
-        attr = attribute_gap(X, X_peer, cf.beta, cf.offset, cf.target)
-
-        resid = y - cf.target
-        a = (1.0 - spec.coverage) / 2.0
-        q_lo, q_hi = np.quantile(resid, [a, 1.0 - a])
-        scale = MAD_TO_SD * np.median(np.abs(resid - np.median(resid)))
-        gap = y - cf.target
-        band_low, band_high = cf.target + q_lo, cf.target + q_hi
-        # Status as codes into STATUS. The output frames are assembled once, after the loop,
-        # gathering text columns from the frame's own arrays (no Python string objects, no
-        # concatenation of ten-million-row frames).
-        status = np.where(y > band_high, 2, np.where(y < band_low, 0, 1))
-        money = frame[["total_debt", "total_assets", "market_equity", "book"]].iloc[rows]
-        keep: Any = (slice(None) if spec.year is None
-                     else frame["fiscal_year"].to_numpy()[rows] == spec.year)
-        gap_z = gap / scale if scale > 0 else np.full(len(y), np.nan)
-        targets.append(
-            {
-                "rows": rows[keep],
-                "measure": measure,
-                "actual": y[keep],
-                "target": cf.target[keep],
-                "gap": gap[keep],
-                "gap_z": gap_z[keep],
-                "band_low": band_low[keep],
-                "band_high": band_high[keep],
-                "status": status[keep],
-                "peer_median": peer_med[keep],
-                "peer_count": peer_n[keep],
-                "peer_target": attr.peer_target[keep],
-                "debt_to_target": _debt_to_target(measure, money, cf.target)[keep],
-            }
-        )
-        drivers.append(
-            {
-                "rows": rows[keep],
-                "measure": measure,
-                "firm_value": X[keep],
-                "peer_value": X_peer[keep],
-                "contribution": attr.contributions[keep],
-            }
-        )
-        coefs.append(_coef_frame(full, measure, spec.model))
-        tss = float(((y - y.mean()) ** 2).sum())
-        fits.append(
-            {
-                "measure": measure,
-                "model": spec.model,
-                "n_obs": int(len(y)),
-                "n_firms": int(np.count_nonzero(np.bincount(firm_codes[rows]))),
-                "n_industries": int(np.count_nonzero(np.bincount(ind_codes[rows]))),
-                "r2": full.r2,
-                "r2_oos": 1.0 - float(resid @ resid) / tss if tss > 0 else float("nan"),
-                "rmse_oos": float(np.sqrt(np.mean(resid**2))),
-            }
-        )
-
-    if not targets:
-        raise ModelError(
-            f"{panel.source}: at least one measure must be estimable; got none "
-            f"({' '.join(warnings)})."
-        )
-    targets_df = _targets_frame(frame, targets)
-    drivers_df = _drivers_frame(frame, drivers, feats.drivers)
-    exclusions = _concat_ledger(ledger)
-    manifest = build_manifest(panel, config, feats, frame, exclusions, warnings)
-    return Analysis(
-        targets=targets_df,
-        drivers=drivers_df,
-        coefficients=pd.concat(coefs, ignore_index=True),
-        model_fit=pd.DataFrame(fits, columns=list(FIT_COLUMNS)),
-        exclusions=exclusions,
-        manifest=manifest,
-    )
-
-
-def _effect_codes(
-    frame: pd.DataFrame, feats: Features
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
-    """Codes of large groups, parent ids of borrowing rows, and parents' member matrix."""
-    borrowed = feats.borrowed
-    small = set(borrowed["industry"].astype(str))
-    peer = frame["peer_group"].astype(str).to_numpy()
-    # Factorise once (hashing) rather than sort and search a million strings.
-    peer_codes, labels = pd.factorize(peer, sort=True)
-    labels = np.asarray(labels, dtype=object)
-    small_label = np.isin(labels, list(small)) if small else np.zeros(len(labels), dtype=bool)
-    large_labels = labels[~small_label]
-    remap = np.full(len(labels), -1, dtype=np.int64)
-    remap[~small_label] = np.arange(len(large_labels))
-    codes = remap[peer_codes]
-    parents = sorted(set(borrowed["borrowed_from"])) if len(borrowed) else []
-    members = np.zeros((max(len(parents), 1), len(large_labels)), dtype=bool)
-    parent_of = np.full(len(peer), -1, dtype=np.int64)
-    for _, row in borrowed.iterrows():  # one row per small industry, a handful
-        pid = parents.index(row["borrowed_from"])
-        names = [m for m in str(row["members"]).split(";") if m]
-        members[pid, np.searchsorted(large_labels, names)] = True
-        parent_of[peer == row["industry"]] = pid
-    if len(large_labels) == 0:
-        raise ModelError("the panel needs at least one industry with its own effect.")
-    return codes, parent_of, members, len(large_labels)
-
-
-def _peer_levels(
-    eff_codes: np.ndarray,
-    eff_parent: np.ndarray,
-    members: np.ndarray,
-    pg_year: np.ndarray,
-    year: np.ndarray,
-) -> list[list[tuple[np.ndarray | None, np.ndarray]]]:
-    own = eff_codes >= 0
-    parents = []
-    for pid in np.unique(eff_parent[eff_parent >= 0]):
-        in_members = own & members[pid, np.where(own, eff_codes, 0)]
-        parents.append((in_members | (eff_parent == pid), year))
-    return [[(None, pg_year)], parents, [(None, year)]]
-
-
-def _check_finite(X: np.ndarray, names: tuple[str, ...], source: str) -> None:
+        levels = replace(feats.levels, codes=feats.levels.codes[~no_prior])
+        feats = replace(feats, frame=frame, levels=levels)
     bad = ~np.isfinite(X)
     if bad.any():
-        cols = [names[j] for j in np.flatnonzero(bad.any(axis=0))]
+        cols = [feats.drivers[j] for j in np.flatnonzero(bad.any(axis=0))]
         raise ModelError(
             f"{source}: every driver must have a finite value on every row; got missing or "
             f"infinite values in {', '.join(cols)} on {int(bad.any(axis=1).sum())} rows. "
-            "Remove those drivers from [model] drivers in the run configuration."
-        )
+            "Remove those drivers from [model] drivers in the run configuration.")
+    year, years = pd.factorize(frame["fiscal_year"], sort=True)
+    if spec.year is not None and spec.year not in set(years):
+        raise ConfigError(f"--year must be a fiscal year of the panel; got {spec.year}. The "
+                          f"panel has {int(years.min())}-{int(years.max())}.")
+    return Context(feats=feats, X=X, level=feats.levels.codes, year=year.astype(np.int64),
+                   years=np.asarray(years),
+                   firm=pd.factorize(frame["firm_id"], sort=True)[0].astype(np.int64),
+                   industry=pd.factorize(frame["industry"], sort=True)[0].astype(np.int64))
 
 
-def _clusters(kind: str, firm: np.ndarray, year: np.ndarray, industry: np.ndarray) -> tuple:
+def measure_rows(ctx: Context, measure: str, ledger: list, notes: list) -> np.ndarray | None:
+    """Rows with this measure; the others ledgered with their reason. None: skip it."""
+    frame = ctx.feats.frame
+    y = frame[measure].to_numpy(dtype=float)
+    use = np.isfinite(y)
+    reasons = {"no_market_equity": ~use}
+    if measure == "market":
+        zero = (frame["total_debt"].to_numpy() == 0) & (frame["market_equity"].to_numpy() == 0)
+        reasons = {"no_market_equity": ~use & ~zero, "no_market_value": zero}
+    if measure == "book":
+        reasons = {"debt_above_assets_with_leases": y > 1.0}
+        use &= y <= 1.0
+    for reason, mask in reasons.items():
+        if mask.any():
+            ledger.append(row_ledger(frame, mask, measure, reason, MEASURE_REASONS[reason]))
+    if not use.any():
+        notes.append(f"{measure}: no row has the data this measure needs; skipped.")
+        return None
+    rows = np.flatnonzero(use)
+    if np.ptp(y[rows]) == 0.0:
+        notes.append(f"{measure}: every firm-year has the same {measure} leverage "
+                     f"({y[rows][0]:.4g}); there is no variation to model, so it is skipped.")
+        return None
+    return rows
+
+
+# -- stage: fit and cross-fit ------------------------------------------------------------
+
+
+def estimate(
+    fit_fn: Callable[..., Fit],
+    ctx: Context,
+    rows: np.ndarray,
+    measure: str,
+    spec: ModelSpec,
+    progress: Callable[[int, int], None] | None,
+) -> Estimate:
+    """Full-sample fit (with pooled small industries) and the grouped cross-fit."""
+    y = ctx.feats.frame[measure].to_numpy(dtype=float)[rows]
+    X, level, firm = ctx.X[rows], ctx.level[rows], ctx.firm[rows]
+    effects = [level, ctx.year[rows]]
+    n_levels = [len(ctx.feats.levels.labels), len(ctx.years)]
+    names = ctx.feats.drivers
+    clusters = {"firm": (firm,), "firm-year": (firm, ctx.year[rows]),
+                "industry": (ctx.industry[rows],)}[spec.cluster]
+    structure = ctx.feats.levels.structure()
+    components, pool_for = None, None
+    if structure.small[level].any() and spec.pooling == "parent":
+        def pool_for(train: np.ndarray | None) -> Pooling:
+            return hard(structure)
+
+    elif structure.small[level].any():
+        first = fit_fn(y, X, effects=effects, n_levels=n_levels, names=names,
+                       pooling=hard(structure), cov=False, check=True)
+        fitted = first.predict(X, effects)
+        components = estimate_components(first, y, fitted, level, firm,
+                                         ctx.feats.levels.labels)
+
+        def pool_for(train: np.ndarray | None) -> Pooling:
+            sel = slice(None) if train is None else train
+            return penalised(structure, components, level[sel], firm[sel])
+
+    full = fit_fn(y, X, effects=effects, n_levels=n_levels, names=names, clusters=clusters,
+                  pooling=pool_for(None) if pool_for else None)
+    eta = full.offset(effects) + X @ full.coef[1:]
+    folds = assign_folds(firm, level, spec.folds, spec.seed)
+    cf = crossfit_targets(fit_fn, y, X, effects=effects, n_levels=n_levels, folds=folds,
+                          names=names, pooling_for=pool_for, start=eta, progress=progress)
+    return Estimate(full=full, cf=cf, components=components,
+                    target_full=full.inverse_link(eta))
+
+
+# -- stage: band -------------------------------------------------------------------------
+
+
+def band_stage(
+    y: np.ndarray, est: Estimate, level: np.ndarray, ctx: Context, spec: ModelSpec
+) -> tuple[bands.Band, np.ndarray, np.ndarray]:
+    """Band calibrated by industry on the cross-fitted residuals, and each row's limits."""
+    band = bands.calibrate(y - est.cf.target, level, len(ctx.feats.levels.labels),
+                           spec.coverage, spec.band_prior_rows)
+    low, high = band.limits(est.cf.target, level)
+    return band, low, high
+
+
+# -- stage: attribution ------------------------------------------------------------------
+
+
+def attribute(ctx: Context, rows: np.ndarray, y: np.ndarray, est: Estimate) -> dict[str, Any]:
+    """Peer profile and median (leave-one-out), peer target and exact contributions.
+
+    Peers: the firm's industry in that year, without the firm; else the industries its
+    industry is pooled toward, in that year; else the whole year; else every other firm-year
+    of the panel (flagged ``peers_other_years``); else none (flagged ``no_peers``).
+    """
+    level, year = ctx.level[rows], ctx.year[rows]
+    n_years = len(ctx.years)
+    lv = ctx.feats.levels
+    parents = []
+    for pid in range(lv.members.shape[0]):
+        mask = lv.members[pid][level] | (lv.parent[level] == pid)
+        parents.append((mask, year))
+    partitions = [[(None, level * n_years + year)], parents, [(None, year)],
+                  [(None, np.zeros(len(rows), dtype=np.int64))]]
+    X = ctx.X[rows]
+    base, count, used = peer_profile(np.column_stack([X, y]), partitions)
+    X_peer, peer_med = base[:, :-1], base[:, -1]
+    has = used >= 0
+    contributions = np.full(X.shape, np.nan)
+    peer_target = np.full(len(rows), np.nan)
+    attr = attribute_gap(X[has], X_peer[has], est.cf.beta[has], est.cf.offset[has],
+                         est.cf.target[has], est.full.link)
+    contributions[has], peer_target[has] = attr.contributions, attr.peer_target
+    return {"X_peer": X_peer, "peer_median": peer_med, "peer_count": count,
+            "peer_target": peer_target, "contributions": contributions,
+            "method": attr.method,
+            "flags": {"peers_other_years": used == 3, "no_peers": ~has}}
+
+
+# -- stage: tables -----------------------------------------------------------------------
+
+
+def _target_part(ctx: Context, rows: np.ndarray, measure: str, y: np.ndarray, est: Estimate,
+                 band: bands.Band, low: np.ndarray, high: np.ndarray,
+                 attr: dict[str, Any], spec: ModelSpec) -> dict[str, Any]:
+    keep: Any = (slice(None) if spec.year is None
+                 else ctx.feats.frame["fiscal_year"].to_numpy()[rows] == spec.year)
+    target = est.cf.target
+    gap = y - target
+    money = ctx.feats.frame[["total_debt", "total_assets", "market_equity"]].iloc[rows]
+    flags = {"industry_effect_from_parent": est.cf.from_parent, **attr["flags"]}
     return {
-        "firm": (firm,),
-        "firm-year": (firm, year),
-        "industry": (industry,),
-    }[kind]
+        "rows": rows[keep], "keep": keep, "measure": measure, "actual": y[keep],
+        "target": target[keep], "gap": gap[keep],
+        "gap_z": bands.gap_z(gap, band.scale_of(ctx.level[rows]))[keep],
+        "band_low": low[keep], "band_high": high[keep],
+        "status": bands.status_codes(y, low, high)[keep],
+        "peer_median": attr["peer_median"][keep], "peer_count": attr["peer_count"][keep],
+        "peer_target": attr["peer_target"][keep],
+        "debt_to_target": debt_to_target(measure, money, target)[keep],
+        "target_full": est.target_full[keep], "fold": est.cf.fold[keep],
+        "extra_flags": {k: v[keep] for k, v in flags.items()},
+    }
 
 
-def _measure_ledger(frame: pd.DataFrame, mask: np.ndarray, measure: str) -> pd.DataFrame:
-    return _row_ledger(frame, mask, measure, "no_market_equity",
-                       "market leverage needs market_equity (or shares_outstanding and "
-                       "share_price); the row is used for book leverage only")
-
-
-def _row_ledger(
-    frame: pd.DataFrame, mask: np.ndarray, measure: str, reason: str, detail: str
-) -> pd.DataFrame:
-    sub = frame.loc[mask]
-    return pd.DataFrame(
-        {
-            "source_row": sub["source_row"].to_numpy(dtype=np.int64),
-            "firm_id": sub["firm_id"].to_numpy(),
-            "fiscal_year": sub["fiscal_year"].to_numpy(),
-            "measure": measure,
-            "reason": reason,
-            "detail": detail,
-        }
-    )
-
-
-def _concat_ledger(parts: list[pd.DataFrame]) -> pd.DataFrame:
-    parts = [p for p in parts if len(p)]
-    if not parts:
-        from levgap.panel import empty_exclusions
-
-        return empty_exclusions()
-    out = pd.concat([p.reindex(columns=list(EXCLUSION_COLUMNS)) for p in parts],
-                    ignore_index=True)
-    out["measure"] = out["measure"].fillna("").astype(str)
-    return out.sort_values(["source_row", "measure"], kind="stable", ignore_index=True)
-
-
-def _debt_to_target(measure: str, sub: pd.DataFrame, target: np.ndarray) -> np.ndarray:
+def debt_to_target(measure: str, sub: pd.DataFrame, target: np.ndarray) -> np.ndarray:
+    """Change in debt that brings the firm to its target (recapitalisation convention)."""
     debt = sub["total_debt"].to_numpy(dtype=float)
     if measure == "book":
-        # a target below zero asks for no debt at all, not for negative debt
         wanted = np.maximum(target, 0.0) * sub["total_assets"].to_numpy(dtype=float)
         return wanted - debt
     equity = sub["market_equity"].to_numpy(dtype=float)
@@ -312,63 +350,58 @@ def _debt_to_target(measure: str, sub: pd.DataFrame, target: np.ndarray) -> np.n
     return np.where(target < 0.0, -debt, wanted - debt)
 
 
-STATUS = ("under", "within", "over")
-
-
-def _labels(values: Sequence[str]) -> Any:
-    """Text labels as the array type pandas gives a text column, to ``take`` from."""
-    return pd.Series(np.array(list(values), dtype=object)).array
-
-
-def _targets_frame(frame: pd.DataFrame, parts: list[dict[str, Any]]) -> pd.DataFrame:
-    # Each part's arrays are released as soon as they are gathered (pop), and the frame takes
-    # the gathered arrays without another copy: the peak stays near the size of the output.
-    rows = np.concatenate([p.pop("rows") for p in parts]).astype(np.intp)
-    which = np.repeat(np.arange(len(parts), dtype=np.int32),
-                      [len(p["actual"]) for p in parts])
-    cols: dict[str, Any] = {}
-    for c in TARGET_COLUMNS:
-        if c in ("firm_id", "firm_name", "industry", "flags"):
-            cols[c] = frame[c].array.take(rows)
-        elif c == "fiscal_year":
-            cols[c] = frame[c].to_numpy()[rows]
-        elif c == "measure":
-            cols[c] = _labels([p["measure"] for p in parts]).take(which)
-        elif c == "status":
-            cols[c] = _labels(STATUS).take(np.concatenate([p.pop("status") for p in parts]))
-        else:
-            cols[c] = np.concatenate([p.pop(c) for p in parts])
-    return pd.DataFrame(cols, copy=False)
-
-
-def _drivers_frame(
-    frame: pd.DataFrame, parts: list[dict[str, Any]], names: tuple[str, ...]
-) -> pd.DataFrame:
-    k = len(names)
-    sizes = [len(p["rows"]) for p in parts]
-    # 32-bit gather indices: ten million of them are 40 MB instead of 80.
-    index = np.int32 if len(frame) < 2**31 else np.intp
-    long_rows = np.repeat(np.concatenate([p.pop("rows") for p in parts]).astype(index), k)
-    cols: dict[str, Any] = {
-        "firm_id": frame["firm_id"].array.take(long_rows),
-        "fiscal_year": frame["fiscal_year"].to_numpy()[long_rows],
+def _fit_row(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, measure: str,
+             y: np.ndarray, est: Estimate, band: bands.Band, low: np.ndarray,
+             high: np.ndarray, spec: ModelSpec) -> dict[str, Any]:
+    resid = y - est.cf.target
+    tss = float(((y - y.mean()) ** 2).sum())
+    cov, cmin, cmax, n_big = bands.coverage_by_level(y, low, high, ctx.level[rows],
+                                                     COVERAGE_MIN_ROWS)
+    oot, oot_year = out_of_time(fit_fn, ctx, rows, measure, y, est, spec)
+    return {
+        "measure": measure, "model": spec.model, "n_obs": int(len(y)),
+        "n_firms": int(np.count_nonzero(np.bincount(ctx.firm[rows]))),
+        "n_industries": int(np.count_nonzero(np.bincount(ctx.industry[rows]))),
+        "r2": est.full.r2,
+        "r2_oos": 1.0 - float(resid @ resid) / tss if tss > 0 else float("nan"),
+        "rmse_oos": float(np.sqrt(np.mean(resid**2))),
+        "coverage": cov, "coverage_industry_min": cmin, "coverage_industry_max": cmax,
+        "coverage_industries": n_big, "coverage_out_of_time": oot,
+        "out_of_time_year": oot_year,
     }
-    del long_rows
-    which = np.repeat(np.arange(len(parts), dtype=np.int32), [s * k for s in sizes])
-    cols["measure"] = _labels([p["measure"] for p in parts]).take(which)
-    del which
-    cols["driver"] = _labels(names).take(np.tile(np.arange(k, dtype=np.int32), sum(sizes)))
-    for c in ("firm_value", "peer_value", "contribution"):
-        cols[c] = np.concatenate([p.pop(c).reshape(-1) for p in parts])
-    return pd.DataFrame(cols, copy=False)
 
 
-def _coef_frame(fit: Any, measure: str, model: str) -> pd.DataFrame:
-    tidy = fit.tidy()
-    df = pd.DataFrame(tidy)
-    df = df[df["term"] != "const"]
-    df.insert(0, "model", model)
-    df.insert(0, "measure", measure)
-    return df.reset_index(drop=True)[list(COEF_COLUMNS)]
+def out_of_time(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, measure: str,
+                y: np.ndarray, est: Estimate, spec: ModelSpec) -> tuple[float, int | None]:
+    """Coverage of the last fiscal year's rows by a model fitted without that year.
 
-
+    The model is refitted on the earlier years (small industries pooled with the run's
+    variance components), the last year's year effect carried forward from the latest earlier
+    year; the band is calibrated on the earlier years' cross-fitted residuals. NaN when the
+    panel has a single year."""
+    year = ctx.year[rows]
+    last = int(year.max())
+    train = year < last
+    if not train.any() or len(np.unique(ctx.firm[rows][train])) < 2:
+        return float("nan"), None
+    sub = rows[train]
+    effects = [ctx.level[sub], ctx.year[sub]]
+    pooling = None
+    if est.components is not None:
+        structure = ctx.feats.levels.structure()
+        pooling = (hard(structure) if spec.pooling == "parent" else
+                   penalised(structure, est.components, ctx.level[sub], ctx.firm[sub]))
+    try:
+        past = fit_fn(y[train], ctx.X[sub], effects=effects,
+                      n_levels=[len(ctx.feats.levels.labels), len(ctx.years)],
+                      names=ctx.feats.drivers, pooling=pooling, cov=False, check=False,
+                      start=est.full.offset(effects) + ctx.X[sub] @ est.full.coef[1:])
+    except ModelError:
+        return float("nan"), None
+    band = bands.calibrate(y[train] - est.cf.target[train], ctx.level[sub],
+                           len(ctx.feats.levels.labels), spec.coverage, spec.band_prior_rows)
+    test = rows[~train]
+    target = past.predict(ctx.X[test], [ctx.level[test], ctx.year[test]])
+    low, high = band.limits(target, ctx.level[test])
+    inside = (y[~train] >= low) & (y[~train] <= high)
+    return float(inside.mean()), int(ctx.years[last])

@@ -90,7 +90,7 @@ def _summary(result: Any, out: Path) -> dict[str, Any]:
         "measure_omissions": counts["measure_omissions"],
         "model_fit": fits,
         "status": status,
-        "borrowed_industries": [b["industry"] for b in result.manifest["borrowed_industries"]],
+        "pooled_industries": [b["industry"] for b in result.manifest["pooled_industries"]],
     }
 
 
@@ -116,9 +116,10 @@ def _print_run(result: Any, committed: Any, top: int) -> None:
     for key, n in counts["measure_omissions"].items():
         measure, reason = key.split(":", 1)
         con.print(f"  left out of {measure} leverage only, {reason}: {n}")
-    for b in result.manifest["borrowed_industries"]:
-        con.print(f"  industry {b['industry']} ({b['firms']} firms) borrows its effect from "
-                  f"{b['borrowed_from']}")
+    for b in result.manifest["pooled_industries"]:
+        kept = ", ".join(f"{m} {100 * w:.0f}%" for m, w in b["weight"].items() if w is not None)
+        con.print(f"  industry {b['industry']} ({b['firms']} firms) is pooled toward "
+                  f"{b['parent']} (own level kept: {kept})")
     for f in result.model_fit.itertuples():
         con.print(f"{f.measure} leverage: {f.n_obs} firm-years, {f.n_firms} firms, "
                   f"R² {f.r2:.3f} in sample, {f.r2_oos:.3f} out of sample "
@@ -165,6 +166,9 @@ def analyze(
     panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX) in schema v1."),
     out: Path = typer.Option(..., "--out", help="Output folder."),
     measure: str = typer.Option("both", "--measure", help="book, market or both."),
+    model: str = typer.Option(
+        None, "--model", help="Target model: fractional (default; targets in [0, 1]) or linear "
+        "(replication)."),
     cluster: str = typer.Option(
         None, "--cluster", help="Clustering of standard errors: firm, firm-year or industry."),
     year: int = typer.Option(None, "--year", help="Report only this fiscal year."),
@@ -193,6 +197,8 @@ def analyze(
             changes["measures"] = parse_measures(measure)
         if cluster is not None:
             changes["cluster"] = cluster
+        if model is not None:
+            changes["model"] = model
         if year is not None:
             changes["year"] = year
         if changes:

@@ -10,7 +10,15 @@ from __future__ import annotations
 import csv
 import io
 
-from levgap.codes import ANALYSIS_FLAGS, ANALYSIS_REASONS, FLAGS, NA_TOKENS, REASONS, YEAR_RANGE
+from levgap.codes import (
+    ANALYSIS_FLAGS,
+    ANALYSIS_REASONS,
+    FLAGS,
+    MEASURE_REASONS,
+    NA_TOKENS,
+    REASONS,
+    YEAR_RANGE,
+)
 from levgap.schema import COLUMNS, SCHEMA_VERSION, Column
 
 TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml")
@@ -81,7 +89,8 @@ def template_readme() -> str:
         f"{_minimum(c) if c.kind != 'text' else '-'} | {c.meaning} |"
         for c in COLUMNS
     )
-    reasons = "\n".join(f"| `{k}` | {v} |" for k, v in {**REASONS, **ANALYSIS_REASONS}.items())
+    reasons = "\n".join(f"| `{k}` | {v} |" for k, v in
+                        {**REASONS, **ANALYSIS_REASONS, **MEASURE_REASONS}.items())
     flags = "\n".join(f"| `{k}` | {v} |" for k, v in {**FLAGS, **ANALYSIS_FLAGS}.items())
     blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"
     return f"""# levgap input template (schema v{SCHEMA_VERSION})
@@ -219,7 +228,7 @@ scale = 1.0             # every money column is multiplied by this (0.001: thous
 measures = ["book", "market"]  # book = debt / assets; market = debt / (debt + market equity)
 cluster = "firm"               # standard errors clustered by "firm", "firm-year" or "industry"
 winsorize = [0.01, 0.99]       # drivers clipped at these quantiles within each fiscal year
-min_industry_firms = 5         # smaller industries borrow their effect from a parent group
+min_industry_firms = 5         # smaller industries are pooled toward a parent group
 peer_digits = 0                # 0: industry code as given; n: peers share its first n characters
 drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
                                # also available: "rd_intensity"
@@ -227,9 +236,11 @@ leases_as_debt = false         # add lease_liabilities to total_debt
 folds = 5                      # grouped cross-fit folds (by firm)
 seed = 0                       # seed of the fold assignment
 coverage = 0.8                 # coverage of the band around each target
-model = "linear"               # fit function
+model = "fractional"           # "fractional" (logit, targets in [0, 1]) or "linear"
 # year = 2023                  # report only this fiscal year (the model uses every year)
 lag_drivers = false            # true: explain leverage with the previous fiscal year's drivers
+pooling = "shrink"             # small industries: "shrink" toward the parent, or "parent" outright
+band_prior_rows = 10           # firm-years at which an industry's own spread sets half its band
 """
 """Annotated example ``run.toml``; parses to the default configuration."""
 

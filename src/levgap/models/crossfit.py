@@ -12,7 +12,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from levgap.models.linear import Borrow
+from levgap.models.design import Pooling
+from levgap.models.result import Fit
 
 
 @dataclass(frozen=True, slots=True)
@@ -24,17 +25,28 @@ class CrossFit:
     target : numpy.ndarray, shape (n,)
         Each row's prediction from the fit that left its firm out.
     offset : numpy.ndarray, shape (n,)
-        Constant plus fixed effects of that prediction (``target = offset + X @ beta``).
+        Constant plus effects of that prediction, on the link scale
+        (``target = inverse_link(offset + X @ beta)``).
     beta : numpy.ndarray, shape (n, k)
         Slopes of that fit, per row.
     fold : numpy.ndarray of int, shape (n,)
         Fold of each row.
+    fits : tuple of Fit
+        The fit of each fold, in the order of ``fold_ids``.
+    fold_ids : tuple of int
+        The folds that hold rows (``fits[i]`` predicted the rows of fold ``fold_ids[i]``).
+    from_parent : numpy.ndarray of bool, shape (n,)
+        Rows whose industry had no rows of its own in the fold's fit (a single-firm industry):
+        their target uses the parent group's effect.
     """
 
     target: np.ndarray
     offset: np.ndarray
     beta: np.ndarray
     fold: np.ndarray
+    fits: tuple[Fit, ...]
+    fold_ids: tuple[int, ...]
+    from_parent: np.ndarray
 
 
 def assign_folds(firm: np.ndarray, strata: np.ndarray, k: int, seed: int) -> np.ndarray:
@@ -67,15 +79,16 @@ def assign_folds(firm: np.ndarray, strata: np.ndarray, k: int, seed: int) -> np.
 
 
 def crossfit_targets(
-    fit: Callable[..., object],
+    fit: Callable[..., Fit],
     y: np.ndarray,
     X: np.ndarray,
     *,
     effects: Sequence[np.ndarray],
-    borrow: Sequence[Borrow | None],
     n_levels: Sequence[int],
     folds: np.ndarray,
     names: Sequence[str],
+    pooling_for: Callable[[np.ndarray], Pooling | None] | None = None,
+    start: np.ndarray | None = None,
     progress: Callable[[int, int], None] | None = None,
 ) -> CrossFit:
     """Fit on all folds but one and predict the one left out, for every fold.
@@ -84,10 +97,15 @@ def crossfit_targets(
     ----------
     fit : callable
         A fit function of ``levgap.models.MODELS``.
-    y, X, effects, borrow, n_levels, names
-        As for :func:`levgap.models.linear.fit_linear`, for all rows.
+    y, X, effects, n_levels, names
+        As for the fit function, for all rows.
     folds : numpy.ndarray of int
         Fold of each row (:func:`assign_folds`).
+    pooling_for : callable, optional
+        ``pooling_for(train_mask)`` gives the pooling of the fold's fit (its weights follow the
+        training rows' counts).
+    start : numpy.ndarray, optional
+        A linear predictor for every row (the full-sample fit's) to start iterative fits from.
     progress : callable, optional
         Called as ``progress(done, total)`` after each fold.
     """
@@ -95,7 +113,9 @@ def crossfit_targets(
     target = np.empty(n)
     offset = np.empty(n)
     beta = np.empty((n, k))
+    from_parent = np.zeros(n, dtype=bool)
     labels = np.unique(folds)
+    fits = []
     for i, f in enumerate(labels):
         test = folds == f
         train = ~test
@@ -103,21 +123,21 @@ def crossfit_targets(
             y[train],
             X[train],
             effects=[e[train] for e in effects],
-            borrow=[_subset(b, train) for b in borrow],
             n_levels=n_levels,
             names=names,
+            pooling=pooling_for(train) if pooling_for is not None else None,
             cov=False,
+            start=None if start is None else start[train],
         )
-        off = np.full(int(test.sum()), res.coef[0])
-        for j, e in enumerate(effects):
-            off += res.effect_of(j, e[test], _subset(borrow[j], test))
+        held = [e[test] for e in effects]
+        off = res.offset(held)
         offset[test] = off
         beta[test] = res.coef[1:]
-        target[test] = off + X[test] @ res.coef[1:]
+        target[test] = res.inverse_link(off + X[test] @ res.coef[1:])
+        if held:
+            from_parent[test] = res.unseen(0, held[0])
+        fits.append(res)
         if progress is not None:
             progress(i + 1, len(labels))
-    return CrossFit(target=target, offset=offset, beta=beta, fold=folds)
-
-
-def _subset(b: Borrow | None, mask: np.ndarray) -> Borrow | None:
-    return None if b is None else Borrow(parent=b.parent[mask], members=b.members)
+    return CrossFit(target=target, offset=offset, beta=beta, fold=folds, fits=tuple(fits),
+                    fold_ids=tuple(int(f) for f in labels), from_parent=from_parent)

@@ -40,7 +40,7 @@ from levgap.outputs.runs import (
     json_bytes,
     new_run_id,
 )
-from levgap.outputs.verify import RunFolder, verify_run
+from levgap.outputs.verify import RunFolder, saved_model_file, verify_run
 
 __all__ = [
     "FORMULA_PATTERN",
@@ -67,5 +67,6 @@ __all__ = [
     "read_marker",
     "refuse_inputs",
     "same_file",
+    "saved_model_file",
     "verify_run",
 ]

@@ -191,3 +191,34 @@ def _legacy_files(out: Path, marker: Marker) -> dict[str, Path]:
         if (out / extra).is_file():
             files[extra] = out / extra
     return files
+
+
+def saved_model_file(out_dir: str | Path, name: str = "model.json") -> Path:
+    """The saved model of a verified run: listed by ``run.json`` and stamped with its run id.
+
+    Raises
+    ------
+    OutputError
+        The folder fails :func:`verify_run`, its run has no saved model, or the model's run id
+        is not the run's (a ``model.json`` from another run).
+    """
+    run = verify_run(out_dir)
+    path = run.files.get(name)
+    if path is None:
+        raise OutputError(
+            f"{Path(out_dir) / name}: the results folder must hold {name} of its run; got "
+            "none. Re-run `levgap analyze` with this version."
+        )
+    if run.run_id is not None:
+        try:
+            raw = json.loads(read_bounded(path, _MAX_RUN_JSON * 16).decode("utf-8"))
+        except (UnicodeDecodeError, ValueError) as exc:
+            raise OutputError(f"{path}: {name} must be valid JSON; got "
+                              f"{' '.join(str(exc).split())[:120]}.") from None
+        theirs = raw.get("run_id") if isinstance(raw, dict) else None
+        if theirs != run.run_id:
+            raise OutputError(
+                f"{path}: {name} belongs to run {theirs} but run.json to run {run.run_id}: the "
+                "folder mixes two runs. Re-run `levgap analyze`."
+            )
+    return path

@@ -263,20 +263,24 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         "coverage": _num(model_opts.get("coverage")),
         "folds": model_opts.get("folds"),
         "fit": fit_rows,
-        "borrowed": [_borrowed(b) for b in manifest.get("borrowed_industries", []) or []],
+        "pooled": [_pooled(b) for b in manifest.get("pooled_industries", []) or []],
         "warnings": [str(w) for w in manifest.get("warnings", [])],
         "version": manifest.get("levgap_version", ""),
         "run_id": str(manifest.get("run_id") or ""),
     }
 
 
-def _borrowed(item: Any) -> str:
+def _pooled(item: Any) -> str:
     if not isinstance(item, Mapping):
         return str(item)
     industry = item.get("industry", "?")
     firms = f" ({item['firms']} firms)" if item.get("firms") is not None else ""
-    source = item.get("borrowed_from") or item.get("parent")
-    return f"{industry}{firms}" + (f" from {source}" if source else "")
+    source = item.get("parent")
+    weights = item.get("weight") or {}
+    kept = ", ".join(f"{m} {100 * w:.0f}%" for m, w in weights.items()
+                     if isinstance(w, int | float))
+    return (f"{industry}{firms}" + (f" toward {source}" if source else "")
+            + (f", own level kept: {kept}" if kept else ""))
 
 
 def _step_title(row: Mapping[str, Any]) -> str:

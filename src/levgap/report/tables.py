@@ -107,9 +107,16 @@ def stage_tables(run: RunWriter, tables: Mapping[str, pd.DataFrame], *, fmt: str
     list of pathlib.Path
         Where the tables will be once the run is committed.
     """
+    from levgap.analysis import TABLE_COLUMNS
+
     _check_tables(tables, fmt)
-    return [run.add(f"{name}{FORMATS[fmt]}", _table_writer(neutralise(frame), fmt, run.run_id))
-            for name, frame in tables.items()]
+    out = []
+    for name, frame in tables.items():
+        if frame.shape[1] == 0 and name in TABLE_COLUMNS:  # an empty table keeps its header
+            frame = pd.DataFrame(columns=list(TABLE_COLUMNS[name]))
+        out.append(run.add(f"{name}{FORMATS[fmt]}",
+                           _table_writer(neutralise(frame), fmt, run.run_id)))
+    return out
 
 
 def _check_tables(tables: Mapping[str, Any], fmt: str) -> None:

@@ -393,8 +393,8 @@ def _write_summary(
     ]
     for reason, n in sorted((counts.get("by_reason") or {}).items()):
         pairs.append((f"excluded: {reason}", n))
-    for b in manifest.get("borrowed_industries", []) or []:
-        pairs.append(("borrowed industry effect", _describe(b)))
+    for b in manifest.get("pooled_industries", []) or []:
+        pairs.append(("pooled industry effect", _describe(b)))
     for w in manifest.get("warnings", []) or []:
         pairs.append(("warning", str(w)))
     for sheet, n in truncated.items():

@@ -1,0 +1,376 @@
+"""The saved model (``model.json``): score firm-years that are not in the panel.
+
+``analyze`` records, per measure, everything a new firm-year needs: the full-sample fit and
+each cross-fit fold's fit (constant, slopes, every industry and year effect, the pooled small
+industries with their parents and weights), the band (quantiles and industry scales), and the
+peers' median driver profile and leverage by industry and year; and, for the run, the driver
+transforms (winsorising limits by year, imputation medians by industry and year), the industry
+levels, the specification, versions and the run id. :func:`load_model` reads it back;
+:meth:`SavedModel.score` reproduces ``targets.csv``'s ``target_full`` for any firm-year of the
+panel (the same code computes both) and, with ``fold``, its cross-fitted ``target``.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, fields
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from levgap.band import STATUS, Band, gap_z, status_codes
+from levgap.config import ModelSpec
+from levgap.errors import ModelError, OutputError
+from levgap.groups import WHOLE_SAMPLE
+from levgap.models.result import Fit
+from levgap.outputs import saved_model_file
+from levgap.transforms import DriverTransforms
+
+if TYPE_CHECKING:
+    from levgap.pipeline import Context, Estimate
+
+FORMAT = "levgap-model"
+FORMAT_VERSION = 1
+MODEL_FILE = "model.json"
+
+
+# -- writing (called by the pipeline) ------------------------------------------------------
+
+
+def measure_record(
+    est: Estimate, band: Band, ctx: Context, rows: np.ndarray, y: np.ndarray, method: str
+) -> dict[str, Any]:
+    """Everything one measure's targets need, as JSON-able data."""
+    frame = ctx.feats.frame
+    fold_of_firm = dict(zip(frame["firm_id"].to_numpy()[rows].tolist(),
+                            est.cf.fold.tolist(), strict=True))
+    levels = ctx.feats.levels
+    pooled = []
+    if est.full.pooled is not None:
+        w = est.full.pooled.weight
+        for i in np.flatnonzero(levels.small):
+            pooled.append({
+                "industry": str(levels.labels[i]), "firms": int(levels.firms[i]),
+                "rows": int(np.count_nonzero(ctx.level[rows] == i)),
+                "parent": levels.parent_labels[levels.parent[i]],
+                "weight": None if i >= len(w) or np.isnan(w[i]) else float(w[i]),
+            })
+    return {
+        "full": est.full.to_dict(),
+        "folds": [{"fold": f, "fit": fit.to_dict()}
+                  for f, fit in zip(est.cf.fold_ids, est.cf.fits, strict=True)],
+        "fold_of_firm": fold_of_firm,
+        "band": band.to_dict(),
+        "components": None if est.components is None else est.components.as_dict(),
+        "contributions": method,
+        "pooled": pooled,
+        "peers": _peer_table(ctx, rows, y),
+    }
+
+
+def _peer_table(ctx: Context, rows: np.ndarray, y: np.ndarray) -> dict[str, Any]:
+    """Median driver profile and leverage (all firms) by industry and year, and by year."""
+    frame = pd.DataFrame(ctx.X[rows], columns=list(ctx.feats.drivers))
+    frame["leverage"] = y
+    frame["industry"] = ctx.feats.levels.labels[ctx.level[rows]]
+    frame["fiscal_year"] = ctx.years[ctx.year[rows]].astype(np.int64)
+    cols = [*ctx.feats.drivers, "leverage"]
+    by = frame.groupby(["industry", "fiscal_year"], sort=True)
+    med, cnt = by[cols].median(), by.size().to_numpy()
+    keys = [f"{i}|{int(t)}" for i, t in med.index]
+    values = med.to_numpy().tolist()
+    by_year = frame.groupby("fiscal_year", sort=True)
+    ymed, ycnt = by_year[cols].median(), by_year.size().to_numpy()
+    return {
+        "columns": cols,
+        "industry_year": {k: [int(n), *v] for k, n, v in zip(keys, cnt, values, strict=True)},
+        "year": {str(int(t)): [int(n), *v]
+                 for t, n, v in zip(ymed.index, ycnt, ymed.to_numpy().tolist(), strict=True)},
+    }
+
+
+def saved_record(ctx: Context, spec: ModelSpec, records: dict[str, Any],
+                 manifest: dict[str, Any]) -> dict[str, Any]:
+    """The whole ``model.json`` (its ``run_id`` is stamped by the writer)."""
+    return {
+        "format": FORMAT,
+        "format_version": FORMAT_VERSION,
+        "levgap_version": manifest.get("levgap_version"),
+        "schema_version": manifest.get("schema_version"),
+        "run_id": manifest.get("run_id"),
+        "model": spec.model,
+        "spec": {f.name: (list(v) if isinstance(v := getattr(spec, f.name), tuple) else v)
+                 for f in fields(spec)},
+        "drivers": list(ctx.feats.drivers),
+        "industries": ctx.feats.levels.to_dict(),
+        "years": [int(t) for t in ctx.years],
+        "transforms": ctx.feats.transforms.to_dict(),
+        "measures": records,
+    }
+
+
+# -- reading and scoring -----------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class SavedModel:
+    """A fitted model read from ``model.json``; see :meth:`score`."""
+
+    record: dict[str, Any]
+
+    @property
+    def model(self) -> str:
+        return str(self.record["model"])
+
+    @property
+    def measures(self) -> tuple[str, ...]:
+        return tuple(self.record["measures"])
+
+    @property
+    def drivers(self) -> tuple[str, ...]:
+        return tuple(self.record["drivers"])
+
+    @property
+    def run_id(self) -> str | None:
+        return self.record.get("run_id")
+
+    @property
+    def spec(self) -> ModelSpec:
+        known = {f.name for f in fields(ModelSpec)}
+        raw = {k: tuple(v) if isinstance(v, list) else v
+               for k, v in self.record["spec"].items() if k in known}
+        return ModelSpec(**raw)
+
+    def fit(self, measure: str, fold: int | None = None) -> Fit:
+        """The full-sample fit of a measure, or a cross-fit fold's."""
+        m = self._measure(measure)
+        if fold is None:
+            return Fit.from_dict(m["full"])
+        for f in m["folds"]:
+            if int(f["fold"]) == int(fold):
+                return Fit.from_dict(f["fit"])
+        raise ModelError(f"fold must be one of the run's folds; got {fold}.")
+
+    def band(self, measure: str) -> Band:
+        """The calibrated band of a measure."""
+        return Band.from_dict(self._measure(measure)["band"])
+
+    def fold_of(self, measure: str, firm_id: str) -> int | None:
+        """The cross-fit fold of a panel firm (None for a firm not in the panel)."""
+        v = self._measure(measure)["fold_of_firm"].get(str(firm_id))
+        return None if v is None else int(v)
+
+    def _measure(self, measure: str) -> dict[str, Any]:
+        try:
+            return self.record["measures"][measure]
+        except KeyError:
+            raise ModelError(f"measure must be one of {list(self.measures)}; got "
+                             f"{measure!r}.") from None
+
+    def codes(self, industry: np.ndarray, year: np.ndarray) -> tuple[np.ndarray, np.ndarray,
+                                                                      np.ndarray, np.ndarray]:
+        """Level codes of industries (-1 for one the model never saw) and of years (the nearest
+        earlier fitted year for a year it never saw), with masks of the unseen ones."""
+        labels = self.record["industries"]["labels"]
+        index = {lab: i for i, lab in enumerate(labels)}
+        level = np.array([index.get(str(v), -1) for v in industry], dtype=np.int64)
+        years = np.array(self.record["years"], dtype=np.int64)
+        year = np.asarray(year, dtype=np.int64)
+        pos = np.searchsorted(years, year, side="right") - 1
+        new_year = (pos < 0) | (years[np.maximum(pos, 0)] != year)
+        return level, np.maximum(pos, 0), level < 0, new_year
+
+    def industry_effect(self, fit: Fit, industry: np.ndarray, level: np.ndarray) -> np.ndarray:
+        """Industry effect of each row: the fit's, or for an industry the model never saw,
+        the row-weighted mean effect of the saved industries sharing the longest leading part
+        of its code (else of all of them)."""
+        out = fit.effect_of(0, np.where(level >= 0, level, 0))
+        unseen = np.flatnonzero(level < 0)
+        if len(unseen) == 0:
+            return out
+        ind = self.record["industries"]
+        labels, small = ind["labels"], np.array(ind["small"], dtype=bool)
+        alpha, weight = fit.effects[0], fit.effect_weights[0]
+        own = np.flatnonzero(~small[: len(alpha)] & ~np.isnan(alpha[: len(small)]))
+        for i in unseen:
+            code = str(industry[i])
+            members = own
+            if code.isdigit():
+                for cut in range(len(code) - 1, 0, -1):
+                    hit = [j for j in own if str(labels[j]).startswith(code[:cut])]
+                    if hit:
+                        members = np.array(hit)
+                        break
+            w = weight[members]
+            out[i] = float(alpha[members] @ w / w.sum())
+        return out
+
+    def score(
+        self,
+        rows: pd.DataFrame,
+        *,
+        fold: int | str | None = None,
+        peer_profile: pd.DataFrame | None = None,
+    ) -> pd.DataFrame:
+        """Targets, bands, status, gaps and contributions for firm-years in schema v1.
+
+        Parameters
+        ----------
+        rows : pandas.DataFrame
+            Firm-years under schema-v1 column names (money in the output's unit). A column
+            named after a driver (``earnings_volatility``, say) overrides the computed raw
+            value where it is not blank.
+        fold : int, "firm" or None, default=None
+            None: the full-sample fit. An int: that cross-fit fold's fit. ``"firm"``: each
+            panel firm's own fold (full-sample fit for a firm not in the panel).
+        peer_profile : pandas.DataFrame, optional
+            One row per input row, a column per driver: the profile contributions are taken
+            against. Default: the saved median profile of the row's industry and year.
+
+        Returns
+        -------
+        pandas.DataFrame
+            One row per input row and measure (see ``/work/notes`` in DEVELOPERS.md).
+        """
+        from levgap.features import build_features, peer_group
+
+        data = _schema_frame(rows)
+        spec = self.spec
+        transforms = DriverTransforms.from_dict(self.record["transforms"])
+        feats = build_features(data, spec, transforms=transforms)
+        f = feats.frame
+        drivers = list(self.drivers)
+        missing = [d for d in drivers if d not in f]
+        if missing:
+            raise ModelError(f"rows must give what the drivers need; got no {missing[0]}.")
+        X = f[drivers].to_numpy(dtype=float)
+        industry = peer_group(f["industry"], spec.peer_digits).to_numpy(dtype=object)
+        level, year, new_ind, new_year = self.codes(industry, f["fiscal_year"].to_numpy())
+        out = []
+        for measure in self.measures:
+            out.append(self._score_measure(measure, f, X, industry, level, year, new_ind,
+                                           new_year, fold, peer_profile))
+        return pd.concat(out, ignore_index=True)
+
+    def _score_measure(self, measure: str, f: pd.DataFrame, X: np.ndarray,
+                       industry: np.ndarray, level: np.ndarray, year: np.ndarray,
+                       new_ind: np.ndarray, new_year: np.ndarray, fold: int | str | None,
+                       peer_profile: pd.DataFrame | None) -> pd.DataFrame:
+        n = len(f)
+        target, offset, beta = np.empty(n), np.empty(n), np.empty((n, X.shape[1]))
+        folds = self._folds(measure, f["firm_id"].to_numpy(), fold)
+        for key in np.unique(folds):
+            sel = folds == key
+            fit = self.fit(measure, None if key < 0 else int(key))
+            off = (fit.coef[0] + self.industry_effect(fit, industry[sel], level[sel])
+                   + fit.effect_of(1, year[sel]))
+            offset[sel], beta[sel] = off, fit.coef[1:]
+            target[sel] = fit.inverse_link(off + X[sel] @ fit.coef[1:])
+        band = self.band(measure)
+        low, high = band.limits(target, np.where(level >= 0, level, len(band.scale)))
+        actual = f[measure].to_numpy(dtype=float)
+        X_peer, peer_med, peer_n = self._peers(measure, industry, f, peer_profile)
+        fit = self.fit(measure)
+        from levgap.models.shapley import shapley
+
+        contrib, peer_target, _ = shapley(offset, X * beta, X_peer * beta, fit.inverse_link,
+                                          linear=fit.link == "identity")
+        flags = f["flags"].astype(str).to_numpy(dtype=object)
+        extra = {"industry_not_in_model": new_ind, "year_not_in_model": new_year}
+        for code, mask in extra.items():
+            flags = np.where(mask, np.where(flags == "", code, flags + ";" + code), flags)
+        out = pd.DataFrame({
+            "firm_id": f["firm_id"].to_numpy(), "fiscal_year": f["fiscal_year"].to_numpy(),
+            "industry": f["industry"].to_numpy(), "measure": measure, "actual": actual,
+            "target": target, "band_low": low, "band_high": high,
+            "status": np.array(STATUS, dtype=object)[status_codes(actual, low, high)],
+            "gap": actual - target,
+            "gap_z": gap_z(actual - target, band.scale_of(np.where(level >= 0, level,
+                                                                   len(band.scale)))),
+            "peer_target": peer_target, "peer_median": peer_med, "peer_count": peer_n,
+            "fold": folds, "flags": flags,
+        })
+        out.loc[np.isnan(actual), "status"] = ""
+        for j, d in enumerate(self.drivers):
+            out[d] = X[:, j]
+            out[d + "_raw"] = f[d + "_raw"].to_numpy() if d + "_raw" in f else X[:, j]
+            out[d + "_peer"] = X_peer[:, j]
+            out[d + "_contribution"] = contrib[:, j]
+        return out
+
+    def _folds(self, measure: str, firm: np.ndarray, fold: int | str | None) -> np.ndarray:
+        if fold is None:
+            return np.full(len(firm), -1, dtype=np.int64)
+        if fold == "firm":
+            got = [self.fold_of(measure, str(x)) for x in firm]
+            return np.array([-1 if v is None else v for v in got], dtype=np.int64)
+        return np.full(len(firm), int(fold), dtype=np.int64)
+
+    def _peers(self, measure: str, industry: np.ndarray, f: pd.DataFrame,
+               given: pd.DataFrame | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        table = self._measure(measure)["peers"]
+        cols = table["columns"]
+        k = len(self.drivers)
+        n = len(f)
+        prof = np.full((n, len(cols)), np.nan)
+        count = np.zeros(n, dtype=np.int64)
+        years = f["fiscal_year"].to_numpy()
+        for i in range(n):
+            hit = table["industry_year"].get(f"{industry[i]}|{int(years[i])}") or \
+                table["year"].get(str(int(years[i])))
+            if hit is None and table["year"]:
+                hit = table["year"][max(table["year"], key=int)]
+            if hit is not None:
+                count[i], prof[i] = hit[0], hit[1:]
+        X_peer = prof[:, :k]
+        if given is not None:
+            X_peer = given[list(self.drivers)].to_numpy(dtype=float)
+        return X_peer, prof[:, k], count
+
+
+def load_model(results_dir: str | Path) -> SavedModel:
+    """Read the saved model of a results folder written by ``levgap analyze``.
+
+    Raises
+    ------
+    OutputError
+        The folder has no readable ``model.json`` of a format this levgap knows.
+    """
+    path = saved_model_file(results_dir, MODEL_FILE)  # the run verified first (levgap.outputs)
+    try:
+        record = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise OutputError(f"{path}: the results folder must hold model.json; got none. "
+                          "Re-run `levgap analyze` with this version.") from None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise OutputError(f"{path}: model.json must be valid JSON; got {exc}.") from None
+    if not isinstance(record, dict) or record.get("format") != FORMAT:
+        raise OutputError(f"{path}: must be a levgap saved model; got another file.")
+    if int(record.get("format_version", 0)) > FORMAT_VERSION:
+        raise OutputError(f"{path}: saved-model format {record.get('format_version')} is "
+                          f"newer than this levgap reads ({FORMAT_VERSION}); upgrade levgap.")
+    return SavedModel(record)
+
+
+def _schema_frame(rows: pd.DataFrame) -> pd.DataFrame:
+    from levgap.schema import REQUIRED
+
+    if not isinstance(rows, pd.DataFrame):
+        raise ModelError("rows must be a pandas DataFrame in schema v1.")
+    missing = [c for c in REQUIRED if c not in rows.columns]
+    if missing:
+        raise ModelError(f"rows must have the schema-v1 columns; got no {missing[0]}.")
+    data = rows.copy()
+    for c in data.columns:
+        if c not in ("firm_id", "industry", "firm_name", "currency", "flags"):
+            data[c] = pd.to_numeric(data[c], errors="coerce")
+    data["firm_id"] = data["firm_id"].astype(str)
+    data["industry"] = data["industry"].astype(str)
+    if "flags" not in data:
+        data["flags"] = ""
+    return data.reset_index(drop=True)
+
+
+__all__ = ["MODEL_FILE", "SavedModel", "WHOLE_SAMPLE", "load_model"]

