@@ -12,8 +12,8 @@ import levgap
 from levgap.config import ModelSpec
 from levgap.demo import make_panel
 from levgap.errors import OutputError
-from levgap.pipeline import analyze
 from levgap.models.saved import FORMAT
+from levgap.pipeline import analyze
 
 KEY = ["firm_id", "fiscal_year", "measure"]
 
