@@ -104,7 +104,10 @@ def test_a_device_or_huge_file_is_not_a_config(tmp_path: Path) -> None:
 
 
 def test_defaults_pass_their_own_checks() -> None:
+    from levgap.models import MODELS
+
     spec = ModelSpec()
+    assert spec.model in MODELS  # the one value ModelSpec does not look up in MODELS
     assert dataclasses.replace(spec) == spec
     assert RunConfig().to_dict()["model"]["winsorize"] == [0.01, 0.99]
 
@@ -141,3 +144,16 @@ def test_config_year_outside_the_panel_says_it_came_from_the_config(panel_csv: P
     flag = runner.invoke(app, ["analyze", str(panel_csv), "--out", str(tmp_path / "o"),
                                "--year", "1999"])
     assert flag.exit_code == 2 and "--year must be a fiscal year" in flag.output
+
+
+def test_reading_a_config_stays_light() -> None:
+    import subprocess
+    import sys
+
+    template = Path(__file__).resolve().parents[1] / "data_templates" / "run.toml"
+    code = ("import sys\nfrom levgap.config import RunConfig\n"
+            f"RunConfig.from_toml({str(template)!r})\n"
+            "print([m for m in ('scipy', 'statsmodels', 'matplotlib') if m in sys.modules])")
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert run.stdout.strip() == "[]", run.stdout + run.stderr

@@ -17,7 +17,7 @@ Writing (:class:`RunWriter`)
     by the next run in that folder; until then they prove, through their own markers, which
     files they put there.
 
-Reading (:func:`verify_run`)
+Reading (``outputs.verify.verify_run``)
     The one check every reader makes before reading a table: the folder's journal is complete,
     ``run.json`` is a JSON object from this levgap or an older one, every file it lists is
     present, and the marker (when the folder still has it) names the same run.
