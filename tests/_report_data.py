@@ -91,6 +91,8 @@ def make_outputs(
             "sum").to_numpy() - 1
         frame["peer_target"] = peer_target
         frame["debt_to_target"] = -gap * assets
+        frame["target_full"] = target + rng.normal(0, 0.005, n)
+        frame["fold"] = np.repeat(np.arange(n_firms) % 5, n_years)
         frame["flags"] = np.where(rng.random(n) < 0.1, "volatility_imputed", "")
         target_rows.append(frame)
         for d in DRIVERS:
@@ -114,7 +116,9 @@ def make_outputs(
                               "ci_low": est - 1.96 * se, "ci_high": est + 1.96 * se})
         fit_rows.append({"measure": measure, "model": "linear", "n_obs": n, "n_firms": n_firms,
                          "n_industries": len(industries), "r2": 0.41, "r2_oos": 0.33,
-                         "rmse_oos": 0.071})
+                         "rmse_oos": 0.071, "coverage": 0.8, "coverage_industry_min": 0.7,
+                         "coverage_industry_max": 0.9, "coverage_industries": 5,
+                         "coverage_out_of_time": 0.78, "out_of_time_year": int(years[-1])})
     exclusions = pd.DataFrame({
         "source_row": [3, 17, 25, 40],
         "firm_id": ["F99990", "=cmd|' /C calc'!A0", "X2", "X3"],

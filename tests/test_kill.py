@@ -9,6 +9,7 @@ either reads run A whole, reads the new run (B) whole, or refuses with one line;
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import subprocess
@@ -32,7 +33,7 @@ from levgap.report.tables import read_outputs
 
 pytestmark = pytest.mark.slow
 
-TABLES = ("targets", "drivers", "coefficients", "model_fit", "exclusions")
+TABLES = ("targets", "drivers", "coefficients", "model_fit", "fold_coefficients", "exclusions")
 
 # Runs `levgap analyze` and SIGKILLs itself right after the N-th file replacement into the
 # output folder (mode "out") or into its staging folder (mode "stage").
@@ -72,7 +73,8 @@ def world(tmp_path_factory: pytest.TempPathFactory) -> dict:
     out = base / "out"
     a = analyze(read_panel(panel))
     write_analysis(a, out, report=False, inputs=(str(panel),))
-    return {"panel": panel, "cfg_b": cfg_b, "refs": refs, "out": out,
+    files_b = json.loads((base / "ref_B" / "run.json").read_text(encoding="utf-8"))["files"]
+    return {"panel": panel, "cfg_b": cfg_b, "refs": refs, "out": out, "files_b": files_b,
             "panel_bytes": panel.read_bytes()}
 
 
@@ -130,10 +132,11 @@ def test_kill_at_any_moment_leaves_one_complete_run_or_a_refusal(world: dict) ->
         child.communicate(timeout=60)
         states.append(_state(world))
     # Deterministic kills inside the writer. With --no-report a run replaces, in the output
-    # folder: the journal (1), five tables (2-6), run.json (7), the final marker (8); in its
-    # stage, the stage's marker and each file in turn.
-    expected = {("stage", 3): {"A", "B"}, ("out", 1): {"refused"}, ("out", 4): {"refused"},
-                ("out", 7): {"refused"}, ("out", 8): {"B"}}
+    # folder: the journal (1), its k files (2..k+1), run.json (k+2), the final marker (k+3);
+    # in its stage, the stage's marker and each file in turn.
+    k = len(world["files_b"])
+    expected = {("stage", 3): {"A", "B"}, ("out", 1): {"refused"}, ("out", 3): {"refused"},
+                ("out", k + 2): {"refused"}, ("out", k + 3): {"B"}}
     for hook, allowed in expected.items():
         child = _child(world, "--no-report", hook=hook)
         _, err = child.communicate(timeout=120)

@@ -200,9 +200,8 @@ def test_levgap_files_of_the_previous_run_are_removed_and_said(tmp_path, panel):
     assert result.exit_code == 0, result.output
     assert "Removed report.html, workbook.xlsx of the previous run" in result.output
     assert "report.html" not in result.output.split("Removed")[0]
-    assert sorted(os.listdir(out)) == sorted(
-        [MARKER, "targets.csv", "drivers.csv", "coefficients.csv", "model_fit.csv",
-         "exclusions.csv", "run.json"])
+    kept = [n for n in named if n not in ("report.html", "workbook.xlsx")]
+    assert sorted(os.listdir(out)) == sorted([MARKER, *kept])
     summary = runner.invoke(app, ["analyze", str(panel), "--out", str(out), "--json",
                                   "--format", "parquet"])
     data = json.loads(summary.output)
@@ -270,10 +269,21 @@ def test_import_sec_refuses_the_price_file_as_output(tmp_path):
 
 
 def _legacy_folder(out: Path, panel: Path) -> None:
-    """A folder as levgap 0.1 left it: a plain marker, run.json without a run id."""
+    """A folder as levgap 0.1 left it: a plain marker, run.json without a run id, the five
+    tables with the 0.1 columns."""
+    from levgap.outputs.legacy import V01_COLUMNS
+
     assert _analyze(panel, out).exit_code == 0
     run = json.loads((out / "run.json").read_text())
-    names = sorted(run.pop("files")) + ["run.json", "report.html", "panel.csv"]
+    for name in run.pop("files"):
+        stem = Path(name).stem
+        if stem in V01_COLUMNS:
+            frame = pd.read_csv(out / name, dtype=str, keep_default_na=False)
+            frame[list(V01_COLUMNS[stem])].to_csv(out / name, index=False,
+                                                  lineterminator="\r\n")
+        else:
+            (out / name).unlink()  # fold_coefficients.csv, model.json: not in 0.1
+    names = [f"{s}.csv" for s in V01_COLUMNS] + ["run.json", "report.html", "panel.csv"]
     run.pop("run_id")
     (out / "run.json").write_text(json.dumps(run))
     shutil.copy(panel, out / "panel.csv")  # 0.1 listed the user's panel kept in --out

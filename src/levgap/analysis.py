@@ -58,7 +58,8 @@ or ``number``. Columns not named here are read as text."""
 
 
 def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
-                        example: Callable[[str], str] = lambda c: "") -> None:
+                        example: Callable[[str], str] = lambda c: "", *,
+                        legacy: bool = False) -> None:
     """Refuse a table read back from an output folder that lacks a column or holds a wrong type.
 
     Parameters
@@ -72,6 +73,8 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
         ``number``, ``text`` or ``other``.
     example : callable, optional
         A short example of a column's offending value, for the message.
+    legacy : bool, default=False
+        The folder was written by levgap 0.1: its tables are checked against the 0.1 columns.
 
     Raises
     ------
@@ -80,7 +83,12 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
     """
     from levgap.errors import OutputError
 
-    wanted = TABLE_COLUMNS.get(name, ())
+    if legacy:
+        from levgap.outputs.legacy import V01_COLUMNS
+
+        wanted = V01_COLUMNS.get(name, ())
+    else:
+        wanted = TABLE_COLUMNS.get(name, ())
     missing = [c for c in wanted if c not in found]
     if missing:
         raise OutputError(

@@ -29,6 +29,11 @@ V01_HEADERS: tuple[tuple[str, ...], ...] = (
 )
 """The headers of the five tables levgap 0.1 wrote (output contract v1 as of 0.1)."""
 
+V01_COLUMNS: dict[str, tuple[str, ...]] = dict(
+    zip(("targets", "drivers", "coefficients", "model_fit", "exclusions"), V01_HEADERS,
+        strict=True))
+"""The 0.1 tables by name: what a reader asks of a folder 0.1 wrote."""
+
 V01_SHEETS = ("Summary", "Targets", "Drivers", "Coefficients", "Exclusions")
 
 

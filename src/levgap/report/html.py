@@ -118,7 +118,8 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -
     from levgap.report.tables import read_table_file
 
     run = verify_run(out_dir)
-    tables = {name: read_table_file(p, name) for name, p in run.tables.items()}
+    tables = {name: read_table_file(p, name, legacy=run.run_id is None)
+              for name, p in run.tables.items()}
     _check_tables(tables)
     html = render_report(tables, run.manifest, options=options)
     with RunWriter(out_dir, run_id=run.run_id or new_run_id(),

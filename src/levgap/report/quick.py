@@ -63,7 +63,7 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
             "Re-run `levgap analyze`."
         ) from None
     check_table_columns(path, "targets", {n: _kind(table[n]) for n in table.column_names},
-                        lambda c: _example(table[c]))
+                        lambda c: _example(table[c]), legacy=run.run_id is None)
     for c in TEXT:
         if c in table.column_names and not pa.types.is_string(table[c].type):
             i = table.column_names.index(c)

@@ -162,12 +162,13 @@ def read_outputs(
     for name, p in run.tables.items():
         if wanted is not None and name not in wanted:
             continue
-        tables[name] = read_table_file(p, name)
+        tables[name] = read_table_file(p, name, legacy=run.run_id is None)
     return tables, run.manifest
 
 
-def read_table_file(path: Path, name: str) -> pd.DataFrame:
-    """One output table, read back and checked against the contract (columns and types)."""
+def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFrame:
+    """One output table, read back and checked against the contract (columns and types);
+    ``legacy``: a table levgap 0.1 wrote, checked against the 0.1 columns."""
     from levgap.analysis import check_table_columns
 
     try:
@@ -184,7 +185,7 @@ def read_table_file(path: Path, name: str) -> pd.DataFrame:
             "Re-run `levgap analyze`."
         ) from None
     kinds = {str(c): _kind(frame[c]) for c in frame.columns}
-    check_table_columns(path, name, kinds, lambda c: _example(frame[c]))
+    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy)
     for c in TEXT_COLUMNS:
         if c in frame.columns:
             frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
