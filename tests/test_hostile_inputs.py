@@ -233,3 +233,9 @@ def test_a_device_or_pipe_is_not_read(tmp_path: Path):
     os.mkfifo(fifo)
     with pytest.raises(SchemaError, match="must be a regular file; got a device or pipe"):
         read_panel(fifo)
+
+
+def test_a_repeated_header_is_one_line_not_a_crash(tmp_path: Path):
+    path = _write(tmp_path, ["firm_id,firm_id,fiscal_year", "1,2,3"])
+    with pytest.raises(SchemaError, match="headers must be unique; got firm_id"):
+        read_panel(path)

@@ -328,3 +328,12 @@ def test_single_file_writer_records_and_refuses(tmp_path):
         atomic_write_bytes(target, b"three")
     assert target.read_bytes() == b"edited by hand"
     assert sorted(os.listdir(tmp_path)) == [MARKER, "note.md"]
+
+
+def test_demo_refuses_a_foreign_folder_before_writing_anything(tmp_path):
+    out = tmp_path / "d"
+    out.mkdir()
+    (out / "notes.txt").write_text("mine")
+    result = runner.invoke(app, ["demo", "--out", str(out)])
+    _one_line_error(result, "levgap did not write (notes.txt)")
+    assert sorted(os.listdir(out)) == ["notes.txt"]

@@ -150,10 +150,13 @@ def demo(
     """
     with guard():
         from levgap.demo import make_panel
+        from levgap.outputs import refuse_foreign
         from levgap.report.tables import write_table
 
         if out.exists() and not out.is_dir():
             raise typer.BadParameter(f"must be a folder; got the file {out}.", param_hint="--out")
+        if not force:  # refused before the demo's panel is written
+            refuse_foreign(out)
         panel_path = write_table(make_panel(), out / "demo_panel.csv")
         result, committed = _run_analysis(panel_path, out, config=load_config(None), fmt="csv",
                                           force=force, xlsx=False, report=True, quiet=False)

@@ -413,8 +413,8 @@ def _record_numbers(body: bytes, delimiter: str) -> np.ndarray:
 
 def _all_blank(frame: pd.DataFrame) -> np.ndarray:
     blank = np.ones(len(frame), dtype=bool)
-    for col in frame.columns:
-        s = frame[col]
+    for j in range(frame.shape[1]):  # by position: a repeated header names several columns
+        s = frame.iloc[:, j]
         if s.dtype == object or isinstance(s.dtype, pd.StringDtype):
             blank &= (s.astype("str").str.strip().fillna("") == "").to_numpy(dtype=bool)
         else:

@@ -20,6 +20,7 @@ from levgap.outputs.files import (
     file_digest,
     is_own_name,
     is_temp_name,
+    json_bytes,
     refuse_inputs,
     same_file,
 )
@@ -37,8 +38,8 @@ from levgap.outputs.runs import (
     STAGE_PREFIX,
     Committed,
     RunWriter,
-    json_bytes,
     new_run_id,
+    refuse_foreign,
 )
 from levgap.outputs.verify import RunFolder, saved_model_file, verify_run
 
@@ -65,6 +66,7 @@ __all__ = [
     "neutralise",
     "new_run_id",
     "read_marker",
+    "refuse_foreign",
     "refuse_inputs",
     "same_file",
     "saved_model_file",

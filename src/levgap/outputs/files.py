@@ -8,10 +8,12 @@ from __future__ import annotations
 import contextlib
 import hashlib
 import io
+import json
+import math
 import os
 import re
 import secrets
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from pathlib import Path
 from typing import Any, BinaryIO
 
@@ -200,3 +202,26 @@ def read_bounded(path: Path, limit: int) -> bytes:
             "one levgap wrote."
         )
     return data
+
+
+def _jsonable(obj: Any) -> Any:
+    if isinstance(obj, Mapping):
+        return {str(k): _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple | set | frozenset):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    if hasattr(obj, "item") and not isinstance(obj, str | bytes):
+        try:
+            return _jsonable(obj.item())
+        except (ValueError, TypeError):
+            return str(obj)
+    if isinstance(obj, Path):
+        return str(obj)
+    return obj
+
+
+def json_bytes(obj: Any) -> bytes:
+    """JSON text of ``obj`` as levgap writes it (NaN as null, numpy scalars as numbers)."""
+    return (json.dumps(_jsonable(obj), default=str, indent=2, allow_nan=False) + "\n").encode(
+        "utf-8")

@@ -27,7 +27,6 @@ from __future__ import annotations
 
 import contextlib
 import json
-import math
 import os
 import re
 import secrets
@@ -39,6 +38,7 @@ from typing import Any, BinaryIO
 
 from levgap.errors import OutputError
 from levgap.outputs.files import (
+    _jsonable,
     is_own_name,
     is_temp_name,
     refuse_inputs,
@@ -147,27 +147,17 @@ class RunWriter:
             raise OutputError(
                 f"{out}: the output path must be a folder; got a file. Choose another --out."
             )
-        _io(lambda: out.mkdir(parents=True, exist_ok=True), out, "created")
+        _io(lambda: out.mkdir(parents=True, exist_ok=True), out,
+            "the output folder must be creatable")
         self._marker = read_marker(out)
         stages = [out / n for n in _names(out) if is_stage_name(n) and _real_dir(out / n)]
         self._old_stages = stages
         self._markers = [self._marker, *(read_marker(s) for s in stages)]
-        foreign = sorted(
-            n for n in _names(out)
-            if n != MARKER and not is_temp_name(n) and not is_stage_name(n)
-            and not any(m.knows(n) for m in self._markers) and not self._is_input(out / n)
-        )
-        if foreign and not self.force:
-            shown = ", ".join(foreign[:5]) + (
-                f" and {len(foreign) - 5} more" if len(foreign) > 5 else "")
-            raise OutputError(
-                f"{out}: the output folder must be empty or hold only levgap outputs; got files "
-                f"levgap did not write ({shown}). Choose another --out or pass --force (they "
-                "are left alone)."
-            )
+        if not self.force:
+            refuse_foreign(out, self.inputs)
         self._check_target(RUN_FILE)
         stage = out / f"{STAGE_PREFIX}{secrets.token_hex(8)}"
-        _io(lambda: stage.mkdir(), stage, "created")
+        _io(lambda: stage.mkdir(), stage, "the output folder must be writable")
         self._stage = stage
         self._save_stage_marker()
 
@@ -267,7 +257,7 @@ class RunWriter:
                 final[name] = rec if rec is not None and verifies(path, rec) else _io(
                     lambda p=path, n=name: record_file(p, "output", None,
                                                        written=is_ours(out, n, self._markers)),
-                    path, "read")
+                    path, "the run's file must be readable")
         stale = []
         known = {*(n for m in self._markers for n in m.records), *self._marker.legacy}
         known |= {n for n in _names(out) if is_own_name(n) and self._is_input(out / n)}
@@ -289,12 +279,14 @@ class RunWriter:
         write_marker(out, Marker(self.run_id, "committing", journal, self._marker.legacy))
         order = [n for n in self._staged if n != RUN_FILE] + [RUN_FILE]
         for name in order:
-            _io(lambda n=name: os.replace(stage / n, out / n), out / name, "written")
+            _io(lambda n=name: os.replace(stage / n, out / n), out / name,
+                "the file must be writable")
         removed = []
         for name in stale:
             if is_ours(out, name, self._markers) and not self._is_input(out / name):
                 with contextlib.suppress(FileNotFoundError):
-                    _io(lambda n=name: (out / n).unlink(), out / name, "removed")
+                    _io(lambda n=name: (out / n).unlink(), out / name,
+                        "the previous run's file must be removable")
                 removed.append(name)
         write_marker(out, Marker(self.run_id, "complete", final))
         for s in [stage, *self._old_stages]:
@@ -314,6 +306,36 @@ class RunWriter:
 
 
 _NO = Record(0, "0" * 64, "file")
+
+
+def refuse_foreign(out_dir: str | Path, inputs: Iterable[str | Path] = ()) -> None:
+    """Refuse an output folder holding files levgap did not write (and that are not inputs).
+
+    Raises
+    ------
+    OutputError
+        Naming up to five of them; ``--force`` writes beside them (they are left alone).
+    """
+    out = Path(out_dir)
+    if not out.is_dir():
+        return
+    markers = [read_marker(out), *(read_marker(out / n) for n in _names(out)
+                                   if is_stage_name(n) and _real_dir(out / n))]
+    inputs = [Path(i) for i in inputs]
+    foreign = sorted(
+        n for n in _names(out)
+        if n != MARKER and not is_temp_name(n) and not is_stage_name(n)
+        and not any(m.knows(n) for m in markers)
+        and not any(same_file(out / n, i) for i in inputs)
+    )
+    if foreign:
+        shown = ", ".join(foreign[:5]) + (
+            f" and {len(foreign) - 5} more" if len(foreign) > 5 else "")
+        raise OutputError(
+            f"{out}: the output folder must be empty or hold only levgap outputs; got files "
+            f"levgap did not write ({shown}). Choose another --out or pass --force (they are "
+            "left alone)."
+        )
 
 
 def _names(folder: Path) -> list[str]:
@@ -360,31 +382,10 @@ def _io(action: Callable[[], Any], path: Path, what: str) -> Any:
         return action()
     except OSError as exc:
         raise OutputError(
-            f"{path}: the file must be {what}; got {exc.strerror or exc}. Check the folder's "
-            "permissions and free space."
+            f"{path}: {what}; got {exc.strerror or exc}. Check the folder's permissions and "
+            "free space, or choose another --out."
         ) from None
 
 
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, Mapping):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, list | tuple | set | frozenset):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    if hasattr(obj, "item") and not isinstance(obj, str | bytes):
-        try:
-            return _jsonable(obj.item())
-        except (ValueError, TypeError):
-            return str(obj)
-    if isinstance(obj, Path):
-        return str(obj)
-    return obj
-
-
-def json_bytes(obj: Any) -> bytes:
-    """JSON text of ``obj`` as levgap writes it (NaN as null, numpy scalars as numbers)."""
-    return (json.dumps(_jsonable(obj), default=str, indent=2, allow_nan=False) + "\n").encode(
-        "utf-8")
 
 
