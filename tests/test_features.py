@@ -132,3 +132,13 @@ def test_rd_intensity_adds_indicator() -> None:
     assert feats.drivers == ("tangibility", "rd_intensity", "rd_missing")
     assert (feats.frame["rd_missing"].iloc[12:] == 1).all()
     assert (feats.frame["rd_intensity"].iloc[12:] == 0).all()
+
+
+def test_effect_level_and_peer_group_are_separate_settings() -> None:
+    p = _panel()
+    peers = build_features(p, ModelSpec(peer_digits=2))
+    assert set(peers.frame["peer_group"]) == {"37", "28"}
+    assert list(peers.levels.labels) == ["2834", "3711"]  # the model keeps 4 digits
+    effect = build_features(p, ModelSpec(industry_digits=2))
+    assert list(effect.levels.labels) == ["28", "37"]
+    assert set(effect.frame["peer_group"]) == {"3711", "2834"}

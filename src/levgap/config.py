@@ -22,7 +22,8 @@ A run configuration has four tables; every key is optional::
     cluster = "firm"     # firm | firm-year | industry
     winsorize = [0.01, 0.99]
     min_industry_firms = 5
-    peer_digits = 0      # 0: the industry code as given; n: its first n characters
+    industry_digits = 0  # industry effect: 0 the code as given; n its first n characters
+    peer_digits = 0      # peer group (attribution): 0 the code as given; n its first n characters
     drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
     leases_as_debt = false
     folds = 5
@@ -157,8 +158,13 @@ class ModelSpec:
         Quantiles at which drivers are clipped within each fiscal year; ``(0, 1)`` turns it off.
     min_industry_firms : int, default=5
         Industries with fewer firms borrow their effect from a parent group.
+    industry_digits : int, default=0
+        Level of the industry effect in the model: 0 uses the industry code as given; n > 0
+        its first n characters (for example 2 for SIC major groups).
     peer_digits : int, default=0
-        0 uses the industry code as given; n > 0 groups peers by its first n characters.
+        Peer group of the attribution (the peer median and driver profile): 0 uses the
+        industry code as given; n > 0 its first n characters. Independent of the model's
+        ``industry_digits``.
     drivers : tuple of str
         Drivers in the model.
     leases_as_debt : bool, default=False
@@ -194,6 +200,7 @@ class ModelSpec:
     cluster: str = "firm"
     winsorize: tuple[float, float] = (0.01, 0.99)
     min_industry_firms: int = 5
+    industry_digits: int = 0
     peer_digits: int = 0
     drivers: tuple[str, ...] = DRIVERS
     leases_as_debt: bool = False
@@ -232,6 +239,9 @@ class ModelSpec:
             raise ConfigError(
                 f"[model] min_industry_firms must be at least 1; got {self.min_industry_firms}."
             )
+        if self.industry_digits < 0:
+            raise ConfigError(
+                f"industry_digits must be 0 or more; got {self.industry_digits}.")
         if self.peer_digits < 0:
             raise ConfigError(f"[model] peer_digits must be 0 or more; got {self.peer_digits}.")
         if self.folds < 2:

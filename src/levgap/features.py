@@ -48,7 +48,8 @@ class Features:
     Parameters
     ----------
     frame : pandas.DataFrame
-        ``firm_id, firm_name, fiscal_year, industry, peer_group, source_row, flags,
+        ``firm_id, firm_name, fiscal_year, industry, effect_group, peer_group, source_row,
+        flags,
         total_assets, total_debt, market_equity, book, market`` and one column per driver, in
         the row order of the panel.
     drivers : tuple of str
@@ -92,7 +93,7 @@ def build_features(
     f = _identity_columns(data, spec, n)
     _measures(f, data, spec, n)
     raw, drivers, notes = raw_drivers(data, f, spec, n, keep_all=transforms is not None)
-    group, years = f["peer_group"].to_numpy(dtype=object), f["fiscal_year"].to_numpy()
+    group, years = f["effect_group"].to_numpy(dtype=object), f["fiscal_year"].to_numpy()
     learned = transforms is None
     if transforms is None:
         transforms = learn(raw, drivers, group, years, spec.winsorize)
@@ -106,7 +107,7 @@ def build_features(
                           else "outside_fitted_range")
     if spec.lag_drivers:
         lag_rows(f, drivers)
-    levels = industry_levels(f["peer_group"], f["firm_id"], spec.min_industry_firms)
+    levels = industry_levels(f["effect_group"], f["firm_id"], spec.min_industry_firms)
     f["flags"] = add_flag(f["flags"], levels.small[levels.codes], "industry_effect_pooled")
     return Features(frame=f, drivers=tuple(drivers), levels=levels, transforms=transforms,
                     notes=tuple(notes))
@@ -124,6 +125,7 @@ def _identity_columns(data: pd.DataFrame, spec: ModelSpec, n: int) -> pd.DataFra
             "flags": _text(data, "flags", n),
         }
     )
+    f["effect_group"] = peer_group(f["industry"], spec.industry_digits)
     f["peer_group"] = peer_group(f["industry"], spec.peer_digits)
     return f
 

@@ -49,7 +49,8 @@ class Context:
 
     feats: Features
     X: np.ndarray
-    level: np.ndarray  # industry level code of each row
+    level: np.ndarray  # industry level code of each row (the effect's)
+    peer: np.ndarray  # peer-group code of each row (the attribution's)
     year: np.ndarray  # fiscal-year code of each row
     years: np.ndarray  # fiscal-year labels
     firm: np.ndarray  # firm code of each row
@@ -187,7 +188,9 @@ def context(feats: Features, spec: ModelSpec, source: str, ledger: list) -> Cont
     if spec.year is not None and spec.year not in set(years):
         raise ConfigError(f"--year must be a fiscal year of the panel; got {spec.year}. The "
                           f"panel has {int(years.min())}-{int(years.max())}.")
-    return Context(feats=feats, X=X, level=feats.levels.codes, year=year.astype(np.int64),
+    return Context(feats=feats, X=X, level=feats.levels.codes,
+                   peer=pd.factorize(frame["peer_group"], sort=True)[0].astype(np.int64),
+                   year=year.astype(np.int64),
                    years=np.asarray(years),
                    firm=pd.factorize(frame["firm_id"], sort=True)[0].astype(np.int64),
                    industry=pd.factorize(frame["industry"], sort=True)[0].astype(np.int64))
@@ -284,18 +287,18 @@ def band_stage(
 def attribute(ctx: Context, rows: np.ndarray, y: np.ndarray, est: Estimate) -> dict[str, Any]:
     """Peer profile and median (leave-one-out), peer target and exact contributions.
 
-    Peers: the firm's industry in that year, without the firm; else the industries its
+    Peers: the firm's peer group in that year, without the firm; else the industries its
     industry is pooled toward, in that year; else the whole year; else every other firm-year
     of the panel (flagged ``peers_other_years``); else none (flagged ``no_peers``).
     """
-    level, year = ctx.level[rows], ctx.year[rows]
+    level, year, peer = ctx.level[rows], ctx.year[rows], ctx.peer[rows]
     n_years = len(ctx.years)
     lv = ctx.feats.levels
     parents = []
     for pid in range(lv.members.shape[0]):
         mask = lv.members[pid][level] | (lv.parent[level] == pid)
         parents.append((mask, year))
-    partitions = [[(None, level * n_years + year)], parents, [(None, year)],
+    partitions = [[(None, peer * n_years + year)], parents, [(None, year)],
                   [(None, np.zeros(len(rows), dtype=np.int64))]]
     X = ctx.X[rows]
     base, count, used = peer_profile(np.column_stack([X, y]), partitions)

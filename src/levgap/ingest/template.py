@@ -229,7 +229,8 @@ measures = ["book", "market"]  # book = debt / assets; market = debt / (debt + m
 cluster = "firm"               # standard errors clustered by "firm", "firm-year" or "industry"
 winsorize = [0.01, 0.99]       # drivers clipped at these quantiles within each fiscal year
 min_industry_firms = 5         # smaller industries are pooled toward a parent group
-peer_digits = 0                # 0: industry code as given; n: peers share its first n characters
+industry_digits = 0            # industry effect: 0 code as given; n: its first n characters
+peer_digits = 0                # peers (attribution): 0 code as given; n: first n characters
 drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
                                # also available: "rd_intensity"
 leases_as_debt = false         # add lease_liabilities to total_debt

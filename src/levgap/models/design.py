@@ -123,6 +123,7 @@ class Design:
         n, k = X.shape
         self.n, self.k = n, k
         self.center = X.mean(axis=0) if n else np.zeros(k)
+        self.magnitude = np.abs(X).max(axis=0) if n else np.zeros(k)
         W = np.empty((n, k + 1))
         W[:, 0] = 1.0
         W[:, 1:] = X - self.center
@@ -174,6 +175,11 @@ class Design:
         if len(dev_codes):
             penalty[offset:] = pooling.penalty[dev_codes]  # type: ignore[union-attr]
         self.penalty = penalty
+
+    def flat(self) -> np.ndarray:
+        """Drivers constant across rows up to rounding (spread below 1e-10 of their size)."""
+        spread = np.sqrt(np.einsum("ij,ij->j", self.W[:, 1:], self.W[:, 1:]) / max(self.n, 1))
+        return np.flatnonzero(spread <= FLAT_TOL * np.maximum(self.magnitude, 1e-300))
 
     # -- structure ------------------------------------------------------------------------
 
@@ -350,6 +356,9 @@ def inverse_rows(factor: tuple[np.ndarray, bool], d: np.ndarray, m: int) -> np.n
     return cho_apply(factor, d, eye).T
 
 
+FLAT_TOL = 1e-10
+"""A driver whose standard deviation is below this share of its largest absolute value is
+constant (up to rounding)."""
 SUSPECT_TOL = 1e-8
 """A driver's variance share after the effects (or a correlation eigenvalue) below this, in the
 normal equations, sends the fit to the exact data-space test."""
@@ -399,7 +408,7 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
         return
     X = design.W[:, 1:]
     spread = np.einsum("ij,ij->j", X, X)
-    flat = [names[j] for j in range(k) if spread[j] == 0.0]
+    flat = [names[j] for j in design.flat()]
     if flat:
         raise ModelError(
             f"every driver must vary across rows; got {', '.join(flat)} constant. Drop it "
@@ -432,7 +441,7 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
             f"every driver must vary within industries and years; got {', '.join(absorbed)} "
             "explained entirely by the industry and year effects (constant within every "
             "industry, for example). Drop it from [model] drivers, or group industries more "
-            "coarsely ([model] peer_digits)."
+            "coarsely ([model] industry_digits)."
         )
     scaled = resid / np.sqrt(np.einsum("ij,ij->j", resid, resid))
     _, s, vt = np.linalg.svd(scaled, full_matrices=False)

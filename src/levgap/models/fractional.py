@@ -100,7 +100,7 @@ def fit_fractional(
             f"{ybar:g}."
         )
     check = cov if check is None else check
-    if check and suspicious(design.gram(), design.k):
+    if check and (len(design.flat()) or suspicious(design.gram(), design.k)):
         check_identified(design, names)
     theta = np.zeros(design.layout.n_params)
     if start is not None:

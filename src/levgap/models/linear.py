@@ -92,7 +92,7 @@ def fit_linear(
     y, design, names, totals = prepare(y, X, effects, names, n_levels, pooling)
     check = cov if check is None else check
     A = design.gram()
-    if check and suspicious(A, design.k):
+    if check and (suspicious(A, design.k) or len(design.flat())):
         check_identified(design, names)
     factor, d = factorise(design, A, names, check)
     theta = cho_apply(factor, d, design.rmatvec(y))

@@ -74,7 +74,7 @@ def _peer_table(ctx: Context, rows: np.ndarray, y: np.ndarray) -> dict[str, Any]
     """Median driver profile and leverage (all firms) by industry and year, and by year."""
     frame = pd.DataFrame(ctx.X[rows], columns=list(ctx.feats.drivers))
     frame["leverage"] = y
-    frame["industry"] = ctx.feats.levels.labels[ctx.level[rows]]
+    frame["industry"] = ctx.feats.frame["peer_group"].to_numpy(dtype=object)[rows]
     frame["fiscal_year"] = ctx.years[ctx.year[rows]].astype(np.int64)
     cols = [*ctx.feats.drivers, "leverage"]
     by = frame.groupby(["industry", "fiscal_year"], sort=True)
@@ -232,7 +232,12 @@ class SavedModel:
         Returns
         -------
         pandas.DataFrame
-            One row per input row and measure (see ``/work/notes`` in DEVELOPERS.md).
+            One row per input row and measure: ``firm_id, fiscal_year, industry, measure,
+            actual, target, band_low, band_high, status, gap, gap_z, peer_target,
+            peer_median, peer_count, fold, flags`` and, per driver, ``<driver>`` (the value
+            used), ``<driver>_raw``, ``<driver>_peer`` and ``<driver>_contribution`` (the
+            contributions sum to ``target - peer_target``). ``fold`` is -1 for the
+            full-sample fit.
         """
         from levgap.features import build_features, peer_group
 
@@ -246,7 +251,7 @@ class SavedModel:
         if missing:
             raise ModelError(f"rows must give what the drivers need; got no {missing[0]}.")
         X = f[drivers].to_numpy(dtype=float)
-        industry = peer_group(f["industry"], spec.peer_digits).to_numpy(dtype=object)
+        industry = peer_group(f["industry"], spec.industry_digits).to_numpy(dtype=object)
         level, year, new_ind, new_year = self.codes(industry, f["fiscal_year"].to_numpy())
         out = []
         for measure in self.measures:
@@ -271,7 +276,8 @@ class SavedModel:
         band = self.band(measure)
         low, high = band.limits(target, np.where(level >= 0, level, len(band.scale)))
         actual = f[measure].to_numpy(dtype=float)
-        X_peer, peer_med, peer_n = self._peers(measure, industry, f, peer_profile)
+        X_peer, peer_med, peer_n = self._peers(measure, f["peer_group"].to_numpy(dtype=object),
+                                               f, peer_profile)
         fit = self.fit(measure)
         from levgap.models.shapley import shapley
 

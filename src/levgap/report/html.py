@@ -30,6 +30,11 @@ CAUTION = (
     "firm should borrow. Decisions belong with qualified professionals and must respect local "
     "rules (accounting standards, covenants, regulation)."
 )
+MODEL_TEXT = {
+    "fractional": "fractional logit (Papke and Wooldridge 1996) with industry and year effects; "
+    "targets between 0 and 1",
+    "linear": "least squares with industry and year effects (targets can fall below 0)",
+}
 _REQUIRED = ("targets", "drivers", "coefficients", "model_fit", "exclusions")
 
 
@@ -258,6 +263,8 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         "omissions": omissions,
         "measures": measures,
         "model": model_opts.get("model", ",".join(sorted(set(fit["model"].astype(str))))),
+        "model_text": MODEL_TEXT.get(str(model_opts.get("model")),
+                                     str(model_opts.get("model", "not recorded"))),
         "cluster": {"firm": "firm", "firm-year": "firm and year (two-way)",
                     "industry": "industry"}.get(model_opts.get("cluster"),
                                                 model_opts.get("cluster", "not recorded")),
