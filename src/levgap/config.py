@@ -241,7 +241,7 @@ class ModelSpec:
             )
         if self.industry_digits < 0:
             raise ConfigError(
-                f"industry_digits must be 0 or more; got {self.industry_digits}.")
+                f"[model] industry_digits must be 0 or more; got {self.industry_digits}.")
         if self.peer_digits < 0:
             raise ConfigError(f"[model] peer_digits must be 0 or more; got {self.peer_digits}.")
         if self.folds < 2:
