@@ -42,10 +42,15 @@ def _write(tmp_path: Path, lines: list[str], name: str = "p.csv") -> Path:
     return path
 
 
+def _small_panel() -> pd.DataFrame:
+    p = make_panel(3)
+    return p[p["firm_id"] <= "TR0150"].copy()  # 150 firms, 10 years: quick to analyse
+
+
 @pytest.fixture(scope="module")
 def panel_csv(tmp_path_factory: pytest.TempPathFactory) -> Path:
     path = tmp_path_factory.mktemp("in") / "panel.csv"
-    make_panel(3).to_csv(path, index=False)
+    _small_panel().to_csv(path, index=False)
     return path
 
 
@@ -169,7 +174,7 @@ def test_money_overflow_is_excluded_not_infinite():
 
 
 def test_overflow_by_cli_prints_no_numpy_warning(tmp_path: Path):
-    p = make_panel(3)
+    p = _small_panel()
     p.loc[0, "total_assets"] = 1e306
     p.loc[1, "market_equity"] = 1e306
     path = tmp_path / "big.csv"

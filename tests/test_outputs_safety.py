@@ -66,7 +66,11 @@ def _tables():
 def _victims(tmp_path: Path) -> dict[Path, bytes]:
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()
-    files = {elsewhere / "x": b"precious x", elsewhere / "targets.csv": b"precious table"}
+    from levgap.outputs.legacy import V01_HEADERS
+
+    # the table is a real 0.1 output elsewhere: its content alone would pass as levgap's
+    table = (",".join(V01_HEADERS[0]) + "\r\n").encode()
+    files = {elsewhere / "x": b"precious x", elsewhere / "targets.csv": table}
     for p, data in files.items():
         p.write_bytes(data)
     return files
