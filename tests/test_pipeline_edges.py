@@ -91,3 +91,19 @@ def test_peer_digits_change_the_peers_not_the_model() -> None:
     assert (base.targets["peer_count"] < expected).all()
     coarse = analyze(p, spec=ModelSpec(measures=("book",), industry_digits=1))
     assert not np.allclose(coarse.targets["target"], base.targets["target"])
+
+
+def test_debt_to_target_is_a_recapitalisation() -> None:
+    p = _data(10)
+    r = analyze(p)
+    t = r.targets.merge(p[["firm_id", "fiscal_year", "total_debt", "total_assets",
+                           "market_equity"]], on=["firm_id", "fiscal_year"])
+    book, market = t[t["measure"] == "book"], t[t["measure"] == "market"]
+    np.testing.assert_allclose(book["debt_to_target"],
+                               book["target"] * book["total_assets"] - book["total_debt"],
+                               rtol=1e-12)
+    # market: debt plus market equity held fixed
+    np.testing.assert_allclose(
+        market["debt_to_target"],
+        market["target"] * (market["total_debt"] + market["market_equity"])
+        - market["total_debt"], rtol=1e-12)

@@ -72,6 +72,12 @@ ANALYSIS_FLAGS: dict[str, str] = {
     "from every other firm-year of the panel",
     "no_peers": "the only firm-year of the panel with this measure: no peer profile, no "
     "contributions",
+    "target_below_zero": "the target is below zero (linear model): debt to target repays all "
+    "debt",
+    "book_target_at_or_above_one": "a book target of 1 or more (linear model): debt to target "
+    "finances every asset",
+    "market_target_at_or_above_one": "a market target of 1 or more (linear model): debt to "
+    "target replaces every share",
     "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
 }
 """Flags the analysis adds to kept rows (beside those of validation)."""

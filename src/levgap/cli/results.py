@@ -53,12 +53,22 @@ def explain(
     year: int = typer.Option(None, "--year", help="Fiscal year (default: the firm's latest)."),
     measure: str = typer.Option("book", "--measure", help="book or market."),
     plot: Path = typer.Option(None, "--plot", help="Also draw the steps to a PNG or SVG file."),
+    add_debt: float = typer.Option(None, "--add-debt",
+                                   help="Show before and after this change in debt."),
+    fund_assets: bool = typer.Option(False, "--fund-assets",
+                                     help="With --add-debt: the debt buys new assets."),
 ) -> None:
     """Show why a firm's target differs from its peers', driver by driver.
 
     Example: levgap explain results/ TR0069 --year 2023 --plot steps.svg
     """
     with guard():
+        if add_debt is not None or fund_assets:  # the deal check's view of one change
+            from levgap.cli.deal import explain_change
+
+            if add_debt is None:
+                raise typer.BadParameter("needs --add-debt X.", param_hint="--fund-assets")
+            return explain_change(out_dir, firm_id, year, measure, add_debt, fund_assets)
         from levgap.report.tables import read_outputs
         from levgap.report.terminal import driver_steps, render_steps
 

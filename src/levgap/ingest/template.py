@@ -1,6 +1,7 @@
-"""The input template, generated from ``schema.py``: a CSV, its README and an example run.toml.
+"""The input template, generated from ``schema.py``: a CSV, its README, an example run.toml
+and an example deal scenario file (``deal.toml``, from ``levgap.ingest.deal_template``).
 
-``levgap template`` writes these three files (``levgap.report.files.write_template``); the
+``levgap template`` writes these four files (``levgap.report.files.write_template``); the
 repository's ``data_templates/`` holds the same text and a test keeps the two identical, so
 the documentation cannot drift from the schema the reader enforces.
 """
@@ -19,9 +20,10 @@ from levgap.codes import (
     REASONS,
     YEAR_RANGE,
 )
+from levgap.ingest.deal_template import deal_template
 from levgap.schema import COLUMNS, SCHEMA_VERSION, Column
 
-TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml")
+TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml", "deal.toml")
 
 # Invented example rows (a fictitious axle maker and a fictitious food co-operative); the
 # first row is the schema's own examples.
@@ -98,6 +100,8 @@ def template_readme() -> str:
 `panel_template.csv` shows the layout levgap reads: one row per firm and fiscal year,
 `firm_id` + `fiscal_year` unique. The example rows are invented. `run.toml` is an annotated
 run configuration (`levgap analyze PANEL --config run.toml`); every key in it is optional.
+`deal.toml` is an annotated deal scenario file (`levgap proforma RESULTS FIRM_ID --scenario
+deal.toml`), written for the demo's firm TR0144.
 
 Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without BOM), Parquet
 or XLSX (the first sheet, or `[input] sheet`; formulas are read as the values the spreadsheet
@@ -247,7 +251,7 @@ band_prior_rows = 10           # firm-years at which an industry's own spread se
 
 
 def template_files() -> dict[str, str]:
-    """File name -> text of the three template files.
+    """File name -> text of the four template files.
 
     Returns
     -------
@@ -257,4 +261,5 @@ def template_files() -> dict[str, str]:
         "panel_template.csv": template_csv(),
         "README.md": template_readme(),
         "run.toml": TEMPLATE_TOML,
+        "deal.toml": deal_template(),
     }

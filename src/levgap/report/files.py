@@ -16,7 +16,7 @@ __all__ = ["MARKER", "atomic_file", "atomic_write_bytes", "write_template"]
 
 
 def write_template(out_dir: str | Path) -> list[Path]:
-    """Write the input template: ``panel_template.csv``, ``README.md`` and ``run.toml``.
+    """Write the input template: ``panel_template.csv``, ``README.md``, ``run.toml``, ``deal.toml``.
 
     The files are generated from ``levgap.schema`` (see ``levgap.ingest.template``), so they
     need no repository checkout. A file of the same name is replaced only when levgap wrote
