@@ -248,7 +248,7 @@ def test_files_written_and_never_over_a_foreign_file(deal_run, tmp_path):
     mine.mkdir()
     (mine / "proforma.html").write_text("my notes")
     _one_line_error(_cli("proforma", deal_run.out, deal_run.firm, "--scenario", here, "--out",
-                         mine), "levgap must not replace a file it did not write")
+                         mine), "the file exists and levgap did not write it")
     assert (mine / "proforma.html").read_text() == "my notes"
     assert not (mine / "proforma.csv").exists()
 

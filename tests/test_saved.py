@@ -12,6 +12,7 @@ import levgap
 from levgap.config import ModelSpec
 from levgap.demo import make_panel
 from levgap.errors import OutputError
+from levgap.models.saved import FORMAT
 from levgap.pipeline import analyze
 
 KEY = ["firm_id", "fiscal_year", "measure"]
@@ -81,8 +82,20 @@ def test_new_rows_outside_the_fitted_range_are_flagged_not_silently_clipped(save
 
 
 def test_a_folder_without_a_saved_model_is_a_clear_error(tmp_path) -> None:
+    from levgap.outputs import RunWriter
+
+    # the folder is checked as one run first (levgap.outputs.verify_run)
+    with pytest.raises(OutputError, match="must hold levgap outputs"):
+        levgap.load_model(tmp_path)
+    for name, model in (("plain", None), ("other", {"format": "other", "run_id": "abc"}),
+                        ("mixed", {"format": FORMAT, "run_id": "another"})):
+        with RunWriter(tmp_path / name, run_id="abc") as run:
+            if model is not None:
+                run.add("model.json", json.dumps(model).encode("utf-8"))
+            run.commit({})
     with pytest.raises(OutputError, match="must hold model.json"):
-        levgap.load_model(tmp_path)
-    (tmp_path / "model.json").write_text(json.dumps({"format": "other"}), encoding="utf-8")
+        levgap.load_model(tmp_path / "plain")
     with pytest.raises(OutputError, match="levgap saved model"):
-        levgap.load_model(tmp_path)
+        levgap.load_model(tmp_path / "other")
+    with pytest.raises(OutputError, match="mixes two runs"):
+        levgap.load_model(tmp_path / "mixed")

@@ -457,7 +457,7 @@ def test_write_panel_and_sources_beside_it(tmp_path: Path, both: SecImport, suff
     src = pd.read_csv(sources_path, dtype=str, keep_default_na=False)
     assert list(src.columns) == list(SOURCE_COLUMNS) and len(src) == len(both.sources)
     assert sorted(p.name for p in out.parent.iterdir()) == sorted(
-        [out.name, "panel.sources.csv", "panel.excluded.csv"])  # no temporary file left
+        [out.name, "panel.sources.csv", "panel.excluded.csv", ".levgap-output"])  # no temp left
 
 
 def test_write_refuses_other_suffixes(tmp_path: Path, both: SecImport) -> None:

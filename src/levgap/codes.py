@@ -10,10 +10,13 @@ from levgap.schema import COLUMNS
 
 REASONS: dict[str, str] = {
     "non_numeric": "a required number (or fx_rate) holds text that is not a number",
-    "missing_value": "a required value is blank (or fx_rate is blank where several "
-    "currencies appear)",
+    "missing_value": "a required value is blank, or one of the blank tokens (or fx_rate is "
+    "blank where several currencies appear, including on a row with a blank currency)",
     "bad_fiscal_year": "fiscal_year is not a whole number between 1800 and 2200",
     "bad_fx_rate": "fx_rate is zero or negative",
+    "unknown_currency": "currency is not an ISO 4217 code",
+    "money_overflow": "a money value is beyond +/-1e300 after [units] scale and fx_rate (too "
+    "large to compute with)",
     "assets_not_positive": "total_assets is zero or negative",
     "negative_debt": "total_debt is negative",
     "negative_ppe": "ppe_net is negative",
@@ -45,6 +48,10 @@ NA_TOKENS: tuple[str, ...] = ("", "na", "n/a", "#n/a", "nan", "null", "none", "-
 """Cell texts (compared without case and surrounding spaces) read as a blank value."""
 
 YEAR_RANGE: tuple[int, int] = (1800, 2200)
+
+MONEY_LIMIT = 1e300
+"""Largest money value (after ``[units] scale`` and ``fx_rate``) a row may carry: ratios and
+sums of such values stay finite in float64 (whose largest value is about 1.8e308)."""
 
 
 ANALYSIS_FLAGS: dict[str, str] = {

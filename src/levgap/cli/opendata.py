@@ -51,6 +51,7 @@ def import_sec_command(
     with guard():
         from levgap.errors import ConfigError
         from levgap.ingest.sec import import_sec, write_sec_import
+        from levgap.outputs import refuse_inputs
 
         if all_industries and exclude_sic is not None:
             raise ConfigError(
@@ -58,6 +59,10 @@ def import_sec_command(
                 "Keep one."
             )
         ranges = None if all_industries else (exclude_sic or _DEFAULT_EXCLUDE)
+        sources = out.with_name(out.stem + ".sources.csv")  # as write_sec_import names them
+        excluded = out.with_name(out.stem + ".excluded.csv")
+        refuse_inputs([out, sources, excluded], [*quarters, *([prices] if prices else []),
+                                                 *([fx_rates] if fx_rates else [])])
         result = import_sec(quarters, forms=tuple(forms.split(",")),
                             restated=not as_first_filed, prices=prices, exclude_sic=ranges,
                             fx_rates=fx_rates, drop_subsidiaries=drop_subsidiaries,

@@ -548,8 +548,7 @@ def write_sec_import(result: SecImport, out_path: str | Path) -> tuple[Path, Pat
     excluded_path = out.with_name(out.stem + ".excluded.csv")
     # The project's one atomic writer (temporary name beside the target, then os.replace)
     # and its formula neutraliser for CSV cells.
-    from levgap.report.files import atomic_file
-    from levgap.report.tables import neutralise
+    from levgap.outputs import atomic_file, neutralise
 
     with atomic_file(out) as tmp:
         if suffix == ".csv":

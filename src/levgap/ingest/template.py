@@ -125,19 +125,32 @@ currency; outputs are in that unit.
 {cols}
 
 - `firm_id`, `industry`, `firm_name` and `currency` are text: leading zeros are kept
-  (`0457` stays `0457`); surrounding spaces are removed.
+  (`0457` stays `0457`); surrounding spaces and NUL bytes are removed. A code written as a
+  whole number with a `.0` fraction (`3711.0`, as spreadsheets export numbers) is the whole
+  number (`3711`) in `firm_id` and `industry`, as a number cell of a workbook is, so `3711`
+  and `3711.0` are one industry.
 - `fiscal_year` must be a whole number between {lo} and {hi} (`2021` or `2021.0`).
-- Numbers use `.` as the decimal mark unless `[input] decimal` says otherwise, and no
-  thousands separator unless `[input] thousands` gives one (a space there also accepts
-  no-break spaces). Exponents (`1.5e3`) and accounting negatives (`(12.5)` is -12.5) are
-  accepted; currency signs and `%` are not.
-- Blank values: {blanks} (case ignored) are read as a blank, not as text.
+- Numbers use `.` as the decimal mark unless `[input] decimal` says otherwise. A thousands
+  mark is read only where `[input] thousands` gives one (a space there also accepts no-break
+  spaces) or, with `decimal = ","`, as `.` when none is given; it must group the digits by
+  three: with `decimal = ","`, `147.782` is 147782 and `1.234.567,8` is 1234567.8, while
+  `1.5` is not a number (the row is excluded as `non_numeric`) rather than a guess. With
+  the default `decimal = "."`, `147.782` is 147.782 and `1,5` is not a number. Exponents
+  (`1.5e3`) and accounting negatives (`(12.5)` is -12.5) are accepted; currency signs and
+  `%` are not.
+- Blank values: {blanks} (case ignored) are read as a blank, not as text, in every column:
+  a `firm_id` of `NA` or `null` is a blank `firm_id` (reason `missing_value`).
 - `market_equity`: when blank, `shares_outstanding * share_price` is used where both are
   given.
+- `currency` must be an ISO 4217 code (case ignored; the list ships with levgap, withdrawn
+  codes such as `DEM` included); another value excludes the row (`unknown_currency`).
 - `currency` and `fx_rate`: when several currencies appear, or rows carry a currency other
   than `[units] currency`, a file without an `fx_rate` column is refused; with the column,
-  rows whose currency is not `[units] currency` need a value. A blank `fx_rate` otherwise
-  counts as 1.
+  every row whose currency is not `[units] currency` needs a value, a row with a blank
+  `currency` included (it is not assumed to be in the reference currency). A blank `fx_rate`
+  otherwise counts as 1.
+- Money after `[units] scale` and `fx_rate` must stay within +/-1e300 (ratios and sums of
+  larger values overflow); a row beyond it is excluded (`money_overflow`).
 
 ## What happens to each row
 
@@ -212,10 +225,11 @@ beside the columns above, `industry_name` (the SEC's title of the SIC code),
 - a `[columns]` entry names a header the file lacks, or a column matches several headers;
 - several currencies, or a currency other than `[units] currency`, without an `fx_rate`
   column;
-- the file cannot be read: not CSV/Parquet/XLSX, an unclosed quote in the header, a row with
-  more or fewer fields than the header (the message names the row), bytes that are not text
-  in the configured `[input] encoding`. Without a configured encoding, text that is not UTF-8
-  is read as Windows-1252/Latin-1 with a warning.
+- the file cannot be read: not CSV/Parquet/XLSX, not a regular file (a device or a pipe), an
+  unclosed quote in the header, a row with more or fewer fields than the header (the message
+  names the row), bytes that are not text in the configured `[input] encoding`. Without a
+  configured encoding, text that is not UTF-8 is read as Windows-1252/Latin-1 with a
+  warning, and UTF-16 without a byte-order mark is refused (set `[input] encoding`).
 """
 
 

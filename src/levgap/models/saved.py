@@ -25,6 +25,7 @@ from levgap.config import ModelSpec
 from levgap.errors import ModelError, OutputError
 from levgap.groups import WHOLE_SAMPLE
 from levgap.models.result import Fit
+from levgap.outputs import saved_model_file
 from levgap.transforms import DriverTransforms
 
 if TYPE_CHECKING:
@@ -343,7 +344,7 @@ def load_model(results_dir: str | Path) -> SavedModel:
     OutputError
         The folder has no readable ``model.json`` of a format this levgap knows.
     """
-    path = Path(results_dir) / MODEL_FILE
+    path = saved_model_file(results_dir, MODEL_FILE)  # the run verified first (levgap.outputs)
     try:
         record = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:

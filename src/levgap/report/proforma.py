@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING, Any
 import pandas as pd
 
 from levgap.errors import OutputError
-from levgap.report.files import MARKER, atomic_write_bytes
+from levgap.outputs import atomic_write_bytes
 
 if TYPE_CHECKING:
     from levgap.deal.result import DealCheck
@@ -38,8 +38,8 @@ CAUTION = (
 def write_proforma(check: DealCheck, out_dir: str | Path, *, force: bool = False) -> list[Path]:
     """Write the three deal-check files into ``out_dir``, atomically.
 
-    A file of the same name that levgap did not write (not listed in the folder's output
-    marker) is never replaced.
+    A file of the same name that levgap did not write (or that changed since) is never
+    replaced; each file written is recorded in the folder's output marker.
 
     Parameters
     ----------
@@ -59,18 +59,11 @@ def write_proforma(check: DealCheck, out_dir: str | Path, *, force: bool = False
     OutputError
         A file of the same name that levgap did not write, or a folder that cannot be written.
     """
-    from levgap.report.tables import neutralise
+    from levgap.outputs import neutralise
 
     del force
     out = Path(out_dir)
-    listed = check_destination(out)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-        marker = "\n".join(sorted(listed | set(NAMES))) + "\n"
-        atomic_write_bytes(out / MARKER, marker.encode("utf-8"))
-    except OSError as exc:
-        raise OutputError(f"{out}: the output folder must be writable; got "
-                          f"{exc.strerror or exc}.") from None
+    check_destination(out)
     csv = neutralise(check.table).to_csv(index=False, lineterminator="\r\n")
     atomic_write_bytes(out / NAMES[0], csv.encode("utf-8"))
     body = json.dumps(proforma_json(check), indent=2, allow_nan=False, default=str)
@@ -79,31 +72,23 @@ def write_proforma(check: DealCheck, out_dir: str | Path, *, force: bool = False
     return [out / n for n in NAMES]
 
 
-def check_destination(out_dir: str | Path) -> set[str]:
+def check_destination(out_dir: str | Path) -> None:
     """Refuse a destination that is a file or holds a deal-check file levgap did not write.
 
-    Returns
-    -------
-    set of str
-        The names the folder's output marker lists (empty for a new folder).
+    Each file is checked as every single-file writer checks it (``levgap.outputs``): absent,
+    or written by levgap there and unchanged since; never a file of a run.
 
     Raises
     ------
     OutputError
     """
-    from levgap.report.tables import _marker_names
+    from levgap.outputs import check_replaceable
 
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise OutputError(f"{out}: --out must be a folder; got a file. Choose another --out.")
-    listed = _marker_names(out) if out.is_dir() else set()
-    clash = [n for n in NAMES if (out / n).exists() and n not in listed]
-    if clash:
-        raise OutputError(
-            f"{out / clash[0]}: levgap must not replace a file it did not write; got an "
-            "existing file of that name. Choose another --out, or move the file."
-        )
-    return listed
+    for name in NAMES:
+        check_replaceable(out / name)
 
 
 def _clean(v: Any) -> Any:
