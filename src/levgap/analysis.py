@@ -19,10 +19,12 @@ ProgressFn = Callable[[str, int, int], None]
 TARGET_COLUMNS = (
     "firm_id", "firm_name", "fiscal_year", "industry", "measure", "actual", "target", "gap",
     "gap_z", "band_low", "band_high", "status", "peer_median", "peer_count", "peer_target",
-    "debt_to_target", "target_full", "fold", "flags",
+    "debt_to_target", "target_full", "fold", "gap_prev", "gap_change", "gap_mean_prior",
+    "years_outside", "flags",
 )
 DRIVER_COLUMNS = (
-    "firm_id", "fiscal_year", "measure", "driver", "firm_value", "peer_value", "contribution"
+    "firm_id", "fiscal_year", "measure", "driver", "firm_value", "raw_value", "peer_value",
+    "contribution"
 )
 COEF_COLUMNS = (
     "measure", "model", "term", "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high"
@@ -46,9 +48,11 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
 
 COLUMN_KINDS: dict[str, str] = {
     **dict.fromkeys(("fiscal_year", "peer_count", "n_obs", "n_firms", "n_industries",
-                     "source_row", "fold", "coverage_industries", "out_of_time_year"), "integer"),
+                     "source_row", "fold", "coverage_industries", "out_of_time_year",
+                     "years_outside"), "integer"),
     **dict.fromkeys(("actual", "target", "gap", "gap_z", "band_low", "band_high", "peer_median",
                      "peer_target", "debt_to_target", "target_full", "firm_value", "peer_value",
+                     "raw_value", "gap_prev", "gap_change", "gap_mean_prior",
                      "contribution", "estimate", "std_error", "t_stat", "p_value", "ci_low",
                      "ci_high", "r2", "r2_oos", "rmse_oos", "coverage", "coverage_industry_min",
                      "coverage_industry_max", "coverage_out_of_time"), "number"),
