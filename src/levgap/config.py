@@ -18,7 +18,8 @@ A run configuration has four tables; every key is optional::
 
     [units]
     scale = 1.0          # multiply every money column by this (0.001: thousands -> millions)
-    currency = "EUR"     # reference currency, for the record
+    currency = "EUR"     # reference currency, for the record and the labels
+    unit = "millions"    # the money unit after scale, for the labels
 
     [industries]         # text labels: parent groups (pooling, peers) and names
     "Motor homes" = { parent = "Vehicles", name = "Motor homes and campers" }
@@ -142,18 +143,25 @@ class Units:
         Every money column is multiplied by this on reading.
     currency : str or None, default=None
         Reference currency, recorded in ``run.json``.
+    unit : str or None, default=None
+        The money unit after ``scale`` in words (``"millions"``), for labels: money figures
+        then read, say, "EUR millions".
     """
 
     TABLE: ClassVar[str] = "units"
 
     scale: float = 1.0
     currency: str | None = None
+    unit: str | None = None
 
     def __post_init__(self) -> None:
         if isinstance(self.scale, int | float) and not isinstance(self.scale, bool) and not (
                 0 < self.scale < float("inf")):
             raise ConfigError(f"[units] scale must be a number > 0; got {self.scale!r}.")
         check_fields(self)
+        if self.unit is not None and not self.unit.strip():
+            raise ConfigError(f"[units] unit must be a non-empty text such as 'millions'; got "
+                              f"{self.unit!r}.")
         if self.currency is not None:
             from levgap.currencies import CURRENCIES
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import os
 import re
 from collections.abc import Iterator
 from pathlib import Path
@@ -16,6 +17,9 @@ if TYPE_CHECKING:
     from levgap.config import RunConfig
 
 MEASURE_CHOICES = ("book", "market", "both")
+TOP_HELP = "Firms shown per list: the N furthest from their targets."
+"""What ``--top N`` means, in every command that has it."""
+TOP_DEFAULT = 10
 BIG_PANEL = 50_000  # rows above which a progress bar is shown
 
 
@@ -93,8 +97,9 @@ def rich_console(stderr: bool = False) -> Any:
 
     # markup off: data and messages hold square brackets ([input], firm names) to show as is
     con = Console(stderr=stderr, highlight=False, soft_wrap=False, markup=False)
-    if not con.is_terminal:
-        # Piped or captured output: wide enough that tables are not cut to 80 columns.
+    if not con.is_terminal and "COLUMNS" not in os.environ:
+        # Piped or captured output: wide enough that tables are not cut to 80 columns (a
+        # COLUMNS setting, the terminal convention, is honoured as rich honours it).
         con = Console(stderr=stderr, highlight=False, soft_wrap=False, markup=False, width=160)
     return con
 
