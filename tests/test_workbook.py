@@ -15,7 +15,7 @@ from _report_data import make_outputs
 from levgap.errors import DataWarning, OutputError
 from levgap.report import workbook as wbmod
 from levgap.report.tables import neutralise
-from levgap.report.workbook import SHEETS, write_workbook
+from levgap.report.workbook import SHEETS, readable_targets, write_workbook
 
 
 @pytest.fixture(scope="module")
@@ -43,6 +43,8 @@ def test_five_sheets_frozen_headers_autofilter(book, outputs):
     for sheet, key in sizes.items():
         ws = wb[sheet]
         frame = tables[key]
+        if sheet == "Targets":  # the words beside the codes
+            frame = readable_targets(frame, outputs[1])
         assert ws.freeze_panes == "A2", sheet
         last = openpyxl.utils.get_column_letter(frame.shape[1])
         assert ws.auto_filter.ref == f"A1:{last}{len(frame) + 1}", sheet
@@ -72,8 +74,15 @@ def test_no_formula_cells(book):
 def test_values_round_trip(book, outputs):
     path, _ = book
     tables, _ = outputs
-    expected = neutralise(tables["targets"])
+    expected = neutralise(readable_targets(tables["targets"], outputs[1]))
     got = pd.read_excel(path, sheet_name="Targets", engine="openpyxl")
+    cols = list(got.columns)
+    assert cols[cols.index("industry") + 1] == "industry_name"
+    assert cols[cols.index("flags") + 1] == "flag_notes"
+    flagged = got[got["flags"].fillna("").str.startswith("volatility_imputed")]
+    assert len(flagged)
+    assert flagged["flag_notes"].str.startswith("volatility_imputed: fewer than three").all()
+    assert (got["flag_notes"].isna() == (got["flags"].fillna("") == "")).all()
     assert list(got.columns) == list(expected.columns)
     for col in ("actual", "target", "gap", "gap_z", "debt_to_target", "peer_target"):
         np.testing.assert_array_equal(got[col].to_numpy(float), expected[col].to_numpy(float))
