@@ -121,8 +121,13 @@ def test_number_formats(book):
 def test_summary(book, outputs):
     _, wb = book
     tables, manifest = outputs
-    items = {r[0]: r[1] for r in wb["Summary"].iter_rows(min_row=2, values_only=True) if r[0]}
+    rows = list(wb["Summary"].iter_rows(min_row=2, values_only=True))
+    cut = next(i for i, r in enumerate(rows) if r[0] and str(r[0]).startswith("Glossary"))
+    items = {r[0]: r[1] for r in rows[:cut] if r[0]}
     assert items["firms"] == manifest["counts"]["firms"]
+    glossary = {r[0]: r[1:4] for r in rows[cut + 2:] if r[0]}
+    assert glossary["gap"] == ("gap", "pp", "actual minus target")
+    assert glossary["debt_to_target"][0] == "debt to target"
     assert items["standard errors clustered by"] == "firm"
     assert items["input file"] == "panels/<odd> name.csv"
     assert "not investment, credit or legal advice" in items["caution"]

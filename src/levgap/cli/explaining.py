@@ -19,8 +19,7 @@ from levgap.cli.app import app
 from levgap.cli.common import console, guard, plain
 
 
-@app.command(short_help="Show why a firm's target differs from its peers', driver by driver, "
-             "with its gap history, its flags in words and (--peers) its peers.")
+@app.command()
 def explain(
     out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
     firm_id: str = typer.Argument(..., help="The firm's firm_id (case ignored) or part of its "

@@ -163,8 +163,7 @@ def _legend(rows: Sequence[dict[str, Any]], width: int) -> list[str]:
     return lines
 
 
-@app.command(short_help="List the firms furthest from their targets, or a coverage list, as a "
-             "table, CSV or JSON.")
+@app.command()
 def screen(
     out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
     measure: str = typer.Option("book", "--measure", help="book or market."),

@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
+from levgap import glossary as g
 from levgap.errors import OutputError
 from levgap.outputs import atomic_write_bytes
 
@@ -181,7 +182,7 @@ def terminal_tables(check: DealCheck) -> list[Any]:
                   title_justify="left")
         width = min(max(len(str(x)) for x in rows["scenario"]), 24)
         t.add_column("scenario", min_width=width, no_wrap=True, overflow="ellipsis")
-        for col in ("actual", "target", "band", "status", "gap pp", "to top (recap)",
+        for col in ("actual", "target", "band", "status", g.header("gap"), "to top (recap)",
                     "to top (funded)", "ND/EBITDA", "EBITDA/int", "Altman", "PD 1y"):
             t.add_column(col, justify="left" if col in ("status", "Altman") else "right",
                          no_wrap=True)
