@@ -242,7 +242,10 @@ def screen(
                                con.width, g.money_unit(units) if known else "",
                                SORTS[sort] if sort else None))
         if not known:
-            con.print(g.money_note(units))
+            import textwrap
+
+            for line in textwrap.wrap(g.money_note(units), width=max(con.width, 40)):
+                con.print(line)
         legend = _legend(result.rows, con.width)
         if legend:
             con.print("Flags:")
