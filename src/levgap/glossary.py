@@ -136,8 +136,7 @@ CLUSTERS: dict[str, str] = {"firm": "firm", "firm-year": "firm and year (two-way
 MEASURES: dict[str, str] = {"book": "book leverage", "market": "market leverage"}
 """Each measure's name."""
 
-_PLURALS = {"industry": "industries", "firm-year": "firm-years", "year": "years",
-            "peer": "peers", "firm": "firms", "row": "rows"}
+_PLURALS = {"industry": "industries"}  # the others take an "s"
 
 
 def label(key: str) -> str:

@@ -167,36 +167,3 @@ def stepper(bar: Any) -> Any:
         bar.update(tasks[stage], completed=done)
 
     return step
-
-
-
-def screen_table(rows: list[dict[str, Any]], title: str) -> Any:
-    from rich.table import Table
-
-    table = Table(title=plain(title), title_justify="left")
-    for col, just in (("firm", "left"), ("name", "left"), ("industry", "left"),
-                      ("year", "right"), ("actual", "right"), ("target", "right"),
-                      ("gap pp", "right"), ("gap z", "right"), ("band", "right"),
-                      ("status", "left")):
-        table.add_column(col, justify=just)  # type: ignore[arg-type]
-    for r in rows:
-        z = r["gap_z"]
-        table.add_row(
-            plain(r["firm_id"]), plain(r["firm_name"] or ""), plain(r["industry"]),
-            plain(r["fiscal_year"]), _pct(r["actual"]), _pct(r["target"]),
-            _num(r["gap"], 100, "+.1f"), _num(z, 1, "+.2f"),
-            f"{_pct(r['band_low'])} to {_pct(r['band_high'])}", plain(r["status"]),
-        )
-    return table
-
-
-def _num(v: Any, scale: float, spec: str) -> str:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return ""
-    return "" if f != f else format(scale * f, spec)
-
-
-def _pct(v: Any) -> str:
-    return _num(v, 1, ".1%")

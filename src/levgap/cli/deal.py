@@ -81,8 +81,8 @@ def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, 
         table.add_column(col, justify="left" if not col else "right")
     for name, col, fmt in (("total debt", "total_debt", money), ("total assets",
                            "total_assets", money), ("actual", "actual", pct),
-                           ("target", "target", pct), ("band low", "band_low", pct),
-                           ("band high", "band_high", pct), ("status", "status", str),
+                           ("target", "target", pct), (g.label("band_low"), "band_low", pct),
+                           (g.label("band_high"), "band_high", pct), ("status", "status", str),
                            (g.header("gap"), "gap", pp), (g.label("gap_z"), "gap_z", num),
                            ("debt to band top (recap)", "capacity_to_band_top_recap", money),
                            ("net debt / EBITDA", "net_debt_to_ebitda", num)):
