@@ -264,3 +264,21 @@ def test_fabricated_outputs_use_the_real_codes(outputs):
     flags = {f for cell in tables["targets"]["flags"] for f in cell.split(";") if f}
     assert flags and flags <= {*FLAGS, *ANALYSIS_FLAGS}
     assert set(manifest["counts"]["by_reason"]) <= set(REASONS)
+
+
+@pytest.mark.slow
+def test_every_firm_of_50000_fits_a_page_under_10_mb():
+    """Issue 13's size goal: 50,000 firms of the reported year, ten years of history and both
+    measures (500,000 firm-years, 5 million driver rows), with every firm in the table."""
+    from levgap.report.universe import decode, unpack
+
+    tables, manifest = make_outputs(50_000, 10, seed=4)
+    page = render_report(tables, manifest)
+    size = len(page.encode("utf-8"))
+    assert size < 10_000_000, size
+    data = decode(re.search(r'id="u-data">([^<]*)</script>', page).group(1))
+    assert len(data["ids"]) == 50_000
+    for measure in ("book", "market"):
+        part = data["m"][measure]
+        assert len(unpack(part["a"])) == 50_000
+        assert sum(unpack(part["hn"])) == 500_000  # every firm's ten years

@@ -33,25 +33,35 @@ HISTORY = 100  # history for the chart: units of 1 percentage point
 _DIGITS = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789-_"
 
 
-def pack(values: list[int | None]) -> str:
-    """Whole numbers (or None) as text: each value zigzag-coded (0, -1, 1, -2, ... ->
-    0, 1, 2, 3, ...), plus one (0 is None), written in groups of five bits, low group first,
-    one character of ``_DIGITS`` per group, the 32-bit set on all groups but the last. Small
-    numbers take one character; gzip then squeezes what repeats. ``universe.js`` unpacks it.
+def pack(values: Any) -> str:
+    """Whole numbers (None or NaN: missing) as text: each value zigzag-coded (0, -1, 1, -2,
+    ... -> 0, 1, 2, 3, ...), plus one (0 is missing), written in groups of five bits, low group
+    first, one character of ``_DIGITS`` per group, the 32-bit set on all groups but the last.
+    Small numbers take one character; gzip then squeezes what repeats. ``universe.js``
+    unpacks it.
 
     Examples
     --------
     >>> pack([0, -1, 1, None, 40])
     'BCDAxC'
     """
-    out = []
-    for v in values:
-        u = 0 if v is None else (2 * v if v >= 0 else -2 * v - 1) + 1
-        while u >= 32:
-            out.append(_DIGITS[(u & 31) | 32])
-            u >>= 5
-        out.append(_DIGITS[u])
-    return "".join(out)
+    v = np.array([np.nan if x is None else x for x in values], dtype=float) \
+        if isinstance(values, list) else np.asarray(values, dtype=float)
+    if v.size == 0:
+        return ""
+    missing = ~np.isfinite(v)
+    w = np.where(missing, 0, v).astype(np.int64)
+    u = np.where(missing, 0, np.where(w >= 0, 2 * w, -2 * w - 1) + 1).astype(np.uint64)
+    groups = max(1, -(-int(u.max()).bit_length() // 5))
+    shifts = (5 * np.arange(groups)).astype(np.uint64)
+    parts = u[:, None] >> shifts[None, :]
+    exists = parts > 0
+    exists[:, 0] = True
+    last = exists.sum(axis=1) - 1
+    digit = (parts & np.uint64(31)).astype(np.int64)
+    digit += 32 * (np.arange(groups)[None, :] < last[:, None])
+    table = np.frombuffer(_DIGITS.encode("ascii"), dtype=np.uint8)
+    return table[digit[exists]].tobytes().decode("ascii")
 
 
 def unpack(text: str) -> list[int | None]:
@@ -69,13 +79,8 @@ def unpack(text: str) -> list[int | None]:
     return out
 
 
-def _list(values: Any, scale: float) -> list[int | None]:
-    a = np.round(np.asarray(values, dtype=float) * scale)
-    return [None if not math.isfinite(v) else int(v) for v in a.tolist()]
-
-
 def _ints(values: Any, scale: float) -> str:
-    return pack(_list(values, scale))
+    return pack(np.round(np.asarray(values, dtype=float) * scale))
 
 
 def _decimals(values: np.ndarray) -> int:
@@ -125,7 +130,7 @@ def firm_payload(targets: pd.DataFrame, drivers: pd.DataFrame, manifest: Mapping
     ind_pos = {c: i for i, c in enumerate(industries)}
     years = sorted(int(y) for y in targets["fiscal_year"].unique())
     year_pos = {y: i for i, y in enumerate(years)}
-    names = [d for d in dict.fromkeys(drivers["driver"].astype(str))]
+    names = [str(d) for d in pd.unique(drivers["driver"])]
     k = len(names)
     dnow = drivers[drivers["fiscal_year"] == year]
     # firm values are the same in every measure: one per firm and driver
@@ -144,7 +149,7 @@ def firm_payload(targets: pd.DataFrame, drivers: pd.DataFrame, manifest: Mapping
     raw_list: list[float] = []
     for i, j in raw_at.tolist():
         raw_list += [i * k + j, float(f"{raw[i, j]:.4g}")]
-    flag_texts = sorted(set(targets["flags"].fillna("").astype(str)))
+    flag_texts = sorted(str(f) for f in pd.unique(targets["flags"].fillna("")))
     flag_pos = {f: i for i, f in enumerate(flag_texts)}
     words = {code: text for f in flag_texts for code, text in flag_words(f)}
     measures: dict[str, Any] = {}
@@ -196,7 +201,7 @@ def _measure_part(targets: pd.DataFrame, drivers: pd.DataFrame, measure: str, ye
         q = np.round(values * HISTORY)
         return _ints(np.where(first, q, q - np.r_[0.0, q[:-1]]), 1)
 
-    hy = np.array([year_pos[int(y)] for y in h["fiscal_year"]], dtype=float)
+    hy = h["fiscal_year"].map(year_pos).to_numpy(dtype=float)
     act, tgt = h["actual"].to_numpy(dtype=float), h["target"].to_numpy(dtype=float)
     rows = np.array([firm_pos[f] for f in ids], dtype=float)
     target = np.round(now["target"].to_numpy(dtype=float) * LEVEL)
@@ -220,7 +225,8 @@ def _measure_part(targets: pd.DataFrame, drivers: pd.DataFrame, measure: str, ye
         "ha": delta(act), "ht": delta(tgt),
         "hl": _ints(h["band_low"].to_numpy(dtype=float) - tgt, HISTORY),
         "hh": _ints(h["band_high"].to_numpy(dtype=float) - tgt, HISTORY),
-        "hs": pack([STATUS.index(s) if s in STATUS else 1 for s in h["status"].astype(str)]),
+        "hs": pack(h["status"].map({x: i for i, x in enumerate(STATUS)}).fillna(1)
+                   .astype(int).tolist()),
     }
 
 
