@@ -103,3 +103,38 @@ def test_a_run_that_reports_one_year_keeps_the_earlier_years_history() -> None:
     for name in HISTORY_COLUMNS:
         np.testing.assert_allclose(got[name].to_numpy(float), want[name].to_numpy(float),
                                    rtol=0, atol=1e-12, err_msg=name)
+
+
+def test_a_folder_written_before_the_history_columns_stays_readable(tmp_path) -> None:
+    """A run written before issue 13 has no history columns nor raw_value: every reader
+    computes the history from the targets' own rows (and leaves raw_value blank)."""
+    import dataclasses
+    import json
+
+    from typer.testing import CliRunner
+
+    import levgap
+    from levgap.cli import app
+    from levgap.config import ModelSpec
+    from levgap.demo import make_panel
+
+    result = levgap.analyze(make_panel(seed=19).query("fiscal_year >= 2019"),
+                            spec=ModelSpec(measures=("book",)))
+    old_flags = result.targets["flags"].str.replace(
+        r"(^|;)(persistent|newly_outside)(?=;|$)", "", regex=True).str.strip(";")
+    old = dataclasses.replace(
+        result, targets=result.targets.drop(columns=list(HISTORY_COLUMNS)).assign(
+            flags=old_flags), drivers=result.drivers.drop(columns=["raw_value"]))
+    old.write(tmp_path / "old", report=False)
+    res = levgap.open_results(tmp_path / "old")
+    for name in HISTORY_COLUMNS:
+        np.testing.assert_allclose(res.targets[name].to_numpy(float),
+                                   result.targets[name].to_numpy(float), atol=1e-12)
+    assert res.drivers["raw_value"].isna().all()
+    screen = CliRunner().invoke(app, ["screen", str(tmp_path / "old"), "--persistent",
+                                      "--format", "json"])
+    rows = json.loads(screen.stdout)["rows"]
+    t = result.targets
+    want = t[(t["fiscal_year"] == 2023) & t["flags"].str.contains("persistent")]
+    assert sorted(r["firm_id"] for r in rows) == sorted(want["firm_id"])
+    assert {r["years_outside"] for r in rows} <= set(want["years_outside"])

@@ -36,6 +36,14 @@ FIT_COLUMNS = (
 )
 FOLD_COEF_COLUMNS = ("measure", "model", "fold", "term", "estimate")
 
+ADDED_COLUMNS: dict[str, tuple[str, ...]] = {
+    "targets": ("gap_prev", "gap_change", "gap_mean_prior", "years_outside"),
+    "drivers": ("raw_value",),
+}
+"""Columns a run writes since the analyst's screen (issue 13). A folder written before lacks
+them and stays readable: the readers compute the history from the targets' own rows and leave
+``raw_value`` blank (``fill_added_columns``)."""
+
 TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "targets": TARGET_COLUMNS,
     "drivers": DRIVER_COLUMNS,
@@ -92,7 +100,9 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
 
         wanted = V01_COLUMNS.get(name, ())
     else:
-        wanted = TABLE_COLUMNS.get(name, ())
+        added = ADDED_COLUMNS.get(name, ())
+        wanted = tuple(c for c in TABLE_COLUMNS.get(name, ())
+                       if c in found or c not in added)
     missing = [c for c in wanted if c not in found]
     if missing:
         raise OutputError(
@@ -111,6 +121,24 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
                 f"{f' such as {shown}' if shown else ''}. The file was edited or damaged; "
                 "re-run `levgap analyze`."
             )
+
+
+def fill_added_columns(name: str, frame: pd.DataFrame) -> pd.DataFrame:
+    """A table of a run written before ``ADDED_COLUMNS`` existed, with them: the history from
+    the targets' own rows (``levgap.history.with_history``), ``raw_value`` blank."""
+    missing = [c for c in ADDED_COLUMNS.get(name, ()) if c not in frame.columns]
+    if not missing:
+        return frame
+    if name == "targets":
+        from levgap.history import with_history
+
+        return with_history(frame)
+    import numpy as np
+
+    out = frame.copy()
+    at = list(out.columns).index("firm_value") + 1 if "firm_value" in out else len(out.columns)
+    out.insert(at, "raw_value", np.nan)
+    return out
 
 
 @dataclass(frozen=True, slots=True)

@@ -11,9 +11,9 @@ import typer
 from levgap import glossary as g
 from levgap.cli.app import app
 from levgap.cli.common import (
+    BIG_PANEL,
     TOP_DEFAULT,
     TOP_HELP,
-    BIG_PANEL,
     collect_notes,
     console,
     echo,

@@ -111,9 +111,10 @@ def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
 def proforma_json(check: DealCheck) -> dict[str, Any]:
     """Everything the page shows, as JSON-ready data (NaN as null, infinity as text)."""
     grids: dict[str, dict[str, Any]] = {}
-    for (scenario, measure), g in check.tradeoff.groupby(["scenario", "measure"], sort=False):
+    for (scenario, measure), grid in check.tradeoff.groupby(["scenario", "measure"],
+                                                             sort=False):
         grids.setdefault(str(scenario), {})[str(measure)] = {
-            c: _clean(g[c].tolist()) for c in ("debt", "tax_shield", "default_probability",
+            c: _clean(grid[c].tolist()) for c in ("debt", "tax_shield", "default_probability",
                                                "distress_cost", "net")}
     import levgap
 

@@ -69,7 +69,45 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
         if c in table.column_names and not pa.types.is_string(table[c].type):
             i = table.column_names.index(c)
             table = table.set_column(i, c, table[c].cast(pa.string()))
+    if "gap_prev" not in table.column_names and run.run_id is not None:
+        table = _with_history(table)
     return table.select(list(columns)) if columns else table
+
+
+def _with_history(table: Any) -> Any:
+    """A targets table written before the history columns existed, with them
+    (``levgap.history``). Only for such folders: building the new columns lets pyarrow load
+    pandas."""
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    from levgap.history import HISTORY_COLUMNS, SIDES, history_arrays
+
+    def codes(column: str) -> Any:
+        enc = pc.dictionary_encode(table[column]).combine_chunks()
+        return np.asarray(enc.indices.to_numpy(zero_copy_only=False)), enc.dictionary
+
+    firm, _ = codes("firm_id")
+    measure, _ = codes("measure")
+    status, labels = codes("status")
+    side = np.array([SIDES.get(v, 0) for v in labels.to_pylist()], dtype=np.int64)[status]
+    gap = np.asarray(table["gap"].to_numpy(), dtype=float)
+    hist = history_arrays(measure.astype(np.int64) * (int(firm.max()) + 1) + firm,
+                          np.asarray(table["fiscal_year"].to_numpy()), gap, side)
+    flags = table["flags"].to_pylist()
+    for code, mask in hist.pop("flags").items():
+        for i in np.flatnonzero(mask):
+            flags[i] = f"{flags[i]};{code}" if flags[i] else code
+    at = table.column_names.index("flags")
+    for name in HISTORY_COLUMNS:
+        values = hist[name]
+        arr = pa.array(values, mask=np.isnan(values)) if values.dtype.kind == "f" \
+            else pa.array(values)
+        table = table.add_column(at, name, arr)
+        at += 1
+    return table.set_column(table.column_names.index("flags"), "flags",
+                            pa.array(flags, type=pa.string()))
 
 
 def _kind(col: Any) -> str:
