@@ -256,6 +256,8 @@ def screen_rows(table: Any, query: ScreenQuery,
         want = query.industry.strip().casefold()
         hit = [c for c in codes if unneutralise(c).casefold() == want
                or want in names.get(unneutralise(c), "").casefold()]
+        if not hit and not want.isdigit():  # a text label: part of it, as part of a name
+            hit = [c for c in codes if want in unneutralise(c).casefold()]
         if not hit:
             shown = [unneutralise(c) for c in codes] + [names[c] for c in map(unneutralise, codes)
                                                          if c in names]

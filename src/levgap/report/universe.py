@@ -212,6 +212,10 @@ def _measure_part(targets: pd.DataFrame, drivers: pd.DataFrame, measure: str, ye
         "lo": _ints(target - np.round(now["band_low"].to_numpy(dtype=float) * LEVEL), 1),
         "hi": _ints(np.round(now["band_high"].to_numpy(dtype=float) * LEVEL) - target, 1),
         "z": _ints(now["gap_z"], 100), "debt": _ints(now["debt_to_target"], 10),
+        # the gap and the peers' offset packed themselves, not as differences of rounded
+        # levels, so the page shows the figures explain and screen show
+        "g": _ints(now["gap"], LEVEL),
+        "po": _ints(now["peer_target"] - now["peer_median"], LEVEL),
         "pm": _ints(now["peer_median"], LEVEL), "pt": _ints(now["peer_target"], LEVEL),
         "pc": _ints(now["peer_count"], 1), "yo": _ints(now["years_outside"], 1),
         "gp": _ints(now["gap_prev"], LEVEL),
