@@ -139,8 +139,10 @@ def test_band_survives_its_json_form() -> None:
     for name in ("scale", "own_scale", "rows"):
         np.testing.assert_array_equal(getattr(back, name), getattr(band, name), err_msg=name)
         assert getattr(back, name).dtype == getattr(band, name).dtype, name
-    ints = Band.from_dict({**band.to_dict(), "scale": [1, 2, 3], "own_scale": [1, None, 3]})
+    ints = Band.from_dict({**band.to_dict(), "scale": [1, 2, 3], "own_scale": [1, None, 3],
+                           "rows": [40.0, 0.0, 30.0]})
     assert ints.scale.dtype == float and ints.own_scale.dtype == float
+    assert ints.rows.dtype == np.int64
 
 
 def test_robust_scale_of_no_or_one_residual() -> None:

@@ -161,3 +161,21 @@ def test_learned_limits_hold_each_years_quantiles(quantiles) -> None:
         assert values["tangibility"][sel].max() == pytest.approx(hi)
         assert clipped[sel].sum() == ((raw["tangibility"][sel] < lo)
                                       | (raw["tangibility"][sel] > hi)).sum()
+
+
+def test_a_value_equal_to_its_limit_is_not_clipped() -> None:
+    # 101 values: the 1% and 99% quantiles are the second smallest and second largest values
+    values = np.random.default_rng(4).permutation(np.arange(101.0))
+    year = np.full(101, 2020)
+    limits = year_limits(values, year, np.array([2020]), 0.01, 0.99)
+    np.testing.assert_array_equal(limits, [[1.0, 99.0]])
+    out, hit = clip_to_limits(values, year, np.array([2020]), limits)
+    assert hit.sum() == 2 and set(values[hit]) == {0.0, 100.0}
+    assert out.min() == 1.0 and out.max() == 99.0
+
+
+def test_json_numbers_are_read_as_the_types_they_stand_for() -> None:
+    t = DriverTransforms.from_dict({"quantiles": [0, 1], "years": [2020.0, 2021.0],
+                                    "limits": {"x": [[0, 1], [2, 3]]}, "medians": {}})
+    assert t.years.dtype == np.int64 and t.limits["x"].dtype == float
+    assert t.quantiles == (0.0, 1.0) and isinstance(t.quantiles[1], float)
