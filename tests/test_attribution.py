@@ -36,6 +36,7 @@ def test_loo_median_equals_brute_force(rows: list[tuple[int, float]]) -> None:
     ref_med, ref_cnt = _brute(values, groups)
     np.testing.assert_allclose(med, ref_med, equal_nan=True)
     np.testing.assert_array_equal(cnt, ref_cnt)
+    assert cnt.dtype == np.int64
 
 
 def test_peer_profile_falls_back_to_wider_group() -> None:
@@ -113,6 +114,7 @@ def test_medians_of_every_column_equal_brute_force(seed: int, n: int, k: int,
         ref_med, ref_cnt = _brute(X[:, j], groups)
         np.testing.assert_allclose(med, ref_med, rtol=0, atol=1e-15, equal_nan=True)
         np.testing.assert_array_equal(cnt, ref_cnt)
+        assert cnt.dtype == np.int64
 
 
 def test_wider_level_is_computed_over_whole_groups_only_where_needed() -> None:
@@ -128,6 +130,20 @@ def test_wider_level_is_computed_over_whole_groups_only_where_needed() -> None:
     np.testing.assert_array_equal(level, [0, 0, 0, 1, 0, 0])
     alone = peer_profile(np.array([[1.0], [2.0]]), [[(None, np.array([0, 1]))]])
     assert np.isnan(alone[0]).all() and (alone[1] == 0).all() and (alone[2] == -1).all()
+    assert cnt.dtype == np.int64 and level.dtype == np.int64
+
+
+def test_every_partition_of_a_level_is_tried() -> None:
+    # level 1 has two partitions (two parents); the first one's rows all have peers at
+    # level 0, the second holds a row that needs it
+    X = np.array([[1.0], [3.0], [5.0], [7.0], [20.0]])
+    narrow = np.array([0, 0, 1, 1, 2])
+    first = np.array([True, True, False, False, False])
+    second = ~first
+    year = np.zeros(5, dtype=int)
+    prof, cnt, level = peer_profile(X, [[(None, narrow)], [(first, year), (second, year)]])
+    np.testing.assert_array_equal(level, [0, 0, 0, 0, 1])
+    assert prof[4, 0] == 6.0 and cnt[4] == 2
 
 
 def test_identity_tolerance_is_relative_to_the_target() -> None:
@@ -140,7 +156,24 @@ def test_identity_tolerance_is_relative_to_the_target() -> None:
     attribute_gap(X * big, Xp * big, beta, offset, np.array([2e6 + 1e-7]))
     with pytest.raises(ModelError, match="sum to target - peer_target"):
         attribute_gap(X * big, Xp * big, beta, offset, np.array([2e6 + 1e-5]))
+    # a difference equal to the tolerance passes; above it (at a target of 1) it does not
+    attribute_gap(np.array([[1e-12]]), Xp * 0, beta, offset, np.array([2e-12]))
+    with pytest.raises(ModelError, match="sum to target - peer_target"):
+        attribute_gap(X / 2, Xp * 0, beta, offset, np.array([1.0 + 1.5e-12]))
     a = attribute_gap(X, Xp, beta, offset, np.array([2.0]), link="identity")
     assert a.peer_target[0] == 1.0 and a.contributions[0, 0] == 1.0 and a.method == "shapley"
     lg = attribute_gap(X, Xp, beta, offset, 1 / (1 + np.exp(-np.array([2.0]))), link="logit")
     assert lg.peer_target[0] == pytest.approx(1 / (1 + np.exp(-1.0)))
+
+
+def test_many_drivers_report_the_path_integral() -> None:
+    rng = np.random.default_rng(9)
+    k = 11
+    X, Xp, beta = rng.normal(size=(4, k)), rng.normal(size=(4, k)), rng.normal(0, 0.2, (4, k))
+    offset = rng.normal(size=4)
+    target = 1 / (1 + np.exp(-(offset + (X * beta).sum(axis=1))))
+    a = attribute_gap(X, Xp, beta, offset, target, link="logit")
+    assert a.method == "aumann-shapley"
+    assert attribute_gap(X[:, :3], Xp[:, :3], beta[:, :3], offset,
+                         1 / (1 + np.exp(-(offset + (X[:, :3] * beta[:, :3]).sum(axis=1)))),
+                         link="logit").method == "shapley"

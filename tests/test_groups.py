@@ -57,6 +57,17 @@ def test_without_a_large_industry_every_industry_keeps_its_own_effect() -> None:
     lv = _levels({"10": 2, "11": 1}, 5)
     assert not lv.small.any() and (lv.parent == -1).all()
     assert lv.parent_labels == () and lv.members.shape == (0, 2)
+    assert lv.small.dtype == bool and lv.members.dtype == bool
+
+
+def test_the_longest_prefix_is_found_at_every_length() -> None:
+    # 3755 shares "37" with 3720 only (no 375x), not just "3" with 3900 too
+    lv = _levels({"3720": 5, "3900": 5, "3755": 1, "3901": 1}, 5)
+    labels = list(lv.labels)
+    i, j = labels.index("3755"), labels.index("3901")
+    assert lv.parent_labels[lv.parent[i]] == "37"
+    assert list(lv.labels[lv.members[lv.parent[i]]]) == ["3720"]
+    assert lv.parent_labels[lv.parent[j]] == "390"
 
 
 def test_structure_borrows_outright_and_the_record_is_json() -> None:
