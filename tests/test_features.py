@@ -274,3 +274,72 @@ def test_trailing_window_is_five_years_in_any_row_order() -> None:
     with_nan[3] = np.nan
     got = trailing_volatility(firm, year, with_nan)
     assert got[4] == pytest.approx(np.nanstd(with_nan[:5], ddof=1))  # NaN years skipped
+
+
+def _tokens(flags: pd.Series) -> list[set[str]]:
+    return [set(x.split(";")) - {""} for x in flags]
+
+
+def test_flags_are_exact_codes_after_the_rows_own() -> None:
+    p = _panel()
+    p["flags"] = ["fx_converted"] + [""] * 17
+    p["source_row"] = np.arange(18) * 3 + 7
+    f = build_features(p, ModelSpec(winsorize=(0.1, 0.9), min_industry_firms=2)).frame
+    np.testing.assert_array_equal(f["source_row"], p["source_row"])
+    assert f.loc[0, "flags"].split(";")[0] == "fx_converted"
+    tokens = _tokens(f["flags"])
+    assert {"winsorised", "volatility_imputed", "industry_effect_pooled",
+            "mtb_imputed"} == set().union(*tokens) - {"fx_converted"}
+    assert all("industry_effect_pooled" in t for t in tokens[12:])
+    again = build_features(p, ModelSpec(winsorize=(0.1, 0.9), min_industry_firms=2),
+                           transforms=build_features(p, ModelSpec(
+                               winsorize=(0.1, 0.9))).transforms).frame
+    assert "outside_fitted_range" in set().union(*_tokens(again["flags"]))
+
+
+def test_money_in_integers_text_and_small_units() -> None:
+    p = _panel()
+    p["total_assets"] = p["total_assets"].astype(int)
+    p["total_debt"] = (p["total_debt"] / 100.0)  # debt plus market value below one
+    p["market_equity"] = p["market_equity"] / 1000.0
+    p["rd_expense"] = ["n/a", "2"] + [np.nan] * 16
+    f = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                    winsorize=(0.0, 1.0))).frame
+    assert f["total_assets"].dtype == float and f["total_debt"].dtype == float
+    mkt = p["total_debt"] / (p["total_debt"] + p["market_equity"])
+    np.testing.assert_allclose(f.loc[:11, "market"], mkt[:12])
+    assert list(f["rd_missing"][:3]) == [1.0, 0.0, 1.0]
+    assert f.loc[1, "rd_intensity"] == pytest.approx(2.0 / p.loc[1, "total_assets"])
+
+
+def test_optional_columns_absent() -> None:
+    p = _panel()
+    rd = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                     winsorize=(0.0, 1.0))).frame
+    assert (rd["rd_missing"] == 1.0).all() and (rd["rd_intensity"] == 0.0).all()
+    leases = build_features(p, ModelSpec(leases_as_debt=True, winsorize=(0.0, 1.0))).frame
+    assert all("no_lease_data" in t for t in _tokens(leases["flags"]))
+    np.testing.assert_allclose(leases["book"], p["total_debt"] / p["total_assets"])
+
+
+def test_leases_up_to_assets_are_not_above_assets() -> None:
+    p = _panel()
+    p["lease_liabilities"] = np.nan
+    p.loc[0, "lease_liabilities"] = p.loc[0, "total_assets"] - p.loc[0, "total_debt"]
+    p.loc[1, "lease_liabilities"] = 1.0
+    f = build_features(p, ModelSpec(leases_as_debt=True, winsorize=(0.0, 1.0))).frame
+    assert f.loc[0, "book"] == 1.0
+    assert "debt_above_assets_with_leases" not in f.loc[0, "flags"]
+    assert f.loc[1, "book"] == pytest.approx(22.0 / 110.0)
+    np.testing.assert_allclose(f.loc[2:, "book"], (p["total_debt"] / p["total_assets"])[2:])
+
+
+def test_lag_takes_the_first_row_as_a_previous_year_and_one_row_alone() -> None:
+    p = _panel()
+    f = build_features(p, ModelSpec(lag_drivers=True, winsorize=(0.0, 1.0))).frame
+    now = build_features(p, ModelSpec(winsorize=(0.0, 1.0))).frame
+    assert f.loc[1, "size"] == now.loc[0, "size"]  # the previous year is row 0
+    one = build_features(p.iloc[[3]], ModelSpec(lag_drivers=True,
+                                                drivers=("tangibility", "size"),
+                                                winsorize=(0.0, 1.0))).frame
+    assert np.isnan(one[["tangibility", "size"]].to_numpy()).all()
