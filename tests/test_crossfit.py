@@ -67,7 +67,7 @@ def test_folds_deal_each_stratum_round_robin_by_first_row() -> None:
 
 def test_cross_fit_records_each_folds_fit_and_the_rows_from_a_parent() -> None:
     rng = np.random.default_rng(12)
-    n_firms, t = 60, 4
+    n_firms, t = 60, 9  # year codes 0-8: industry code 7 is also a year code
     firm = np.repeat(np.arange(n_firms), t)
     ind = np.repeat(rng.integers(0, 4, n_firms), t)
     ind[firm == 5] = 7  # an industry of one firm: absent from its own fold's fit
@@ -91,6 +91,10 @@ def test_cross_fit_records_each_folds_fit_and_the_rows_from_a_parent() -> None:
         np.testing.assert_array_equal(cf.beta[test], np.tile(fit.coef[1:], (test.sum(), 1)))
         assert fit.n_obs == (~test).sum()
     np.testing.assert_array_equal(cf.from_parent, ind == 7)
+    assert cf.from_parent.dtype == bool
+    for fit in cf.fits:  # each fold's fit: named, every level code, no covariance
+        assert fit.names == ("const", "a", "b") and fit.vcov is None
+        assert [len(e) for e in fit.effects] == [8, t]
     np.testing.assert_array_equal(cf.fold, folds)
     assert cf.offset.shape == (len(y),) and cf.beta.shape == (len(y), 2)
     # without effects (a public use; the pipeline always has them) the offset is the constant
@@ -100,3 +104,41 @@ def test_cross_fit_records_each_folds_fit_and_the_rows_from_a_parent() -> None:
     for f, fit in zip(none.fold_ids, none.fits, strict=True):
         assert (none.offset[folds == f] == fit.coef[0]).all()
         np.testing.assert_allclose(none.target[folds == f], fit.predict(X[folds == f]))
+
+
+def test_fold_fits_start_from_the_given_predictor() -> None:
+    from levgap.models.fractional import fit_fractional
+
+    rng = np.random.default_rng(13)
+    n_firms, t = 80, 5
+    firm = np.repeat(np.arange(n_firms), t)
+    ind = np.repeat(rng.integers(0, 4, n_firms), t)
+    yr = np.tile(np.arange(t), n_firms)
+    X = rng.normal(size=(len(firm), 2))
+    y = 1 / (1 + np.exp(-(X @ np.array([0.8, -0.5]) + 0.2 * ind + rng.normal(size=len(firm)))))
+    folds = assign_folds(firm, ind, 4, 0)
+    full = fit_fractional(y, X, effects=[ind, yr], cov=False)
+    eta = full.offset([ind, yr]) + X @ full.coef[1:]
+    kw = {"effects": [ind, yr], "n_levels": [4, t], "folds": folds, "names": ["a", "b"]}
+    warm = crossfit_targets(fit_fractional, y, X, start=eta, **kw)
+    cold = crossfit_targets(fit_fractional, y, X, **kw)
+    np.testing.assert_allclose(warm.target, cold.target, atol=1e-10)
+    assert sum(f.iterations for f in warm.fits) < sum(f.iterations for f in cold.fits)
+
+
+def test_fold_assignment_is_the_documented_deal() -> None:
+    # An independent reading of the docstring: firms shuffled with the seed, then dealt
+    # round-robin within each stratum (in shuffled order) from a random first fold.
+    rng = np.random.default_rng(14)
+    firm = np.repeat(np.arange(3000), 2)
+    strata = np.repeat(rng.integers(0, 7, 3000), 2)
+    got = assign_folds(firm, strata, 5, 21)
+    draw = np.random.default_rng(21)
+    perm = draw.permutation(3000)
+    stratum = strata[::2][perm]
+    shift = draw.integers(0, 5, size=len(np.unique(stratum)))
+    fold_of = np.empty(3000, dtype=np.int64)
+    for i, s in enumerate(np.unique(stratum)):
+        dealt = perm[stratum == s]  # in shuffled order
+        fold_of[dealt] = (np.arange(len(dealt)) + shift[i]) % 5
+    np.testing.assert_array_equal(got, fold_of[firm])
