@@ -84,7 +84,10 @@ def test_cluster_counts_are_checked() -> None:
         sandwich(U, (np.zeros(10, dtype=int),), 1)
     with pytest.raises(ModelError, match="at least two clusters; got 1"):
         sandwich(U, (c, np.zeros(10, dtype=int)), 1)
-    assert sandwich(U, (c,), 1).df_inference == 1
+    two = sandwich(np.arange(10.0)[:, None], (c,), 1)  # two clusters: the fewest
+    assert two.df_inference == 1
+    sums = np.array([np.arange(0, 10, 2).sum(), np.arange(1, 10, 2).sum()], dtype=float)
+    assert two.vcov[0, 0] == pytest.approx(2 / 1 * 9 / 9 * float(sums @ sums))
 
 
 def test_psd_repair_zeroes_negative_eigenvalues_only_when_needed() -> None:
@@ -103,8 +106,8 @@ def test_psd_repair_zeroes_negative_eigenvalues_only_when_needed() -> None:
     assert notes == ("the two-way covariance had 2 negative eigenvalue(s); they were set to "
                      "zero (Cameron, Gelbach and Miller 2011)",)
     # a negative eigenvalue within rounding of the largest one is not a repair
-    tiny = (vecs * np.array([3.0, 1.0, 0.5, -1e-13])) @ vecs.T
+    tiny = (vecs * np.array([100.0, 1.0, 0.5, -1e-12])) @ vecs.T
     fixed, notes = psd_repair(tiny)
-    assert notes == () and np.allclose(fixed, tiny, atol=1e-15)
+    assert notes == () and np.allclose(fixed, tiny, atol=1e-14)
     zero, notes = psd_repair(np.zeros((2, 2)))
     assert notes == () and (zero == 0).all()
