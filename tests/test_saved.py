@@ -249,19 +249,28 @@ def test_the_specification_and_record_are_read_back(saved) -> None:
 
 
 def test_unreadable_or_newer_saved_models_are_clear_errors(tmp_path) -> None:
-    path = tmp_path / "model.json"
-    path.write_text("{not json", encoding="utf-8")
+    from levgap.outputs import RunWriter
+
+    def folder(name: str, text: str):
+        # a verified run whose model.json holds `text` (the run is checked first)
+        with RunWriter(tmp_path / name, run_id="abc") as run:
+            run.add("model.json", text.encode("utf-8"))
+            run.commit({})
+        return tmp_path / name
+
     with pytest.raises(OutputError, match="model.json must be valid JSON"):
-        levgap.load_model(tmp_path)
-    path.write_text("[1, 2]", encoding="utf-8")
+        levgap.load_model(folder("broken", "{not json"))
     with pytest.raises(OutputError, match="levgap saved model"):
-        levgap.load_model(tmp_path)
-    path.write_text(json.dumps({"format": "levgap-model", "format_version": 2}),
-                    encoding="utf-8")
+        levgap.load_model(folder("list", "[1, 2]"))
+    newer = {"format": FORMAT, "format_version": 2, "run_id": "abc"}
     with pytest.raises(OutputError, match="saved-model format 2 is newer"):
-        levgap.load_model(tmp_path)
-    path.write_text(json.dumps({"format": "levgap-model"}), encoding="utf-8")
-    assert levgap.load_model(tmp_path).record == {"format": "levgap-model"}
+        levgap.load_model(folder("newer", json.dumps(newer)))
+    for bad in ("x", [1], None):
+        odd = {"format": FORMAT, "format_version": bad, "run_id": "abc"}
+        with pytest.raises(OutputError, match="format_version must be a whole number"):
+            levgap.load_model(folder(f"odd{bad!s:.1}", json.dumps(odd)))
+    plain = {"format": FORMAT, "run_id": "abc"}
+    assert levgap.load_model(folder("plain", json.dumps(plain))).record == plain
 
 
 def test_rows_to_score_must_be_a_schema_frame(saved) -> None:
