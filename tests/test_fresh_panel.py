@@ -134,3 +134,24 @@ def test_report_search_finds_them_and_tells_them_apart(fresh: Fresh, tmp_path: P
         detail = re.search(rf'data-detail="{firm}">(.*?)(?:<tr class="firm"|<div class="pager">)',
                            dom, re.S)
         assert detail is not None and words in detail.group(1)
+
+
+def test_lists_printed_together_show_the_same_columns(fresh: Fresh) -> None:
+    from rich.console import Console
+
+    from levgap.cli.screening import render_table
+
+    t = fresh.targets[fresh.targets["fiscal_year"] == fresh.targets["fiscal_year"].max()]
+    records = t.assign(industry_name="").to_dict("records")
+    long_flags = [dict(r, flags="persistent;winsorised;few_peers") for r in records[:5]]
+    short = [dict(r, flags="") for r in records[5:10]]
+
+    def head(rows, fit=None) -> str:
+        con = Console(width=150, record=True, file=io.StringIO())
+        con.print(render_table(rows, "t", 150, "NOK millions", fit=fit))
+        return next(ln for ln in con.export_text().splitlines() if "┃" in ln and "firm" in ln)
+
+    assert head(long_flags) != head(short)  # each alone drops different columns
+    both = long_flags + short
+    cells = [c.strip() for c in head(long_flags, fit=both).split("┃")]
+    assert cells == [c.strip() for c in head(short, fit=both).split("┃")]

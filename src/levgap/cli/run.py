@@ -141,7 +141,7 @@ def _print_run(result: Any, committed: Any, top: int) -> None:
         under = m.sort_values("gap").head(top).to_dict(orient="records")
         for title, rows in (("Most over-levered", over), ("Most under-levered", under)):
             con.print(render_table(rows, f"{title} ({g.MEASURES[measure]}, {year})",
-                                   con.width, money))
+                                   con.width, money, fit=over + under))
     if not money:
         con.print(g.money_note(units))
     con.print(_written_line(committed))
