@@ -109,13 +109,15 @@ def test_acceptance_coverage_of_2010q1(q2010: SecImport) -> None:
     assert rows["total_debt"].notna().sum() >= 370
     assert rows["ebitda"].notna().sum() >= 295
     assert rows[required].notna().all(axis=1).sum() >= 280
-    # A zero is either flagged (no debt line) or the sum of debt lines filed as 0.
-    zero = rows.loc[rows["total_debt"] == 0, ["firm_id", "fiscal_year", "import_flags"]]
-    debt = s.loc[s["column"] == "total_debt", ["firm_id", "fiscal_year", "source"]]
-    zero = zero.merge(debt)
-    flagged = zero["import_flags"].str.contains("debt_zero")
-    assert (flagged == zero["source"].str.startswith("0 (")).all()
-    assert flagged.sum() >= 15
+    # Every zero is flagged, and only zeros: no debt line, nil lines, or lines filed as 0
+    # (CIKs 39911, 769397, 889900, 1023131, 1065088 file their debt lines as 0).
+    zero = rows["total_debt"] == 0
+    flagged = rows["import_flags"].str.contains("debt_zero")
+    assert (zero == flagged).all()
+    assert zero.sum() >= 20
+    filed_zero = rows.loc[zero & (rows["firm_id"].isin(
+        ["39911", "769397", "889900", "1023131", "1065088"]))]
+    assert len(filed_zero) == 5
     # One year of quarters gives two fiscal years for most firms.
     years = p.groupby("firm_id")["fiscal_year"].nunique()
     assert (years >= 2).mean() >= 0.9

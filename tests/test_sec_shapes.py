@@ -199,6 +199,76 @@ def _firms() -> list[Firm]:
             instant("Assets", 100), flow("WeightedAverageNumberOfSharesOutstandingBasic", 40,
                                          uom="shares"),
         ]),
+        # A filer-defined line "including" the lines above it, one of them a fair-value hedge
+        # adjustment that is not debt (Kroger's balance sheet at 31 Jan 2010: 7,420 + 57 =
+        # 7,477; total debt 579 + 7,477 = 8,056, and 558 + 7,505 = 8,063 a year earlier).
+        basic(9200026, "ABBOTSLEY MARKETS", [
+            Line("LongTermDebtAndCapitalLeaseObligationsCurrent", "Current portion of long-term "
+                 "debt including obligations under capital leases and financing obligations",
+                 579, 558),
+            Line("AccountsPayableTradeCurrent", "Trade accounts payable", 3890, 3822),
+            Line("LiabilitiesCurrent", "Total current liabilities", 7714, 7629),
+            Line("LongTermDebtAndCapitalLeaseObligations", "Face-value of long-term debt "
+                 "including obligations under capital leases and financing obligations", 7420,
+                 7460),
+            Line("AdjustmentRelatedToFairValueInterestRateHedges",
+                 "Adjustment related to fair-value of interest rate hedges", 57, 45,
+                 custom=True),
+            Line("LongTermDebtIncludingObligationsUnderCapitalLeasesAndFinancingObligations",
+                 "Long-term debt including obligations under capital leases and financing "
+                 "obligations", 7477, 7505, custom=True),
+        ], assets=23093),
+        # A filer-defined total of the long-term liabilities other than debt, its tag named
+        # "excluding debt" (CIK 740761's balance sheet at 31 Dec 2009: 7.566 + 499.666).
+        basic(9200027, "BARNSDALE INDUSTRIAL", [
+            Line("DebtCurrent", "Current maturities of long-term debt and short-term "
+                 "obligations", 7.566),
+            Line("DeferredTaxLiabilitiesNoncurrent", "Deferred income taxes", 82.26),
+            Line("PensionAndOtherPostretirementDefinedBenefitPlansLiabilitiesNoncurrent",
+                 "Pension and other", 198),
+            Line("NoncurrentLiabilitiesExcludingDebt", "Total Long-Term Liabilities", 280.26,
+                 custom=True),
+            Line("LongTermDebtNoncurrent", "LONG-TERM DEBT, less current maturities", 499.666),
+        ], assets=2704.112),
+        # A filer-defined tag named debt whose label names a derivative (CIK 1130310's
+        # balance sheet at 31 Dec 2009: "Indexed debt securities derivative" 201 under
+        # IndexedDebtCurrent is not debt; 541 + 6,314 are).
+        basic(9200028, "CALDERBROOK POWER", [
+            Line("OtherLongTermDebtCurrent", "Current portion of other long-term debt", 541),
+            Line("IndexedDebtCurrent", "Indexed debt securities derivative", 201, custom=True),
+            Line("OtherLongTermDebtNoncurrent", "Other", 6314),
+        ], assets=19773),
+        # Debt lines whose facts are filed only for segments (PACCAR's 2009 balance sheet:
+        # commercial paper and bank loans 3,011.2 of Financial Services; the old layout
+        # drops these facts): the debt exists, the value is missing, not 0.
+        basic(9200029, "DALBY TRUCKWORKS", [
+            Line("LongTermDebtNoncurrent", "Long-term debt", 172.3),
+            Line("CommercialPaperAndBankLoans", "Commercial paper and bank loans", 3011.2,
+                 custom=True),
+            Line("MediumTermNotes", "Term notes", 2889.3),
+        ], assets=14569.3, lost=("LongTermDebtNoncurrent", "CommercialPaperAndBankLoans",
+                                 "MediumTermNotes"),
+            facts=[instant("LongTermDebtNoncurrent", 172.3, segments="Scenario=Truck;"),
+                   instant("MediumTermNotes", 2889.3, segments="Scenario=Financial;")]),
+        # Debt lines filed as 0 under a heading line (CIK 889900: LongTermLineOfCredit 0;
+        # the old layout's pre.txt lists headings such as "Long-term debt:"): 0, flagged.
+        basic(9200030, "EDGECOTT DESIGNS", [
+            Line("LongTermDebtAndCapitalLeaseObligationsAbstract", "Long-term debt:", None),
+            Line("LongTermLineOfCredit", "Line of credit", 0, 0),
+        ], assets=700),
+        # A liabilities line "including" others that equals by chance the asset lines just
+        # above it (total assets 1,050 + other assets 50): not their subtotal.
+        Firm(9200032, "GARSTANG WORKS", lines=[
+            Line("OtherAssetsNoncurrent", "Other assets", 50),
+            Line("Assets", "Total assets", 1050),
+            Line("LongTermDebt", "Notes payable, including current portion", 1100),
+            Line("StockholdersEquity", "Total stockholders' equity", -50),
+        ]),
+        # No presentation, debt tags filed as 0: 0 from the tags, flagged.
+        Firm(9200031, "FENWICK ASSAYS", facts=[
+            instant("Assets", 300), instant("DebtCurrent", 0),
+            instant("LongTermDebtNoncurrent", 0),
+        ]),
     ]
 
 
@@ -276,6 +346,48 @@ def test_subtotals_are_not_added_and_coincidences_are_not_subtotals(
     assert _row(r, 9200008)["total_debt"] == pytest.approx(509.2 + 31.6 + 3874.3 + 486.6)
     assert "LongTermDebtAndCapitalLeaseObligations" not in _source(r, 9200008, "total_debt")
     assert _row(r, 9200009)["total_debt"] == 20 + 30 + 50
+
+
+def test_a_line_including_other_lines_and_a_hedge_adjustment_is_counted_alone(
+    shapes: tuple[str, SecImport],
+) -> None:
+    _, r = shapes
+    assert _row(r, 9200026)["total_debt"] == 579 + 7477  # not + 7,420 (inside 7,477)
+    assert _row(r, 9200026, 2019)["total_debt"] == 558 + 7505
+    assert _row(r, 9200032)["total_debt"] == 1100  # assets are not its lines
+    assert _source(r, 9200026, "total_debt") == (
+        "LongTermDebtAndCapitalLeaseObligationsCurrent + custom:LongTermDebtIncludingObligations"
+        "UnderCapitalLeasesAndFinancingObligations")
+
+
+def test_labels_that_exclude_debt_or_name_a_derivative_are_not_debt(
+    shapes: tuple[str, SecImport],
+) -> None:
+    _, r = shapes
+    assert _row(r, 9200027)["total_debt"] == pytest.approx(7.566 + 499.666)
+    assert "debt_by_label" not in _flags(r, 9200027)
+    assert _row(r, 9200028)["total_debt"] == 541 + 6314
+    assert "IndexedDebtCurrent" not in _source(r, 9200028, "total_debt")
+
+
+def test_debt_filed_only_for_segments_is_missing_not_zero(
+    shapes: tuple[str, SecImport],
+) -> None:
+    _, r = shapes  # both layouts: the old one has no segment facts at all
+    for cik in (9200029, 9200023):
+        assert np.isnan(_row(r, cik)["total_debt"])
+        assert "debt_zero" not in _flags(r, cik) and "statement_facts_missing" in _flags(r, cik)
+
+
+def test_every_zero_is_flagged(shapes: tuple[str, SecImport]) -> None:
+    _, r = shapes
+    assert _row(r, 9200030)["total_debt"] == 0 and "debt_zero" in _flags(r, 9200030)
+    assert _source(r, 9200030, "total_debt") == "LongTermLineOfCredit"  # the lines filed as 0
+    assert "debt_zero" in _flags(r, 9200030, 2019)
+    assert _row(r, 9200031)["total_debt"] == 0
+    assert {"debt_zero", "debt_from_tags"} <= _flags(r, 9200031)
+    p = r.panel
+    assert ((p["total_debt"] == 0) == p["import_flags"].str.contains("debt_zero")).all()
 
 
 def test_parent_company_facts_are_used_when_they_balance(shapes: tuple[str, SecImport]) -> None:
