@@ -78,6 +78,20 @@ def _value(result: SecImport, cik: str, column: str, year: int = 2009) -> tuple[
     # Safeway: 509.2 + 31.6 + 3,874.3 + 486.6; its "total long-term debt" 4,360.9 is a
     # subtotal.
     ("86144", "total_debt", 509.2 + 31.6 + 3874.3 + 486.6, "0001193125-10-045994"),
+    # Kroger (balance sheet at 31 Jan 2010): current portion 579 + "long-term debt
+    # including obligations under capital leases" 7,477 (= face value 7,420 + fair-value
+    # hedge adjustment 57, not added again).
+    ("56873", "total_debt", 579 + 7477, "0001104659-10-017258"),
+    # CIK 740761: current maturities 7.566 + long-term debt 499.666 (its "total long-term
+    # liabilities" 280.26, tagged NoncurrentLiabilitiesExcludingDebt, is not debt).
+    ("740761", "total_debt", 7.566 + 499.666, "0001193125-10-043237"),
+    # CIK 1130310: 55 + 241 + 121 + 541 current, 2,805 + 6,314 long-term; the "indexed debt
+    # securities derivative" 201 is not debt.
+    ("1130310", "total_debt", 55 + 241 + 121 + 541 + 2805 + 6314, "0001130310-10-000006"),
+    # Steel Dynamics: 167 + 1.182 + 700 + 287.5 + 500 + 500 + 67.072 (its "total long-term
+    # debt" 2,054.572 is a subtotal).
+    ("1022671", "total_debt", 167 + 1.182 + 700 + 287.5 + 500 + 500 + 67.072,
+     "0001047469-10-001104"),
     # Range Resources: transportation and field assets, net 91.8 beside oil and gas
     # properties (successful efforts), net 4,898.8.
     ("315852", "ppe_net", 4990.654, "0000950123-10-015884"),
@@ -92,6 +106,22 @@ def test_statement_figures_of_named_filings(q2010: SecImport, cik: str, column: 
     value, source_adsh = _value(q2010, cik, column)
     assert source_adsh == adsh
     assert value / MILLION == pytest.approx(expected, rel=0.005)  # the issue's 0.5%
+
+
+@pytest.mark.slow
+@pytest.mark.reference
+@pytest.mark.parametrize("cik", ["75362", "106535"])
+def test_debt_filed_only_for_segments_is_missing_in_both_layouts(
+    q2010: SecImport, q2010_old: SecImport, cik: str,
+) -> None:
+    # PACCAR (adsh 0001193125-10-042642) presents commercial paper and bank loans (3,011.2M
+    # at 31 Dec 2009) and term notes with facts only for its segments; Weyerhaeuser (adsh
+    # 0001193125-10-041278) likewise. The old layout drops those facts: missing, never 0.
+    for result in (q2010, q2010_old):
+        p = result.panel
+        rows = p.loc[p["firm_id"] == cik]
+        assert len(rows) == 2 and rows["total_debt"].isna().all()
+        assert not rows["import_flags"].str.contains("debt_zero").any()
 
 
 @pytest.mark.slow

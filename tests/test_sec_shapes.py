@@ -250,20 +250,32 @@ def _firms() -> list[Firm]:
                                  "MediumTermNotes"),
             facts=[instant("LongTermDebtNoncurrent", 172.3, segments="Scenario=Truck;"),
                    instant("MediumTermNotes", 2889.3, segments="Scenario=Financial;")]),
-        # Debt lines filed as 0 under a heading line (CIK 889900: LongTermLineOfCredit 0;
-        # the old layout's pre.txt lists headings such as "Long-term debt:"): 0, flagged.
+        # A debt line filed as 0 a year earlier and nil now, under a heading line (CIK
+        # 889900: LongTermLineOfCredit 0; the old layout's pre.txt lists headings such as
+        # "Long-term debt:", which have no facts): 0 both years, flagged.
         basic(9200030, "EDGECOTT DESIGNS", [
             Line("LongTermDebtAndCapitalLeaseObligationsAbstract", "Long-term debt:", None),
-            Line("LongTermLineOfCredit", "Line of credit", 0, 0),
+            Line("LongTermLineOfCredit", "Line of credit", None, 0),
         ], assets=700),
-        # A liabilities line "including" others that equals by chance the asset lines just
-        # above it (total assets 1,050 + other assets 50): not their subtotal.
+        # A liabilities line "including" others that equals by chance the total assets and
+        # the borrowings between them (1,000 + 100): not their subtotal; 100 + 1,100.
         Firm(9200032, "GARSTANG WORKS", lines=[
-            Line("OtherAssetsNoncurrent", "Other assets", 50),
-            Line("Assets", "Total assets", 1050),
+            Line("Assets", "Total assets", 1000),
+            Line("ShortTermBorrowings", "Short-term borrowings", 100),
             Line("LongTermDebt", "Notes payable, including current portion", 1100),
-            Line("StockholdersEquity", "Total stockholders' equity", -50),
         ]),
+        # A noncurrent line "including" others equal by chance to the two current lines
+        # above it: not their subtotal (20 + 30 + 50).
+        basic(9200033, "HATHERLEIGH TOOLS", [
+            Line("ShortTermBorrowings", "Short-term borrowings", 20),
+            Line("LongTermDebtCurrent", "Current portion of long-term debt", 30),
+            Line("LongTermDebtIncludingCapitalLeases", "Long-term debt including capital leases",
+                 50, custom=True),
+        ], assets=1000),
+        # A filer-defined debt line alone, its fact lost: missing and said.
+        basic(9200034, "INCHCAPE FABRICS", [
+            Line("BankLoansPayable", "Bank loans", 40, custom=True),
+        ], assets=400, lost=("BankLoansPayable",)),
         # No presentation, debt tags filed as 0: 0 from the tags, flagged.
         Firm(9200031, "FENWICK ASSAYS", facts=[
             instant("Assets", 300), instant("DebtCurrent", 0),
@@ -354,7 +366,8 @@ def test_a_line_including_other_lines_and_a_hedge_adjustment_is_counted_alone(
     _, r = shapes
     assert _row(r, 9200026)["total_debt"] == 579 + 7477  # not + 7,420 (inside 7,477)
     assert _row(r, 9200026, 2019)["total_debt"] == 558 + 7505
-    assert _row(r, 9200032)["total_debt"] == 1100  # assets are not its lines
+    assert _row(r, 9200032)["total_debt"] == 100 + 1100  # assets are not its lines
+    assert _row(r, 9200033)["total_debt"] == 20 + 30 + 50  # a noncurrent line sums no current
     assert _source(r, 9200026, "total_debt") == (
         "LongTermDebtAndCapitalLeaseObligationsCurrent + custom:LongTermDebtIncludingObligations"
         "UnderCapitalLeasesAndFinancingObligations")
@@ -374,7 +387,7 @@ def test_debt_filed_only_for_segments_is_missing_not_zero(
     shapes: tuple[str, SecImport],
 ) -> None:
     _, r = shapes  # both layouts: the old one has no segment facts at all
-    for cik in (9200029, 9200023):
+    for cik in (9200029, 9200023, 9200034):
         assert np.isnan(_row(r, cik)["total_debt"])
         assert "debt_zero" not in _flags(r, cik) and "statement_facts_missing" in _flags(r, cik)
 
@@ -382,8 +395,10 @@ def test_debt_filed_only_for_segments_is_missing_not_zero(
 def test_every_zero_is_flagged(shapes: tuple[str, SecImport]) -> None:
     _, r = shapes
     assert _row(r, 9200030)["total_debt"] == 0 and "debt_zero" in _flags(r, 9200030)
-    assert _source(r, 9200030, "total_debt") == "LongTermLineOfCredit"  # the lines filed as 0
-    assert "debt_zero" in _flags(r, 9200030, 2019)
+    assert _source(r, 9200030, "total_debt") == (
+        "0 (no value on the balance sheet's debt lines (nil))")
+    assert _row(r, 9200030, 2019)["total_debt"] == 0 and "debt_zero" in _flags(r, 9200030, 2019)
+    assert _source(r, 9200030, "total_debt", 2019) == "LongTermLineOfCredit"  # filed as 0
     assert _row(r, 9200031)["total_debt"] == 0
     assert {"debt_zero", "debt_from_tags"} <= _flags(r, 9200031)
     p = r.panel
