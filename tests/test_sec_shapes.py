@@ -9,6 +9,7 @@ hand beside its assertion. Quarters are written in both layouts of the data sets
 from __future__ import annotations
 
 import sys
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -511,3 +512,55 @@ def test_lost_facts_and_share_fallback_are_flagged(shapes: tuple[str, SecImport]
     assert _row(r, 9200025)["shares_outstanding"] == 40
     assert "shares_weighted_average" in _flags(r, 9200025)
     assert any("no fact in num.txt" in w for w in r.warnings)
+
+
+def test_the_same_submissions_given_twice_are_read_once(tmp_path: Path) -> None:
+    # The shapes include a filer reporting in another currency, whose ledger line made the
+    # same quarter given twice crash (InvalidIndexError) before.
+    folder = write_quarter(tmp_path / "q", _firms())
+    old = write_quarter(tmp_path / "q_old", _firms(), "old")
+    packed = tmp_path / "q.zip"
+    with zipfile.ZipFile(packed, "w") as zf:
+        for name in ("sub.txt", "pre.txt", "num.txt"):
+            zf.write(folder / name, name)
+    once = import_sec([folder], exclude_sic=None, workers=1)
+    for paths in ([folder, folder], [packed, folder], [folder, old], [packed, packed]):
+        twice = import_sec(paths, exclude_sic=None, workers=1)
+        pd.testing.assert_frame_equal(twice.panel, once.panel)
+        pd.testing.assert_frame_equal(twice.sources, once.sources)
+        pd.testing.assert_frame_equal(twice.excluded, once.excluded)
+        assert any("read once" in w for w in twice.warnings)
+        assert len(set(twice.warnings)) == len(twice.warnings)  # each note once
+        # The same path twice is not even read twice.
+        assert any("given more than once" in w for w in twice.warnings) == (
+            paths[0] == paths[1])
+    # Two copies that differ (one lost a fact): the first given supplies the whole filing,
+    # never a mixture of the two.
+    firms = _firms()
+    firms[0].lost = ("ConvertibleDebtNoncurrent", "AssetsCurrent")
+    poorer = write_quarter(tmp_path / "q_lost", firms)
+    alone = import_sec([poorer], exclude_sic=None, workers=1)
+    mixed = import_sec([poorer, folder], exclude_sic=None, workers=1)
+    pd.testing.assert_frame_equal(mixed.panel, alone.panel)
+    assert _row(mixed, 9200001)["total_debt"] == 0 + 6089  # the first copy's sum, flagged
+    assert np.isnan(_row(mixed, 9200001)["current_assets"])  # not 18,932 from the second
+    assert "statement_facts_missing" in _flags(mixed, 9200001)
+
+
+@pytest.mark.parametrize("twice", [("zip", "zip"), ("zip", "folder"), ("zip", "old")])
+def test_cli_reads_a_quarter_given_twice_once(tmp_path: Path, twice: tuple[str, str]) -> None:
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    folder = write_quarter(tmp_path / "q", _firms())
+    paths = {"folder": folder, "old": write_quarter(tmp_path / "q_old", _firms(), "old"),
+             "zip": tmp_path / "q.zip"}
+    with zipfile.ZipFile(paths["zip"], "w") as zf:
+        for name in ("sub.txt", "pre.txt", "num.txt"):
+            zf.write(folder / name, name)
+    out = tmp_path / "x.csv"
+    result = CliRunner().invoke(app, ["import-sec", *(str(paths[k]) for k in twice),
+                                      "--out", str(out), "--all-industries"])
+    assert result.exit_code == 0, result.output
+    assert "read once" in result.output and out.exists()

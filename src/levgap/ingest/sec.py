@@ -248,8 +248,9 @@ def import_sec(
     ranges = parse_sic_ranges(exclude_sic) if exclude_sic is not None else ()
     price_table = read_prices(prices) if prices is not None else None
     fx_table = read_fx_rates(fx_rates) if fx_rates is not None else None
-    extracts = _extract_all(paths, forms_t, limits, workers)
     notes: list[str] = []
+    paths = _once(paths, notes)
+    extracts = _extract_all(paths, forms_t, limits, workers)
     currency_out = _currency_exclusions(extracts, fx_table)
     assembled = assemble(extracts, restated=restated, excluded_filings=currency_out)
     notes.extend(assembled.notes)
@@ -271,6 +272,22 @@ def import_sec(
                                        ignore_index=True))
     _coverage_notes(panel, notes)
     return SecImport(panel=panel, sources=sources, excluded=excluded, warnings=tuple(notes))
+
+
+def _once(paths: list[Path], notes: list[str]) -> list[Path]:
+    """The paths given, each file or folder once (the same quarter given twice is read once;
+    a zip and its extracted folder are two paths whose submissions are read once later)."""
+    seen: dict[Path, Path] = {}
+    for p in paths:
+        try:
+            key = p.resolve()
+        except (OSError, RuntimeError):
+            key = p
+        if key in seen:
+            notes.append(f"{p} was given more than once; it was read once.")
+            continue
+        seen[key] = p
+    return list(seen.values())
 
 
 def _check_forms(forms: Sequence[str]) -> tuple[str, ...]:
@@ -322,7 +339,7 @@ def _size(path: Path) -> int:
 def _currency_exclusions(extracts: list[QuarterExtract], fx: pd.DataFrame | None) -> pd.Series:
     filings = pd.concat([e.filings for e in extracts], ignore_index=True)
     foreign = filings.loc[(filings["status"] == "") & (filings["currency"] != "USD")
-                          & (filings["currency"] != "")]
+                          & (filings["currency"] != "")].drop_duplicates("adsh")
     if fx is not None:
         return pd.Series(dtype=object)
     return pd.Series("non_usd_currency", index=foreign["adsh"].to_numpy(), dtype=object)
