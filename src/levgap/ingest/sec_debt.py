@@ -44,9 +44,10 @@ Doubtful lines
 No debt line
     A balance sheet that presents no debt line, or whose debt lines carry no value at the
     row's date (nil: the line's tag has a fact at another date of the filing), gives 0; so
-    do debt lines filed as 0 (the provenance then lists them). Every 0 is flagged ``debt_zero``. The value is missing instead
-    when the filing has debt facts at that date outside its consolidated statements
-    (segments, co-registrants) or presents a debt line whose tag has no fact at all in its
+    do debt lines filed as 0 (the provenance then lists them). Every 0 is flagged
+    ``debt_zero``, also one from the tags alone. The value is missing instead when the
+    filing has debt facts at that date outside its consolidated statements (segments,
+    co-registrants) or presents a debt line whose tag has no fact at all in its
     consolidated facts (the old layout of the data sets drops segment facts, so a line
     filed only for segments has none): the debt exists but is not in the file as a
     consolidated figure.
