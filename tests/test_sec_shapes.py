@@ -564,3 +564,32 @@ def test_cli_reads_a_quarter_given_twice_once(tmp_path: Path, twice: tuple[str, 
                                       "--out", str(out), "--all-industries"])
     assert result.exit_code == 0, result.output
     assert "read once" in result.output and out.exists()
+
+
+@pytest.mark.parametrize("content", ["quarterly", "header"])
+@pytest.mark.parametrize("layout", ["current", "old"])
+def test_a_quarter_without_annual_reports_gives_an_empty_panel_and_says_so(
+    tmp_path: Path, content: str, layout: str,
+) -> None:
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    folder = write_quarter(tmp_path / "q", [basic(9200090, "JARROW QUARTERLY", [
+        Line("LongTermDebt", "Long-term debt", 5)], form="10-Q", fp="Q3")], layout)
+    if content == "header":  # sub.txt, pre.txt and num.txt hold their header only
+        for name in ("sub.txt", "pre.txt", "num.txt"):
+            text = (folder / name).read_text(encoding="utf-8")
+            (folder / name).write_text(text.splitlines()[0] + "\n", encoding="utf-8")
+    r = import_sec([folder], exclude_sic=None, workers=1)
+    assert r.panel.empty and r.excluded.empty and r.sources.empty
+    assert len(r.warnings) == 1 and "hold no annual report" in r.warnings[0]
+    # With a quarter that has annual reports, the empty one changes nothing.
+    full = write_quarter(tmp_path / "full", _firms()[:3], layout)
+    both = import_sec([folder, full], exclude_sic=None, workers=1)
+    pd.testing.assert_frame_equal(both.panel,
+                                  import_sec([full], exclude_sic=None, workers=1).panel)
+    out = tmp_path / "x.csv"
+    result = CliRunner().invoke(app, ["import-sec", str(folder), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "hold no annual report" in result.output and out.exists()

@@ -59,7 +59,12 @@ from levgap.ingest.sec_market import (
     read_fx_rates,
     read_prices,
 )
-from levgap.ingest.sec_quarter import ANNUAL_FORMS, QuarterExtract, extract_quarter
+from levgap.ingest.sec_quarter import (
+    ANNUAL_FORMS,
+    FOREIGN_FORMS,
+    QuarterExtract,
+    extract_quarter,
+)
 from levgap.ingest.sec_years import LEDGER_COLUMNS, SOURCE_COLUMNS, assemble
 from levgap.schema import BY_NAME, COLUMNS
 
@@ -270,7 +275,12 @@ def import_sec(
     sources = _order_sources(sources, panel)
     excluded = _order_ledger(pd.concat([x for x in ledger if len(x)] or [ledger[0]],
                                        ignore_index=True))
-    _coverage_notes(panel, notes)
+    if panel.empty and excluded.empty:
+        notes.append(f"The quarters given hold no annual report ({', '.join(ANNUAL_FORMS)}, "
+                     f"{', '.join(FOREIGN_FORMS)}): only other forms, or no submission at "
+                     "all; the panel is empty.")
+    else:
+        _coverage_notes(panel, notes)
     return SecImport(panel=panel, sources=sources, excluded=excluded, warnings=tuple(notes))
 
 

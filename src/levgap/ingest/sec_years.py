@@ -108,6 +108,9 @@ def assemble(extracts: Sequence[QuarterExtract], *, restated: bool = True,
     for c in ("firm_id", "form", "period", "filed", "accepted", "fiscal_year", "flags",
               "quarter"):
         cells["f_" + c] = cells["adsh"].map(meta[c]).to_numpy()
+    if cells.empty:  # no value at all (no annual report in the quarters): typed keys
+        cells = cells.astype({"f_firm_id": object, "f_fiscal_year": "int64",
+                              "f_quarter": "int64"})
     filing_flags = cells["f_flags"].astype(str)
     cells["flags"] = _join(cells["flags"].astype(str), filing_flags)
     cells = _latest_period(cells, notes)
