@@ -19,6 +19,10 @@ Which firm-years are rows
     cash-flow statement (two years back) goes to the ledger (``no_balance_sheet``).
 Names and industries
     ``firm_name`` and ``industry`` (SIC) of a firm are those of its latest filing.
+Submissions given twice
+    A submission (``adsh``) held by several quarters given (the same quarter twice, a zip and
+    its extracted folder, a quarter in both layouts) is read once: the first quarter given
+    that holds it supplies its status and all its values, never a mixture of two copies.
 """
 
 from __future__ import annotations
