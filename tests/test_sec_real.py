@@ -197,3 +197,14 @@ def test_genuine_quarters_import_together() -> None:
     assert set(result.sources["filed"].str[:4]) == {"2009", "2010"}  # both quarters count
     one = import_sec([q3, q2], exclude_sic=None, workers=1)
     pd.testing.assert_frame_equal(one.panel, p)  # processes change nothing
+
+
+@pytest.mark.slow
+def test_the_same_quarter_given_twice_is_read_once(q2010: SecImport) -> None:
+    # The review's crash (InvalidIndexError, exit 1): 2010q1 twice, and 2010q1 in both
+    # layouts (the same 495 submissions).
+    for second in ("2010q1.zip", "2010q1-old-layout.zip"):
+        twice = import_sec([_real("2010q1.zip"), _real(second)], exclude_sic=None, workers=1)
+        pd.testing.assert_frame_equal(twice.panel, q2010.panel)
+        pd.testing.assert_frame_equal(twice.excluded, q2010.excluded)
+        assert any("read once" in w for w in twice.warnings)
