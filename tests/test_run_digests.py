@@ -106,3 +106,121 @@ def test_a_run_replaces_and_removes_its_own_files(tmp_path, panel):
     shutil.copytree(out, copy)
     assert _analyze(panel, copy, "--format", "parquet").exit_code == 0
     assert not (copy / "targets.csv").exists() and (copy / "targets.parquet").is_file()
+
+
+# ------------------------------------------------------------------------------ H2: readers
+
+@pytest.fixture(scope="module")
+def two_runs(tmp_path_factory, panel) -> tuple[Path, Path]:
+    base = tmp_path_factory.mktemp("runs")
+    other = base / "other.csv"
+    p = make_panel(5)
+    p[p["firm_id"] <= "TR0080"].to_csv(other, index=False)
+    a, b = base / "runA", base / "runB"
+    for src, out in ((panel, a), (other, b)):
+        assert _analyze(src, out).exit_code == 0
+    return a, b
+
+
+READERS = {
+    "screen": lambda out: runner.invoke(app, ["screen", str(out), "--top", "1"]),
+    "table": lambda out: runner.invoke(app, ["table", str(out), "--format", "csv"]),
+    "report": lambda out: runner.invoke(app, ["report", str(out)]),
+    "explain": lambda out: runner.invoke(app, ["explain", str(out), "TR0001"]),
+}
+
+
+def _mix(two_runs, tmp_path: Path, name: str, marker: bool) -> Path:
+    """``cp -r runA mix; cp runB/NAME mix/`` (``marker=False``: ``cp runA/* mix/``)."""
+    a, b = two_runs
+    mix = tmp_path / "mix"
+    shutil.copytree(a, mix, ignore=None if marker else shutil.ignore_patterns(MARKER))
+    shutil.copy(b / name, mix / name)
+    return mix
+
+
+@pytest.mark.parametrize("marker", [True, False])
+@pytest.mark.parametrize("reader", sorted(READERS))
+def test_a_folder_mixing_two_runs_is_refused_by_every_reader(two_runs, tmp_path, reader,
+                                                            marker):
+    name = "coefficients.csv" if reader == "table" else "targets.csv"
+    a = two_runs[0]
+    assert READERS[reader](a).exit_code == 0  # the run itself reads
+    mix = _mix(two_runs, tmp_path, name, marker)
+    run_id = json.loads((a / "run.json").read_text())["run_id"]
+    before = {p.name: p.read_bytes() for p in mix.iterdir()}
+    _one_line_error(READERS[reader](mix), f"{mix / name}",
+                    f"{name} is not the file run {run_id} wrote")
+    assert {p.name: p.read_bytes() for p in mix.iterdir()} == before  # report wrote nothing
+
+
+@pytest.mark.parametrize("marker", [True, False])
+def test_python_readers_refuse_a_mixed_folder(two_runs, tmp_path, marker):
+    import levgap
+    from levgap.errors import OutputError
+    from levgap.report.tables import read_outputs
+
+    mix = _mix(two_runs, tmp_path, "drivers.csv", marker)
+    with pytest.raises(OutputError, match="drivers.csv is not the file run"):
+        read_outputs(mix)
+    with pytest.raises(OutputError, match="drivers.csv is not the file run"):
+        levgap.proforma(mix, "TR0001", [{"name": "nothing"}])
+    read_outputs(mix, names=["targets"])  # the tables not read are not checked
+    # a model.json of another run, stamped with this run's id
+    a, b = two_runs
+    mix2 = _mix(two_runs, tmp_path / "m", "model.json", marker)
+    model = json.loads((b / "model.json").read_text())
+    model["run_id"] = json.loads((a / "run.json").read_text())["run_id"]
+    (mix2 / "model.json").write_text(json.dumps(model))
+    with pytest.raises(OutputError, match="model.json is not the file run"):
+        levgap.load_model(mix2)
+    assert levgap.load_model(a).record["run_id"] == model["run_id"]
+
+
+def test_a_copy_without_the_marker_reads_and_hashes_only_on_the_slow_path(two_runs, tmp_path,
+                                                                         monkeypatch):
+    import levgap.outputs.verify as verify
+
+    a = two_runs[0]
+    hashed: list[str] = []
+    real = verify.file_digest
+    monkeypatch.setattr(verify, "file_digest", lambda p: hashed.append(p.name) or real(p))
+    assert READERS["screen"](a).exit_code == 0
+    assert hashed == []  # the marker's inode and time match: nothing hashed
+    copy = tmp_path / "copy"
+    copy.mkdir()
+    for p in a.iterdir():
+        if p.name != MARKER:
+            shutil.copy(p, copy / p.name)
+    assert READERS["screen"](copy).exit_code == 0
+    assert hashed == ["targets.csv"]
+    # same size, other content: the digest decides
+    t = (copy / "targets.csv").read_bytes()
+    i = t.index(b"TR0001")
+    (copy / "targets.csv").write_bytes(t[:i] + b"TR0002" + t[i + 6:])
+    _one_line_error(READERS["screen"](copy), "targets.csv is not the file run")
+
+
+def test_report_accepts_edited_tables_only_when_asked(two_runs, tmp_path):
+    out = tmp_path / "edited"
+    shutil.copytree(two_runs[0], out)
+    t = (out / "targets.csv").read_text(encoding="utf-8")
+    (out / "targets.csv").write_text(t.replace("TR0001", "MY0001"), encoding="utf-8")
+    _one_line_error(READERS["report"](out), "targets.csv is not the file run")
+    assert not (out / "report.html").exists() or "MY0001" not in (out / "report.html").read_text(
+        encoding="utf-8")
+    result = runner.invoke(app, ["report", str(out), "--accept-edits"])
+    assert result.exit_code == 0, result.output
+    assert "MY0001" in (out / "report.html").read_text(encoding="utf-8")
+    run = json.loads((out / "run.json").read_text())
+    assert tuple(run["digests"]["targets.csv"].values()) == file_digest(out / "targets.csv")
+    assert "report.html" in run["files"]
+    assert READERS["screen"](out).exit_code == 0  # re-stamped: every reader accepts them now
+    # an accepted table is the user's: a later run does not replace it
+    before = (out / "targets.csv").read_bytes()
+    assert _analyze(two_runs[0].parent / "other.csv", out).exit_code == 2
+    assert (out / "targets.csv").read_bytes() == before
+    # still checked against the contract
+    (out / "targets.csv").write_text("firm_id\r\nX\r\n", encoding="utf-8")
+    _one_line_error(runner.invoke(app, ["report", str(out), "--accept-edits"]),
+                    "must have the column")

@@ -285,8 +285,12 @@ class RunWriter:
             if self.amend and name in self._marker.records:
                 final[name] = self._marker.records[name]  # amending: nothing else changes
             elif self._is_input(path) or not ours or self._kept(name):
+                # kept, never replaced by a run; whether levgap wrote it (a single file such as
+                # the demo's panel, which no run record lists) is the marker's word, as for
+                # ``atomic_file``
+                written = ours or is_ours(out, name, self._markers)
                 with contextlib.suppress(OSError):
-                    final[name] = record_file(path, "kept", None, written=ours)
+                    final[name] = record_file(path, "kept", None, written=written)
             else:
                 stale.append(name)
 

@@ -39,7 +39,7 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
 
     out = Path(out_dir)
     run = verify_run(out)
-    path = run.tables.get("targets")
+    path = run.table("targets")  # the file the run wrote (size, else SHA-256, per run.json)
     if path is None:
         raise OutputError(f"{out}: the folder must hold a targets table; got none.")
     try:
