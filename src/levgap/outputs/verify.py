@@ -219,7 +219,43 @@ def _read_manifest(path: Path) -> dict[str, Any]:
             f"{path}: written by levgap {theirs}, newer than this levgap {ours}; upgrade "
             "levgap to read these outputs."
         )
+    _check_shape(path, raw)
     return raw
+
+
+def _is_text_list(v: Any) -> bool:
+    return isinstance(v, list) and all(isinstance(x, str) for x in v)
+
+
+_SHAPE: dict[tuple[str, ...], tuple[str, Any]] = {
+    ("options",): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "model"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "input"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "units"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "columns"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "model", "measures"): ("a list of names", _is_text_list),
+    ("options", "model", "drivers"): ("a list of names", _is_text_list),
+    ("counts",): ("an object", lambda v: isinstance(v, dict)),
+    ("counts", "by_reason"): ("an object", lambda v: isinstance(v, dict)),
+    ("inputs",): ("a list", lambda v: isinstance(v, list)),
+    ("pooled_industries",): ("a list of objects", lambda v: isinstance(v, list) and all(
+        isinstance(b, dict) and isinstance(b.get("weight", {}), dict | None) for b in v)),
+    ("warnings",): ("a list", lambda v: isinstance(v, list)),
+}
+"""What the readers use from ``run.json``, and the JSON type each must have when present."""
+
+
+def _check_shape(path: Path, raw: dict[str, Any]) -> None:
+    """Refuse a ``run.json`` whose parts the readers use have the wrong JSON type."""
+    for keys, (what, ok) in _SHAPE.items():
+        v: Any = raw
+        for k in keys:
+            v = v.get(k) if isinstance(v, dict) else None
+        if v is not None and not ok(v):
+            raise OutputError(
+                f"{path}: {'.'.join(keys)} must be {what}; got {str(v)[:60]!r}. The file was "
+                "edited or damaged; re-run `levgap analyze`."
+            )
 
 
 def _release(v: str) -> tuple[int, ...]:

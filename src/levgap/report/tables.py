@@ -187,7 +187,8 @@ def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFr
             "Re-run `levgap analyze`."
         ) from None
     kinds = {str(c): _kind(frame[c]) for c in frame.columns}
-    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy)
+    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy,
+                        blanks=lambda c: _blanks(frame[c]))
     for c in TEXT_COLUMNS:
         if c in frame.columns:
             frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
@@ -207,6 +208,13 @@ def _kind(col: pd.Series) -> str:
     if pd.api.types.is_string_dtype(col.dtype) or col.dtype == object:
         return "text"
     return "other"
+
+
+def _blanks(col: pd.Series) -> int:
+    n = int(col.isna().sum())
+    if not pd.api.types.is_numeric_dtype(col.dtype):
+        n += int((col.dropna().astype("str").str.strip() == "").sum())
+    return n
 
 
 def _example(col: pd.Series) -> str:
