@@ -134,6 +134,21 @@ def test_rd_intensity_adds_indicator() -> None:
     assert (feats.frame["rd_intensity"].iloc[12:] == 0).all()
 
 
+
+def test_rd_indicator_is_left_out_when_constant_and_errors_name_rd_intensity() -> None:
+    # review L7: with rd_expense in every row the indicator is constant; it is not a driver
+    # (the model used to refuse the run naming the internal rd_missing)
+    p = _panel()
+    p["rd_expense"] = np.linspace(1.0, 5.0, len(p))
+    feats = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                         winsorize=(0.0, 1.0)))
+    assert feats.drivers == ("tangibility", "rd_intensity")
+    from levgap.models.design import _shown
+
+    assert _shown(["rd_intensity", "rd_missing"]) == "rd_intensity"
+    assert _shown(["size", "rd_missing"]).startswith("size, rd_intensity (")
+
+
 def test_effect_level_and_peer_group_are_separate_settings() -> None:
     p = _panel()
     peers = build_features(p, ModelSpec(peer_digits=2))

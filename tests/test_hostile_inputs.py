@@ -100,6 +100,14 @@ def test_a_map_taking_an_auto_matched_header_says_so_without_contradiction():
          [1234.5, None, 1234567.0]),
         (InputOptions(decimal=",", thousands=" "), ["1 234,5", "1\u00a0234", "12 34"],
          [1234.5, 1234.0, None]),
+        # review M1: with a decimal comma a dot is never a decimal point, whatever the
+        # thousands mark; L7: a decimal comma needs a digit after it
+        (InputOptions(decimal=",", thousands=" "),
+         ["147.782", "1.5", "12.34", ".782", "147 782,5", ",5", "147 782,"],
+         [None, None, None, None, 147782.5, 0.5, None]),
+        (InputOptions(decimal=",", thousands="."), ["147.782,", "12,", "1.234,", "1.234,0"],
+         [None, None, None, 1234.0]),
+        (InputOptions(decimal=","), ["147.782,", "147,", ".782"], [None, None, None]),
     ],
 )
 def test_number_marks_never_guess(options, cells, expected):
