@@ -98,7 +98,11 @@ def test_missing_column_is_exit_2_and_one_line(tmp_path: Path) -> None:
     [
         (["analyze", "nope.csv", "--out", "x"], "nope.csv"),
         (["analyze", "{panel}", "--out", "{tmp}/o", "--measure", "cash"], "book, market"),
-        (["analyze", "{panel}", "--out", "{tmp}/o", "--cluster", "country"], "cluster"),
+        # review L7: the value came from --cluster, not from a configuration's [model]
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--cluster", "country"],
+         "error: --cluster must be one of ['firm', 'firm-year', 'industry']; got 'country'"),
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--model", "probit"],
+         "error: --model must be one of"),
         (["analyze", "{panel}", "--out", "{tmp}/o", "--format", "xls"], "csv or parquet"),
         (["analyze", "{panel}", "--out", "{tmp}/o", "--config", "{tmp}/none.toml"],
          "none.toml"),

@@ -252,3 +252,13 @@ def test_a_repeated_header_is_one_line_not_a_crash(tmp_path: Path):
     path = _write(tmp_path, ["firm_id,firm_id,fiscal_year", "1,2,3"])
     with pytest.raises(SchemaError, match="headers must be unique; got firm_id"):
         read_panel(path)
+
+
+def test_a_columns_entry_matches_regardless_of_case_and_surrounding_spaces():
+    # review L7, as auto-matching does (documented in data_templates/README.md)
+    headers = ["firm_id", "fiscal_year", "industry", "total_assets", " Total Debt ", "ppe_net",
+               "ebitda", "book_equity"]
+    found = resolve_columns(headers, {"total_debt": "total debt"})
+    assert found["total_debt"] == " Total Debt "
+    with pytest.raises(SchemaError, match="several close matches"):
+        resolve_columns([*headers, "TOTAL DEBT"], {"total_debt": "total debt"})

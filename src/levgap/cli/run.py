@@ -205,7 +205,7 @@ def analyze(
         if year is not None:
             changes["year"] = year
         if changes:
-            cfg = replace(cfg, model=replace(cfg.model, **changes))
+            cfg = replace(cfg, model=_with_options(cfg.model, changes))
         year_from = "--year" if year is not None else f"{config}: [model] year"
         result, committed = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force,
                                           xlsx=xlsx, report=not no_report,
@@ -218,6 +218,29 @@ def analyze(
         elif not quiet:
             _print_run(result, committed, top)
 
+
+
+_OPTION_OF = {"measures": "--measure", "cluster": "--cluster", "model": "--model",
+              "year": "--year"}
+
+
+def _with_options(spec: Any, changes: dict[str, Any]) -> Any:
+    """The model spec with the command line's values, each refusal naming its option (a value
+    from the command line is not said to come from ``[model]`` of a configuration file)."""
+    from dataclasses import replace
+
+    from levgap.errors import ConfigError
+
+    for key, value in changes.items():
+        try:
+            spec = replace(spec, **{key: value})
+        except ConfigError as exc:
+            text = str(exc)
+            head = f"[model] {key} "
+            if text.startswith(head):
+                text = f"{_OPTION_OF.get(key, key)} {text[len(head):]}"
+            raise ConfigError(text) from None
+    return spec
 
 
 @app.command()

@@ -111,7 +111,9 @@ Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without 
 or XLSX (the first sheet, or `[input] sheet`; formulas are read as the values the spreadsheet
 program last computed and saved). Headers may differ from the column names below
 in case, spaces, `-` and `_` (`Total Assets` matches `total_assets`); other headers are mapped
-in `[columns]` of `run.toml`. Columns that are not in the schema are ignored (and listed in
+in `[columns]` of `run.toml` (a header named there matches exactly, else regardless of case
+and surrounding spaces: `total_debt = "total debt"` finds ` Total Debt `). Columns that are
+not in the schema are ignored (and listed in
 `run.json`).
 
 ## Columns
