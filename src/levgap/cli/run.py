@@ -249,7 +249,8 @@ def check(
     config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
     ledger: Path = typer.Option(None, "--ledger", help="Write the exclusion ledger to this CSV."),
 ) -> None:
-    """Validate a panel without fitting anything: what would be used and what left out.
+    """Validate a panel without fitting anything: what would be used and what left out
+    (whole rows; `analyze` also leaves rows out of one measure and lists them too).
 
     Example: levgap check panel.csv --ledger exclusions.csv
     """
@@ -283,7 +284,9 @@ def check(
             from levgap.report.tables import write_table
 
             write_table(whole, ledger, inputs=[panel, *([config] if config else [])])
-            con.print(f"Exclusion ledger written to {ledger}.")
+            con.print(f"Exclusion ledger written to {ledger} (whole rows; `analyze` also "
+                      "leaves rows out of one measure, e.g. no_market_equity, and lists them "
+                      "in its exclusions.csv).")
         if len(data) == 0:
             err(f"{panel}: the panel must keep at least one usable row; got none.")
             raise typer.Exit(2)
