@@ -375,7 +375,7 @@ def load_model(results_dir: str | Path) -> SavedModel:
     if not isinstance(record, dict) or record.get("format") != FORMAT:
         raise OutputError(f"{path}: must be a levgap saved model; got another file.")
     version = record.get("format_version", 0)
-    if not isinstance(version, int) or isinstance(version, bool):
+    if isinstance(version, bool) or not isinstance(version, int):
         raise OutputError(f"{path}: format_version must be a whole number; got {version!r}.")
     if version > FORMAT_VERSION:
         raise OutputError(f"{path}: saved-model format {record.get('format_version')} is "
