@@ -68,10 +68,21 @@ COLUMN_KINDS: dict[str, str] = {
 """What output columns hold when they are not text: ``integer`` (whole numbers, blanks allowed)
 or ``number``. Columns not named here are read as text."""
 
+FILLED_COLUMNS: dict[str, tuple[str, ...]] = {
+    "targets": ("firm_id", "fiscal_year", "measure", "actual", "target", "gap"),
+    "drivers": ("firm_id", "fiscal_year", "measure", "driver"),
+    "coefficients": ("measure", "model", "term"),
+    "model_fit": ("measure", "model"),
+    "fold_coefficients": ("measure", "model", "term"),
+    "exclusions": ("reason",),
+}
+"""Columns levgap fills in every row of a table it writes; a reader refuses a blank there."""
+
 
 def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
                         example: Callable[[str], str] = lambda c: "", *,
-                        legacy: bool = False) -> None:
+                        legacy: bool = False,
+                        blanks: Callable[[str], int] | None = None) -> None:
     """Refuse a table read back from an output folder that lacks a column or holds a wrong type.
 
     Parameters
@@ -87,6 +98,9 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
         A short example of a column's offending value, for the message.
     legacy : bool, default=False
         The folder was written by levgap 0.1: its tables are checked against the 0.1 columns.
+    blanks : callable, optional
+        How many rows of a column are blank; given, the ``FILLED_COLUMNS`` of the table (not
+        of a 0.1 table) must have none.
 
     Raises
     ------
@@ -120,6 +134,15 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
                 f"{path}: column {col} must hold {what}; got {found[col]}"
                 f"{f' such as {shown}' if shown else ''}. The file was edited or damaged; "
                 "re-run `levgap analyze`."
+            )
+    if blanks is None or legacy:
+        return
+    for col in FILLED_COLUMNS.get(name, ()):
+        n = blanks(col)
+        if n:
+            raise OutputError(
+                f"{path}: column {col} must have a value in every row; got {n:,} blank. The "
+                "file was edited or damaged; re-run `levgap analyze`."
             )
 
 

@@ -128,7 +128,8 @@ MEASURE_REASONS: dict[str, str] = {
     "debt_above_assets_with_leases": "leases_as_debt is on and debt plus leases exceed "
     "total_assets: left out of book leverage only",
 }
-"""Reason codes of rows the analysis leaves out of every measure."""
+"""Reason codes of rows the analysis leaves out of one measure (the ledger names it); ``levgap
+check`` does not list them (it fits nothing)."""
 
 
 

@@ -61,6 +61,13 @@ FILE_KEYS: tuple[str, ...] = ("industry_names", "peers")
 """Keys of ``[input]`` that name files (relative to the run configuration's folder)."""
 
 
+
+DECIMAL_MARKS = (".", ",")
+"""The decimal marks levgap reads (``[input] decimal``)."""
+THOUSANDS_MARKS = (".", ",", " ", "\u00a0", "\u202f", "'")
+"""The thousands marks levgap reads (``[input] thousands``; a space also takes no-break
+spaces)."""
+
 @dataclass(frozen=True, slots=True)
 class InputOptions:
     """How to read a panel file.
@@ -70,9 +77,9 @@ class InputOptions:
     delimiter : str or None, default=None
         Field separator of a CSV file; ``None`` detects it from the header line.
     decimal : str, default="."
-        Decimal mark of numbers.
+        Decimal mark of numbers: ``.`` or ``,`` (``DECIMAL_MARKS``).
     thousands : str or None, default=None
-        Thousands separator of numbers, if any.
+        Thousands separator of numbers, if any (``THOUSANDS_MARKS``).
     encoding : str or None, default=None
         Text encoding; ``None`` reads UTF-8 (with or without BOM) and falls back to
         Latin-1 with a warning.
@@ -120,10 +127,16 @@ class InputOptions:
                 f"[input] decimal, thousands and delimiter must differ; got decimal "
                 f"{self.decimal!r}, thousands {self.thousands!r}, delimiter {self.delimiter!r}."
             )
-        if self.decimal.isalnum() or (self.thousands or "").isalnum():
+        if self.decimal not in DECIMAL_MARKS:
             raise ConfigError(
-                f"[input] decimal and thousands must not be letters or digits; got "
-                f"{self.decimal!r} and {self.thousands!r}."
+                f"[input] decimal must be one of {', '.join(map(repr, DECIMAL_MARKS))}; got "
+                f"{self.decimal!r} (a delimiter or quote character would split or join cells)."
+            )
+        if self.thousands is not None and self.thousands not in THOUSANDS_MARKS:
+            raise ConfigError(
+                f"[input] thousands must be one of {', '.join(map(repr, THOUSANDS_MARKS))}; "
+                f"got {self.thousands!r} (a delimiter or quote character would split or join "
+                "cells)."
             )
         for name in ("encoding", "sheet", "industry_names", "peers"):
             v = getattr(self, name)
@@ -248,6 +261,14 @@ class ModelSpec:
 
     def __post_init__(self) -> None:
         check_fields(self)
+        for key in ("measures", "drivers"):
+            names = list(getattr(self, key))
+            twice = [n for i, n in enumerate(names) if n in names[:i]]
+            if twice:
+                raise ConfigError(
+                    f"[model] {key} must name each entry once; got {twice[0]!r} more than once "
+                    f"in {names}."
+                )
         bad = [m for m in self.measures if m not in MEASURES]
         if bad or not self.measures:
             raise ConfigError(

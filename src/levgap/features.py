@@ -14,7 +14,8 @@ Definitions (DESIGN.md, "Measures and drivers"):
 - ``market_to_book`` = (total_assets - book_equity + market_equity) / total_assets; where
   market equity is missing, the industry-year median, flagged ``mtb_imputed``
 - ``rd_intensity`` = rd_expense / total_assets, missing treated as zero with the indicator
-  driver ``rd_missing`` (common practice)
+  driver ``rd_missing`` (common practice); the indicator is left out when rd_expense is given
+  in every row or in none (it would be constant)
 
 Drivers are winsorised within fiscal year at the quantiles of ``ModelSpec.winsorize``.
 """
@@ -183,7 +184,8 @@ def raw_drivers(
         missing = np.isnan(rd)
         raw["rd_intensity"] = np.where(missing, 0.0, rd) / assets
         raw["rd_missing"] = missing.astype(float)
-        drivers.append("rd_missing")
+        if keep_all or missing.any() and not missing.all():
+            drivers.append("rd_missing")  # constant (rd_expense in every row or none): no use
     notes = []
     why = {
         "earnings_volatility": "no firm has the three fiscal years of history it needs",

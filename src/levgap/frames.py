@@ -18,12 +18,6 @@ from levgap.features import add_flag
 from levgap.panel import EXCLUSION_COLUMNS
 
 
-def measure_ledger(frame: pd.DataFrame, mask: np.ndarray, measure: str) -> pd.DataFrame:
-    return row_ledger(frame, mask, measure, "no_market_equity",
-                       "market leverage needs market_equity (or shares_outstanding and "
-                       "share_price); the row is used for book leverage only")
-
-
 def row_ledger(
     frame: pd.DataFrame, mask: np.ndarray, measure: str, reason: str, detail: str
 ) -> pd.DataFrame:

@@ -14,15 +14,19 @@ from levgap.cli.common import echo, guard
 @app.command()
 def report(
     out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
+    accept_edits: bool = typer.Option(
+        False, "--accept-edits",
+        help="Accept tables edited since the run and record them as the run's files."),
 ) -> None:
-    """Rebuild report.html from the outputs in a folder (after editing or copying them).
+    """Rebuild report.html from the outputs in a folder (copied whole, or with tables edited
+    and --accept-edits).
 
     Example: levgap report results/
     """
     with guard():
         from levgap.report.html import build_report
 
-        path = build_report(out_dir)
+        path = build_report(out_dir, accept_edits=accept_edits)
         echo(f"Report written to {path}.")
 
 

@@ -228,7 +228,7 @@ def analyze(
         if year is not None:
             changes["year"] = year
         if changes:
-            cfg = replace(cfg, model=replace(cfg.model, **changes))
+            cfg = replace(cfg, model=_with_options(cfg.model, changes))
         files = {k: str(v.resolve()) for k, v in (("peers", peers),
                                                   ("industry_names", industry_names)) if v}
         if files:
@@ -247,13 +247,37 @@ def analyze(
 
 
 
+_OPTION_OF = {"measures": "--measure", "cluster": "--cluster", "model": "--model",
+              "year": "--year"}
+
+
+def _with_options(spec: Any, changes: dict[str, Any]) -> Any:
+    """The model spec with the command line's values, each refusal naming its option (a value
+    from the command line is not said to come from ``[model]`` of a configuration file)."""
+    from dataclasses import replace
+
+    from levgap.errors import ConfigError
+
+    for key, value in changes.items():
+        try:
+            spec = replace(spec, **{key: value})
+        except ConfigError as exc:
+            text = str(exc)
+            head = f"[model] {key} "
+            if text.startswith(head):
+                text = f"{_OPTION_OF.get(key, key)} {text[len(head):]}"
+            raise ConfigError(text) from None
+    return spec
+
+
 @app.command()
 def check(
     panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX)."),
     config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
     ledger: Path = typer.Option(None, "--ledger", help="Write the exclusion ledger to this CSV."),
 ) -> None:
-    """Validate a panel without fitting anything: what would be used, what excluded, and why.
+    """Validate a panel without fitting anything: what would be used, what excluded, and why
+    (whole rows; `analyze` also leaves rows out of one measure and lists them too).
 
     Example: levgap check panel.csv --ledger exclusions.csv
     """
@@ -287,7 +311,9 @@ def check(
             from levgap.report.tables import write_table
 
             write_table(whole, ledger, inputs=[panel, *([config] if config else [])])
-            con.print(f"Exclusion ledger written to {ledger}.")
+            con.print(f"Exclusion ledger written to {ledger} (whole rows; `analyze` also "
+                      "leaves rows out of one measure, e.g. no_market_equity, and lists them "
+                      "in its exclusions.csv).")
         if len(data) == 0:
             err(f"{panel}: the panel must keep at least one usable row; got none.")
             raise typer.Exit(2)

@@ -113,7 +113,9 @@ Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without 
 or XLSX (the first sheet, or `[input] sheet`; formulas are read as the values the spreadsheet
 program last computed and saved). Headers may differ from the column names below
 in case, spaces, `-` and `_` (`Total Assets` matches `total_assets`); other headers are mapped
-in `[columns]` of `run.toml`. Columns that are not in the schema are ignored (and listed in
+in `[columns]` of `run.toml` (a header named there matches exactly, else regardless of case
+and surrounding spaces: `total_debt = "total debt"` finds ` Total Debt `). Columns that are
+not in the schema are ignored (and listed in
 `run.json`).
 
 ## Columns
@@ -136,8 +138,12 @@ currency; outputs are in that unit.
   mark is read only where `[input] thousands` gives one (a space there also accepts no-break
   spaces) or, with `decimal = ","`, as `.` when none is given; it must group the digits by
   three: with `decimal = ","`, `147.782` is 147782 and `1.234.567,8` is 1234567.8, while
-  `1.5` is not a number (the row is excluded as `non_numeric`) rather than a guess. With
-  the default `decimal = "."`, `147.782` is 147.782 and `1,5` is not a number. Exponents
+  `1.5` is not a number (the row is excluded as `non_numeric`) rather than a guess. With a
+  decimal comma a dot is never a decimal point: with another thousands mark (`thousands =
+  " "`) a value holding a dot (`147.782`, `1.5`, `.782`) is not a number, and a decimal
+  comma needs a digit after it (`147.782,` is not a number). With the default `decimal =
+  "."`, `147.782` is 147.782 and `1,5` is not a number. `decimal` is `.` or `,`;
+  `thousands` is one of `.`, `,`, a space (or a no-break space) and `'`. Exponents
   (`1.5e3`) and accounting negatives (`(12.5)` is -12.5) are accepted; currency signs and
   `%` are not.
 - Blank values: {blanks} (case ignored) are read as a blank, not as text, in every column:

@@ -388,6 +388,21 @@ def suspicious(A: np.ndarray, k: int) -> bool:
     return bool(np.linalg.eigvalsh(corr)[0] < SUSPECT_TOL)
 
 
+ADDED_FOR = {"rd_missing": "rd_intensity"}
+"""Drivers levgap adds for one the user set, named in messages by what the user set."""
+
+
+def _shown(names: Sequence[str]) -> str:
+    out = []
+    for n in names:
+        parent = ADDED_FOR.get(n)
+        if parent is None:
+            out.append(n)
+        elif parent not in names:
+            out.append(f"{parent} (its indicator {n} of a blank rd_expense)")
+    return ", ".join(out)
+
+
 def check_identified(design: Design, names: Sequence[str]) -> None:
     """Refuse drivers that the effects absorb or that are collinear with each other.
 
@@ -411,7 +426,7 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
     flat = [names[j] for j in design.flat()]
     if flat:
         raise ModelError(
-            f"every driver must vary across rows; got {', '.join(flat)} constant. Drop it "
+            f"every driver must vary across rows; got {_shown(flat)} constant. Drop it "
             "from [model] drivers in the run configuration."
         )
     # Effects-only design: the same structure without the drivers.
@@ -438,7 +453,7 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
     absorbed = [names[j] for j in range(k) if left[j] < IDENTIFIED_TOL]
     if absorbed:
         raise ModelError(
-            f"every driver must vary within industries and years; got {', '.join(absorbed)} "
+            f"every driver must vary within industries and years; got {_shown(absorbed)} "
             "explained entirely by the industry and year effects (constant within every "
             "industry, for example). Drop it from [model] drivers, or group industries more "
             "coarsely ([model] industry_digits)."
@@ -449,5 +464,5 @@ def check_identified(design: Design, names: Sequence[str]) -> None:
         involved = [names[j] for j in np.flatnonzero(np.abs(vt[-1]) > 0.1)]
         raise ModelError(
             f"the drivers must not be collinear once the effects are absorbed; got "
-            f"{', '.join(involved)} linearly dependent. Drop one of them from [model] drivers."
+            f"{_shown(involved)} linearly dependent. Drop one of them from [model] drivers."
         )

@@ -12,7 +12,6 @@ panel (the same code computes both) and, with ``fold``, its cross-fitted ``targe
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -26,6 +25,7 @@ from levgap.errors import ModelError, OutputError
 from levgap.groups import WHOLE_SAMPLE
 from levgap.models.result import Fit
 from levgap.outputs import saved_model_file
+from levgap.outputs.files import load_json
 from levgap.transforms import DriverTransforms
 
 if TYPE_CHECKING:
@@ -366,11 +366,11 @@ def load_model(results_dir: str | Path) -> SavedModel:
     """
     path = saved_model_file(results_dir, MODEL_FILE)  # the run verified first (levgap.outputs)
     try:
-        record = json.loads(path.read_text(encoding="utf-8"))
+        record = load_json(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
         raise OutputError(f"{path}: the results folder must hold model.json; got none. "
                           "Re-run `levgap analyze` with this version.") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
         raise OutputError(f"{path}: model.json must be valid JSON; got {exc}.") from None
     if not isinstance(record, dict) or record.get("format") != FORMAT:
         raise OutputError(f"{path}: must be a levgap saved model; got another file.")

@@ -138,7 +138,8 @@ def read_outputs(
     ----------
     out_dir : str or pathlib.Path
         A folder written by :func:`write_tables` or ``levgap analyze``; checked first with
-        ``levgap.outputs.verify_run`` (one complete run, readable ``run.json``).
+        ``levgap.outputs.verify_run`` (one complete run, readable ``run.json``); each table
+        read is checked against the size and SHA-256 ``run.json`` records for it.
     names : iterable of str, optional
         Only these tables (e.g. ``["targets"]``); default every table of the run.
 
@@ -153,8 +154,9 @@ def read_outputs(
     Raises
     ------
     OutputError
-        The folder does not hold one complete run, or a table cannot be read, lacks a
-        contract column or holds a wrong type (the message names the file and column).
+        The folder does not hold one complete run, a table is not the file the run wrote
+        (edited, or copied from another run), or a table cannot be read, lacks a contract
+        column or holds a wrong type (the message names the file and column).
     """
     run = verify_run(out_dir)
     wanted = None if names is None else set(names)
@@ -162,7 +164,7 @@ def read_outputs(
     for name, p in run.tables.items():
         if wanted is not None and name not in wanted:
             continue
-        tables[name] = read_table_file(p, name, legacy=run.run_id is None)
+        tables[name] = read_table_file(run.check(p.name), name, legacy=run.run_id is None)
     return tables, run.manifest
 
 
@@ -185,7 +187,8 @@ def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFr
             "Re-run `levgap analyze`."
         ) from None
     kinds = {str(c): _kind(frame[c]) for c in frame.columns}
-    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy)
+    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy,
+                        blanks=lambda c: _blanks(frame[c]))
     for c in TEXT_COLUMNS:
         if c in frame.columns:
             frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
@@ -205,6 +208,13 @@ def _kind(col: pd.Series) -> str:
     if pd.api.types.is_string_dtype(col.dtype) or col.dtype == object:
         return "text"
     return "other"
+
+
+def _blanks(col: pd.Series) -> int:
+    n = int(col.isna().sum())
+    if not pd.api.types.is_numeric_dtype(col.dtype):
+        n += int((col.dropna().astype("str").str.strip() == "").sum())
+    return n
 
 
 def _example(col: pd.Series) -> str:
