@@ -57,7 +57,13 @@ def measure_record(
                 "parent": levels.parent_labels[levels.parent[i]],
                 "weight": None if i >= len(w) or np.isnan(w[i]) else float(w[i]),
             })
+    extra: dict[str, Any] = {}
+    if "industry_median_leverage" in ctx.feats.drivers:
+        from levgap.derived import saved_medians
+
+        extra["industry_median"] = saved_medians(ctx.feats.frame, rows, y)
     return {
+        **extra,
         "full": est.full.to_dict(),
         "folds": [{"fold": f, "fit": fit.to_dict()}
                   for f, fit in zip(est.cf.fold_ids, est.cf.fits, strict=True)],
@@ -239,23 +245,26 @@ class SavedModel:
             contributions sum to ``target - peer_target``). ``fold`` is -1 for the
             full-sample fit.
         """
-        from levgap.features import build_features, peer_group
+        from levgap.features import build_features
 
         data = _schema_frame(rows)
         spec = self.spec
         transforms = DriverTransforms.from_dict(self.record["transforms"])
         feats = build_features(data, spec, transforms=transforms)
         f = feats.frame
+        given = (pd.to_numeric(data["industry_median_leverage"], errors="coerce").to_numpy(
+            dtype=float) if "industry_median_leverage" in data else None)
         drivers = list(self.drivers)
         missing = [d for d in drivers if d not in f]
         if missing:
             raise ModelError(f"rows must give what the drivers need; got no {missing[0]}.")
         X = f[drivers].to_numpy(dtype=float)
-        industry = peer_group(f["industry"], spec.industry_digits).to_numpy(dtype=object)
+        industry = f["effect_group"].to_numpy(dtype=object)
         level, year, new_ind, new_year = self.codes(industry, f["fiscal_year"].to_numpy())
         out = []
         for measure in self.measures:
-            out.append(self._score_measure(measure, f, X, industry, level, year, new_ind,
+            Xm = self._measure_drivers(measure, f, X, given)
+            out.append(self._score_measure(measure, f, Xm, industry, level, year, new_ind,
                                            new_year, fold, peer_profile))
         return pd.concat(out, ignore_index=True)
 
@@ -305,6 +314,25 @@ class SavedModel:
             out[d + "_peer"] = X_peer[:, j]
             out[d + "_contribution"] = contrib[:, j]
         return out
+
+    def _measure_drivers(self, measure: str, f: pd.DataFrame, X: np.ndarray,
+                         given: np.ndarray | None) -> np.ndarray:
+        """The industry median leverage of a scored row: the rows' own column
+        ``industry_median_leverage`` where given, else the saved median of its industry
+        and year (a new firm is not part of it, as with the leave-one-out median)."""
+        from levgap.derived import PREFIX, lookup_medians
+        from levgap.features import peer_group
+
+        saved = self._measure(measure).get("industry_median")
+        if PREFIX not in self.drivers or saved is None:
+            return X
+        industry = peer_group(f["industry"], self.spec.industry_digits).to_numpy(dtype=object)
+        value = lookup_medians(saved, industry, f["fiscal_year"].to_numpy())
+        if given is not None:
+            value = np.where(np.isnan(given), value, given)
+        X = X.copy()
+        X[:, self.drivers.index(PREFIX)] = value
+        return X
 
     def _folds(self, measure: str, firm: np.ndarray, fold: int | str | None) -> np.ndarray:
         if fold is None:
