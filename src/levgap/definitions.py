@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 POSITIVE = "positive"
 NEGATIVE = "negative"
+MEASURE_LABELS = {"book": "Book leverage", "market": "Market leverage"}
 
 _RZ_FG = ("Rajan and Zingales (1995) JF 50(5) Table IX (memory); Frank and Goyal (2009) FM "
           "38(1), abstract")
@@ -117,6 +118,12 @@ def label(name: str) -> str:
     found = DRIVERS.get(name)
     if found is not None:
         return found.label
+    if name in MEASURE_LABELS:
+        return MEASURE_LABELS[name]
+    for measure, text in MEASURE_LABELS.items():
+        stem = name.removesuffix("_" + measure)
+        if stem != name and stem in DRIVERS:
+            return f"{DRIVERS[stem].label} ({text.split()[0].lower()})"
     if name == "const":
         return "Constant"
     words = str(name).replace("_", " ").strip()

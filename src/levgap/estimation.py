@@ -224,3 +224,24 @@ _ESTIMATORS: dict[str, Callable[..., tuple[str, dict[str, np.ndarray], dict[str,
                                            dict[str, Any]]]] = {
     "within": _within, "fama-macbeth": _famamacbeth, "pooled": _pooled,
 }
+
+
+def sample_of(panel: Panel | pd.DataFrame, config: RunConfig | None = None) -> pd.DataFrame:
+    """The estimation sample a configuration would fit on, without fitting
+    (``levgap describe``): the rows of each measure after the exclusions, as
+    :func:`levgap.sample.sample_frame` lays them out."""
+    from levgap.pipeline import _inputs, context, measure_rows
+    from levgap.sample import sample_frame
+
+    config, panel = _inputs(panel, config, None)
+    spec = config.model
+    base = context(build_features(panel.data, spec), spec, panel.source, [panel.exclusions])
+    used, notes = {}, []
+    for measure in spec.measures:
+        rows = measure_rows(measure_context(base, measure), measure, [], notes)
+        if rows is not None:
+            used[measure] = rows
+    if not used:
+        raise ModelError(f"{panel.source}: at least one measure must have rows; got none "
+                         f"({' '.join(notes)}).")
+    return sample_frame(base.feats, used)

@@ -377,9 +377,14 @@ def render_report(
     if progress is not None:
         progress("report", total, total)
     coef_rows = coefficients.to_dict("records")
+    sources: dict[str, str] = {}
+    for c in coef_rows:
+        if str(c.get("sign_source") or "") and str(c.get("term")) not in sources:
+            sources[str(c["term"])] = str(c["sign_source"])
     n_charts = len(charts) + sum(len(s["steps"]) for s in sections)
     return _environment().get_template("report.html.j2").render(
         h=header, year=year, sections=sections, charts=charts, coefficients=coef_rows,
+        sign_sources=list(sources.items()),
         caution=CAUTION, n_charts=n_charts, options=opts,
         sampled={m: int((targets["measure"] == m).sum()) > opts.max_points for m in measures},
     )
