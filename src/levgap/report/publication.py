@@ -116,6 +116,7 @@ def specification(manifest: Mapping[str, Any]) -> dict[str, Any]:
     counts = manifest.get("counts", {}) or {}
     industries = int(counts.get("industries", 0) or 0)
     pooled = len(manifest.get("pooled_industries", []) or [])
+    years = counts.get("years", []) or []
     model = (manifest.get("model") or {}).get("name") if isinstance(
         manifest.get("model"), Mapping) else None
     return {
@@ -123,7 +124,7 @@ def specification(manifest: Mapping[str, Any]) -> dict[str, Any]:
         "model": model or model_opts.get("model", "linear"),
         "absorbed": {"industry": {"levels": industries, "own": industries - pooled,
                                   "pooled": pooled},
-                     "year": {"levels": len(counts.get("years", []) or [])}},
+                     "year": {"levels": years if isinstance(years, int) else len(years)}},
         "lag_drivers": bool(model_opts.get("lag_drivers", False)),
         "cluster": model_opts.get("cluster", ""),
         "legacy": True,
