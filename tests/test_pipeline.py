@@ -9,10 +9,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from levgap.analysis import COEF_COLUMNS, DRIVER_COLUMNS, FIT_COLUMNS, TARGET_COLUMNS
-from levgap.frames import SIGN_COLUMNS
 from levgap.config import ModelSpec, RunConfig
 from levgap.demo import TRUE_COEFFICIENTS, make_panel, planted_shocks
 from levgap.errors import ConfigError, ModelError
+from levgap.frames import SIGN_COLUMNS
 from levgap.pipeline import analyze
 
 

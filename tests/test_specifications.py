@@ -14,7 +14,6 @@ from levgap.config import ModelSpec, RunConfig
 from levgap.errors import ConfigError, ModelError, SchemaError
 from levgap.estimation import estimate, sample_of
 from levgap.features import build_features
-from levgap.ingest import validate_panel
 from levgap.models.famamacbeth import fit_famamacbeth
 from levgap.models.within import fit_within
 from levgap.pipeline import analyze
@@ -261,3 +260,21 @@ def test_saved_model_scores_with_the_industry_median(panel: pd.DataFrame, tmp_pa
         assert got[i] == pytest.approx(float(np.median(y[cell])))
     with pytest.raises(ModelError):
         estimate(panel.head(3), spec=ModelSpec(estimator="fama-macbeth", effects="year"))
+
+
+def test_what_each_measure_absorbed(panel: pd.DataFrame) -> None:
+    """A measure observed in one year absorbs no year effect, whatever the panel spans."""
+    from levgap.report.publication import RunTables, comparison_table
+
+    p = panel.copy()
+    p.loc[p["fiscal_year"] < p["fiscal_year"].max(), "market_equity"] = np.nan
+    a = analyze(p, spec=ModelSpec(model="linear"))
+    spec = a.manifest["specification"]
+    assert spec["absorbed_by_measure"]["market"]["year"]["levels"] == 1
+    assert spec["absorbed_by_measure"]["book"]["year"]["levels"] == p["fiscal_year"].nunique()
+    own = spec["absorbed_by_measure"]["book"]["industry"]
+    assert own["own"] + own["pooled"] == p["industry"].nunique()
+    md = comparison_table([RunTables(a.coefficients, a.model_fit, a.manifest)],
+                          fmt="markdown")
+    assert f"| Year effects |  | {p['fiscal_year'].nunique()} years | 1 year, none absorbed |" \
+        in md

@@ -140,7 +140,8 @@ def estimate(
                          f"({' '.join(notes)}).")
     exclusions = concat_ledger(ledger)
     manifest = build_manifest(panel, config, base.feats, base.feats.frame, exclusions, notes)
-    manifest["specification"] = specification_record(base, spec, kind, coefs[0]["model"][0])
+    manifest["specification"] = specification_record(base, spec, kind, coefs[0]["model"][0],
+                                                     used=used)
     manifest["estimation"] = info
     out_sample = pd.DataFrame()
     if sample:

@@ -140,7 +140,7 @@ def analyze(
     exclusions = concat_ledger(ledger)
     manifest = build_manifest(panel, config, ctx.feats, ctx.feats.frame, exclusions, notes,
                               records)
-    manifest["specification"] = specification_record(base, spec, "pooled")
+    manifest["specification"] = specification_record(base, spec, "pooled", used=used)
     extra = {}
     if sample:
         from levgap.sample import sample_frame

@@ -91,8 +91,32 @@ def measure_context(ctx: Context, measure: str) -> Context:
     return replace(ctx, X=X)
 
 
+def absorbed(ctx: Context, spec: ModelSpec, rows: np.ndarray | None = None
+             ) -> dict[str, Any]:
+    """The effects absorbed and their levels among ``rows`` (default all): industries with an
+    effect of their own and pooled ones, years, firms."""
+    sel = slice(None) if rows is None else rows
+    levels = ctx.feats.levels
+    small = np.asarray(levels.small, dtype=bool)
+    present = np.zeros(len(small), dtype=bool)
+    present[np.unique(ctx.level[sel])] = True
+    out: dict[str, Any] = {}
+    if "industry" in spec.absorbs:
+        out["industry"] = {
+            "levels": int(present.sum()), "own": int((present & ~small).sum()),
+            "pooled": int((present & small).sum()),
+            "digits": int(spec.industry_digits), "pooling": spec.pooling,
+        }
+    if "year" in spec.absorbs:
+        out["year"] = {"levels": int(len(np.unique(ctx.year[sel])))}
+    if "firm" in spec.absorbs:
+        out["firm"] = {"levels": int(len(np.unique(ctx.firm[sel])))}
+    return out
+
+
 def specification_record(ctx: Context, spec: ModelSpec, estimator: str,
-                         model: str | None = None) -> dict[str, Any]:
+                         model: str | None = None,
+                         used: dict[str, np.ndarray] | None = None) -> dict[str, Any]:
     """What the run absorbed and held, for ``run.json`` (``specification``) and tables.
 
     Parameters
@@ -104,26 +128,18 @@ def specification_record(ctx: Context, spec: ModelSpec, estimator: str,
         ``pooled``, ``within`` or ``fama-macbeth``.
     model : str, optional
         The fit's model key (default ``spec.model``).
+    used : dict of str to numpy.ndarray, optional
+        Each measure's rows: ``absorbed_by_measure`` then counts each measure's own levels
+        (a measure observed in one year absorbs no year effect, whatever the panel spans).
     """
-    levels = ctx.feats.levels
-    absorbs = spec.absorbs
-    small = np.asarray(levels.small, dtype=bool)
-    effects: dict[str, Any] = {}
-    if "industry" in absorbs:
-        effects["industry"] = {
-            "levels": int(len(levels.labels)), "own": int((~small).sum()),
-            "pooled": int(small.sum()),
-            "digits": int(spec.industry_digits), "pooling": spec.pooling,
-        }
-    if "year" in absorbs:
-        effects["year"] = {"levels": int(len(ctx.years))}
-    if "firm" in absorbs:
-        effects["firm"] = {"levels": int(np.count_nonzero(np.bincount(ctx.firm)))}
+    effects = absorbed(ctx, spec)
+    by_measure = {m: absorbed(ctx, spec, rows) for m, rows in (used or {}).items()}
     built = {d: (DRIVERS[d].built if d in DRIVERS else INPUT_DRIVER_BUILT.format(name=d))
              for d in ctx.feats.drivers}
     return {
         "effects": spec.effects,
         "absorbed": effects,
+        "absorbed_by_measure": by_measure,
         "estimator": estimator,
         "model": model or spec.model,
         "lag_drivers": bool(spec.lag_drivers),

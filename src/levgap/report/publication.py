@@ -131,8 +131,9 @@ def specification(manifest: Mapping[str, Any]) -> dict[str, Any]:
     }
 
 
-def _effect_cells(spec: Mapping[str, Any]) -> dict[str, str]:
-    absorbed = spec.get("absorbed", {}) or {}
+def _effect_cells(spec: Mapping[str, Any], measure: str) -> dict[str, str]:
+    absorbed = (spec.get("absorbed_by_measure") or {}).get(measure) or spec.get(
+        "absorbed", {}) or {}
     fm = spec.get("estimator") == "fama-macbeth"
     out = {}
     ind = absorbed.get("industry")
@@ -233,7 +234,7 @@ def build_table(runs: Sequence[RunTables]) -> Table:
 def _footer(runs: Sequence[RunTables], columns: list[tuple[int, str, str]]
             ) -> list[tuple[str, list[str | float]]]:
     specs = [specification(r.manifest) for r in runs]
-    effects = [_effect_cells(specs[i]) for i, _, _ in columns]
+    effects = [_effect_cells(specs[i], m) for i, m, _ in columns]
     fits = []
     for i, m, model in columns:
         fit = runs[i].model_fit

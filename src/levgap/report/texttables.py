@@ -1,7 +1,8 @@
 """Tables as text for papers: LaTeX (booktabs), Markdown and CSV (pure functions).
 
-- LaTeX: a ``tabular`` with ``\\toprule``/``\\midrule``/``\\bottomrule`` (``\\usepackage{booktabs}``),
-  text from the data escaped, negative numbers with a true minus (``$-$``).
+- LaTeX: a ``tabular`` with ``\\toprule``/``\\midrule``/``\\bottomrule`` (it needs
+  ``\\usepackage{booktabs}``), text from the data escaped, negative numbers with a true
+  minus (``$-$``).
 - Markdown: a pipe table whose cells escape Markdown's own characters with backslashes,
   never with HTML entities; negative numbers with U+2212.
 - CSV: plain numbers with an ASCII minus, so a spreadsheet or a script reads them as numbers
