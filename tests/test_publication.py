@@ -56,7 +56,7 @@ def test_latex_is_a_booktabs_tabular_with_every_driver(run):
     for needle in ("Book leverage", "Market leverage", "Industry effects & & 6 own, 1 pooled",
                    "Year effects & & 3 years & 3 years", "Standard errors & & By firm",
                    "Estimator & & Pooled OLS", "Drivers dated & & t & t",
-                   "Observations & & 90 & 90", r"$R^2$ in sample & & $0.410$",
+                   "Firm-years & & 90 & 90", r"$R^2$ in sample & & $0.410$",
                    r"$^{***}\,p<0.01$", r"$^{**}\,p<0.05$", r"$^{*}\,p<0.1$",
                    "Standard errors in parentheses", "Frank and Goyal (2009)"):
         assert needle in tex, needle
@@ -85,7 +85,7 @@ def test_markdown_is_a_pipe_table_without_html_entities(run):
     assert rows[1] == "|:---|:---:|---:|---:|"
     assert all(r.endswith("|") and r.count(" | ") == 3 for r in rows if r != rows[1])
     assert "| Market-to-book | \u2212 |" in md and "| Tangibility | + |" in md
-    assert "| Observations |  | 90 | 90 |" in md and "| R² in sample |" in md
+    assert "| Firm-years |  | 90 | 90 |" in md and "| R² in sample |" in md
     assert r"\*\*\* p \< 0.01" in md
     assert not re.search(r"&(lt|gt|amp|quot|#\d+);", md)
 
@@ -106,7 +106,7 @@ def test_csv_holds_numbers_with_an_ascii_minus(run):
             assert "\u2212" not in cell
             if cell.startswith(("=", "+", "-", "@")):
                 float(cell)  # only numbers start with a minus
-    assert next(r for r in rows if r[0] == "Observations")[2:] == ["90", "", "90", ""]
+    assert next(r for r in rows if r[0] == "Firm-years")[2:] == ["90", "", "90", ""]
 
 
 def test_digits_zero_never_prints_a_signed_zero(run):
@@ -147,7 +147,7 @@ def test_several_runs_say_what_each_absorbed():
     assert "| Firm effects |  | No | No | 1,234 firms |" in md
     assert "| Drivers dated |  | t-1 (lagged) | t | t |" in md
     assert "| Estimator |  | Pooled OLS | Fama-MacBeth | Within (OLS) |" in md
-    assert "By firm and year | Newey-West, 2 lags | By firm |" in md
+    assert "By firm and year (two-way) | Newey-West, 2 lags | By firm |" in md
     assert "| R² out of sample |  | \u22120.050 | n/a | n/a |" in md
     assert "| Weird col |  | \u22120.300 |" in md  # a driver without an expected sign
 
@@ -230,7 +230,7 @@ def test_cli_table(tmp_path):
     assert tex.exit_code == 0, tex.output
     assert tex.output.startswith("% levgap regression table") and "Market-to-book" in tex.output
     md = runner.invoke(app, ["table", str(out), "--format", "markdown"])
-    assert md.exit_code == 0 and md.output.startswith("|  | Expected | (1) Book leverage")
+    assert md.exit_code == 0 and md.output.startswith("|  | Expected sign | (1) Book leverage")
     written = runner.invoke(app, ["table", str(out), "--format", "csv", "-o",
                                   str(tmp_path / "t.csv")])
     assert written.exit_code == 0

@@ -278,3 +278,31 @@ def test_what_each_measure_absorbed(panel: pd.DataFrame) -> None:
                           fmt="markdown")
     assert f"| Year effects |  | {p['fiscal_year'].nunique()} years | 1 year, none absorbed |" \
         in md
+
+
+def test_report_firm_table_shows_each_measures_own_industry_median(panel: pd.DataFrame
+                                                                     ) -> None:
+    """The report's firm table keeps one firm value per driver; a measure-specific driver is
+    overridden per measure (``fo``), so the market view never shows the book median."""
+    from levgap.report.universe import firm_payload
+
+    a = analyze(panel, spec=ModelSpec(effects="year", model="linear",
+                                      drivers=("tangibility", "industry_median_leverage")))
+    year = int(a.targets["fiscal_year"].max())
+    pay = firm_payload(a.targets, a.drivers, a.manifest, year)
+    k, j = len(pay["drivers"]), pay["drivers"].index("industry_median_leverage")
+    scale = 10.0 ** pay["dec"][j]
+    from levgap.report.universe import unpack
+
+    fvals = unpack(pay["fv"])
+    d = a.drivers[(a.drivers["fiscal_year"] == year)
+                  & (a.drivers["driver"] == "industry_median_leverage")]
+    differs = 0
+    for m in ("book", "market"):
+        over = dict(zip(pay["m"][m]["fo"][::2], pay["m"][m]["fo"][1::2], strict=True))
+        for r in d[d["measure"] == m].itertuples():
+            at = pay["ids"].index(str(r.firm_id)) * k + j
+            shown = over.get(at, fvals[at])  # what universe.js shows
+            assert shown == round(r.firm_value * scale), (m, r.firm_id)
+            differs += at in over
+    assert differs > 0  # the two measures' medians differ somewhere

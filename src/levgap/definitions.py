@@ -14,9 +14,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from levgap.glossary import MEASURES, capital
+
 POSITIVE = "positive"
 NEGATIVE = "negative"
-MEASURE_LABELS = {"book": "Book leverage", "market": "Market leverage"}
+MEASURE_LABELS = {k: capital(v) for k, v in MEASURES.items()}
+"""Each measure's name as a column head (``levgap.glossary.MEASURES``)."""
 
 _RZ_FG = ("Rajan and Zingales (1995) JF 50(5) Table IX (memory); Frank and Goyal (2009) FM "
           "38(1), abstract")

@@ -29,6 +29,7 @@ the indicators and the industry median (``levgap.definitions.NOT_WINSORISED``).
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -78,7 +79,8 @@ class Features:
 
 
 def build_features(
-    data: pd.DataFrame, spec: ModelSpec, transforms: DriverTransforms | None = None
+    data: pd.DataFrame, spec: ModelSpec, transforms: DriverTransforms | None = None, *,
+    parents: Mapping[str, str] | None = None,
 ) -> Features:
     """Compute measures and drivers for a validated panel.
 
@@ -133,8 +135,9 @@ def build_features(
                                   "dividends_missing")
             f[name] = np.nan_to_num(f[name].to_numpy(), nan=0.0)
     if spec.lag_drivers:
-        lag_rows(f, lagged + [d + "_raw" for d in drivers])
-    levels = industry_levels(f["effect_group"], f["firm_id"], spec.min_industry_firms)
+        lag_rows(f, lagged)
+    levels = industry_levels(f["effect_group"], f["firm_id"], spec.min_industry_firms,
+                             parents)
     f["flags"] = add_flag(f["flags"], levels.small[levels.codes], "industry_effect_pooled")
     return Features(frame=f, drivers=tuple(drivers), levels=levels, transforms=transforms,
                     notes=tuple(notes))
@@ -250,7 +253,7 @@ def lag_rows(f: pd.DataFrame, drivers: list[str]) -> None:
     pos = here.get_indexer(prev)
     found = pos >= 0
     f["has_prior_year"] = found
-    for name in drivers:
+    for name in dict.fromkeys([*drivers, *(d + "_raw" for d in drivers if d + "_raw" in f)]):
         values = f[name].to_numpy()
         f[name] = np.where(found, values[np.where(found, pos, 0)], np.nan)
 

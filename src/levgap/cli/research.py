@@ -307,14 +307,16 @@ def _targets_of(source: Path, config: Path | None, measure: str
 def _adjust_table(frame: Any) -> Any:
     from rich.table import Table
 
+    from levgap import glossary as g
     from levgap.cli.common import plain
 
-    table = Table(title="Speed of adjustment toward the target (share of the gap closed a "
-                  "year; 95% intervals; standard errors clustered by firm)",
+    table = Table(title=f"{g.capital(g.label('speed'))} toward the target (share of the gap "
+                  "closed a year; 95% intervals; standard errors clustered by firm)",
                   title_justify="left")
-    for h in ("measure", "estimator", "speed", "s.e.", "95% interval", "half-life, years",
-              "firm-years", "firms", "bias"):
-        table.add_column(h, justify="left" if h in ("measure", "estimator", "bias")
+    for key in ("measure", "estimator", "speed", "std_error", "ci", "half_life", "n_obs",
+                "n_firms", "bias"):
+        table.add_column(g.label(key) + (", years" if key == "half_life" else ""),
+                         justify="left" if key in ("measure", "estimator", "bias")
                          else "right")
     for r in frame.itertuples():
         hl = "" if r.half_life != r.half_life else f"{r.half_life:.1f}"

@@ -21,20 +21,15 @@ from typing import Any
 
 import pandas as pd
 
-from levgap.definitions import DRIVERS, NEGATIVE, POSITIVE, label
+from levgap import glossary as g
+from levgap.definitions import DRIVERS, MEASURE_LABELS, NEGATIVE, POSITIVE, label
 from levgap.errors import ConfigError
 
 STARS: tuple[tuple[float, str], ...] = ((0.01, "***"), (0.05, "**"), (0.1, "*"))
 """Significance marks and their thresholds (the usual convention in economics journals)."""
 
-MEASURE_LABELS = {"book": "Book leverage", "market": "Market leverage"}
-CLUSTER_LABELS = {"firm": "Firm", "firm-year": "Firm and year", "industry": "Industry"}
-ESTIMATOR_LABELS = {
-    ("pooled", "linear"): "Pooled OLS",
-    ("pooled", "fractional"): "Fractional logit",
-    ("within", "within"): "Within (OLS)",
-    ("fama-macbeth", "fama-macbeth"): "Fama-MacBeth",
-}
+EXPECTED = g.capital(g.label("expected_sign"))
+"""The head of the column of expected signs."""
 NOT_COMPUTED = "n/a"
 """What a footer cell shows for a statistic an estimator does not give."""
 
@@ -158,8 +153,9 @@ def _effect_cells(spec: Mapping[str, Any], measure: str) -> dict[str, str]:
 
 
 def _estimator_cell(spec: Mapping[str, Any], model: str) -> str:
-    kind = spec.get("estimator", "pooled")
-    return ESTIMATOR_LABELS.get((kind, model), ESTIMATOR_LABELS.get((kind, kind), model))
+    kind = str(spec.get("estimator", "pooled"))
+    name = g.ESTIMATORS.get(f"{kind} {model}", g.ESTIMATORS.get(kind, model))
+    return g.capital(name)
 
 
 def _errors_cell(spec: Mapping[str, Any], coef: pd.DataFrame,
@@ -173,7 +169,7 @@ def _errors_cell(spec: Mapping[str, Any], coef: pd.DataFrame,
             return f"Newey-West, {shown} lag{'' if lags == [1] else 's'}"
         return "Slopes' s.d."
     cluster = str(spec.get("cluster", ""))
-    return f"By {CLUSTER_LABELS.get(cluster, cluster).lower()}" if cluster else ""
+    return f"By {g.CLUSTERS.get(cluster, cluster)}" if cluster else ""
 
 
 def _key_order(keys: list[str]) -> list[str]:
@@ -250,23 +246,23 @@ def _footer(runs: Sequence[RunTables], columns: list[tuple[int, str, str]]
         return out
 
     rows: list[tuple[str, list[str | float]]] = [
-        ("Industry effects", [e["industry"] for e in effects]),
-        ("Year effects", [e["year"] for e in effects]),
+        ("industry_effects", [e["industry"] for e in effects]),
+        ("year_effects", [e["year"] for e in effects]),
     ]
     if any(e["firm"] != "No" for e in effects):
-        rows.append(("Firm effects", [e["firm"] for e in effects]))
+        rows.append(("firm_effects", [e["firm"] for e in effects]))
     rows += [
-        ("Drivers dated", ["t-1 (lagged)" if specs[i].get("lag_drivers") else "t"
+        ("drivers_dated", ["t-1 (lagged)" if specs[i].get("lag_drivers") else "t"
                            for i, _, _ in columns]),
-        ("Estimator", [_estimator_cell(specs[i], model) for i, _, model in columns]),
-        ("Standard errors", [_errors_cell(specs[i], _coef_of(runs[i], m, model),
-                                          runs[i].manifest) for i, m, model in columns]),
-        ("Observations", stat("n_obs", lambda v: f"{int(v):,}")),
-        ("Firms", stat("n_firms", lambda v: f"{int(v):,}")),
-        ("R2 in sample", stat("r2", float)),
-        ("R2 out of sample", stat("r2_oos", float, NOT_COMPUTED)),
+        ("estimator", [_estimator_cell(specs[i], model) for i, _, model in columns]),
+        ("errors", [_errors_cell(specs[i], _coef_of(runs[i], m, model),
+                                 runs[i].manifest) for i, m, model in columns]),
+        ("n_obs", stat("n_obs", lambda v: f"{int(v):,}")),
+        ("n_firms", stat("n_firms", lambda v: f"{int(v):,}")),
+        ("r2", stat("r2", float)),
+        ("r2_oos", stat("r2_oos", float, NOT_COMPUTED)),
     ]
-    return rows
+    return [(g.capital(g.label(key)), cells) for key, cells in rows]
 
 
 def _coef_of(run: RunTables, measure: str, model: str) -> pd.DataFrame:
@@ -306,7 +302,7 @@ def _note(runs: Sequence[RunTables], columns: list[tuple[int, str, str]],
         for t in signed:
             by_source.setdefault(DRIVERS[t].source, []).append(label(t))
         cites = "; ".join(f"{', '.join(labs)}: {src}" for src, labs in by_source.items())
-        parts.append(f"Expected: the sign the literature reports ({cites}).")
+        parts.append(f"{EXPECTED}: the sign the literature reports ({cites}).")
     dep = "; ".join(f"{MEASURE_LABELS[m].lower()} = {d}" for m, d in
                     (("book", "total debt / total assets"),
                      ("market", "total debt / (total debt + market value of equity)"))

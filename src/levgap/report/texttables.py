@@ -21,7 +21,7 @@ import io
 import re
 from collections.abc import Callable, Sequence
 
-from levgap.report.publication import STARS, Table, sign_symbol, stars
+from levgap.report.publication import EXPECTED, STARS, Table, sign_symbol, stars
 
 MINUS = "\u2212"
 
@@ -54,8 +54,9 @@ def markdown_escape(text: str) -> str:
 
 
 def _r2(label: str, fmt: str) -> str:
-    return {"latex": label.replace("R2", "$R^2$"), "markdown": label.replace("R2", "R²"),
-            "csv": label.replace("R2", "R²")}[fmt]
+    """R² as each format writes it (the notes say R2, the glossary's labels R²)."""
+    text = label.replace("R2", "R²")
+    return text.replace("R²", "$R^2$") if fmt == "latex" else text
 
 
 # -- LaTeX -------------------------------------------------------------------------------
@@ -66,7 +67,7 @@ def _latex(t: Table, digits: int) -> str:
     out = [r"% levgap regression table; needs \usepackage{booktabs}",
            r"\begin{tabular}{ll" + "c" * n + "}", r"\toprule"]
     out.append(" & & " + " & ".join(t.numbers) + r" \\")
-    out.append(" & Expected & " + " & ".join(latex_escape(c) for c in t.columns) + r" \\")
+    out.append(f" & {EXPECTED} & " + " & ".join(latex_escape(c) for c in t.columns) + r" \\")
     out.append(r"\midrule")
     for term, sign, cells in t.body:
         est, se = [], []
@@ -103,7 +104,7 @@ def _md_row(cells: Sequence[str]) -> str:
 
 
 def _markdown(t: Table, digits: int) -> str:
-    head = ["", "Expected", *[f"{num} {col}" for num, col in zip(t.numbers, t.columns,
+    head = ["", EXPECTED, *[f"{num} {col}" for num, col in zip(t.numbers, t.columns,
                                                                  strict=True)]]
     lines = [_md_row(head), "|:---|:---:|" + "---:|" * len(t.columns)]
     for term, sign, cells in t.body:
