@@ -306,3 +306,17 @@ def test_report_firm_table_shows_each_measures_own_industry_median(panel: pd.Dat
             assert shown == round(r.firm_value * scale), (m, r.firm_id)
             differs += at in over
     assert differs > 0  # the two measures' medians differ somewhere
+
+
+@pytest.mark.parametrize(("effects", "said"), [
+    ("year", "year effects are absorbed and not shown"),
+    ("none", "no fixed effects are absorbed"),
+])
+def test_report_says_what_the_fit_absorbed(panel: pd.DataFrame, effects: str,
+                                           said: str) -> None:
+    from levgap.report.html import render_report
+
+    a = analyze(panel, spec=ModelSpec(effects=effects, model="linear",
+                                      drivers=("tangibility", "profitability")))
+    page = render_report(a.tables(), a.manifest)
+    assert said in page and "industry and year effects are absorbed" not in page
