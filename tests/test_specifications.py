@@ -320,3 +320,14 @@ def test_report_says_what_the_fit_absorbed(panel: pd.DataFrame, effects: str,
                                       drivers=("tangibility", "profitability")))
     page = render_report(a.tables(), a.manifest)
     assert said in page and "industry and year effects are absorbed" not in page
+
+
+def test_no_raw_value_for_a_driver_left_as_built(panel: pd.DataFrame) -> None:
+    """drivers.csv gives a raw value only where winsorising changed the driver: never for the
+    industry median leverage (not winsorised; each measure has its own)."""
+    a = analyze(panel, spec=ModelSpec(effects="year", model="linear", drivers=(
+        "tangibility", "profitability", "industry_median_leverage")))
+    d = a.drivers
+    median = d[d["driver"] == "industry_median_leverage"]
+    assert median["raw_value"].isna().all()
+    assert d.loc[d["driver"] == "profitability", "raw_value"].notna().any()  # others keep it

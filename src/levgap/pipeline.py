@@ -394,11 +394,15 @@ def frame_years(ctx: Context, rows: np.ndarray) -> np.ndarray:
 
 
 def raw_values(ctx: Context, rows: np.ndarray) -> np.ndarray:
-    """Each driver's value before winsorising, where winsorising changed it (else NaN)."""
+    """Each driver's value before winsorising, where winsorising changed it (else NaN); none
+    for drivers left as built (``NOT_WINSORISED``: the industry median leverage, whose column
+    differs by measure, and indicators)."""
+    from levgap.definitions import NOT_WINSORISED
+
     frame = ctx.feats.frame
     out = np.full((len(rows), len(ctx.feats.drivers)), np.nan)
     for j, name in enumerate(ctx.feats.drivers):
-        if name + "_raw" in frame:
+        if name + "_raw" in frame and name not in NOT_WINSORISED:
             raw = frame[name + "_raw"].to_numpy(dtype=float)[rows]
             used = ctx.X[rows, j]
             clipped = np.isfinite(raw) & (raw != used)
