@@ -331,3 +331,15 @@ def test_no_raw_value_for_a_driver_left_as_built(panel: pd.DataFrame) -> None:
     median = d[d["driver"] == "industry_median_leverage"]
     assert median["raw_value"].isna().all()
     assert d.loc[d["driver"] == "profitability", "raw_value"].notna().any()  # others keep it
+
+
+def test_saved_model_raw_median_is_the_measures_own(panel: pd.DataFrame, tmp_path) -> None:
+    spec = ModelSpec(model="linear", effects="year",
+                     drivers=("tangibility", "industry_median_leverage"))
+    a = analyze(panel, spec=spec)
+    a.write(tmp_path / "run", report=False)
+    scored = levgap.load_model(tmp_path / "run").score(panel.head(6).assign(firm_id="NEW"))
+    col = "industry_median_leverage"
+    np.testing.assert_array_equal(scored[col + "_raw"], scored[col])
+    by = scored.pivot_table(index="fiscal_year", columns="measure", values=col)
+    assert (by["book"] != by["market"]).any()  # the market rows carry the market median

@@ -22,6 +22,7 @@ import pandas as pd
 
 from levgap.band import STATUS, Band, gap_z, status_codes
 from levgap.config import ModelSpec
+from levgap.definitions import MEASURE_SPECIFIC
 from levgap.errors import ModelError, OutputError
 from levgap.groups import WHOLE_SAMPLE
 from levgap.models.result import Fit
@@ -330,7 +331,9 @@ class SavedModel:
         out.loc[np.isnan(actual), "status"] = ""
         for j, d in enumerate(self.drivers):
             out[d] = X[:, j]
-            out[d + "_raw"] = f[d + "_raw"].to_numpy() if d + "_raw" in f else X[:, j]
+            # a driver that differs by measure is used as built: its raw value is this one's
+            out[d + "_raw"] = (f[d + "_raw"].to_numpy() if d + "_raw" in f
+                               and d not in MEASURE_SPECIFIC else X[:, j])
             out[d + "_peer"] = X_peer[:, j]
             out[d + "_contribution"] = contrib[:, j]
         return out
