@@ -268,3 +268,37 @@ def test_report_firm_view_tells_persistent_from_new(analyst_run, tmp_path):
     assert "persistent: under" in standing and "outside the band on the same side" in standing
     assert "new outside the band: over" in shocked and "persistent:" not in shocked
     assert "newly_outside</code>: outside the band this year" in shocked
+
+
+def test_firm_view_shows_each_measures_own_industry_median(tmp_path):
+    """industry_median_leverage differs by measure: the page shows the market median under
+    market and the book median under book (drivers.csv), never one for both."""
+    import pandas as pd
+    from _synthetic import panel as synthetic_panel
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    p = synthetic_panel(41, industries=6, firms=(8, 10), years=4)
+    src = tmp_path / "panel.csv"
+    p.drop(columns=["true_target", "spread"]).to_csv(src, index=False)
+    out = tmp_path / "run"
+    res = CliRunner().invoke(app, ["analyze", str(src), "--out", str(out), "--quiet",
+                                   "--model", "linear", "--effects", "year", "--drivers",
+                                   "tangibility,industry_median_leverage"])
+    assert res.exit_code == 0, res.output
+    d = pd.read_csv(out / "drivers.csv", dtype={"firm_id": str})
+    d = d[(d["fiscal_year"] == d["fiscal_year"].max())
+          & (d["driver"] == "industry_median_leverage")]
+    wide = d.pivot(index="firm_id", columns="measure", values="firm_value")
+    firm = (wide["market"] - wide["book"]).abs().idxmax()
+    shown = {}
+    for measure in ("book", "market"):
+        dom, console = load(out / "report.html", tmp_path, f"open={firm}&measure={measure}")
+        assert console == [], console
+        m = re.search(r"<td>industry_median_leverage</td><td class=\"n\">([-0-9.]+)", dom)
+        assert m is not None, measure
+        shown[measure] = m.group(1)
+        step = 10.0 ** -len(m.group(1).split(".")[1]) if "." in m.group(1) else 1.0
+        assert abs(float(m.group(1)) - wide.loc[firm, measure]) <= step / 2 + 1e-12
+    assert shown["book"] != shown["market"]

@@ -188,6 +188,9 @@ class Analysis:
     saved_model : dict
         The fitted model as data (``model.json``): everything needed to score a firm-year that
         is not in the panel (see ``levgap.models.saved``); empty until a model records it.
+    sample : pandas.DataFrame
+        The estimation sample (``analyze(..., sample=True)``, ``levgap.sample``): one row per
+        firm-year used, each measure and driver raw and as used; empty unless asked for.
     """
 
     targets: pd.DataFrame
@@ -198,10 +201,11 @@ class Analysis:
     fold_coefficients: pd.DataFrame = field(default_factory=lambda: _empty_frame())
     manifest: dict[str, Any] = field(default_factory=dict)
     saved_model: dict[str, Any] = field(default_factory=dict)
+    sample: pd.DataFrame = field(default_factory=lambda: _empty_frame())
 
     def tables(self) -> dict[str, pd.DataFrame]:
-        """The contract's tables by file stem."""
-        return {
+        """The contract's tables by file stem (and ``sample`` when it was asked for)."""
+        out = {
             "targets": self.targets,
             "drivers": self.drivers,
             "coefficients": self.coefficients,
@@ -209,6 +213,9 @@ class Analysis:
             "fold_coefficients": self.fold_coefficients,
             "exclusions": self.exclusions,
         }
+        if self.sample.shape[1]:
+            out["sample"] = self.sample
+        return out
 
     def tidy(self) -> pd.DataFrame:
         """The targets table, from which screens and charts are built."""

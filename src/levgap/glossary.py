@@ -112,6 +112,29 @@ TERMS: dict[str, Term] = {
     "std_error": Term("standard error", "", "cluster-robust standard error"),
     "ci": Term("95% interval", "", "95% confidence interval"),
     "p_value": Term("p", "", "two-sided p-value"),
+    "expected_sign": Term("expected sign", "", "the direction of the driver's effect on "
+                          "leverage that the literature reports"),
+    "agrees": Term("agrees", "", "yes when the estimate has the expected sign, no when not"),
+    "sign_source": Term("sign source", "", "where the expected sign comes from"),
+    # replication: the regression table, Fama-MacBeth, the speed of adjustment
+    "industry_effects": Term("industry effects", "", "industries whose effect was absorbed: "
+                             "with an effect of their own, and pooled toward a parent group"),
+    "year_effects": Term("year effects", "", "fiscal years whose effect was absorbed"),
+    "firm_effects": Term("firm effects", "", "firms whose own effect was absorbed (within "
+                         "transformation)"),
+    "drivers_dated": Term("drivers dated", "", "t: the drivers of the same fiscal year; t-1: "
+                          "of the previous one ([model] lag_drivers)"),
+    "estimator": Term("estimator", "", "how the coefficients were estimated"),
+    "errors": Term("standard errors", "", "how the standard errors were computed: the "
+                   "clustering, or the time series of Fama-MacBeth's yearly slopes"),
+    "n_years": Term("years averaged", "years", "Fama-MacBeth: the fiscal years whose "
+                    "cross-sections a slope averages"),
+    "speed": Term("speed of adjustment", "", "share of the gap to target a firm closes in a "
+                  "year"),
+    "half_life": Term("half-life", "years", "years until half of a gap is closed: "
+                      "ln(0.5) / ln(1 - speed)"),
+    "bias": Term("bias", "", "the direction the literature finds an estimator biased, or "
+                 "corrected"),
     # steps from the peer median to the actual ratio
     "step": Term("step", "", "a step of the bridge from peer median to actual"),
     "peers_offset": Term("peers' offset", "pp", "peer target minus peer median"),
@@ -195,7 +218,28 @@ CLUSTERS: dict[str, str] = {"firm": "firm", "firm-year": "firm and year (two-way
 MEASURES: dict[str, str] = {"book": "book leverage", "market": "market leverage"}
 """Each measure's name."""
 
+ESTIMATORS: dict[str, str] = {
+    "pooled linear": "pooled OLS",
+    "pooled fractional": "fractional logit",
+    "within": "within (OLS)",
+    "fama-macbeth": "Fama-MacBeth",
+}
+"""What each estimator is called (``estimator`` and, for pooled fits, ``model``)."""
+
+ABSORBED: dict[str, str] = {
+    "industry,year": "industry and year effects are absorbed and not shown",
+    "firm,year": "firm and year effects are absorbed and not shown",
+    "year": "year effects are absorbed and not shown",
+    "none": "no fixed effects are absorbed",
+}
+"""What a specification's ``[model] effects`` absorbed, in words."""
+
 _PLURALS = {"industry": "industries"}  # the others take an "s"
+
+
+def capital(text: str) -> str:
+    """``text`` with its first letter capitalised, for a table's row label or a sentence."""
+    return text[:1].upper() + text[1:]
 
 
 def label(key: str) -> str:

@@ -40,6 +40,7 @@ def _run_analysis(
     report: bool,
     quiet: bool,
     year_from: str = "--year",
+    sample: bool = False,
 ) -> tuple[Any, Any]:
     from levgap.analysis import write_analysis
     from levgap.ingest import read_panel
@@ -62,7 +63,7 @@ def _run_analysis(
         )
     show = not quiet and len(panel.data) >= BIG_PANEL
     with progress_bar(show) as bar:
-        result = analyze(panel, config=config, progress=stepper(bar))
+        result = analyze(panel, config=config, progress=stepper(bar), sample=sample)
     inputs = (str(panel_path), *((config.source,) if config.source else ()),
               *(p for p in (config.input.peers, config.input.industry_names) if p))
     # The bar's refresh thread would compete with the writers for the interpreter: it is
@@ -194,6 +195,17 @@ def analyze(
     cluster: str = typer.Option(
         None, "--cluster", help="Clustering of standard errors: firm, firm-year or industry."),
     year: int = typer.Option(None, "--year", help="Report only this fiscal year."),
+    effects: str = typer.Option(None, "--effects",
+                                help="Fixed effects: industry,year (default), year or none "
+                                "(firm effects: levgap estimate)."),
+    industry_digits: int = typer.Option(None, "--industry-digits", min=0,
+                                        help="Industry level: the code's first n characters."),
+    drivers: str = typer.Option(None, "--drivers", help="Drivers, comma-separated (replaces "
+                                "[model] drivers; see levgap estimate --help)."),
+    input_drivers: str = typer.Option(None, "--input-drivers",
+                                      help="Numeric input columns used as further drivers."),
+    sample: bool = typer.Option(False, "--sample",
+                                help="Also write sample.csv: the exact estimation sample."),
     config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
     fmt: str = typer.Option("csv", "--format", help="Table format: csv or parquet."),
     xlsx: bool = typer.Option(False, "--xlsx", help="Also write workbook.xlsx."),
@@ -227,6 +239,10 @@ def analyze(
             changes["model"] = model
         if year is not None:
             changes["year"] = year
+        from levgap.cli.research import spec_changes
+
+        changes.update(spec_changes(effects=effects, industry_digits=industry_digits,
+                                    drivers=drivers, input_drivers=input_drivers))
         if changes:
             cfg = replace(cfg, model=_with_options(cfg.model, changes))
         files = {k: str(v.resolve()) for k, v in (("peers", peers),
@@ -236,7 +252,8 @@ def analyze(
         year_from = "--year" if year is not None else f"{config}: [model] year"
         result, committed = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force,
                                           xlsx=xlsx, report=not no_report,
-                                          quiet=quiet or as_json, year_from=year_from)
+                                          quiet=quiet or as_json, year_from=year_from,
+                                          sample=sample)
         if as_json:
             summary = {**_summary(result, out), "run_id": committed.run_id,
                        "written": [p.name for p in committed.written],

@@ -21,6 +21,7 @@ import pandas as pd
 
 from levgap.band import STATUS, Band, gap_z, status_codes
 from levgap.config import ModelSpec
+from levgap.definitions import MEASURE_SPECIFIC
 from levgap.errors import ModelError, OutputError
 from levgap.groups import WHOLE_SAMPLE
 from levgap.models.result import Fit
@@ -57,7 +58,13 @@ def measure_record(
                 "parent": levels.parent_labels[levels.parent[i]],
                 "weight": None if i >= len(w) or np.isnan(w[i]) else float(w[i]),
             })
+    extra: dict[str, Any] = {}
+    if "industry_median_leverage" in ctx.feats.drivers:
+        from levgap.derived import saved_medians
+
+        extra["industry_median"] = saved_medians(ctx.feats.frame, rows, y)
     return {
+        **extra,
         "full": est.full.to_dict(),
         "folds": [{"fold": f, "fit": fit.to_dict()}
                   for f, fit in zip(est.cf.fold_ids, est.cf.fits, strict=True)],
@@ -241,7 +248,7 @@ class SavedModel:
             a finite number > 0, say) is returned blank with status ``""``, the flag
             ``not_scorable`` and the rule it breaks in ``note``.
         """
-        from levgap.features import build_features, peer_group
+        from levgap.features import build_features
 
         data = _schema_frame(rows)
         bad, notes = _unscorable(data)
@@ -255,17 +262,20 @@ class SavedModel:
         with np.errstate(all="ignore"):
             feats = build_features(data, spec, transforms=transforms)
         f = feats.frame
+        given = (pd.to_numeric(data["industry_median_leverage"], errors="coerce").to_numpy(
+            dtype=float) if "industry_median_leverage" in data else None)
         drivers = list(self.drivers)
         missing = [d for d in drivers if d not in f]
         if missing:
             raise ModelError(f"rows must give what the drivers need; got no {missing[0]}.")
         X = f[drivers].to_numpy(dtype=float)
-        industry = peer_group(f["industry"], spec.industry_digits).to_numpy(dtype=object)
+        industry = f["effect_group"].to_numpy(dtype=object)
         level, year, new_ind, new_year = self.codes(industry, f["fiscal_year"].to_numpy())
         out = []
         with np.errstate(all="ignore"):
             for measure in self.measures:
-                part = self._score_measure(measure, f, X, industry, level, year, new_ind,
+                Xm = self._measure_drivers(measure, f, X, given)
+                part = self._score_measure(measure, f, Xm, industry, level, year, new_ind,
                                            new_year, fold, peer_profile)
                 part["note"] = notes
                 if bad.any():
@@ -321,10 +331,31 @@ class SavedModel:
         out.loc[np.isnan(actual), "status"] = ""
         for j, d in enumerate(self.drivers):
             out[d] = X[:, j]
-            out[d + "_raw"] = f[d + "_raw"].to_numpy() if d + "_raw" in f else X[:, j]
+            # a driver that differs by measure is used as built: its raw value is this one's
+            out[d + "_raw"] = (f[d + "_raw"].to_numpy() if d + "_raw" in f
+                               and d not in MEASURE_SPECIFIC else X[:, j])
             out[d + "_peer"] = X_peer[:, j]
             out[d + "_contribution"] = contrib[:, j]
         return out
+
+    def _measure_drivers(self, measure: str, f: pd.DataFrame, X: np.ndarray,
+                         given: np.ndarray | None) -> np.ndarray:
+        """The industry median leverage of a scored row: the rows' own column
+        ``industry_median_leverage`` where given, else the saved median of its industry
+        and year (a new firm is not part of it, as with the leave-one-out median)."""
+        from levgap.derived import PREFIX, lookup_medians
+        from levgap.features import peer_group
+
+        saved = self._measure(measure).get("industry_median")
+        if PREFIX not in self.drivers or saved is None:
+            return X
+        industry = peer_group(f["industry"], self.spec.industry_digits).to_numpy(dtype=object)
+        value = lookup_medians(saved, industry, f["fiscal_year"].to_numpy())
+        if given is not None:
+            value = np.where(np.isnan(given), value, given)
+        X = X.copy()
+        X[:, self.drivers.index(PREFIX)] = value
+        return X
 
     def _folds(self, measure: str, firm: np.ndarray, fold: int | str | None) -> np.ndarray:
         if fold is None:

@@ -308,6 +308,8 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
                                      str(model_opts.get("model", "not recorded"))),
         "cluster": CLUSTERS.get(model_opts.get("cluster"),
                                 model_opts.get("cluster", "not recorded")),
+        "absorbed": g.ABSORBED.get(str(model_opts.get("effects", "industry,year")),
+                                   g.ABSORBED["industry,year"]),
         "coverage": _num(model_opts.get("coverage")),
         "folds": model_opts.get("folds"),
         "fit": fit_rows,
@@ -425,9 +427,14 @@ def render_report(
     if progress is not None:
         progress("report", total, total)
     coef_rows = coefficients.to_dict("records")
+    sources: dict[str, str] = {}
+    for c in coef_rows:
+        if str(c.get("sign_source") or "") and str(c.get("term")) not in sources:
+            sources[str(c["term"])] = str(c["sign_source"])
     n_charts = len(charts) + sum(len(s["steps"]) for s in sections)
     return _environment().get_template("report.html.j2").render(
         h=header, year=year, sections=sections, charts=charts, coefficients=coef_rows,
+        sign_sources=list(sources.items()),
         caution=CAUTION, n_charts=n_charts, options=opts, g=g, universe=universe,
         u_labels=universe_labels(), money=g.money_unit(units),
         money_known=g.money_unit(units) != g.money_unit({}), money_note=g.money_note(units),

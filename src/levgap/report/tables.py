@@ -44,7 +44,8 @@ FORMATS: dict[str, str] = {"csv": ".csv", "parquet": ".parquet"}
 
 TEXT_COLUMNS: tuple[str, ...] = (
     "firm_id", "firm_name", "industry", "measure", "driver", "status", "reason", "detail",
-    "flags", "model", "term", "currency", "peer_group",
+    "flags", "model", "term", "currency", "peer_group", "expected_sign", "agrees",
+    "sign_source", "effect_group",
 )
 """Output columns read back as text (so that codes such as ``0100`` keep their zeros)."""
 

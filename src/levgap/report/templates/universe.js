@@ -96,6 +96,8 @@
       var s = 0;
       for (var r = 0; r < m.hn.length; r++) { m.hstart.push(s); s += m.hn[r]; }
       m.n = m.row.length;
+      m.fvOver = {};
+      for (var o = 0; o < (m.fo || []).length; o += 2) { m.fvOver[m.fo[o]] = m.fo[o + 1]; }
     });
     return D;
   }
@@ -205,7 +207,8 @@
     table.appendChild(el("thead")).appendChild(head);
     var tb = el("tbody");
     for (var j = 0; j < k; j++) {
-      var row = el("tr"), dec = D.dec[j], fv = D.fvals[f * k + j], pv = m.pv[r * k + j];
+      var at = f * k + j, row = el("tr"), dec = D.dec[j], pv = m.pv[r * k + j];
+      var fv = m.fvOver[at] !== undefined ? m.fvOver[at] : D.fvals[at];
       row.appendChild(el("td", null, D.drivers[j]));
       var own = fv === null ? "–" : fixed(fv / Math.pow(10, dec), dec);
       var raw = D.rawAt[f * k + j];
