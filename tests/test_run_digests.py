@@ -108,6 +108,42 @@ def test_a_run_replaces_and_removes_its_own_files(tmp_path, panel):
     assert not (copy / "targets.csv").exists() and (copy / "targets.parquet").is_file()
 
 
+def _as_written_before_digests(out: Path) -> None:
+    """Rewrite a run folder as levgap did before run.json recorded digests: run.json without
+    ``digests``, the marker's record of run.json updated to its new content."""
+    run = json.loads((out / "run.json").read_text())
+    del run["digests"]
+    (out / "run.json").write_text(json.dumps(run))
+    size, sha = file_digest(out / "run.json")
+    raw = json.loads((out / MARKER).read_text())
+    raw["files"]["run.json"] = Record(size, sha, "output").to_json()
+    (out / MARKER).write_text(json.dumps(raw))
+
+
+def test_a_folder_written_before_digests_is_replaced_by_a_new_run(tmp_path, panel):
+    """Upgrading: the previous format's run.json (no digests) still witnesses its own marker,
+    so a new run replaces that run's files; readers ask for a new run instead."""
+    out = tmp_path / "out"
+    assert _analyze(panel, out).exit_code == 0
+    _as_written_before_digests(out)
+    _one_line_error(runner.invoke(app, ["screen", str(out), "--top", "1"]), "digests")
+    result = _analyze(panel, out, "--format", "parquet")
+    assert result.exit_code == 0, result.output
+    assert not (out / "targets.csv").exists() and (out / "targets.parquet").is_file()
+    assert "digests" in json.loads((out / "run.json").read_text())
+    # a file the old run.json does not list is still not levgap's
+    out2 = tmp_path / "out2"
+    assert _analyze(panel, out2).exit_code == 0
+    (out2 / "report.html").write_bytes(b"<p>mine</p>")
+    size, sha = file_digest(out2 / "report.html")
+    raw = json.loads((out2 / MARKER).read_text())
+    raw["files"]["report.html"] = Record(size, sha, "output").to_json()
+    (out2 / MARKER).write_text(json.dumps(raw))
+    _as_written_before_digests(out2)
+    _analyze(panel, out2, "--force")  # --no-report: a report.html of its own would go
+    assert (out2 / "report.html").read_bytes() == b"<p>mine</p>"
+
+
 # ------------------------------------------------------------------------------ H2: readers
 
 @pytest.fixture(scope="module")

@@ -43,11 +43,17 @@ class RunRecord:
         SHA-256 of the ``run.json`` bytes (a marker's record of ``run.json`` must match it).
     files : mapping of str to (int, str)
         Every other file of the run: size and SHA-256.
+    undigested : frozenset of str
+        Files listed by a ``run.json`` written before runs recorded digests (no ``digests``
+        key at all): such a record still witnesses the marker of its own run, whose records
+        carry the SHA-256 (:func:`levgap.outputs.marker.witnessed`), so that a folder written
+        by that levgap can be replaced by a new run. Readers refuse such a folder.
     """
 
     run_id: str
     sha256: str
     files: Mapping[str, tuple[int, str]] = field(default_factory=dict)
+    undigested: frozenset[str] = frozenset()
 
 
 def parse_digests(raw: Any, listed: list[str]) -> dict[str, tuple[int, str]] | None:
@@ -94,7 +100,10 @@ def read_run_record(path: Path) -> RunRecord | None:
     if not isinstance(run_id, str) or not RUN_ID.match(run_id) or not isinstance(listed, list) \
             or not all(isinstance(n, str) and is_own_name(n) and n != RUN_FILE for n in listed):
         return None
+    sha = hashlib.sha256(data).hexdigest()
+    if "digests" not in raw:  # written before runs recorded their files' digests
+        return RunRecord(run_id, sha, {}, frozenset(listed))
     files = parse_digests(raw.get("digests"), listed)
     if files is None:
         return None
-    return RunRecord(run_id, hashlib.sha256(data).hexdigest(), files)
+    return RunRecord(run_id, sha, files)

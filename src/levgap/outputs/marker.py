@@ -229,7 +229,7 @@ def witnessed(name: str, rec: Record, marker: Marker, runs: Iterable[RunRecord])
         if name == RUN_FILE:
             if run.sha256 == rec.sha256:
                 return True
-        elif run.files.get(name) == (rec.size, rec.sha256):
+        elif run.files.get(name) == (rec.size, rec.sha256) or name in run.undigested:
             return True
     return False
 
