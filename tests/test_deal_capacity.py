@@ -113,6 +113,17 @@ def test_levels_out_of_reach_are_flagged_not_nan():
     assert (recap.amount, recap.flag) == (700.0, "market_target_at_or_above_one")
 
 
+def test_no_funded_market_capacity_once_market_equity_is_gone():
+    # Market leverage D / (D + 0) is 1 at any positive debt: no funded amount reaches a level
+    # below 1; a figure would be wrong (it was, before: +447.6 that landed nowhere).
+    gone = replace(FIRM, market_equity=0.0)
+    for level in (0.3, 0.7):
+        cap = capacity(gone, "market", "funded", lambda s, v=level: v)
+        assert math.isnan(cap.amount) and cap.flag == "no_market_equity_left"
+    recap = capacity(gone, "market", "recap", lambda s: 0.5)  # equity replaces debt: reachable
+    assert recap.amount == pytest.approx(0.5 * FIRM.total_debt - FIRM.total_debt)
+
+
 def test_debt_to_target_recapitalisation_convention():
     debt = np.array([100.0, 100.0, 100.0, 0.0, 50.0])
     assets = np.array([500.0, 500.0, 500.0, 200.0, 400.0])

@@ -202,6 +202,11 @@ def test_hostile_scenarios_exit_2_with_one_line(deal_run, tmp_path):
     _one_line_error(_cli("proforma", out, firm, "--scenario", tmp_path / "none.toml"),
                     "the scenario file must exist")
     _one_line_error(_cli("proforma", tmp_path, firm, "--scenario", ok), "run.json")
+    huge = _scenario_file(tmp_path, "[[scenario]]\nname = 'huge'\ndebt_raised = 1e200\n")
+    _one_line_error(_cli("proforma", out, firm, "--scenario", huge),
+                    "must stay within 1,000,000 times the firm's total assets")
+    _one_line_error(_cli("explain", out, firm, "--add-debt", "1e300", "--fund-assets"),
+                    "must stay within 1,000,000 times the firm's total assets")
 
 
 def test_the_panel_must_be_the_runs_own(deal_run, tmp_path):

@@ -99,3 +99,23 @@ def test_a_folder_without_a_saved_model_is_a_clear_error(tmp_path) -> None:
         levgap.load_model(tmp_path / "other")
     with pytest.raises(OutputError, match="mixes two runs"):
         levgap.load_model(tmp_path / "mixed")
+
+
+def test_rows_the_schema_refuses_are_returned_blank_not_scored(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.iloc[:4].copy().astype({"total_assets": object})
+    rows.loc[rows.index[0], "total_assets"] = -5.0
+    rows.loc[rows.index[1], "total_assets"] = "abc"
+    rows.loc[rows.index[2], "total_assets"] = float("inf")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no RuntimeWarning may escape
+        s = model.score(rows)
+    assert (s.groupby("measure").size() == 4).all()
+    bad = s[s["flags"] == "not_scorable"]
+    assert len(bad) == 3 * len(model.measures)
+    assert bad["target"].isna().all() and (bad["status"] == "").all()
+    assert set(bad["note"]) == {"total_assets must be a finite number > 0"}
+    good = s[s["flags"] != "not_scorable"]
+    assert good["target"].notna().all() and (good["note"] == "").all()

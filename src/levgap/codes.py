@@ -72,6 +72,13 @@ ANALYSIS_FLAGS: dict[str, str] = {
     "from every other firm-year of the panel",
     "no_peers": "the only firm-year of the panel with this measure: no peer profile, no "
     "contributions",
+    "industry_not_in_model": "scored by a saved model: the industry was not in the fitted "
+    "panel; its effect is that of the industries sharing the longest leading part of its code "
+    "(else of all)",
+    "year_not_in_model": "scored by a saved model: the fiscal year was not in the fitted panel; "
+    "the latest earlier fitted year's effect and limits are used",
+    "not_scorable": "scored by a saved model: a statement value breaks schema v1 (see the "
+    "note column); the row is returned blank",
     "target_below_zero": "the target is below zero (linear model): debt to target repays all "
     "debt",
     "book_target_at_or_above_one": "a book target of 1 or more (linear model): debt to target "

@@ -55,7 +55,15 @@ def _print_check(check: Any) -> None:
             con.print(f"  {r['scenario']}, {r['measure']}: {r['notes']}")
     con.print("Capacity: additional debt to the band's top; recap = debt replaces equity "
               "bought back at market value, funded = debt buys new assets in the current mix.")
+    con.print(FULL_SAMPLE_NOTE)
     con.print(f"Caution: {CAUTION}")
+
+
+FULL_SAMPLE_NOTE = (
+    "Targets here come from the saved model's full-sample fit (targets.csv's target_full), so "
+    "'before' can differ a little from the cross-fitted target and status that screen and "
+    "explain show."
+)
 
 
 def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, x: float,

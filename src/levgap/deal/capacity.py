@@ -49,6 +49,8 @@ FLAGS: dict[str, str] = {
     "it (funded) or every share is replaced by debt (recap)",
     "book_target_at_or_above_one": "a book level of 1 or more: all assets debt-financed",
     "unreachable": "no debt level up to a thousand times total assets reaches the level",
+    "no_market_equity_left": "market equity is zero: with the debt funding new assets, market "
+    "leverage is 1 at any debt above zero, so no amount reaches the level (no figure given)",
 }
 
 TargetFn = Callable[[Statement], float]
@@ -62,7 +64,7 @@ class Capacity:
     ----------
     amount : float
         Change in debt in the results' money unit (negative: repay); ``inf`` when no amount
-        reaches the level (flagged).
+        reaches the level, NaN when no figure means anything (both flagged).
     level : float
         The level (target or band top) at the answer.
     method : {"closed form", "root solve", "bound"}
@@ -280,6 +282,9 @@ class CapacitySearch:
         for i, p in enumerate(self.problems):
             s, lo = p.statement, -p.statement.total_debt
             level0, level_lo = start[i]
+            if p.measure == "market" and p.convention == "funded" and not s.market_equity > 0:
+                self.out[i] = Capacity(math.nan, level0, "bound", "no_market_equity_left")
+                continue
             f_lo = moved(s, p.convention, lo).leverage(p.measure) - level_lo
             top = _top(s, p.measure, p.convention)
             if f_lo > 0:

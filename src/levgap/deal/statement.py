@@ -356,6 +356,20 @@ def _check_after(after: Statement, before: Statement, s: Scenario, where: str) -
             f"{where}: key equity_volatility needs the firm's market_equity, which its "
             f"{before.fiscal_year} row lacks; give asset_volatility instead."
         )
+    limit = SCALE_LIMIT * max(abs(before.total_assets), 1.0)
+    for line, value in after.lines().items():
+        if not (math.isnan(value) or abs(value) <= limit):
+            raise ConfigError(
+                f"{where}: the pro forma {line} must stay within {SCALE_LIMIT:,.0f} times the "
+                f"firm's total assets ({before.total_assets:,.6g}); got {value:,.6g}. A figure "
+                "that large is almost surely in the wrong unit: the scenario's amounts are in "
+                "the results' money unit."
+            )
+
+
+SCALE_LIMIT = 1e6
+"""A pro forma line beyond this multiple of the firm's total assets is refused as a unit error
+(and keeps every figure far from overflow)."""
 
 
 def _culprits(s: Scenario, what: str) -> str:
