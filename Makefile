@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test bench lint venv clean
+.PHONY: demo test bench lint mutation venv clean
 
 venv: $(STAMP)
 
@@ -24,7 +24,10 @@ bench: $(STAMP)
 	$(BIN)/python benchmark/run.py
 
 lint: $(STAMP)
-	$(BIN)/ruff check src tests benchmark
+	$(BIN)/ruff check src tests benchmark tools
+
+mutation: $(STAMP)
+	$(BIN)/python tools/mutation.py $(MODULES)
 
 clean:
-	rm -rf $(VENV) demo-out .pytest_cache
+	rm -rf $(VENV) demo-out .pytest_cache mutants

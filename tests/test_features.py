@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 
 from levgap.config import ModelSpec
+from levgap.errors import ModelError
 from levgap.features import build_features, trailing_volatility
 from levgap.groups import WHOLE_SAMPLE, industry_levels
 from levgap.transforms import clip_to_limits, year_limits
@@ -142,3 +143,203 @@ def test_effect_level_and_peer_group_are_separate_settings() -> None:
     effect = build_features(p, ModelSpec(industry_digits=2))
     assert list(effect.levels.labels) == ["28", "37"]
     assert set(effect.frame["peer_group"]) == {"3711", "2834"}
+
+
+def test_identity_columns_default_source_rows_flags_and_names() -> None:
+    p = _panel().drop(columns=["source_row", "flags"])
+    p["industry"] = " " + p["industry"] + " "
+    p["firm_name"] = ["Alpha"] * 6 + [np.nan] * 12
+    f = build_features(p, ModelSpec(winsorize=(0.0, 1.0), industry_digits=3)).frame
+    np.testing.assert_array_equal(f["source_row"], np.arange(1, 19))
+    assert list(f["firm_name"].iloc[[0, 6]]) == ["Alpha", ""]
+    assert f["fiscal_year"].dtype == np.int64
+    assert set(f["effect_group"]) == {"371", "283"} and set(f["peer_group"]) == {"3711", "2834"}
+    assert f["flags"].str.contains("volatility_imputed").sum() == 6  # no other flag, no NaN
+    unnamed = build_features(_panel(), ModelSpec(winsorize=(0.0, 1.0))).frame
+    assert (unnamed["firm_name"] == "").all()
+
+
+def test_market_leverage_is_missing_without_a_market_value() -> None:
+    p = _panel()
+    p.loc[0, ["total_debt", "market_equity"]] = 0.0
+    f = build_features(p, ModelSpec(winsorize=(0.0, 1.0))).frame
+    assert np.isnan(f.loc[0, "market"]) and np.isnan(f.loc[12:, "market"]).all()
+    assert f.loc[1, "market"] == pytest.approx(21.0 / (21.0 + 81.0))
+    none = build_features(p.drop(columns=["market_equity"]),
+                          ModelSpec(drivers=("tangibility", "size"), winsorize=(0.0, 1.0)))
+    assert np.isnan(none.frame["market"]).all() and np.isnan(none.frame["market_equity"]).all()
+
+
+def test_leases_flag_missing_data_and_debt_above_assets() -> None:
+    p = _panel()
+    p["lease_liabilities"] = [5.0] * 5 + [200.0] + [np.nan] * 12
+    f = build_features(p, ModelSpec(leases_as_debt=True, winsorize=(0.0, 1.0))).frame
+    assert f.loc[5, "book"] == pytest.approx((25.0 + 200.0) / 150.0)
+    assert f.loc[5, "flags"].split(";") == ["debt_above_assets_with_leases"]
+    assert (f.loc[6:, "flags"].str.split(";").str[0] == "no_lease_data").all()
+    assert not f.loc[:4, "flags"].str.contains("debt_above|no_lease").any()
+    plain = build_features(p, ModelSpec(winsorize=(0.0, 1.0))).frame
+    np.testing.assert_allclose(plain["book"], p["total_debt"] / p["total_assets"])
+
+
+def test_given_volatility_overrides_where_given_and_rd_intensity() -> None:
+    p = _panel()
+    p["earnings_volatility"] = [0.5] + [np.nan] * 17
+    p["rd_expense"] = [2.0] * 6 + [np.nan] * 12
+    spec = ModelSpec(drivers=("earnings_volatility", "rd_intensity"), winsorize=(0.0, 1.0))
+    feats = build_features(p, spec)
+    f = feats.frame
+    assert f.loc[0, "earnings_volatility"] == 0.5 and "volatility_imputed" not in f.loc[0, "flags"]
+    prof = p["ebitda"] / p["total_assets"]
+    assert f.loc[2, "earnings_volatility"] == pytest.approx(np.std(prof[:3], ddof=1))
+    np.testing.assert_allclose(f.loc[:5, "rd_intensity"], 2.0 / p["total_assets"][:6])
+    assert (f.loc[6:, "rd_intensity"] == 0).all() and (f.loc[:5, "rd_missing"] == 0).all()
+    assert feats.drivers == ("earnings_volatility", "rd_intensity", "rd_missing")
+    np.testing.assert_allclose(f["rd_intensity_raw"], f["rd_intensity"])
+
+
+def test_drivers_without_data_are_dropped_with_a_note_unless_kept() -> None:
+    p = _panel().drop(columns=["market_equity"])
+    feats = build_features(p, ModelSpec(winsorize=(0.0, 1.0)))
+    assert "market_to_book" not in feats.drivers
+    assert feats.notes == ("driver market_to_book left out of the model: no row has "
+                           "market_equity (or shares_outstanding and share_price).",)
+    short = p[p["fiscal_year"] == 2015]
+    notes = build_features(short, ModelSpec(winsorize=(0.0, 1.0))).notes
+    assert any("earnings_volatility left out of the model: no firm has the three" in x
+               for x in notes)
+    given = build_features(p, ModelSpec(winsorize=(0.0, 1.0)), transforms=feats.transforms)
+    assert "market_to_book" in given.drivers and given.notes == ()
+    with pytest.raises(ModelError, match="at least one driver"):
+        build_features(p, ModelSpec(drivers=("market_to_book",), winsorize=(0.0, 1.0)))
+
+
+def test_given_transforms_flag_rows_outside_the_fitted_range() -> None:
+    p = _panel()
+    feats = build_features(p, ModelSpec(winsorize=(0.1, 0.9)))
+    assert feats.frame["flags"].str.contains("winsorised").any()
+    assert not feats.frame["flags"].str.contains("outside_fitted_range").any()
+    again = build_features(p, ModelSpec(winsorize=(0.1, 0.9)), transforms=feats.transforms)
+    np.testing.assert_array_equal(again.frame["flags"].str.contains("outside_fitted_range"),
+                                  feats.frame["flags"].str.contains("winsorised"))
+    assert not again.frame["flags"].str.contains("winsorised").any()
+    assert again.transforms is feats.transforms
+    for name in feats.drivers:
+        np.testing.assert_array_equal(again.frame[name], feats.frame[name])
+
+
+def test_small_industries_are_flagged_and_drivers_lagged() -> None:
+    p = _panel()
+    f = build_features(p, ModelSpec(min_industry_firms=2, winsorize=(0.0, 1.0))).frame
+    assert f["flags"].str.contains("industry_effect_pooled").tolist() == [False] * 12 + [True] * 6
+    lag = build_features(p.iloc[::-1].reset_index(drop=True),
+                         ModelSpec(lag_drivers=True, winsorize=(0.0, 1.0))).frame
+    now = build_features(p, ModelSpec(winsorize=(0.0, 1.0))).frame.set_index(
+        ["firm_id", "fiscal_year"])
+    for row in lag.itertuples():
+        if row.fiscal_year == 2015:
+            assert np.isnan(row.tangibility) and np.isnan(row.size)
+        else:
+            prev = now.loc[(row.firm_id, row.fiscal_year - 1)]
+            assert row.size == prev["size"] and row.profitability == prev["profitability"]
+    gap = p[p["fiscal_year"] != 2017]
+    lagged = build_features(gap, ModelSpec(lag_drivers=True, winsorize=(0.0, 1.0))).frame
+    assert np.isnan(lagged.loc[lagged["fiscal_year"] == 2018, "size"]).all()
+
+
+def test_add_flag_appends_codes() -> None:
+    from levgap.features import add_flag
+
+    flags = pd.Series(["", "a", ""])
+    out = add_flag(flags, np.array([True, True, False]), "b")
+    assert list(out) == ["b", "a;b", ""] and list(flags) == ["", "a", ""]
+    same = add_flag(flags, np.zeros(3, dtype=bool), "b")
+    assert list(same) == ["", "a", ""]
+
+
+def test_trailing_window_is_five_years_in_any_row_order() -> None:
+    firm = np.array(["x"] * 7 + ["y"] * 3)
+    year = np.array([2010, 2011, 2012, 2013, 2014, 2015, 2016, 2014, 2015, 2016])
+    v = np.array([0.1, 0.5, 0.2, 0.9, 0.3, 0.4, 0.8, 0.2, 0.3, 0.7])
+    perm = np.random.default_rng(1).permutation(10)
+    out = np.empty(10)
+    out[perm] = trailing_volatility(firm[perm], year[perm], v[perm])
+    assert np.isnan(out[:2]).all()
+    assert out[2] == pytest.approx(np.std(v[:3], ddof=1))
+    assert out[4] == pytest.approx(np.std(v[:5], ddof=1))  # 2010-2014: five years
+    assert out[5] == pytest.approx(np.std(v[1:6], ddof=1))  # 2010 left the window
+    assert out[6] == pytest.approx(np.std(v[2:7], ddof=1))
+    assert out[9] == pytest.approx(np.std(v[7:], ddof=1))  # y's own three years only
+    with_nan = v.copy()
+    with_nan[3] = np.nan
+    got = trailing_volatility(firm, year, with_nan)
+    assert got[4] == pytest.approx(np.nanstd(with_nan[:5], ddof=1))  # NaN years skipped
+
+
+def _tokens(flags: pd.Series) -> list[set[str]]:
+    return [set(x.split(";")) - {""} for x in flags]
+
+
+def test_flags_are_exact_codes_after_the_rows_own() -> None:
+    p = _panel()
+    p["flags"] = ["fx_converted"] + [""] * 17
+    p["source_row"] = np.arange(18) * 3 + 7
+    f = build_features(p, ModelSpec(winsorize=(0.1, 0.9), min_industry_firms=2)).frame
+    np.testing.assert_array_equal(f["source_row"], p["source_row"])
+    assert f.loc[0, "flags"].split(";")[0] == "fx_converted"
+    tokens = _tokens(f["flags"])
+    assert {"winsorised", "volatility_imputed", "industry_effect_pooled",
+            "mtb_imputed"} == set().union(*tokens) - {"fx_converted"}
+    assert all("industry_effect_pooled" in t for t in tokens[12:])
+    again = build_features(p, ModelSpec(winsorize=(0.1, 0.9), min_industry_firms=2),
+                           transforms=build_features(p, ModelSpec(
+                               winsorize=(0.1, 0.9))).transforms).frame
+    assert "outside_fitted_range" in set().union(*_tokens(again["flags"]))
+
+
+def test_money_in_integers_text_and_small_units() -> None:
+    p = _panel()
+    p["total_assets"] = p["total_assets"].astype(int)
+    p["total_debt"] = (p["total_debt"] / 100.0)  # debt plus market value below one
+    p["market_equity"] = p["market_equity"] / 1000.0
+    p["rd_expense"] = ["n/a", "2"] + [np.nan] * 16
+    f = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                    winsorize=(0.0, 1.0))).frame
+    assert f["total_assets"].dtype == float and f["total_debt"].dtype == float
+    mkt = p["total_debt"] / (p["total_debt"] + p["market_equity"])
+    np.testing.assert_allclose(f.loc[:11, "market"], mkt[:12])
+    assert list(f["rd_missing"][:3]) == [1.0, 0.0, 1.0]
+    assert f.loc[1, "rd_intensity"] == pytest.approx(2.0 / p.loc[1, "total_assets"])
+
+
+def test_optional_columns_absent() -> None:
+    p = _panel()
+    rd = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                     winsorize=(0.0, 1.0))).frame
+    assert (rd["rd_missing"] == 1.0).all() and (rd["rd_intensity"] == 0.0).all()
+    leases = build_features(p, ModelSpec(leases_as_debt=True, winsorize=(0.0, 1.0))).frame
+    assert all("no_lease_data" in t for t in _tokens(leases["flags"]))
+    np.testing.assert_allclose(leases["book"], p["total_debt"] / p["total_assets"])
+
+
+def test_leases_up_to_assets_are_not_above_assets() -> None:
+    p = _panel()
+    p["lease_liabilities"] = np.nan
+    p.loc[0, "lease_liabilities"] = p.loc[0, "total_assets"] - p.loc[0, "total_debt"]
+    p.loc[1, "lease_liabilities"] = 1.0
+    f = build_features(p, ModelSpec(leases_as_debt=True, winsorize=(0.0, 1.0))).frame
+    assert f.loc[0, "book"] == 1.0
+    assert "debt_above_assets_with_leases" not in f.loc[0, "flags"]
+    assert f.loc[1, "book"] == pytest.approx(22.0 / 110.0)
+    np.testing.assert_allclose(f.loc[2:, "book"], (p["total_debt"] / p["total_assets"])[2:])
+
+
+def test_lag_takes_the_first_row_as_a_previous_year_and_one_row_alone() -> None:
+    p = _panel()
+    f = build_features(p, ModelSpec(lag_drivers=True, winsorize=(0.0, 1.0))).frame
+    now = build_features(p, ModelSpec(winsorize=(0.0, 1.0))).frame
+    assert f.loc[1, "size"] == now.loc[0, "size"]  # the previous year is row 0
+    one = build_features(p.iloc[[3]], ModelSpec(lag_drivers=True,
+                                                drivers=("tangibility", "size"),
+                                                winsorize=(0.0, 1.0))).frame
+    assert np.isnan(one[["tangibility", "size"]].to_numpy()).all()

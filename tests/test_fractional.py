@@ -109,3 +109,44 @@ def test_bad_outcomes_are_model_errors() -> None:
         fit_fractional(d["y"] + 1.0, d["X"])
     with pytest.raises(ModelError, match="some variation"):
         fit_fractional(np.zeros(len(d["y"])), d["X"])
+
+
+def test_quasi_deviance_is_its_definition() -> None:
+    from levgap.models.fractional import quasi_deviance
+
+    y = np.array([0.0, 0.2, 1.0, 0.5])
+    mu = np.array([0.1, 0.3, 0.8, 0.5])
+    expected = 2 * (np.log(1 / 0.9) + 0.2 * np.log(0.2 / 0.3) + 0.8 * np.log(0.8 / 0.7)
+                    + np.log(1 / 0.8))
+    assert quasi_deviance(y, mu) == pytest.approx(expected, rel=1e-14)
+    d = _panel(6)
+    fit = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False)
+    mu = fit.predict(d["X"], [d["ind"], d["yr"]])
+    assert fit.deviance == pytest.approx(quasi_deviance(d["y"], mu), rel=1e-12)
+    assert fit.model == "fractional" and fit.link == "logit" and 2 < fit.iterations < 20
+
+
+def test_ratios_outside_zero_one_and_without_variation_are_refused() -> None:
+    d = _panel(5, n_firms=30)
+    y = d["y"].copy()
+    y[3] = -0.01
+    with pytest.raises(ModelError, match="between 0 and 1; got values from -0.01"):
+        fit_fractional(y, d["X"])
+    y[3] = 1.01
+    with pytest.raises(ModelError, match="to 1.01"):
+        fit_fractional(y, d["X"])
+    with pytest.raises(ModelError, match="equal to 1"):
+        fit_fractional(np.ones(len(y)), d["X"])
+    edge = np.where(np.arange(len(y)) % 2 == 0, 0.0, 1.0)  # only 0 and 1: allowed
+    assert np.isfinite(fit_fractional(edge, d["X"], cov=False).coef).all()
+
+
+def test_the_warm_start_is_one_weighted_least_squares_step() -> None:
+    # From the converged predictor the start is already the solution: one Newton step to
+    # confirm it.
+    d = _panel(8)
+    cold = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False)
+    eta = cold.offset([d["ind"], d["yr"]]) + d["X"] @ cold.coef[1:]
+    warm = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False, start=eta)
+    assert warm.iterations <= 2 < cold.iterations
+    np.testing.assert_allclose(warm.coef, cold.coef, atol=1e-10)

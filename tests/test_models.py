@@ -189,3 +189,61 @@ def test_bad_inputs_are_model_errors() -> None:
     with pytest.raises(ModelError, match="at least two clusters"):
         fit_linear(np.arange(10.0), np.random.default_rng(0).normal(size=(10, 1)),
                    clusters=[np.zeros(10)])
+
+
+def test_inputs_are_checked_and_named() -> None:
+    rng = np.random.default_rng(8)
+    x = rng.normal(size=30)
+    y = 2.0 * x + rng.normal(size=30)
+    one = fit_linear(y, x)  # a 1-D driver is one column
+    assert one.names == ("const", "x0") and one.coef.shape == (2,)
+    with pytest.raises(ModelError, match="y must have 30 values to match X"):
+        fit_linear(y[:-1], x)
+    with pytest.raises(ModelError, match="names must have 1 entries; got 2"):
+        fit_linear(y, x, names=["a", "b"])
+    with pytest.raises(ModelError, match="finite"):
+        fit_linear(y, np.where(np.arange(30) == 3, np.inf, x))
+    with pytest.raises(ModelError, match="got 3 observations for 3 parameters"):
+        fit_linear(y[:3], np.column_stack([x, x**2])[:3])
+    fit_linear(y[:4], np.column_stack([x, x**2])[:4])  # one more row than parameters
+    full = fit_linear(y, x, effects=[np.arange(30) % 3])
+    assert [len(e) for e in full.effects] == [3]
+    wide = fit_linear(y, x, effects=[np.arange(30) % 3], n_levels=[5])
+    assert len(wide.effects[0]) == 5 and np.isnan(wide.effects[0][3:]).all()
+
+
+def test_fit_record_classical_and_without_covariance() -> None:
+    d = _random_panel(9, 600)
+    fit = fit_linear(d["y"], d["X"], effects=[d["ind"], d["yr"]])
+    n_params = 1 + 4 + 14 + 8
+    assert fit.n_obs == 600 and fit.n_params == n_params and fit.iterations == 1
+    assert fit.cov_type == "classical" and fit.df_inference == 600 - n_params
+    assert fit.n_clusters == () and fit.model == "linear" and fit.link == "identity"
+    resid = d["y"] - fit.predict(d["X"], [d["ind"], d["yr"]])
+    assert fit.deviance == pytest.approx(float(resid @ resid), rel=1e-12)
+    counts = np.bincount(d["ind"], minlength=15)
+    np.testing.assert_array_equal(fit.effect_weights[0], counts)
+    assert fit.pooled is None and fit.notes == ()
+    bare = fit_linear(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False)
+    assert bare.vcov is None and bare.cov_type == "none"
+    np.testing.assert_allclose(bare.coef, fit.coef, rtol=0, atol=1e-12)
+    flat = fit_linear(np.full(600, 2.0), d["X"])
+    assert np.isnan(flat.r2) and flat.coef[0] == pytest.approx(2.0)
+
+
+def test_pooled_levels_are_recorded_for_every_level_code() -> None:
+    d = _random_panel(10, 3000)
+    pooling, _, _ = _pooling_design(d, 40.0)
+    fit = fit_linear(d["y"], d["X"], effects=[d["ind"], d["yr"]], pooling=pooling,
+                     n_levels=[17, 9], clusters=[d["firm"]])
+    p = fit.pooled
+    assert p.small.shape == p.parent.shape == p.weight.shape == p.deviation.shape == (17,)
+    assert p.members.shape == (2, 17)
+    np.testing.assert_array_equal(p.small[:15], pooling.small)
+    assert not p.small[15:].any() and (p.parent[15:] == -1).all()
+    np.testing.assert_array_equal(p.parent[:15], pooling.parent)
+    np.testing.assert_array_equal(p.members[:, :15], pooling.members)
+    np.testing.assert_array_equal(p.weight[:15], pooling.weight)
+    assert np.isnan(p.weight[15:]).all() and not p.members[:, 15:].any()
+    assert np.isfinite(p.deviation[[13, 14]]).all() and np.isnan(p.deviation[:13]).all()
+    assert np.isnan(fit.effects[0][[13, 14, 15, 16]]).all()

@@ -11,7 +11,7 @@ import pytest
 import levgap
 from levgap.config import ModelSpec
 from levgap.demo import make_panel
-from levgap.errors import OutputError
+from levgap.errors import ModelError, OutputError
 from levgap.models.saved import FORMAT
 from levgap.pipeline import analyze
 
@@ -119,3 +119,169 @@ def test_rows_the_schema_refuses_are_returned_blank_not_scored(saved) -> None:
     assert set(bad["note"]) == {"total_assets must be a finite number > 0"}
     good = s[s["flags"] != "not_scorable"]
     assert good["target"].notna().all() and (good["note"] == "").all()
+
+
+def test_scores_carry_the_band_status_gap_and_saved_peers(saved) -> None:
+    panel, result, model = saved
+    scored = model.score(panel)
+    band = model.band("book")
+    book = scored[scored["measure"] == "book"].reset_index(drop=True)
+    level = np.array([model.record["industries"]["labels"].index(i) for i in book["industry"]])
+    low, high = band.limits(book["target"].to_numpy(), level)
+    np.testing.assert_array_equal(book["band_low"], low)
+    np.testing.assert_array_equal(book["band_high"], high)
+    np.testing.assert_allclose(book["gap"], book["actual"] - book["target"], rtol=0, atol=0)
+    np.testing.assert_allclose(book["gap_z"] * band.scale[level], book["gap"], rtol=1e-12)
+    status = np.where(book["actual"] > high, "over",
+                      np.where(book["actual"] < low, "under", "within"))
+    np.testing.assert_array_equal(book["status"], status)
+    assert (book["fold"] == -1).all()
+    assert not book["flags"].str.contains("not_in_model").any()
+    # the saved peer table: medians of every firm-year of the industry and year
+    peers = model.record["measures"]["book"]["peers"]
+    assert peers["columns"] == [*model.drivers, "leverage"]
+    t = result.targets[result.targets["measure"] == "book"]
+    d = result.drivers[result.drivers["measure"] == "book"].pivot(
+        index=["firm_id", "fiscal_year"], columns="driver", values="firm_value")
+    g = t.merge(d.reset_index(), on=["firm_id", "fiscal_year"]).groupby(
+        ["industry", "fiscal_year"])
+    med = g[[*model.drivers, "actual"]].median()
+    for (ind, year), row in med.iloc[::7].iterrows():
+        count, *values = peers["industry_year"][f"{ind}|{year}"]
+        assert count == g.size()[(ind, year)]
+        np.testing.assert_allclose(values, row.to_numpy(), rtol=1e-12)
+    first = book.iloc[0]
+    key = f"{first['industry']}|{first['fiscal_year']}"
+    assert first["peer_count"] == peers["industry_year"][key][0]
+    assert first["peer_median"] == peers["industry_year"][key][-1]
+    for j, name in enumerate(model.drivers):
+        assert first[f"{name}_peer"] == peers["industry_year"][key][1 + j]
+    yr = t.merge(d.reset_index(), on=["firm_id", "fiscal_year"]).groupby("fiscal_year")
+    count, *values = peers["year"][str(first["fiscal_year"])]
+    assert count == yr.size()[first["fiscal_year"]]
+    np.testing.assert_allclose(values, yr[[*model.drivers, "actual"]].median().loc[
+        first["fiscal_year"]].to_numpy(), rtol=1e-12)
+
+
+def test_rows_without_market_value_have_no_status(saved) -> None:
+    panel, _, model = saved
+    rows = panel[panel["market_equity"].isna()].head(3)
+    s = model.score(rows)
+    market = s[s["measure"] == "market"]
+    assert len(market) == 3 and (market["status"] == "").all() and market["actual"].isna().all()
+    assert (s.loc[s["measure"] == "book", "status"] != "").all()
+
+
+def test_unseen_industries_and_years_borrow_as_documented(saved) -> None:
+    panel, _, model = saved
+    fit = model.fit("book")
+    labels = model.record["industries"]["labels"]
+    row = panel[panel["industry"] == "3711"].iloc[[0]].copy()
+    alpha, w = fit.effects[0], fit.effect_weights[0]
+    small = np.array(model.record["industries"]["small"])
+    own = np.flatnonzero(~small & ~np.isnan(alpha))
+    # 3799 shares "37" with 3711 (3716 is small: not a member); 0999 shares nothing
+    cases = {"3799": [labels.index("3711")], "0999": list(own), "ABC": list(own)}
+    for code, members in cases.items():
+        row["industry"] = code
+        got = model.industry_effect(fit, np.array([code]), np.array([-1]))[0]
+        expected = alpha[members] @ w[members] / w[members].sum()
+        assert got == pytest.approx(expected, abs=1e-14), code
+        scored = model.score(row)
+        assert "industry_not_in_model" in scored["flags"].iloc[0]
+    level, year, new_ind, new_year = model.codes(np.array(["3711", "zz"]),
+                                                 np.array([2016, 2040]))
+    assert list(level) == [labels.index("3711"), -1] and list(new_ind) == [False, True]
+    years = model.record["years"]
+    assert list(year) == [years.index(2016), len(years) - 1]
+    assert list(new_year) == [False, True]
+    early = model.codes(np.array(["3711"]), np.array([1990]))
+    assert early[1][0] == 0 and early[3][0]
+    off = model.score(row.assign(industry="3711", fiscal_year=2040))
+    same = model.score(row.assign(industry="3711", fiscal_year=max(years)))
+    assert "year_not_in_model" in off["flags"].iloc[0]
+    assert "year_not_in_model" not in same["flags"].iloc[0]
+
+
+def test_folds_of_panel_firms_new_firms_and_a_given_fold(saved) -> None:
+    panel, result, model = saved
+    one = result.targets[result.targets["measure"] == "book"].iloc[0]
+    assert model.fold_of("book", one["firm_id"]) == one["fold"]
+    assert model.fold_of("book", "no such firm") is None
+    rows = panel[panel["firm_id"] == one["firm_id"]].head(1)
+    new = rows.assign(firm_id="NEWCO")
+    both = pd.concat([rows, new], ignore_index=True)
+    s = model.score(both, fold="firm")
+    book = s[s["measure"] == "book"]
+    assert list(book["fold"]) == [one["fold"], -1]
+    full = model.score(new)
+    assert book["target"].iloc[1] == full.loc[full["measure"] == "book", "target"].iloc[0]
+    given = model.score(both, fold=int(one["fold"]))
+    assert (given["fold"] == one["fold"]).all()
+    with pytest.raises(ModelError, match="fold must be one of the run's folds; got 99"):
+        model.score(both, fold=99)
+    with pytest.raises(ModelError, match="measure must be one of"):
+        model.band("leverage")
+
+
+def test_the_specification_and_record_are_read_back(saved) -> None:
+    _, result, model = saved
+    spec = model.spec
+    assert isinstance(spec.measures, tuple) and isinstance(spec.winsorize, tuple)
+    assert spec.model == model.model
+    assert model.measures == ("book", "market") and model.drivers == tuple(
+        result.manifest["drivers"])
+    rec = model.record
+    assert rec["format"] == "levgap-model" and rec["format_version"] == 1
+    assert rec["transforms"]["quantiles"] == [0.01, 0.99]
+    assert rec["years"] == sorted(rec["years"]) and len(rec["years"]) == 10
+    pooled = {p["industry"]: p for p in rec["measures"]["book"]["pooled"]}
+    assert set(pooled) == {"3716", "9990"}
+    assert pooled["3716"]["parent"] == "371" and pooled["3716"]["firms"] == 3
+    t = result.targets[result.targets["measure"] == "book"]
+    assert pooled["3716"]["rows"] == (t["industry"] == "3716").sum()
+    assert 0 < pooled["3716"]["weight"] < 1
+    assert rec["measures"]["book"]["components"]["tau2"] > 0
+    assert rec["measures"]["book"]["contributions"] == "shapley"
+    assert len(rec["measures"]["book"]["folds"]) == 5
+    old = dict(rec["spec"], an_old_option=1)
+    assert levgap.models.saved.SavedModel({**rec, "spec": old}).spec == spec
+
+
+def test_unreadable_or_newer_saved_models_are_clear_errors(tmp_path) -> None:
+    from levgap.outputs import RunWriter
+
+    def folder(name: str, text: str):
+        # a verified run whose model.json holds `text` (the run is checked first)
+        with RunWriter(tmp_path / name, run_id="abc") as run:
+            run.add("model.json", text.encode("utf-8"))
+            run.commit({})
+        return tmp_path / name
+
+    with pytest.raises(OutputError, match="model.json must be valid JSON"):
+        levgap.load_model(folder("broken", "{not json"))
+    with pytest.raises(OutputError, match="levgap saved model"):
+        levgap.load_model(folder("list", "[1, 2]"))
+    newer = {"format": FORMAT, "format_version": 2, "run_id": "abc"}
+    with pytest.raises(OutputError, match="saved-model format 2 is newer"):
+        levgap.load_model(folder("newer", json.dumps(newer)))
+    for bad in ("x", [1], None):
+        odd = {"format": FORMAT, "format_version": bad, "run_id": "abc"}
+        with pytest.raises(OutputError, match="format_version must be a whole number"):
+            levgap.load_model(folder(f"odd{bad!s:.1}", json.dumps(odd)))
+    plain = {"format": FORMAT, "run_id": "abc"}
+    assert levgap.load_model(folder("plain", json.dumps(plain))).record == plain
+
+
+def test_rows_to_score_must_be_a_schema_frame(saved) -> None:
+    panel, _, model = saved
+    with pytest.raises(ModelError, match="rows must be a pandas DataFrame"):
+        model.score(panel.to_dict("records"))
+    with pytest.raises(ModelError, match="got no ppe_net"):
+        model.score(panel.drop(columns=["ppe_net"]).head(2))
+    text = panel.head(2).astype({"total_assets": str, "fiscal_year": str})
+    text["industry"] = text["industry"].astype(int)
+    a = model.score(text)
+    b = model.score(panel.head(2))
+    np.testing.assert_allclose(a["target"], b["target"], rtol=0, atol=0)
+    assert (a["industry"] == b["industry"]).all()

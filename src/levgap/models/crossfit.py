@@ -130,7 +130,7 @@ def crossfit_targets(
             start=None if start is None else start[train],
         )
         held = [e[test] for e in effects]
-        off = res.offset(held)
+        off = res.offset(held) if held else np.full(int(test.sum()), res.coef[0])
         offset[test] = off
         beta[test] = res.coef[1:]
         target[test] = res.inverse_link(off + X[test] @ res.coef[1:])

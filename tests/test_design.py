@@ -1,0 +1,270 @@
+"""The group-sum design: products, layout, compression and the identification checks.
+
+Each product of ``Design`` is checked against the same product with an explicit design
+matrix built here from the documented layout (constant, centred drivers, dummies of every
+non-reference level present, the parent mix on small levels' rows, a column per penalised
+deviation), so that the group sums are tested against plain matrix algebra.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from levgap.errors import ModelError
+from levgap.models.design import (
+    Design,
+    Pooling,
+    check_identified,
+    cho_apply,
+    compress,
+    inverse_rows,
+    solve,
+    suspicious,
+)
+from levgap.models.fractional import fit_fractional
+from levgap.models.linear import fit_linear
+
+
+def _data(seed: int = 0, n: int = 600, k: int = 3) -> dict:
+    rng = np.random.default_rng(seed)
+    ind = rng.integers(0, 9, n)
+    ind[ind == 4] = 5  # level 4 absent: codes need not be contiguous
+    yr = rng.integers(0, 5, n) + 2  # codes 0 and 1 absent
+    X = rng.normal(size=(n, k)) * np.array([1.0, 3.0, 0.5])[:k] + np.array([2.0, -1.0, 9.0])[:k]
+    return {"ind": ind, "yr": yr, "X": X, "rng": rng}
+
+
+def _pooling(penalty: float) -> Pooling:
+    """Levels 7 and 8 small: 7 pooled toward {0, 1}, 8 toward every own level; level 9 (no
+    rows) small as well."""
+    small = np.zeros(10, dtype=bool)
+    small[[7, 8, 9]] = True
+    members = np.zeros((2, 10), dtype=bool)
+    members[0, [0, 1]] = True
+    members[1, [0, 1, 2, 3, 5, 6]] = True
+    parent = np.full(10, -1)
+    parent[[7, 8, 9]] = [0, 1, 1]
+    pen = np.where(small, penalty, np.inf)
+    return Pooling(small, parent, members, pen, np.where(small, 0.5, np.nan))
+
+
+def _explicit(d: dict, pooling: Pooling | None) -> tuple[np.ndarray, np.ndarray]:
+    """The design matrix and the penalty, from the documented layout."""
+    ind, yr, X = d["ind"], d["yr"], d["X"]
+    n = len(ind)
+    small = np.zeros(n, dtype=bool) if pooling is None else pooling.small[ind]
+    own0 = np.unique(ind[~small])
+    cnt = np.array([(ind[~small] == g).sum() for g in own0], dtype=float)
+    cols = [np.ones(n), *(X - X.mean(axis=0)).T]
+    block0 = (ind[:, None] == own0[None, :]).astype(float)
+    if pooling is not None:
+        for i in np.flatnonzero(small):
+            w = pooling.members[pooling.parent[ind[i]], own0] * cnt
+            block0[i] = w / w.sum()
+    cols += list(block0[:, 1:].T)
+    years = np.unique(yr)
+    cols += list((yr[:, None] == years[None, 1:]).astype(float).T)
+    penalty = [0.0] * len(cols)
+    if pooling is not None:
+        dev = [g for g in np.unique(ind[small]) if np.isfinite(pooling.penalty[g])]
+        for g in dev:
+            cols.append((ind == g).astype(float))
+            penalty.append(pooling.penalty[g])
+    return np.column_stack(cols), np.array(penalty)
+
+
+@pytest.mark.parametrize("penalty", [None, np.inf, 25.0])
+def test_products_equal_the_explicit_design_matrix(penalty) -> None:
+    d = _data()
+    pooling = None if penalty is None else _pooling(penalty)
+    design = Design(d["X"], [d["ind"], d["yr"]], pooling)
+    Z, pen = _explicit(d, pooling)
+    assert design.layout.n_params == Z.shape[1]
+    w = d["rng"].uniform(0.1, 2.0, len(d["ind"]))
+    np.testing.assert_allclose(design.gram(), Z.T @ Z + np.diag(pen), rtol=0, atol=1e-9)
+    np.testing.assert_allclose(design.gram(w), Z.T @ (Z * w[:, None]) + np.diag(pen),
+                               rtol=0, atol=1e-9)
+    v = d["rng"].normal(size=len(w))
+    np.testing.assert_allclose(design.rmatvec(v), Z.T @ v, rtol=0, atol=1e-9)
+    theta = d["rng"].normal(size=Z.shape[1])
+    np.testing.assert_allclose(design.matvec(theta), Z @ theta, rtol=0, atol=1e-12)
+    R = d["rng"].normal(size=(4, Z.shape[1]))
+    np.testing.assert_allclose(design.influence_rows(R), Z @ R.T, rtol=0, atol=1e-12)
+    np.testing.assert_array_equal(design.penalty, pen)
+    assert design.any_dense == (pooling is not None)
+    if pooling is not None:
+        assert design.layout.n_dev == (0 if np.isinf(penalty) else 2)
+
+
+def test_layout_reported_terms_effects_and_deviations() -> None:
+    d = _data(1)
+    design = Design(d["X"], [d["ind"], d["yr"]], _pooling(25.0))
+    lay = design.layout
+    own0 = np.unique(d["ind"][d["ind"] < 7])
+    assert lay.k == 3 and lay.sizes == (len(own0), 5)
+    assert lay.starts == (4, 4 + len(own0) - 1)
+    assert lay.dev_start == 4 + len(own0) - 1 + 4 and lay.n_dev == 2
+    theta = np.arange(1.0, lay.n_params + 1)
+    rep = design.reported(theta)
+    np.testing.assert_allclose(rep[1:], theta[1:4])
+    assert rep[0] == pytest.approx(theta[0] - d["X"].mean(axis=0) @ theta[1:4])
+    assert theta[0] == 1.0  # reported() does not write into theta
+    J = design.uncentre()
+    np.testing.assert_allclose(J @ theta[:4], rep)
+    eff = design.effects(theta, [12, 9])
+    assert eff[0].shape == (12,) and eff[1].shape == (9,)
+    assert eff[0][own0[0]] == 0.0 and eff[1][2] == 0.0  # reference levels
+    np.testing.assert_array_equal(eff[0][own0[1:]], theta[4:4 + len(own0) - 1])
+    assert np.isnan(eff[0][[4, 7, 8, 9, 10, 11]]).all() and np.isnan(eff[1][[0, 1, 7]]).all()
+    np.testing.assert_array_equal(eff[1][3:7], theta[lay.starts[1]:lay.starts[1] + 4])
+    dev = design.deviations(theta, 10)
+    np.testing.assert_array_equal(dev[[7, 8]], theta[lay.dev_start:])
+    assert np.isnan(dev[[0, 1, 9]]).all()
+
+
+def test_parent_mix_weights_member_levels_by_rows() -> None:
+    d = _data(2)
+    design = Design(d["X"], [d["ind"], d["yr"]], _pooling(np.inf))
+    own0 = design.present[0]
+    cnt = np.array([(d["ind"] == g).sum() for g in own0], dtype=float)
+    mix = design.parent_mix()
+    np.testing.assert_allclose(mix[0], np.where(np.isin(own0, [0, 1]), cnt, 0) /
+                               cnt[np.isin(own0, [0, 1])].sum())
+    np.testing.assert_allclose(mix[1], cnt / cnt.sum())
+    given = np.arange(1.0, len(own0) + 1)
+    np.testing.assert_allclose(design.parent_mix(given)[1], given / given.sum())
+    # a parent whose members have no rows in the fit: every own level, by rows
+    p = _pooling(np.inf)
+    members = p.members.copy()
+    members[0] = False
+    members[0, 4] = True  # level 4 has no rows
+    lone = Design(d["X"], [d["ind"], d["yr"]],
+                  Pooling(p.small, p.parent, members, p.penalty, p.weight))
+    np.testing.assert_allclose(lone.parent_mix()[0], cnt / cnt.sum())
+
+
+def test_parent_mix_ignores_levels_beyond_the_pooling_arrays() -> None:
+    # the pooling structure covers levels 0-9; a level 11 of the fit is in no parent
+    d = _data(3)
+    d["ind"] = np.where(d["ind"] == 6, 11, d["ind"])
+    design = Design(d["X"], [d["ind"], d["yr"]], _pooling(np.inf))
+    mix = design.parent_mix()
+    own0 = design.present[0]
+    assert own0[-1] == 11 and mix[1][-1] == 0.0 and mix[1].sum() == pytest.approx(1.0)
+
+
+def test_compress_gives_present_levels_and_positions() -> None:
+    levels, inv = compress(np.array([5, -1, 2, 5, 9]))
+    np.testing.assert_array_equal(levels, [2, 5, 9])
+    np.testing.assert_array_equal(inv, [1, -1, 0, 1, 2])
+    none, inv = compress(np.array([-1, -3]))
+    assert len(none) == 0 and none.dtype == np.int64
+    np.testing.assert_array_equal(inv, [-1, -1])
+    # huge sparse codes take the sorting branch with the same result
+    levels, inv = compress(np.array([10**9, 3, 10**9, -1]))
+    np.testing.assert_array_equal(levels, [3, 10**9])
+    np.testing.assert_array_equal(inv, [1, 0, 1, -1])
+
+
+def test_effect_codes_must_be_non_negative_and_each_factor_needs_a_level() -> None:
+    X = np.ones((4, 1))
+    with pytest.raises(ModelError, match="non-negative integers, one per row"):
+        Design(X, [np.array([0, 1, -1, 0])])
+    with pytest.raises(ModelError, match="non-negative integers, one per row"):
+        Design(X, [np.array([0, 1, 0])])
+    every_small = Pooling(np.array([True, True]), np.array([0, 0]),
+                          np.zeros((1, 2), dtype=bool), np.full(2, np.inf), np.full(2, np.nan))
+    with pytest.raises(ModelError, match="at least one level of its own"):
+        Design(X, [np.array([0, 1, 0, 1])], every_small)
+
+
+def test_near_constant_drivers_are_flat_whatever_their_units() -> None:
+    rng = np.random.default_rng(4)
+    n = 1000
+    base = rng.normal(size=(n, 1))
+    for size in (1.0, 1e4, 1e-6):
+        X = np.column_stack([base[:, 0] * size,
+                             size * (5.0 + 1e-12 * rng.normal(size=n))])  # rounding only
+        np.testing.assert_array_equal(Design(X, []).flat(), [1])
+    # a driver in tiny units that does vary is not flat, and fits
+    y = base[:, 0] + rng.normal(size=n)
+    tiny = base * 1e-12
+    assert len(Design(tiny, []).flat()) == 0
+    fit = fit_linear(y, tiny, names=["x"])
+    assert fit.coef[1] == pytest.approx(fit_linear(y, base, names=["x"]).coef[1] * 1e12)
+    zeros = Design(np.column_stack([base[:, 0], np.zeros(n)]), [])
+    np.testing.assert_array_equal(zeros.flat(), [1])
+
+
+@pytest.mark.parametrize("fit", [fit_linear, fit_fractional])
+def test_a_constant_driver_is_named(fit) -> None:
+    rng = np.random.default_rng(5)
+    n = 400
+    X = np.column_stack([rng.normal(size=n), np.full(n, 3.0) + 1e-13 * rng.normal(size=n)])
+    y = 1 / (1 + np.exp(-X[:, 0] - rng.normal(size=n)))
+    with pytest.raises(ModelError, match="every driver must vary across rows; got b constant"):
+        fit(y, X, effects=[rng.integers(0, 4, n)], names=["a", "b"])
+
+
+def test_solve_and_inverse_rows() -> None:
+    rng = np.random.default_rng(6)
+    M = rng.normal(size=(6, 6))
+    A = M @ M.T + np.diag([1e3, 1, 1e-2, 1, 1, 5])
+    factor, d = solve(A)
+    b = rng.normal(size=6)
+    np.testing.assert_allclose(cho_apply(factor, d, b), np.linalg.solve(A, b), rtol=1e-10)
+    B = rng.normal(size=(6, 2))
+    np.testing.assert_allclose(cho_apply(factor, d, B), np.linalg.solve(A, B), rtol=1e-10)
+    np.testing.assert_allclose(inverse_rows(factor, d, 3), np.linalg.inv(A)[:3], rtol=1e-9,
+                               atol=1e-12)
+    for bad in (np.diag([1.0, 0.0]), np.diag([1.0, np.inf]), np.diag([1.0, np.nan])):
+        with pytest.raises(np.linalg.LinAlgError):
+            solve(bad)
+
+
+def test_suspicious_screens_absorbed_and_collinear_drivers() -> None:
+    d = _data(7, n=2000)
+    ind, yr = d["ind"], d["yr"]
+    good = Design(d["X"], [ind, yr])
+    assert not suspicious(good.gram(), 3)
+    assert not suspicious(Design(np.empty((len(ind), 0)), [ind]).gram(), 0)
+    by_industry = d["X"].copy()
+    by_industry[:, 1] = ind * 0.7  # constant within industry: absorbed by its effect
+    assert suspicious(Design(by_industry, [ind, yr]).gram(), 3)
+    collinear = d["X"].copy()
+    collinear[:, 2] = collinear[:, 0] - 2 * collinear[:, 1] + yr  # collinear after effects
+    assert suspicious(Design(collinear, [ind, yr]).gram(), 3)
+    nearly = d["X"].copy()
+    nearly[:, 2] = nearly[:, 0] + 1e-3 * d["rng"].normal(size=len(ind))
+    assert not suspicious(Design(nearly, [ind, yr]).gram(), 3)
+
+
+def test_check_identified_names_the_driver_and_passes_good_designs() -> None:
+    d = _data(8, n=1500)
+    ind, yr = d["ind"], d["yr"]
+    names = ["a", "b", "c"]
+    check_identified(Design(d["X"], [ind, yr]), names)
+    check_identified(Design(d["X"], [ind, yr], _pooling(25.0)), names)
+    check_identified(Design(np.empty((len(ind), 0)), [ind, yr]), [])
+    X = d["X"].copy()
+    X[:, 1] = 0.3 * ind + 0.1 * yr  # explained by the effects
+    with pytest.raises(ModelError, match="got b explained entirely by the industry and year"):
+        check_identified(Design(X, [ind, yr]), names)
+    X = d["X"].copy()
+    X[:, 2] = 2 * X[:, 0] + 0.5 * ind
+    with pytest.raises(ModelError, match=r"got a, c linearly dependent\. Drop one"):
+        check_identified(Design(X, [ind, yr]), names)
+
+
+def test_a_driver_constant_within_a_pooled_level_is_identified() -> None:
+    # A small level without an effect of its own (hard pooling), or with a penalised
+    # deviation, does not absorb a driver that is constant within it; its own dummy does.
+    d = _data(9, n=1500)
+    X = d["X"].copy()
+    X[:, 1] = 0.2 * d["ind"] + (d["ind"] == 8)
+    effects = [d["ind"], d["yr"]]
+    check_identified(Design(X, effects, _pooling(np.inf)), ["a", "b", "c"])
+    check_identified(Design(X, effects, _pooling(25.0)), ["a", "b", "c"])
+    with pytest.raises(ModelError, match="got b explained entirely"):
+        check_identified(Design(X, effects), ["a", "b", "c"])

@@ -1,0 +1,132 @@
+"""Mutation check of the engine with mutmut, one module at a time (DEVELOPERS.md).
+
+    .venv/bin/python tools/mutation.py                 # every module, then the report
+    .venv/bin/python tools/mutation.py band attribution
+    .venv/bin/python tools/mutation.py --report        # the table and unexplained survivors
+
+``[tool.mutmut]`` in pyproject.toml names the files mutated and the test files mutmut may
+use. Each module here runs with two workers and only the test files relevant to it (passed to
+pytest as a ``-k`` filter on the file names through ``PYTEST_ADDOPTS``); within them mutmut
+runs, for each mutant, only the tests that call the mutated function, fastest first.
+Results accumulate in ``mutants/`` (git-ignored). The report counts, per module, the
+mutants killed, the survivors listed as equivalent in DEVELOPERS.md ("Equivalent mutants"),
+and any other survivor, which it names: the check passes when there is none.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+MUTMUT = Path(sys.executable).parent / "mutmut"
+WORKERS = 2
+TIMEOUT_S = 4 * 3600
+
+MODEL_CORE = ("test_models.py", "test_fractional.py", "test_numerics.py", "test_inference.py",
+              "test_design.py", "test_covariance.py")
+MODULES: dict[str, tuple[str, ...]] = {
+    "band": ("test_band.py", "test_pipeline_brute.py", "test_saved.py"),
+    "attribution": ("test_attribution.py", "test_pipeline_brute.py"),
+    "features": ("test_features.py", "test_pipeline_brute.py", "test_pipeline_edges.py"),
+    "transforms": ("test_transforms.py", "test_features.py", "test_pipeline_brute.py",
+                   "test_saved.py"),
+    "groups": ("test_groups.py", "test_features.py", "test_pooling.py",
+               "test_pipeline_brute.py"),
+    "models.design": MODEL_CORE,
+    "models.linear": MODEL_CORE,
+    "models.fractional": MODEL_CORE,
+    "models.assemble": MODEL_CORE,
+    "models.covariance": MODEL_CORE,
+    "models.result": (*MODEL_CORE, "test_result.py", "test_saved.py"),
+    "models.shapley": ("test_shapley.py", "test_attribution.py"),
+    "models.pooling": ("test_pooling.py", "test_models.py"),
+    "models.crossfit": ("test_crossfit.py", "test_pipeline_brute.py"),
+    "models.saved": ("test_saved.py",),
+}
+"""Module (under ``levgap``) -> the test files its mutants run against."""
+
+KILLED = {1, 3, 24, -24, 152, 255, 36}
+"""Exit codes of a mutant the tests caught: a failure, or a timeout (the mutant made them run
+far longer than their recorded time)."""
+STATUS = {0: "survived", 5: "no tests", 33: "no tests", None: "not checked"}
+
+
+def run(module: str) -> int:
+    """Run mutmut on one module's mutants with that module's tests."""
+    tests = MODULES[module]
+    env = dict(os.environ, PYTEST_ADDOPTS="-k '" + " or ".join(tests) + "'")
+    print(f"== levgap.{module}: tests {', '.join(tests)}", flush=True)
+    cmd = [str(MUTMUT), "run", "--max-children", str(WORKERS), f"levgap.{module}.*"]
+    (ROOT / "mutants").mkdir(exist_ok=True)
+    log = ROOT / "mutants" / f"run-{module}.log"
+    try:
+        with log.open("w", encoding="utf-8") as fh:
+            done = subprocess.run(cmd, cwd=ROOT, env=env, timeout=TIMEOUT_S, stdout=fh,
+                                  stderr=subprocess.STDOUT, check=False)
+    except subprocess.TimeoutExpired:
+        print(f"   stopped after {TIMEOUT_S} s", flush=True)
+        return 1
+    return done.returncode
+
+
+def equivalent_names() -> set[str]:
+    """Mutants DEVELOPERS.md lists as equivalent (their names, in backquotes)."""
+    text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
+    part = text.split("### Equivalent mutants", 1)[-1]
+    return set(re.findall(r"`(levgap\.[^`\s]+__mutmut_\d+)`", part))
+
+
+def results() -> dict[str, dict[str, int | None]]:
+    """Exit code of every mutant, by module, from mutmut's ``.meta`` files."""
+    out: dict[str, dict[str, int | None]] = {}
+    for meta in sorted((ROOT / "mutants" / "src" / "levgap").rglob("*.py.meta")):
+        rel = meta.relative_to(ROOT / "mutants" / "src" / "levgap").as_posix()
+        module = rel.removesuffix(".py.meta").replace("/", ".")
+        if module in MODULES:
+            out[module] = json.loads(meta.read_text(encoding="utf-8"))["exit_code_by_key"]
+    return out
+
+
+def report() -> int:
+    """Print the score table and every survivor not explained; 1 if there is one."""
+    equivalent = equivalent_names()
+    unexplained: list[str] = []
+    rows = []
+    for module, codes in results().items():
+        killed = sum(1 for c in codes.values() if c in KILLED)
+        equiv = sum(1 for k, c in codes.items() if c not in KILLED and k in equivalent)
+        other = sorted(k for k, c in codes.items() if c not in KILLED and k not in equivalent)
+        unexplained += [f"{k} ({STATUS.get(codes[k], codes[k])})" for k in other]
+        rows.append((module, len(codes), killed, equiv, len(other)))
+    print(f"{'module':20} {'mutants':>8} {'killed':>7} {'equivalent':>11} {'other':>6}")
+    for module, total, killed, equiv, other in rows:
+        print(f"{module:20} {total:8d} {killed:7d} {equiv:11d} {other:6d}")
+    totals = [sum(r[i] for r in rows) for i in range(1, 5)]
+    print(f"{'total':20} {totals[0]:8d} {totals[1]:7d} {totals[2]:11d} {totals[3]:6d}")
+    for name in unexplained:
+        print("unexplained:", name)
+    return 1 if unexplained else 0
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("modules", nargs="*", help=f"default: all of {', '.join(MODULES)}")
+    parser.add_argument("--report", action="store_true", help="only print the report")
+    args = parser.parse_args(argv)
+    if not args.report:
+        unknown = [m for m in args.modules if m not in MODULES]
+        if unknown:
+            parser.error(f"unknown module {unknown[0]!r}; choose from {', '.join(MODULES)}")
+        for module in args.modules or list(MODULES):
+            run(module)
+    return report()
+
+
+if __name__ == "__main__":
+    sys.exit(main())
