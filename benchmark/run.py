@@ -446,6 +446,9 @@ def bench_end_to_end(paths: dict[str, Path], work: Path, repeat: int, warmup: in
         d[f"parquet_{m}_over_lean_cpu"] = ratio(f"parquet_{m}", "lean", "cpu_s")
         d[f"parquet_{m}_over_lean_rss"] = ratio(f"parquet_{m}", "lean", "rss_mb")
     d["outputs_default"] = sorted(p.name for p in (work / "default-linear").glob("*"))
+    d["output_mb"] = {m: {p.name: round(p.stat().st_size / 1e6, 2)
+                          for p in sorted((work / f"default-{m}").glob("*")) if p.is_file()}
+                      for m in MODELS}
     d["outputs_parquet"] = sorted(p.name for p in (work / "parquet-linear").glob("*"))
     if with_bar:
         last = work / "logs" / f"bar-{max(d['bar']['runs'] - 1, 0)}"
@@ -848,6 +851,17 @@ def write_markdown(res: dict, path: Path) -> None:
                  f"{rat('default_fractional_over_lean_csv')} | "
                  f"{fmt_s(e.get('default_linear_over_lean'), 2)} | "
                  f"{rat('parquet_linear_over_lean')} | {rat('parquet_fractional_over_lean')} |")
+    sizes_mb = [(k, s_["end_to_end"]["output_mb"]) for k, s_ in res["sizes"].items()
+                if s_.get("end_to_end", {}).get("output_mb")]
+    if sizes_mb:
+        L += ["", "Files the default path writes (MB, fractional model; `report.html` holds the "
+              "universe table of the reported year, sampled charts and bounded tables):", "",
+              "| firm-years | " + " | ".join(sizes_mb[-1][1]["fractional"]) + " |",
+              "|---|" + "---|" * len(sizes_mb[-1][1]["fractional"])]
+        for key, mb in sizes_mb:
+            f_ = mb.get("fractional", {})
+            L.append(f"| {key} | " + " | ".join(
+                fmt_s(f_.get(n), 2) for n in sizes_mb[-1][1]["fractional"]) + " |")
     for key, s_ in res["sizes"].items():
         if s_.get("end_to_end_note"):
             L.append(f"\n{key}: {s_['end_to_end_note']}")
