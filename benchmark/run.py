@@ -756,8 +756,10 @@ def write_markdown(res: dict, path: Path) -> None:
                                f"({b['num_threads']} threads)" for b in m["blas"]) or "unknown")
          + "; thread variables: " + ", ".join(f"{k}={v}" for k, v in m["thread_env"].items())
          + ".", "",
-         f"Each figure is the median of {res['repeat']} runs"
-         + (" after one warm-up run" if res["warmup"] else " (no warm-up: --quick)")
+         (f"Each figure is the median of {res['repeat']} runs" if res["repeat"] > 1
+          else "Each figure is one run")
+         + (" after one warm-up run" if res["warmup"] else
+            " (no warm-up: " + ("--quick)" if res["quick"] else "--no-warmup)"))
          + ", runs of compared items interleaved; exceptions are stated beside the figure.",
          "", "## Goals", "", "| goal | measured | bound | met |", "|---|---|---|---|"]
     for g in res["goals"]:
@@ -811,8 +813,9 @@ def write_markdown(res: dict, path: Path) -> None:
           "runs); the **Parquet path** reads Parquet and writes Parquet, no report. Each with "
           "`--model linear` and `--model fractional` (the default). The lean implementation "
           "(`benchmark/lean.py`, linear) does the same job in numpy/pyarrow: `lean CSV` reads "
-          "and writes CSV (pyarrow's CSV writer), `lean` Parquet. Runs interleaved, one warm-up "
-          "(Parquet path, linear); wall seconds, CPU seconds of the process in brackets "
+          "and writes CSV (pyarrow's CSV writer), `lean` Parquet. Runs interleaved" + (
+              ", one warm-up (Parquet path, linear)" if res["warmup"] else ", no warm-up")
+          + "; wall seconds, CPU seconds of the process in brackets "
           "(user + system: what the run costs with a core to itself), peak RSS in MB.", "",
           "| firm-years | default linear | default fractional | Parquet linear | "
           "Parquet fractional | lean CSV | lean | load |",
@@ -950,6 +953,8 @@ def main(argv: list[str] | None = None) -> int:
                     help="sizes measured for the fit alone (arrays built in memory, no files; "
                     "'' for none; --quick skips them)")
     ap.add_argument("--no-profile", action="store_true")
+    ap.add_argument("--no-warmup", action="store_true",
+                    help="no warm-up runs (a busy shared machine), everything else as usual")
     ap.add_argument("--data-dir", type=Path, default=HERE / "data")
     ap.add_argument("--work-dir", type=Path, default=HERE / "out")
     ap.add_argument("--results-dir", type=Path, default=HERE)
@@ -957,7 +962,7 @@ def main(argv: list[str] | None = None) -> int:
     t_suite = time.perf_counter()
     args.results_dir.mkdir(parents=True, exist_ok=True)
     sizes = sorted({synth.parse_size(s) for s in args.sizes.split(",") if s.strip()})
-    warmup = 0 if args.quick else 1
+    warmup = 0 if args.quick or args.no_warmup else 1
     repeat = max(1, args.repeat)
     work = args.work_dir
     work.mkdir(parents=True, exist_ok=True)
