@@ -13,9 +13,9 @@ import pytest
 
 from levgap.errors import ModelError
 from levgap.models.design import Design, Pooling, compress
+from levgap.models.fractional import fit_fractional
 from levgap.models.identify import check_identified, suspicious
 from levgap.models.linalg import cho_apply, inverse_rows, solve
-from levgap.models.fractional import fit_fractional
 from levgap.models.linear import fit_linear
 
 
