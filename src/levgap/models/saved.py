@@ -317,26 +317,26 @@ class SavedModel:
         extra = {"industry_not_in_model": new_ind, "year_not_in_model": new_year}
         for code, mask in extra.items():
             flags = np.where(mask, np.where(flags == "", code, flags + ";" + code), flags)
-        out = pd.DataFrame({
+        status = np.array(STATUS, dtype=object)[status_codes(actual, low, high)]
+        cols: dict[str, Any] = {
             "firm_id": f["firm_id"].to_numpy(), "fiscal_year": f["fiscal_year"].to_numpy(),
-            "industry": f["industry"].to_numpy(), "measure": measure, "actual": actual,
-            "target": target, "band_low": low, "band_high": high,
-            "status": np.array(STATUS, dtype=object)[status_codes(actual, low, high)],
+            "industry": f["industry"].to_numpy(), "measure": np.full(n, measure, dtype=object),
+            "actual": actual, "target": target, "band_low": low, "band_high": high,
+            "status": np.where(np.isnan(actual), "", status).astype(object),
             "gap": actual - target,
             "gap_z": gap_z(actual - target, band.scale_of(np.where(level >= 0, level,
                                                                    len(band.scale)))),
             "peer_target": peer_target, "peer_median": peer_med, "peer_count": peer_n,
             "fold": folds, "flags": flags,
-        })
-        out.loc[np.isnan(actual), "status"] = ""
-        for j, d in enumerate(self.drivers):
-            out[d] = X[:, j]
+        }
+        for j, d in enumerate(self.drivers):  # every column at once: one frame, no inserts
+            cols[d] = X[:, j]
             # a driver that differs by measure is used as built: its raw value is this one's
-            out[d + "_raw"] = (f[d + "_raw"].to_numpy() if d + "_raw" in f
-                               and d not in MEASURE_SPECIFIC else X[:, j])
-            out[d + "_peer"] = X_peer[:, j]
-            out[d + "_contribution"] = contrib[:, j]
-        return out
+            cols[d + "_raw"] = (f[d + "_raw"].to_numpy() if d + "_raw" in f
+                                and d not in MEASURE_SPECIFIC else X[:, j])
+            cols[d + "_peer"] = X_peer[:, j]
+            cols[d + "_contribution"] = contrib[:, j]
+        return pd.DataFrame(cols)
 
     def _measure_drivers(self, measure: str, f: pd.DataFrame, X: np.ndarray,
                          given: np.ndarray | None) -> np.ndarray:
@@ -448,15 +448,14 @@ def _schema_frame(rows: pd.DataFrame) -> pd.DataFrame:
     missing = [c for c in REQUIRED if c not in rows.columns]
     if missing:
         raise ModelError(f"rows must have the schema-v1 columns; got no {missing[0]}.")
-    data = rows.copy()
-    for c in data.columns:
-        if c not in ("firm_id", "industry", "firm_name", "currency", "flags"):
-            data[c] = pd.to_numeric(data[c], errors="coerce")
-    data["firm_id"] = data["firm_id"].astype(str)
-    data["industry"] = data["industry"].astype(str)
-    if "flags" not in data:
-        data["flags"] = ""
-    return data.reset_index(drop=True)
+    text = ("firm_id", "industry", "firm_name", "currency", "flags")
+    cols = {c: (rows[c] if c in text else pd.to_numeric(rows[c], errors="coerce"))
+            for c in rows.columns}
+    cols["firm_id"] = rows["firm_id"].astype(str)
+    cols["industry"] = rows["industry"].astype(str)
+    if "flags" not in cols:
+        cols["flags"] = pd.Series("", index=rows.index, dtype=object)
+    return pd.DataFrame(cols).reset_index(drop=True)  # one frame built once, not column inserts
 
 
 __all__ = ["MODEL_FILE", "SavedModel", "WHOLE_SAMPLE", "load_model"]

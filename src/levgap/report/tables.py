@@ -6,8 +6,8 @@ Safety rules, each tested (the mechanisms live in ``levgap.outputs``):
   ``@`` or their fullwidth forms, possibly after spaces, or with a tab or a carriage return)
   get a leading apostrophe (the usual guidance against spreadsheet formula injection);
   numeric columns are untouched;
-- CSV lines end in CRLF (RFC 4180), so that the csv writer quotes any cell holding a
-  carriage return or a line feed;
+- CSV is written by pyarrow's columnar writer (``levgap.report.columnar`` states the format:
+  shortest round-trip numbers, every text cell quoted, lines ending in CRLF as RFC 4180);
 - a run's files are staged and swapped in as one unit with one run id; readers refuse a
   folder holding an interrupted run, a damaged or newer ``run.json``, a missing file, or a
   table without a contract column or with a wrong type;
@@ -115,8 +115,7 @@ def stage_tables(run: RunWriter, tables: Mapping[str, pd.DataFrame], *, fmt: str
     for name, frame in tables.items():
         if frame.shape[1] == 0 and name in TABLE_COLUMNS:  # an empty table keeps its header
             frame = pd.DataFrame(columns=list(TABLE_COLUMNS[name]))
-        out.append(run.add(f"{name}{FORMATS[fmt]}",
-                           _table_writer(neutralise(frame), fmt, run.run_id)))
+        out.append(run.add(f"{name}{FORMATS[fmt]}", _table_writer(frame, fmt, run.run_id)))
     return out
 
 
@@ -258,29 +257,15 @@ def write_table(
     if fmt is None:
         raise OutputError(f"{target}: a table file must end in .csv or .parquet; got "
                           f"{target.suffix or 'no suffix'}.")
-    write = _table_writer(neutralise(frame), fmt, None)
+    write = _table_writer(frame, fmt, None)
     with atomic_file(target, inputs=inputs) as tmp, open(tmp, "wb") as fh:
         write(fh)
     return target
 
 
 def _table_writer(frame: pd.DataFrame, fmt: str, run_id: str | None) -> Any:
-    """A function writing ``frame`` as CSV or Parquet to a binary handle."""
-    if fmt == "parquet":
-        def parquet(fh: Any) -> None:
-            import pyarrow as pa
-            import pyarrow.parquet as pq
+    """A function writing ``frame`` as CSV or Parquet to a binary handle (text cells
+    neutralised; the CSV format is ``levgap.report.columnar``'s)."""
+    from levgap.report.columnar import csv_writer, parquet_writer
 
-            table = pa.Table.from_pandas(frame, preserve_index=False)
-            if run_id is not None:
-                meta = dict(table.schema.metadata or {})
-                meta[b"levgap_run_id"] = run_id.encode("ascii")
-                table = table.replace_schema_metadata(meta)
-            pq.write_table(table, fh)
-
-        return parquet
-
-    def csv(fh: Any) -> None:
-        frame.to_csv(fh, index=False, encoding="utf-8", lineterminator="\r\n")
-
-    return csv
+    return parquet_writer(frame, run_id) if fmt == "parquet" else csv_writer(frame)
