@@ -144,7 +144,7 @@ def test_rd_indicator_is_left_out_when_constant_and_errors_name_rd_intensity() -
     feats = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
                                          winsorize=(0.0, 1.0)))
     assert feats.drivers == ("tangibility", "rd_intensity")
-    from levgap.models.design import _shown
+    from levgap.models.identify import _shown
 
     assert _shown(["rd_intensity", "rd_missing"]) == "rd_intensity"
     assert _shown(["size", "rd_missing"]).startswith("size, rd_intensity (")

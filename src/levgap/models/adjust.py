@@ -45,7 +45,7 @@ import pandas as pd
 from scipy import special
 
 from levgap.errors import ModelError
-from levgap.models.covariance import cluster_codes, meat
+from levgap.models.covariance import cluster_codes, influence_meat
 
 DEFAULT_DIFFERENCE = 4
 
@@ -164,7 +164,7 @@ def _cluster_ols(y: np.ndarray, W: np.ndarray, Z: np.ndarray, firm: np.ndarray
                          "system (too few firm-years with the years it needs).") from None
     u = y - W @ theta
     codes = cluster_codes(firm)
-    V, g = meat((Z * u[:, None]) @ inv.T, codes, len(y), W.shape[1])
+    V, g = influence_meat((Z * u[:, None]) @ inv.T, codes, len(y), W.shape[1])
     return theta, V, g
 
 

@@ -59,6 +59,15 @@ def meat(S: np.ndarray, n: int, p: int) -> tuple[np.ndarray, int]:
     return factor * (S.T @ S), g
 
 
+def influence_meat(U: np.ndarray, codes: np.ndarray, n: int, p: int) -> tuple[np.ndarray, int]:
+    """:func:`meat` from row influences ``U`` (n x m): their sums within each cluster of
+    ``codes`` (for estimators that hold the influences, e.g. ``models.within``)."""
+    g = int(codes.max()) + 1
+    S = np.stack([np.bincount(codes, weights=U[:, c], minlength=g) for c in range(U.shape[1])],
+                 axis=1)
+    return meat(S, n, p)
+
+
 def sandwich(sums: Sums, clusters: Sequence[np.ndarray], n: int, n_params: int) -> Sandwich:
     r"""Covariance of the reported terms from the rows' influences.
 

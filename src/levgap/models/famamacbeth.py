@@ -38,8 +38,9 @@ from collections.abc import Sequence
 import numpy as np
 
 from levgap.errors import ModelError
-from levgap.models.design import FLAT_TOL, IDENTIFIED_TOL, compress
+from levgap.models.design import FLAT_TOL, compress
 from levgap.models.estimates import Estimates
+from levgap.models.identify import IDENTIFIED_TOL
 from levgap.models.linear import fit_linear
 
 LAG_RULE = "floor(4 (T/100)^(2/9)), at most T - 1 (Newey and West 1994, common practice)"

@@ -47,9 +47,11 @@ import scipy.linalg
 import scipy.sparse
 
 from levgap.errors import ModelError
-from levgap.models.covariance import cluster_codes, meat, psd_repair
-from levgap.models.design import IDENTIFIED_TOL, cho_apply, compress, solve
+from levgap.models.covariance import cluster_codes, influence_meat, psd_repair
+from levgap.models.design import compress
 from levgap.models.estimates import Estimates
+from levgap.models.identify import IDENTIFIED_TOL
+from levgap.models.linalg import cho_apply, solve
 
 DF_CONVENTIONS = ("nested", "dummies")
 
@@ -261,7 +263,7 @@ def _covariance(factor: tuple, d: np.ndarray, Xt: np.ndarray, r: np.ndarray, f: 
 
     parts, sizes = [], []
     for c in codes:
-        v, g = meat(U, c, n, p_for(c))
+        v, g = influence_meat(U, c, n, p_for(c))
         parts.append(v)
         sizes.append(g)
     notes: tuple[str, ...] = ()
