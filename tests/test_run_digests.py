@@ -144,6 +144,27 @@ def test_a_folder_written_before_digests_is_replaced_by_a_new_run(tmp_path, pane
     assert (out2 / "report.html").read_bytes() == b"<p>mine</p>"
 
 
+def test_report_rebuilds_a_removed_report_and_refuses_a_copy_without_marker(tmp_path, panel):
+    out = tmp_path / "out"
+    assert runner.invoke(app, ["analyze", str(panel), "--out", str(out), "--top", "1"]
+                         ).exit_code == 0
+    (out / "report.html").unlink()
+    for cmd in (["screen", str(out), "--top", "1"], ["explain", str(out), "TR0001"]):
+        assert runner.invoke(app, cmd).exit_code == 0, cmd
+    result = runner.invoke(app, ["report", str(out)])
+    assert result.exit_code == 0, result.output
+    assert (out / "report.html").is_file()
+    copy = tmp_path / "copy"
+    copy.mkdir()
+    for p in out.iterdir():
+        if p.is_file() and p.name != MARKER:
+            shutil.copy(p, copy / p.name)
+    assert runner.invoke(app, ["screen", str(copy), "--top", "1"]).exit_code == 0
+    before = (copy / "run.json").read_bytes()
+    _one_line_error(runner.invoke(app, ["report", str(copy)]), "without its marker")
+    assert (copy / "run.json").read_bytes() == before
+
+
 # ------------------------------------------------------------------------------ H2: readers
 
 @pytest.fixture(scope="module")

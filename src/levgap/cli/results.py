@@ -18,8 +18,8 @@ def report(
         False, "--accept-edits",
         help="Accept tables edited since the run and record them as the run's files."),
 ) -> None:
-    """Rebuild report.html from the outputs in a folder (copied whole, or with tables edited
-    and --accept-edits).
+    """Rebuild report.html from the outputs in a folder levgap wrote (or a copy that kept its
+    marker, `cp -a results/. DEST/`; tables edited on purpose: --accept-edits).
 
     Example: levgap report results/
     """

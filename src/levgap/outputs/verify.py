@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import re
 import stat
 from collections.abc import Mapping
@@ -103,6 +105,11 @@ class RunFolder:
         return out
 
 
+DERIVED = frozenset({"report.html", "workbook.xlsx"})
+"""Files of a run drawn from its tables, which no reader reads: a run missing one of them
+(removed by the user) is still complete."""
+
+
 def verify_run(out_dir: str | Path, *, digests: bool = True) -> RunFolder:
     """Check that a folder holds one complete levgap run, and say where its files are.
 
@@ -172,6 +179,8 @@ def verify_run(out_dir: str | Path, *, digests: bool = True) -> RunFolder:
     files = {RUN_FILE: path}
     for name in listed:
         p = out / name
+        if not p.is_file() and name in DERIVED and not os.path.lexists(p):
+            continue  # removed by the user: no reader needs it, `levgap report` rebuilds it
         if not p.is_file():
             raise OutputError(
                 f"{p}: run {run_id} lists this file but it is missing; the folder holds an "

@@ -141,6 +141,13 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None,
               for name, p in run.tables.items()}
     _check_tables(tables)
     html = render_report(tables, run.manifest, options=options)
+    if run.run_id is not None and run.marker.run_id is None:
+        raise OutputError(
+            f"{out_dir}: report.html is rebuilt only in a folder levgap wrote; got a copy "
+            "without its marker .levgap-output (as `cp results/* DEST/` makes), so levgap "
+            "cannot tell its run.json from a file of yours. The tables still read; copy "
+            "with `cp -a results/. DEST/` or rebuild the report in the original folder."
+        )
     with RunWriter(out_dir, run_id=run.run_id or new_run_id(),
                    inputs=[p for p, _ in run.inputs()], force=True,
                    amend=[n for n in run.files if n != REPORT_NAME]) as writer:
