@@ -274,6 +274,8 @@ def test_explain_add_debt_shows_before_and_after(deal_run):
     result = _cli("explain", deal_run.out, deal_run.firm, "--add-debt", "50")
     assert result.exit_code == 0, result.output
     assert "debt +50 (recap)" in result.output and "before" in result.output
+    # 'before' is the full-sample target, not explain's cross-fitted one: said on screen
+    assert "full-sample fit" in " ".join(result.output.split())
     funded = _cli("explain", deal_run.out, deal_run.firm, "--add-debt", "50", "--fund-assets",
                   "--measure", "market")
     assert funded.exit_code == 0, funded.output

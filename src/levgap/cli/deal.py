@@ -104,4 +104,5 @@ def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, 
     flags = after["flags"]
     if flags:
         con.print(f"flags after: {flags.replace(';', ', ')}")
+    con.print(FULL_SAMPLE_NOTE)
     con.print(f"Caution: {CAUTION}")
