@@ -180,6 +180,10 @@ def test_hostile_scenarios_exit_2_with_one_line(deal_run, tmp_path):
     ok = _scenario_file(tmp_path, "[[scenario]]\nname = 'x'\n")
     _one_line_error(_cli("proforma", out, "NOPE", "--scenario", ok),
                     "FIRM_ID must be a firm of the results; got 'NOPE'")
+    # ids in any case, as explain and screen match them (README)
+    lower = _cli("proforma", out, firm.lower(), "--scenario", ok)
+    assert lower.exit_code == 0 and firm in lower.output, lower.output
+    _one_line_error(_cli("proforma", out, firm[:-1], "--scenario", ok), "Did you mean")
     _one_line_error(_cli("proforma", out, firm, "--scenario", ok, "--year", "1990"),
                     "--year must be a fiscal year of firm")
     same = _scenario_file(tmp_path, f"[[scenario]]\nname = 'self'\nmerge_with = '{firm}'\n")

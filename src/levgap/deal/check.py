@@ -66,10 +66,16 @@ def check_deal(
         An unknown firm or year, a scenario named ``before`` or twice, a scenario the firm's
         statements cannot carry (one line naming file, scenario and key).
     """
-    firm_targets = targets[targets["firm_id"].astype(str) == str(firm_id)]
-    if firm_targets.empty:
+    from levgap.matching import did_you_mean, resolve
+
+    ids = targets["firm_id"].astype(str)
+    found = resolve(str(firm_id), ids.unique())  # as typed, else ignoring case (as explain)
+    if found is None:
+        hint = did_you_mean(str(firm_id), list(ids.unique()))
         raise ConfigError(f"{source}: FIRM_ID must be a firm of the results; got {firm_id!r}, "
-                          "which has no row in targets.csv.")
+                          f"which has no row in targets.csv.{hint}")
+    firm_id = found
+    firm_targets = targets[ids == firm_id]
     years = sorted(int(y) for y in firm_targets["fiscal_year"].unique())
     year = years[-1] if year is None else int(year)
     firm_rows = panel[panel["firm_id"].astype(str) == str(firm_id)]
