@@ -132,6 +132,10 @@ def test_screen_sorts_and_suggests(analyst_run) -> None:
     assert firm.exit_code == 2 and "Did you mean" in firm.output
     bad = runner.invoke(app, ["screen", out, "--sort", "size"])
     assert bad.exit_code == 2 and "gap, gap_z, debt, change" in bad.output
+    # a year the results do not hold is an error naming the years held, not an empty filter
+    lo, hi = int(t["fiscal_year"].min()), int(t["fiscal_year"].max())
+    year = runner.invoke(app, ["screen", out, "--year", str(hi + 7)])
+    assert year.exit_code == 2 and f"({lo}-{hi})" in year.output, year.output
 
 
 def test_screen_fits_80_columns_without_cutting_ids(analyst_run, tmp_path: Path) -> None:

@@ -265,7 +265,13 @@ def screen_rows(table: Any, query: ScreenQuery,
     if t.num_rows == 0:
         return Screen([], 0, None)
     yr = int(pc.max(t["fiscal_year"]).as_py()) if query.year is None else int(query.year)
+    held = t
     t = _keep(t, "fiscal_year", [yr])
+    if t.num_rows == 0:  # a year the results do not hold is not an empty filter
+        lo, hi = (int(pc.min(held["fiscal_year"]).as_py()),
+                  int(pc.max(held["fiscal_year"]).as_py()))
+        raise ConfigError(f"--year must be a fiscal year of the {query.measure} leverage "
+                          f"results ({lo}-{hi}); got {yr}.")
     if query.industry is not None:
         codes = [c for c in pc.unique(t["industry"]).to_pylist() if c is not None]
         want = query.industry.strip().casefold()
