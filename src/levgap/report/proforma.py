@@ -170,37 +170,50 @@ def _environment() -> Any:
 # ----------------------------------------------------------------------------- terminal
 
 def terminal_tables(check: DealCheck) -> list[Any]:
-    """One compact rich table per measure: each scenario's position, capacity and credit."""
+    """Three compact rich tables per measure, each scenario a row: its position against the
+    band, its capacity to the band's top, its credit ratios (split so that each fits 80
+    columns without cutting a figure or a word)."""
     from rich.table import Table
     from rich.text import Text
 
     from levgap.report.proforma_page import money, pct, pp, ratio
 
+    parts = (("position against the band", ("actual", "target", "band", "status", "gap")),
+             ("debt to the band's top in the results' money unit",
+              ("capacity_to_band_top_recap", "capacity_to_band_top_funded")),
+             ("credit", ("net_debt_to_ebitda", "ebitda_to_interest", "altman_score",
+                         "default_probability")))
     tables = []
     for measure, rows in check.table.groupby("measure", sort=False):
-        t = Table(title=Text(f"{check.firm_id} {check.fiscal_year}, {measure} leverage; debt "
-                             "to the band's top in the results' money unit"),
-                  title_justify="left")
         width = min(max(len(str(x)) for x in rows["scenario"]), 24)
-        keys = ("actual", "target", "band", "status", "gap", "capacity_to_band_top_recap",
-                "capacity_to_band_top_funded", "net_debt_to_ebitda", "ebitda_to_interest",
-                "altman_score", "default_probability")
-        body = []
+        cells: dict[str, list[str]] = {k: [] for _, keys in parts for k in keys}
         for r in rows.to_dict("records"):
             z = "" if not math.isfinite(r["altman_score"]) else \
                 f"{r['altman_model']} {r['altman_score']:.2f} {r['altman_zone']}"
-            body.append([pct(r["actual"]), pct(r["target"]),
-                         f"{pct(r['band_low'])}-{pct(r['band_high'])}", str(r["status"]),
-                         pp(r["gap"]), money(r["capacity_to_band_top_recap"]),
-                         money(r["capacity_to_band_top_funded"]),
-                         ratio(r["net_debt_to_ebitda"]), ratio(r["ebitda_to_interest"]),
-                         z or "-", pct(r["default_probability"], 2)])
-        t.add_column(g.label("scenario"), min_width=width, no_wrap=True, overflow="ellipsis")
-        for i, key in enumerate(keys):  # figures whole; the glossary's labels wrap above them
-            cells = max(len(row[i]) for row in body)
-            t.add_column(g.header(key), justify="left" if key in ("status", "altman_score")
-                         else "right", min_width=cells, overflow="fold")
-        for r, row in zip(rows.to_dict("records"), body, strict=True):
-            t.add_row(Text(str(r["scenario"])), *row)
-        tables.append(t)
+            for key, text in (("actual", pct(r["actual"])), ("target", pct(r["target"])),
+                              ("band", f"{pct(r['band_low'])}-{pct(r['band_high'])}"),
+                              ("status", str(r["status"])), ("gap", pp(r["gap"])),
+                              ("capacity_to_band_top_recap",
+                               money(r["capacity_to_band_top_recap"])),
+                              ("capacity_to_band_top_funded",
+                               money(r["capacity_to_band_top_funded"])),
+                              ("net_debt_to_ebitda", ratio(r["net_debt_to_ebitda"])),
+                              ("ebitda_to_interest", ratio(r["ebitda_to_interest"])),
+                              ("altman_score", z or "-"),
+                              ("default_probability", pct(r["default_probability"], 2))):
+                cells[key].append(text)
+        for what, keys in parts:
+            t = Table(title=Text(f"{check.firm_id} {check.fiscal_year}, {measure} leverage; "
+                                 f"{what}"), title_justify="left")
+            t.add_column(g.label("scenario"), min_width=width, no_wrap=True,
+                         overflow="ellipsis")
+            for key in keys:  # figures whole; labels wrap between words above them
+                head = g.header(key)
+                longest = max(len(w) for w in head.split())
+                t.add_column(head, justify="left" if key in ("status", "altman_score")
+                             else "right", min_width=max(longest, *map(len, cells[key])),
+                             overflow="fold")
+            for i, name in enumerate(rows["scenario"]):
+                t.add_row(Text(str(name)), *(cells[k][i] for k in keys))
+            tables.append(t)
     return tables
