@@ -228,6 +228,10 @@ def test_the_panel_must_be_the_runs_own(deal_run, tmp_path):
                     "Pass --panel PATH")
     assert _cli("proforma", out, deal_run.firm, "--scenario", ok, "--panel",
                 moved).exit_code == 0
+    # explain --add-debt reads the same panel and takes the same option
+    _one_line_error(_cli("explain", out, deal_run.firm, "--add-debt", "10"), "Pass --panel PATH")
+    assert _cli("explain", out, deal_run.firm, "--add-debt", "10", "--panel",
+                moved).exit_code == 0
     edited = tmp_path / "edited.csv"
     edited.write_text(moved.read_text().replace(",EUR", ",EUR ", 1))
     _one_line_error(_cli("proforma", out, deal_run.firm, "--scenario", ok, "--panel", edited),

@@ -68,7 +68,7 @@ FULL_SAMPLE_NOTE = (
 
 
 def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, x: float,
-                   fund_assets: bool) -> None:
+                   fund_assets: bool, panel: Path | None = None) -> None:
     """``levgap explain --add-debt X [--fund-assets]``: before and after for one change."""
     from rich.table import Table
 
@@ -77,7 +77,8 @@ def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, 
     from levgap.report.proforma import CAUTION
     from levgap.report.proforma_page import money, num, pct, pp
 
-    check = run(out_dir, firm_id, [debt_change(x, fund_assets=fund_assets)], year=year)
+    check = run(out_dir, firm_id, [debt_change(x, fund_assets=fund_assets)], year=year,
+                panel=panel)
     rows = check.table[check.table["measure"] == measure].to_dict("records")
     if not rows:
         raise typer.BadParameter(f"firm {firm_id} has no {measure} leverage row.",

@@ -33,6 +33,9 @@ def explain(
                                    help="Show before and after this change in debt."),
     fund_assets: bool = typer.Option(False, "--fund-assets",
                                      help="With --add-debt: the debt buys new assets."),
+    panel: Path = typer.Option(None, "--panel",
+                               help="With --add-debt: the run's input panel, if it has moved "
+                               "(same file)."),
 ) -> None:
     """Show why a firm's target differs from its peers', driver by driver, with its gap
     history, its flags in words and (--peers) its peers.
@@ -45,7 +48,8 @@ def explain(
 
             if add_debt is None:
                 raise typer.BadParameter("needs --add-debt X.", param_hint="--fund-assets")
-            return explain_change(out_dir, firm_id, year, measure, add_debt, fund_assets)
+            return explain_change(out_dir, firm_id, year, measure, add_debt, fund_assets,
+                                  panel=panel)
         from levgap.cli.results import _refuse_run_files
         from levgap.report.terminal import render_history, render_steps
         from levgap.results import open_results

@@ -116,6 +116,7 @@ def _locate(out: Path, recorded: str) -> Path:
         if candidate.is_file():
             return candidate
     raise OutputError(
-        f"{recorded}: the run's input panel must be readable to build pro forma statements; "
-        "got no file there. Pass --panel PATH (the same file, checked by its sha256)."
+        f"{recorded}: the run's input panel must be readable (the firms' statements come "
+        "from it); got no file there. Pass --panel PATH (the same file, checked by its "
+        "sha256)."
     )
