@@ -56,7 +56,43 @@ def test_half_life() -> None:
     # REFERENCES.md "half-life of a gap" (formula): ln(0.5)/ln(1 - 0.344) = 1.644 years.
     assert float(half_life(0.344)) == pytest.approx(1.644, abs=5e-4)
     assert float(half_life(0.5)) == pytest.approx(1.0)
-    assert np.isinf(half_life(-0.1)) and float(half_life(1.2)) == 0.0
+    # lambda >= 1 overshoots: ln(1 - lambda) is undefined, so no half-life (not 0 years).
+    assert np.isinf(half_life(-0.1)) and np.isnan(half_life(1.2)) and np.isnan(half_life(1.0))
+
+
+def _oscillating(direction: float) -> pd.DataFrame:
+    """Firms whose leverage jumps past (direction 1) or away from (direction -1) a target of
+    0.3 each year: speed about 2 (overshoot) or about -0.2 (no adjustment)."""
+    rng = np.random.default_rng(5)
+    firms, years = 30, 6
+    sign = np.tile(np.where(np.arange(years) % 2 == 0, -1.0, 1.0), firms)
+    if direction > 0:
+        actual = 0.3 + 0.1 * sign + rng.normal(0, 0.005, firms * years)
+    else:
+        start = rng.uniform(-0.05, 0.05, firms)  # each gap grows by a fifth a year
+        actual = 0.3 + (start[:, None] * 1.2 ** np.arange(years)).ravel()
+    return pd.DataFrame({"firm_id": np.repeat([f"f{i}" for i in range(firms)], years),
+                         "fiscal_year": np.tile(np.arange(2000, 2000 + years), firms),
+                         "measure": "book", "actual": actual, "target": 0.3})
+
+
+def test_half_life_blank_with_a_note_when_the_speed_overshoots_or_is_not_positive() -> None:
+    from rich.console import Console
+
+    from levgap.cli.research import _adjust_table
+
+    over = speed_of_adjustment(_oscillating(1.0))
+    pooled = over.table.set_index("estimator").loc["pooled"]
+    assert pooled["speed"] > 1 and np.isnan(pooled["half_life"])
+    assert any("pooled" in n and "overshoots (lambda >= 1" in n for n in over.notes)
+    con = Console(width=200, record=True)
+    con.print(_adjust_table(over.table))
+    row = next(line for line in con.export_text().splitlines() if "pooled" in line)
+    assert "n/a" in row and " 0.0 " not in row
+    away = speed_of_adjustment(_oscillating(-1.0))
+    pooled = away.table.set_index("estimator").loc["pooled"]
+    assert pooled["speed"] <= 0 and np.isnan(pooled["half_life"])
+    assert any("pooled" in n and "no adjustment" in n for n in away.notes)
 
 
 def test_expected_path_closes_the_gap_geometrically() -> None:

@@ -164,6 +164,19 @@ def test_check_reports_exclusions(tmp_path: Path) -> None:
     assert sorted(rows["source_row"]) == [4, 5]
 
 
+def test_check_counts_in_the_singular_when_there_is_one(tmp_path: Path) -> None:
+    p = make_panel(3)
+    p = p[p["industry"] == p["industry"].iloc[0]].head(40).copy()
+    p.loc[p.index[0], "market_equity"] = float("nan")
+    path = tmp_path / "p.csv"
+    p.to_csv(path, index=False)
+    result = runner.invoke(app, ["check", str(path)])
+    assert result.exit_code == 0, result.output
+    assert "1 row has no market equity" in result.output
+    assert ", 1 industry, fiscal years" in result.output
+    assert "40 rows; " in result.output
+
+
 
 def test_check_ledger_is_analyzes_whole_row_part(panel_csv: Path, out_dir: Path,
                                                  tmp_path: Path) -> None:

@@ -195,7 +195,7 @@ def test_hostile_scenarios_exit_2_with_one_line(deal_run, tmp_path):
     a = float(_target_row(deal_run, firm, "book")["actual"])  # noqa: F841 - a real firm
     repay = _scenario_file(tmp_path, "[[scenario]]\nname = 'repay'\ndebt_repaid = 1e9\n")
     _one_line_error(_cli("proforma", out, firm, "--scenario", repay),
-                    "scenario 'repay': total_assets after the scenario must be > 0")
+                    "scenario 'repay': key debt_repaid must not exceed the debt outstanding")
     buy = _scenario_file(tmp_path, "[[scenario]]\nname = 'buy'\nacquire_price = 5\n"
                          "acquire_assets = 5\n")
     _one_line_error(_cli("proforma", out, deal_run.no_cash, "--scenario", buy),

@@ -131,9 +131,16 @@ def test_a_merger_partner_without_an_item_makes_it_unknown_and_says_why():
 @pytest.mark.parametrize(
     ("moves", "partner", "pattern"),
     [
+        # a key past its own limit is named, not the total it drives below zero
         ({"debt_repaid": 1500.0}, None,
-         r"deal\.toml: scenario 's': total_assets after the scenario must be > 0; got -500\. "
-         r"The scenario spends debt_repaid 1,500\."),
+         r"deal\.toml: scenario 's': key debt_repaid must not exceed the debt outstanding "
+         r"\(300 with the debt raised and assumed\); got 1,500\."),
+        ({"equity_bought_back": 5000.0}, None,
+         r"key equity_bought_back must not exceed the market value of equity \(900\); got "
+         r"5,000\."),
+        ({"debt_repaid": 300.0, "equity_bought_back": 900.0}, None,
+         r"deal\.toml: scenario 's': total_assets after the scenario must be > 0; got -200\. "
+         r"The scenario spends"),
         ({"debt_repaid": 350.0, "equity_issued": 300.0}, None,
          r"key debt_repaid must not exceed the debt outstanding \(300 with the debt raised"),
         ({"acquire_price": 500.0, "acquire_assets": 400.0}, None,

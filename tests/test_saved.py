@@ -48,6 +48,24 @@ def test_cross_fitted_targets_are_reproduced_with_the_firms_fold(saved) -> None:
     assert hit["target"] == pytest.approx(one["target"], abs=1e-12)
 
 
+def test_a_firm_year_scored_alone_imputes_its_volatility_and_earlier_rows_reproduce_it(
+        saved) -> None:
+    # README "Saved model": earnings volatility needs the firm's earlier years
+    panel, result, model = saved
+    t = result.targets.set_index(KEY)
+    firm = panel["firm_id"].iloc[0]
+    year = int(panel.loc[panel["firm_id"] == firm, "fiscal_year"].sort_values().iloc[3])
+    mine = panel[panel["firm_id"] == firm]
+    alone = model.score(mine[mine["fiscal_year"] == year]).set_index(KEY)
+    both = model.score(mine[mine["fiscal_year"] <= year]).set_index(KEY)
+    key = (firm, year, "book")
+    assert "volatility_imputed" not in str(t.loc[key, "flags"])
+    assert "volatility_imputed" in alone.loc[key, "flags"]
+    assert abs(alone.loc[key, "target"] - t.loc[key, "target_full"]) > 1e-6
+    assert abs(both.loc[key, "target"] - t.loc[key, "target_full"]) <= 1e-12
+    assert "volatility_imputed" not in both.loc[key, "flags"]
+
+
 def test_contributions_against_the_firms_own_peers_match_drivers_csv(saved) -> None:
     panel, result, model = saved
     row = result.targets[result.targets["measure"] == "book"].iloc[10]

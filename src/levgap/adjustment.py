@@ -114,6 +114,7 @@ def speed_of_adjustment(
                 notes.append(f"{measure}, {name}: {exc}")
                 continue
             speeds[name] = est.speed
+            notes.extend(_speed_notes(measure, name, est.speed))
             row = asdict(est)
             row["measure"] = measure
             row["corrected"] = "yes" if name == CORRECTED else "no"
@@ -132,6 +133,17 @@ def speed_of_adjustment(
     return SpeedOfAdjustment(
         table=table, paths=pd.concat(paths, ignore_index=True) if paths else pd.DataFrame(),
         notes=tuple(notes))
+
+
+def _speed_notes(measure: str, estimator: str, speed: float) -> list[str]:
+    """Why an estimate has no finite half-life (none when it has one)."""
+    if speed >= 1:
+        return [f"{measure}, {estimator}: the speed {speed:.3f} overshoots (lambda >= 1: a gap "
+                "is more than closed within a year); its half-life is undefined (blank)."]
+    if speed <= 0:
+        return [f"{measure}, {estimator}: the speed {speed:.3f} means no adjustment toward the "
+                "target (lambda <= 0); its half-life is infinite (blank)."]
+    return []
 
 
 def published_lines() -> list[str]:

@@ -319,7 +319,7 @@ def _adjust_table(frame: Any) -> Any:
                          justify="left" if key in ("measure", "estimator", "bias")
                          else "right")
     for r in frame.itertuples():
-        hl = "" if r.half_life != r.half_life else f"{r.half_life:.1f}"
+        hl = "n/a" if r.half_life != r.half_life else f"{r.half_life:.1f}"
         est = r.estimator + (f" (k = {int(r.difference)})" if r.difference else "")
         table.add_row(plain(r.measure), est, f"{r.speed:.3f}", f"{r.std_error:.3f}",
                       f"{r.ci_low:.3f} to {r.ci_high:.3f}", hl, f"{r.n_obs:,}",

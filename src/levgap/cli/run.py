@@ -312,14 +312,17 @@ def check(
         con = console()
         data = p.data
         whole = p.exclusions
-        con.print(f"{panel}: {p.n_input_rows} rows; {len(data)} usable, {len(whole)} excluded.")
+        con.print(f"{panel}: {g.count(p.n_input_rows, 'row')}; {len(data)} usable, "
+                  f"{len(whole)} excluded.")
         if len(data):
             years = data["fiscal_year"]
-            con.print(f"  {data['firm_id'].nunique()} firms, {data['industry'].nunique()} "
-                      f"industries, fiscal years {int(years.min())}-{int(years.max())}")
+            con.print(f"  {g.count(data['firm_id'].nunique(), 'firm')}, "
+                      f"{g.count(data['industry'].nunique(), 'industry')}, fiscal years "
+                      f"{int(years.min())}-{int(years.max())}")
             no_mkt = int(data["market_equity"].isna().sum()) if "market_equity" in data else 0
             if no_mkt:
-                con.print(f"  {no_mkt} rows have no market equity (book leverage only)")
+                con.print(f"  {g.count(no_mkt, 'row')} {'has' if no_mkt == 1 else 'have'} no "
+                          "market equity (book leverage only)")
         for reason, n in whole["reason"].value_counts().sort_index().items():
             con.print(f"  {g.label('excluded')}, {reason}: {n}")
         for w in merge_notes(p.warnings, notes):

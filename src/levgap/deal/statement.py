@@ -324,26 +324,27 @@ def _interest(v: dict[str, float], missing: dict[str, str], before: Statement,
 
 def _check_after(after: Statement, before: Statement, s: Scenario, where: str) -> None:
     slack = TOLERANCE * max(abs(before.total_assets), 1.0)
-    if not after.total_assets > 0:
-        raise ConfigError(
-            f"{where}: total_assets after the scenario must be > 0; got "
-            f"{after.total_assets:,.6g}. {_culprits(s, 'assets')}"
-        )
+    # the per-key limits first: they name the key at fault, the totals only its effect
     if after.total_debt < -slack:
         raise ConfigError(
             f"{where}: key debt_repaid must not exceed the debt outstanding "
             f"({before.total_debt + s.debt_raised + s.acquire_debt:,.6g} with the debt raised "
             f"and assumed); got {s.debt_repaid:,.6g}."
         )
-    if after.cash < -slack:
-        raise ConfigError(
-            f"{where}: cash after the scenario must be >= 0; got {after.cash:,.6g}: "
-            f"{_culprits(s, 'cash')} Raise more (debt_raised, equity_issued) or spend less."
-        )
     if after.market_equity < -slack:
         raise ConfigError(
             f"{where}: key equity_bought_back must not exceed the market value of equity "
             f"({before.market_equity + s.equity_issued:,.6g}); got {s.equity_bought_back:,.6g}."
+        )
+    if not after.total_assets > 0:
+        raise ConfigError(
+            f"{where}: total_assets after the scenario must be > 0; got "
+            f"{after.total_assets:,.6g}. {_culprits(s, 'assets')}"
+        )
+    if after.cash < -slack:
+        raise ConfigError(
+            f"{where}: cash after the scenario must be >= 0; got {after.cash:,.6g}: "
+            f"{_culprits(s, 'cash')} Raise more (debt_raised, equity_issued) or spend less."
         )
     if after.total_debt > after.total_assets * (1.0 + TOLERANCE):
         raise ConfigError(

@@ -32,7 +32,8 @@ Student's t with :math:`G - 1` degrees of freedom):
   :math:`t` and :math:`t-k`.
 
 The half-life of a gap is :math:`\ln 0.5 / \ln(1 - \lambda)` years (its interval maps the
-interval of :math:`\lambda`; infinite when :math:`\lambda \le 0`). A firm's expected path
+interval of :math:`\lambda`; infinite when :math:`\lambda \le 0`, no adjustment; undefined,
+NaN, when :math:`\lambda \ge 1`, the speed overshoots the target). A firm's expected path
 holds its latest target fixed: :math:`E[L_{t+h}] = L^* + (1 - \lambda)^h (L_t - L^*)`.
 """
 
@@ -112,12 +113,13 @@ class Adjustment:
 
 
 def half_life(speed: float | np.ndarray) -> np.ndarray:
-    """:math:`\\ln 0.5 / \\ln(1 - \\lambda)`: infinite for :math:`\\lambda \\le 0`, zero for
-    :math:`\\lambda \\ge 1`."""
+    """:math:`\\ln 0.5 / \\ln(1 - \\lambda)`: infinite for :math:`\\lambda \\le 0` (no
+    adjustment), NaN for :math:`\\lambda \\ge 1` (the speed overshoots the target: the
+    logarithm is undefined)."""
     lam = np.asarray(speed, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         out = np.log(0.5) / np.log1p(-np.clip(lam, -np.inf, 1.0))
-    return np.where(lam <= 0, np.inf, np.where(lam >= 1, 0.0, out))
+    return np.where(lam <= 0, np.inf, np.where(lam >= 1, np.nan, out))
 
 
 @dataclass(frozen=True, slots=True)

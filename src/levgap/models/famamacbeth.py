@@ -174,11 +174,12 @@ def fit_famamacbeth(
             lags[j] = lag_rule(len(s)) if nw_lags is None else min(int(nw_lags), len(s) - 1)
             nw[j] = newey_west_se(s, int(lags[j]))
     notes = []
-    short = [names[j] for j in range(k) if n_years[j] < len(years) - len(skipped)]
+    used = len(years) - len(skipped)
+    short = [j for j in range(k) if n_years[j] < used]
     if short:
         notes.append("left out of the years without cross-sectional variation: " + ", ".join(
-            f"{names[j]} ({int(n_years[j])} of {len(years)} years)" for j in range(k)
-            if names[j] in short))
+            f"{names[j]} ({used - int(n_years[j])} of {len(years)} years; estimated in "
+            f"{int(n_years[j])})" for j in short))
     if skipped:
         notes.append("years without a cross-section: " + "; ".join(skipped))
     n_firms = int(len(np.unique(firm))) if firm is not None else n
