@@ -132,6 +132,17 @@ def test_screen_sorts_and_suggests(analyst_run) -> None:
     assert firm.exit_code == 2 and "Did you mean" in firm.output
     bad = runner.invoke(app, ["screen", out, "--sort", "size"])
     assert bad.exit_code == 2 and "gap, gap_z, debt, change" in bad.output
+    # option values in any case; an unknown driver named with a suggestion
+    upper = runner.invoke(app, ["screen", out, "--measure", "Book", "--status", "Over",
+                                "--format", "json"])
+    assert upper.exit_code == 0 and json.loads(upper.stdout)["rows"], upper.output
+    bad_measure = runner.invoke(app, ["screen", out, "--measure", "bok"])
+    assert bad_measure.exit_code == 2 and "--measure" in bad_measure.output
+    from levgap.config import ModelSpec
+    from levgap.errors import ConfigError
+
+    with pytest.raises(ConfigError, match="'tangibilty' unknown.*Did you mean 'tangibility'"):
+        ModelSpec(drivers=("tangibilty", "size"))
     # a year the results do not hold is an error naming the years held, not an empty filter
     lo, hi = int(t["fiscal_year"].min()), int(t["fiscal_year"].max())
     year = runner.invoke(app, ["screen", out, "--year", str(hi + 7)])

@@ -325,8 +325,12 @@ class ModelSpec:
         allowed = DRIVERS + OPTIONAL_DRIVERS
         bad = [d for d in self.drivers if d not in allowed]
         if bad or not (self.drivers or self.input_drivers):
+            from levgap.matching import did_you_mean
+
+            hint = "".join(did_you_mean(b, list(allowed)) for b in bad[:1])
             raise ConfigError(
-                f"[model] drivers must be among {list(allowed)}; got {list(self.drivers)}."
+                f"[model] drivers must be among {list(allowed)}; got {list(self.drivers)}"
+                + (f" ({', '.join(map(repr, bad))} unknown).{hint}" if bad else ".")
             )
         self._check_research()
         if self.min_industry_firms < 1:

@@ -87,8 +87,10 @@ def load_config(path: Path | None) -> RunConfig:
 
 
 def parse_measures(measure: str) -> tuple[str, ...]:
+    measure = measure.strip().casefold()  # any case, as ids and names
     if measure not in MEASURE_CHOICES:
-        raise typer.BadParameter(f"must be one of {', '.join(MEASURE_CHOICES)}; got {measure!r}.")
+        raise typer.BadParameter(f"must be one of {', '.join(MEASURE_CHOICES)}; got {measure!r}.",
+                                 param_hint="--measure")
     return ("book", "market") if measure == "both" else (measure,)
 
 

@@ -265,7 +265,7 @@ def analyze(
 
 
 _OPTION_OF = {"measures": "--measure", "cluster": "--cluster", "model": "--model",
-              "year": "--year"}
+              "year": "--year", "drivers": "--drivers"}
 
 
 def _with_options(spec: Any, changes: dict[str, Any]) -> Any:

@@ -199,6 +199,8 @@ def screen(
         from levgap.ingest.lists import read_firm_list
         from levgap.report.quick import SORTS, ScreenQuery, read_run_targets, screen_rows
 
+        measure = measure.strip().casefold()  # option values in any case, as ids and names
+        status = None if status is None else status.strip().casefold()
         if status is not None and status not in ("over", "under", "within"):
             raise typer.BadParameter(f"must be over, under or within; got {status!r}.",
                                      param_hint="--status")
