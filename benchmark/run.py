@@ -862,7 +862,7 @@ def main(argv: list[str] | None = None) -> int:
     say("other benchmarks")
     csv_big = panels[label(sizes[-1])]["csv"]
     res["extra"] = {n: bench_extra(n, csv_big, sizes[-1], repeat, args.quick)
-                    for n in ("bench_read", "bench_sec")}
+                    for n in ("bench_read", "bench_sec", "bench_deal")}
     res["goals"] = goals(res)
     res["suite_seconds"] = time.perf_counter() - t_suite
     args.results_dir.mkdir(parents=True, exist_ok=True)

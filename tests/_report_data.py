@@ -91,7 +91,9 @@ def make_outputs(
             "sum").to_numpy() - 1
         frame["peer_target"] = peer_target
         frame["debt_to_target"] = -gap * assets
-        frame["flags"] = np.where(rng.random(n) < 0.1, "earnings_volatility_imputed", "")
+        frame["target_full"] = target + rng.normal(0, 0.005, n)
+        frame["fold"] = np.repeat(np.arange(n_firms) % 5, n_years)
+        frame["flags"] = np.where(rng.random(n) < 0.1, "volatility_imputed", "")
         target_rows.append(frame)
         for d in DRIVERS:
             driver_rows.append(pd.DataFrame({
@@ -114,26 +116,30 @@ def make_outputs(
                               "ci_low": est - 1.96 * se, "ci_high": est + 1.96 * se})
         fit_rows.append({"measure": measure, "model": "linear", "n_obs": n, "n_firms": n_firms,
                          "n_industries": len(industries), "r2": 0.41, "r2_oos": 0.33,
-                         "rmse_oos": 0.071})
+                         "rmse_oos": 0.071, "coverage": 0.8, "coverage_industry_min": 0.7,
+                         "coverage_industry_max": 0.9, "coverage_industries": 5,
+                         "coverage_out_of_time": 0.78, "out_of_time_year": int(years[-1])})
     exclusions = pd.DataFrame({
-        "source_row": [3, 17, 17, 40],
+        "source_row": [3, 17, 25, 40],
         "firm_id": ["F99990", "=cmd|' /C calc'!A0", "X2", "X3"],
         "fiscal_year": [2016, 2017, 2017, 2018],
         "measure": ["", "", "market", ""],
-        "reason": ["total_assets_not_positive", "duplicate_firm_year", "market_equity_missing",
-                   "required_value_missing"],
-        "detail": ["total_assets = -3", "<b>dup</b>", "no market_equity", "ebitda empty"],
+        "reason": ["assets_not_positive", "duplicate_row", "no_market_equity",
+                   "missing_value"],
+        "detail": ["total_assets must be > 0; got -3", "<b>dup</b>",
+                   "market leverage needs market_equity", "ebitda must have a value; got a blank"],
     })
     manifest = {
         "levgap_version": "0.1.0", "schema_version": 1,
-        "inputs": [{"path": "panels/<odd> name.csv", "sha256": "0" * 64, "rows": n + 4}],
+        "inputs": [{"path": "panels/<odd> name.csv", "sha256": "0" * 64, "rows": n + 3}],
         "options": {"model": {"measures": list(measures), "cluster": "firm", "coverage": 0.8,
                               "model": "linear", "folds": 5, "seed": 0}},
         "versions": {"python": "3.11", "pandas": pd.__version__},
-        "counts": {"rows_in": n + 4, "rows_used": n, "rows_excluded": 4, "firms": n_firms,
+        "counts": {"rows_in": n + 3, "rows_used": n, "rows_excluded": 3, "firms": n_firms,
                    "industries": len(industries), "years": n_years,
-                   "by_reason": {"total_assets_not_positive": 1, "duplicate_firm_year": 1,
-                                 "required_value_missing": 1, "market_equity_missing": 1}},
+                   "by_reason": {"assets_not_positive": 1, "duplicate_row": 1,
+                                 "missing_value": 1},
+                   "measure_omissions": {"market:no_market_equity": 1}},
         "pooled_industries": [{"industry": "1311", "parent": "industries with code prefix 13",
                                "firms": 3, "members": ["1312"], "weight": {"book": 0.4}}],
         "warnings": ["3 firms have <3 years of history; earnings_volatility imputed"],

@@ -52,7 +52,12 @@ def test_benchmark_suite_runs_at_10k(tmp_path: Path) -> None:
     for cmd in ("--help", "--version", "check", "screen", "explain", "template"):
         assert "error" not in res["startup"][cmd], (cmd, res["startup"][cmd])
         assert res["startup"][cmd]["seconds"] > 0
-    assert set(res["extra"]) == {"bench_read", "bench_sec"}
+    assert set(res["extra"]) == {"bench_read", "bench_sec", "bench_deal"}
+    deal = res["extra"]["bench_deal"]
+    assert deal["status"] == "ok", deal
+    for key in ("merger_command_s", "recap_command_s", "merger_in_process_s",
+                "recap_in_process_s"):
+        assert deal["result"][key] > 0, key
 
     goals = {g["goal"] for g in res["goals"]}
     assert any(g.startswith("(b)/(a)") for g in goals)

@@ -152,3 +152,28 @@ def test_analyze_on_a_fresh_panel_renders_with_markup_names(tmp_path):
     names = {row[1] for row in wb["Targets"].iter_rows(min_row=2, values_only=True)}
     assert "'=SUM(A1:A9)" in names and "=SUM(A1:A9)" not in names
     wb.close()
+
+
+def test_proforma_page_renders_every_scenario(deal_run, tmp_path):
+    """The deal page of a firm with a hostile name: no console errors, every scenario on the
+    page (cards, tables, charts), names as text only, and a page that is not blank."""
+    from pathlib import Path as _Path
+
+    import levgap
+
+    template = _Path(__file__).resolve().parents[1] / "data_templates" / "deal.toml"
+    check = levgap.proforma(deal_run.out, deal_run.hostile, template)
+    page = check.write(tmp_path / "memo")[2]
+    dom, console = load(page, tmp_path)
+    assert console == [], console
+    labels = list(dict.fromkeys(check.table["scenario"]))
+    assert labels == ["before", "bolt-on mill", "merge TR0145", "recap 200", "deleverage"]
+    for label in labels:
+        assert f'data-scenario="{label}"' in dom
+        assert dom.count(f">{label}<") >= 4  # card, side-by-side tables, chart captions
+    assert f'data-levgap-scenarios="{len(labels)}"' in dom
+    # per measure: the history, a bridge per scenario and a trade-off chart per scenario
+    assert dom.count("<svg") >= 2 * (1 + 2 * len(labels))
+    assert "&lt;script&gt;document.title='pwned'&lt;/script&gt;" in dom
+    assert "<script>document.title" not in dom
+    assert looks_rendered(screenshot(page, tmp_path, size="1280,3000"))

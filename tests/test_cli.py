@@ -127,8 +127,16 @@ def test_bad_config_key_names_it(panel_csv: Path, tmp_path: Path) -> None:
 def test_screen_and_explain(out_dir: Path, tmp_path: Path) -> None:
     result = runner.invoke(app, ["screen", str(out_dir), "--status", "over", "--top", "3"])
     assert result.exit_code == 0, result.output
-    assert "over" in result.output
-    firm = pd.read_csv(out_dir / "targets.csv").iloc[0]["firm_id"]
+    targets = pd.read_csv(out_dir / "targets.csv", dtype={"firm_id": str})
+    latest = targets[(targets["measure"] == "book")
+                     & (targets["fiscal_year"] == targets["fiscal_year"].max())]
+    over = latest[latest["status"] == "over"].sort_values("gap", ascending=False)
+    rows = [ln for ln in result.output.splitlines() if ln.startswith("│")]
+    # the three rows are the three largest gaps among firms over their band, in that order
+    assert [r.split("│")[1].strip() for r in rows] == over["firm_id"].head(3).tolist()
+    assert all(r.split("│")[-2].strip() == "over" for r in rows)
+    assert f"{len(over)} firms over" in result.output
+    firm = targets.iloc[0]["firm_id"]
     plot = tmp_path / "steps.svg"
     result = runner.invoke(app, ["explain", str(out_dir), firm, "--measure", "book",
                                  "--plot", str(plot)])

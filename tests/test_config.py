@@ -56,7 +56,7 @@ def test_full_config(tmp_path):
         ("[input]\nsheet = ''\n", r"sheet must be a non-empty text"),
         ("[units]\nscale = 0\n", r"scale must be a number > 0"),
         ("[units]\nscale = 'k'\n", r"scale must be a number"),
-        ("[units]\ncurrency = ''\n", r"currency must be a code"),
+        ("[units]\ncurrency = ''\n", r"currency must be an ISO 4217 code"),
         ("[model]\ncluster = 'country'\n", r"cluster must be one of"),
         ("[model]\nleases_as_debt = 1\n", r"must be true or false"),
         ("input = 3\n", r"\[input\] must be a table"),

@@ -268,8 +268,6 @@ def test_book_debt_to_target_keeps_assets_fixed(run, data) -> None:
     np.testing.assert_allclose(t["debt_to_target"], expected, rtol=1e-12, atol=1e-9)
 
 
-@pytest.mark.xfail(strict=True, reason="pipeline.debt_to_target still keeps market equity "
-                   "fixed (D* = T E / (1 - T)); the stated convention keeps D + E fixed")
 def test_market_debt_to_target_keeps_debt_plus_market_equity_fixed(run, data) -> None:
     # DESIGN.md, output contract: a recapitalisation; market leverage with debt plus market
     # equity fixed, so the debt at target is D* = T * (D + E).

@@ -91,3 +91,38 @@ def test_peer_digits_change_the_peers_not_the_model() -> None:
     assert (base.targets["peer_count"] < expected).all()
     coarse = analyze(p, spec=ModelSpec(measures=("book",), industry_digits=1))
     assert not np.allclose(coarse.targets["target"], base.targets["target"])
+
+
+def test_debt_to_target_is_a_recapitalisation() -> None:
+    p = _data(10)
+    r = analyze(p)
+    t = r.targets.merge(p[["firm_id", "fiscal_year", "total_debt", "total_assets",
+                           "market_equity"]], on=["firm_id", "fiscal_year"])
+    book, market = t[t["measure"] == "book"], t[t["measure"] == "market"]
+    np.testing.assert_allclose(book["debt_to_target"],
+                               book["target"] * book["total_assets"] - book["total_debt"],
+                               rtol=1e-12)
+    # market: debt plus market equity held fixed
+    np.testing.assert_allclose(
+        market["debt_to_target"],
+        market["target"] * (market["total_debt"] + market["market_equity"])
+        - market["total_debt"], rtol=1e-12)
+
+
+def test_explain_answers_for_a_firm_year_alone_in_its_year(tmp_path) -> None:
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    p = _data(11)
+    lone = p.iloc[[0]].copy()
+    lone["fiscal_year"], lone["firm_id"] = 2030, "LONE"
+    src = tmp_path / "panel.csv"
+    pd.concat([p, lone], ignore_index=True).to_csv(src, index=False)
+    out = tmp_path / "out"
+    runner = CliRunner()
+    r = runner.invoke(app, ["analyze", str(src), "--out", str(out), "--quiet", "--no-report"])
+    assert r.exit_code == 0, r.output
+    r = runner.invoke(app, ["explain", str(out), "LONE"])
+    assert r.exit_code == 0, r.output
+    assert "2030" in r.output and "Traceback" not in r.output

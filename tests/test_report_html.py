@@ -50,7 +50,8 @@ def test_writes_report_html(tmp_path, outputs):
     path = write_report(tables, manifest, tmp_path / "out")
     assert path == tmp_path / "out" / "report.html"
     assert path.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
-    assert not [p for p in path.parent.iterdir() if p.name != "report.html"]  # no temp left
+    # no temporary file left; the marker records the report as levgap's
+    assert sorted(p.name for p in path.parent.iterdir()) == [".levgap-output", "report.html"]
 
 
 def test_self_contained_no_network(page):
@@ -173,15 +174,22 @@ def test_build_report_from_written_outputs(tmp_path, outputs):
 
     tables, manifest = outputs
     out = tmp_path / "run"
-    write_tables(tables, manifest, out, also=["report.html"])
+    write_tables(tables, manifest, out)
     path = build_report(out)
     assert path == out / "report.html"
     page = path.read_text(encoding="utf-8")
     # Read back from CSV, the neutralised formula keeps its apostrophe and markup stays text.
     assert "&lt;script&gt;document.title" in page and "<script>document.title" not in page
     assert page.count("<svg") >= 5
-    # A re-run of the writer into the same folder accepts the report as a levgap file.
-    write_tables(tables, manifest, out, also=["report.html"])
+    # The report joined the run; a later run into the folder that writes no report removes
+    # it (it would describe the previous run), instead of refusing it as a foreign file.
+    import json
+
+    run = json.loads((out / "run.json").read_text(encoding="utf-8"))
+    assert "report.html" in run["files"]
+    assert f'<meta name="levgap-run-id" content="{run["run_id"]}">' in page
+    write_tables(tables, manifest, out)
+    assert not (out / "report.html").exists()
 
 
 def test_build_report_without_outputs_is_an_output_error(tmp_path):
@@ -195,7 +203,7 @@ def test_cli_report_rebuilds_and_records_the_file(tmp_path, outputs):
     from typer.testing import CliRunner
 
     from levgap.cli import app
-    from levgap.report.files import MARKER
+    from levgap.outputs import read_marker
     from levgap.report.tables import write_tables
 
     tables, manifest = outputs
@@ -205,11 +213,12 @@ def test_cli_report_rebuilds_and_records_the_file(tmp_path, outputs):
     assert result.exit_code == 0, result.output
     assert "Report written to" in result.output
     assert (out / "report.html").stat().st_size > 10_000
-    assert "report.html" in (out / MARKER).read_text(encoding="utf-8").split()
+    marker = read_marker(out)
+    assert marker.records["report.html"].kind == "output"
     write_tables(tables, manifest, out)  # a later run into the folder is not refused
     missing = CliRunner().invoke(app, ["report", str(tmp_path / "nothing")])
     assert missing.exit_code == 2
-    assert "must hold levgap outputs (run.json)" in missing.output
+    assert "must be a folder written by `levgap analyze`; got no such folder" in missing.output
     assert "Traceback" not in missing.output
     help_text = CliRunner().invoke(app, ["report", "--help"]).output
     assert "Example: levgap report" in help_text
@@ -238,3 +247,14 @@ def test_one_measure_blank_names_and_missing_values():
     empty = {**tables, "targets": targets.iloc[:0], "drivers": tables["drivers"].iloc[:0],
              "coefficients": tables["coefficients"].iloc[:0]}
     assert "Leverage against industry peers" in render_report(empty, manifest)
+
+
+def test_fabricated_outputs_use_the_real_codes(outputs):
+    from levgap.codes import ANALYSIS_FLAGS, ANALYSIS_REASONS, FLAGS, REASONS
+
+    tables, manifest = outputs
+    assert set(tables["exclusions"]["reason"]) <= {*REASONS, *ANALYSIS_REASONS,
+                                                   "no_market_equity"}
+    flags = {f for cell in tables["targets"]["flags"] for f in cell.split(";") if f}
+    assert flags and flags <= {*FLAGS, *ANALYSIS_FLAGS}
+    assert set(manifest["counts"]["by_reason"]) <= set(REASONS)

@@ -12,6 +12,7 @@ import levgap
 from levgap.config import ModelSpec
 from levgap.demo import make_panel
 from levgap.errors import ModelError, OutputError
+from levgap.models.saved import FORMAT
 from levgap.pipeline import analyze
 
 KEY = ["firm_id", "fiscal_year", "measure"]
@@ -81,11 +82,23 @@ def test_new_rows_outside_the_fitted_range_are_flagged_not_silently_clipped(save
 
 
 def test_a_folder_without_a_saved_model_is_a_clear_error(tmp_path) -> None:
+    from levgap.outputs import RunWriter
+
+    # the folder is checked as one run first (levgap.outputs.verify_run)
+    with pytest.raises(OutputError, match="must hold levgap outputs"):
+        levgap.load_model(tmp_path)
+    for name, model in (("plain", None), ("other", {"format": "other", "run_id": "abc"}),
+                        ("mixed", {"format": FORMAT, "run_id": "another"})):
+        with RunWriter(tmp_path / name, run_id="abc") as run:
+            if model is not None:
+                run.add("model.json", json.dumps(model).encode("utf-8"))
+            run.commit({})
     with pytest.raises(OutputError, match="must hold model.json"):
-        levgap.load_model(tmp_path)
-    (tmp_path / "model.json").write_text(json.dumps({"format": "other"}), encoding="utf-8")
+        levgap.load_model(tmp_path / "plain")
     with pytest.raises(OutputError, match="levgap saved model"):
-        levgap.load_model(tmp_path)
+        levgap.load_model(tmp_path / "other")
+    with pytest.raises(OutputError, match="mixes two runs"):
+        levgap.load_model(tmp_path / "mixed")
 
 
 def test_scores_carry_the_band_status_gap_and_saved_peers(saved) -> None:
@@ -216,19 +229,21 @@ def test_the_specification_and_record_are_read_back(saved) -> None:
 
 
 def test_unreadable_or_newer_saved_models_are_clear_errors(tmp_path) -> None:
-    path = tmp_path / "model.json"
-    path.write_text("{not json", encoding="utf-8")
+    from levgap.outputs import RunWriter
+
+    def folder(name: str, content: bytes):
+        with RunWriter(tmp_path / name, run_id="abc") as run:
+            run.add("model.json", content)
+            run.commit({})
+        return tmp_path / name
+
     with pytest.raises(OutputError, match="model.json must be valid JSON"):
-        levgap.load_model(tmp_path)
-    path.write_text("[1, 2]", encoding="utf-8")
-    with pytest.raises(OutputError, match="levgap saved model"):
-        levgap.load_model(tmp_path)
-    path.write_text(json.dumps({"format": "levgap-model", "format_version": 2}),
-                    encoding="utf-8")
+        levgap.load_model(folder("broken", b"{not json"))
+    newer = {"format": FORMAT, "format_version": 2, "run_id": "abc"}
     with pytest.raises(OutputError, match="saved-model format 2 is newer"):
-        levgap.load_model(tmp_path)
-    path.write_text(json.dumps({"format": "levgap-model"}), encoding="utf-8")
-    assert levgap.load_model(tmp_path).record == {"format": "levgap-model"}
+        levgap.load_model(folder("newer", json.dumps(newer).encode("utf-8")))
+    bare = {"format": FORMAT, "run_id": "abc"}
+    assert levgap.load_model(folder("bare", json.dumps(bare).encode("utf-8"))).record == bare
 
 
 def test_rows_to_score_must_be_a_schema_frame(saved) -> None:
@@ -243,3 +258,23 @@ def test_rows_to_score_must_be_a_schema_frame(saved) -> None:
     b = model.score(panel.head(2))
     np.testing.assert_allclose(a["target"], b["target"], rtol=0, atol=0)
     assert (a["industry"] == b["industry"]).all()
+
+
+def test_rows_the_schema_refuses_are_returned_blank_not_scored(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.iloc[:4].copy().astype({"total_assets": object})
+    rows.loc[rows.index[0], "total_assets"] = -5.0
+    rows.loc[rows.index[1], "total_assets"] = "abc"
+    rows.loc[rows.index[2], "total_assets"] = float("inf")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no RuntimeWarning may escape
+        s = model.score(rows)
+    assert (s.groupby("measure").size() == 4).all()
+    bad = s[s["flags"] == "not_scorable"]
+    assert len(bad) == 3 * len(model.measures)
+    assert bad["target"].isna().all() and (bad["status"] == "").all()
+    assert set(bad["note"]) == {"total_assets must be a finite number > 0"}
+    good = s[s["flags"] != "not_scorable"]
+    assert good["target"].notna().all() and (good["note"] == "").all()

@@ -16,8 +16,8 @@ from levgap.schema import BY_NAME, COLUMNS, KEY, MONEY, NUMERIC, OPTIONAL, REQUI
 
 TEMPLATES = Path(__file__).resolve().parents[1] / "data_templates"
 REGENERATE = (
-    "regenerate with: python -c \"from levgap.report.files import write_template; "
-    "write_template('data_templates', force=True)\""
+    "regenerate with: python -c \"from levgap.ingest.template import template_files; "
+    "[open(f'data_templates/{n}', 'w').write(t) for n, t in template_files().items()]\""
 )
 
 
@@ -67,6 +67,12 @@ def test_write_template_generates_without_checkout(tmp_path):
     assert [p.name for p in written] == list(TEMPLATE_FILES)
     for p in written:
         assert p.read_text(encoding="utf-8") == template_files()[p.name]
-    with pytest.raises(OutputError, match="must not replace existing files"):
-        write_template(tmp_path / "tpl")
-    assert len(write_template(tmp_path / "tpl", force=True)) == 3
+    # files levgap wrote are replaced
+    assert len(write_template(tmp_path / "tpl")) == len(TEMPLATE_FILES)
+    mine = tmp_path / "mine"
+    mine.mkdir()
+    (mine / "README.md").write_text("my notes")
+    with pytest.raises(OutputError, match="README.md: the file exists and levgap did not write"):
+        write_template(mine)
+    assert (mine / "README.md").read_text() == "my notes"
+    assert sorted(p.name for p in mine.iterdir()) == ["README.md"]  # nothing written

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from levgap.errors import OutputError
-from levgap.report.files import MARKER
+from levgap.outputs import MARKER, read_marker
 from levgap.report.tables import neutralise, read_outputs, write_tables
 
 NASTY = ["=HYPERLINK(\"http://x\",\"y\")", "@SUM(A1)", "+cmd|' /C calc'!A0", "-5 notes",
@@ -18,7 +18,7 @@ NASTY = ["=HYPERLINK(\"http://x\",\"y\")", "@SUM(A1)", "+cmd|' /C calc'!A0", "-5
 
 
 def _tables():
-    targets = pd.DataFrame({
+    firms = pd.DataFrame({  # not a contract table: read back without a column check
         "firm_id": pd.Series(["0001", "0002", "0003", "0004", "0005", "0006", "0007", "0008"],
                              dtype="str"),
         "firm_name": pd.Series(NASTY, dtype="str"),
@@ -33,7 +33,7 @@ def _tables():
         "reason": pd.Series(["non_numeric"], dtype="str"),
         "detail": pd.Series(["total_debt must be a number; got '@x'"], dtype="str"),
     })
-    return {"targets": targets, "exclusions": exclusions}
+    return {"firms": firms, "exclusions": exclusions}
 
 
 def test_neutralise_text_only():
@@ -55,11 +55,14 @@ def test_write_and_read_back(tmp_path, fmt):
     out = tmp_path / "out"
     manifest = {"counts": {"rows": np.int64(8)}, "share": float("nan"), "path": out}
     written = write_tables(_tables(), manifest, out, fmt=fmt)
-    assert [p.name for p in written] == [f"targets.{fmt}", f"exclusions.{fmt}", "run.json"]
+    assert [p.name for p in written] == [f"firms.{fmt}", f"exclusions.{fmt}", "run.json"]
     assert sorted(os.listdir(out)) == sorted([MARKER, *(p.name for p in written)])
     tables, man = read_outputs(out)
-    assert man == {"counts": {"rows": 8}, "share": None, "path": str(out)}
-    t = tables["targets"]
+    run_id = man.pop("run_id")
+    assert run_id == read_marker(out).run_id and len(run_id) == 16
+    assert man == {"counts": {"rows": 8}, "share": None, "path": str(out),
+                   "files": [f"exclusions.{fmt}", f"firms.{fmt}"]}
+    t = tables["firms"]
     assert t["firm_id"].tolist()[0] == "0001"
     assert t["firm_name"].tolist()[:3] == ["'" + v for v in NASTY[:3]]
     assert t["gap"].tolist() == pytest.approx(np.linspace(-0.2, 0.2, 8).tolist())
@@ -68,7 +71,7 @@ def test_write_and_read_back(tmp_path, fmt):
 
 def test_csv_cells_never_start_with_formula_characters(tmp_path):
     write_tables(_tables(), {}, tmp_path / "o")
-    text = (tmp_path / "o" / "targets.csv").read_text(encoding="utf-8")
+    text = (tmp_path / "o" / "firms.csv").read_text(encoding="utf-8")
     for line in text.splitlines()[1:]:
         name = line.split(",", 2)[1].strip('"')
         assert not name.startswith(("=", "+", "-", "@", "\t", "\r")), line
@@ -79,8 +82,8 @@ def test_rerun_into_own_folder_and_format_switch(tmp_path):
     write_tables(_tables(), {}, out, fmt="csv")
     write_tables(_tables(), {"run": 2}, out, fmt="parquet")
     names = sorted(os.listdir(out))
-    assert names == [MARKER, "exclusions.parquet", "run.json", "targets.parquet"]
-    assert read_outputs(out)[1] == {"run": 2}
+    assert names == [MARKER, "exclusions.parquet", "firms.parquet", "run.json"]
+    assert read_outputs(out)[1]["run"] == 2
 
 
 def test_foreign_folder_refused_and_untouched(tmp_path):
@@ -103,7 +106,7 @@ def test_foreign_folder_refused_and_untouched(tmp_path):
 def test_input_never_overwritten(tmp_path):
     out = tmp_path / "o"
     out.mkdir()
-    panel = out / "targets.csv"
+    panel = out / "firms.csv"
     panel.write_text("firm_id\n1\n")
     with pytest.raises(OutputError, match="never replace an input"):
         write_tables(_tables(), {}, out, force=True, inputs=[panel])
@@ -132,8 +135,8 @@ def test_read_outputs_needs_manifest(tmp_path):
 def test_no_temp_files_left(tmp_path):
     out = tmp_path / "o"
     write_tables(_tables(), {"x": 1}, out)
-    assert not [n for n in os.listdir(out) if n.startswith(".levgap-tmp-")]
-    assert json.loads((out / "run.json").read_text()) == {"x": 1}
+    assert not [n for n in os.listdir(out) if n.startswith((".levgap-tmp-", ".levgap-stage-"))]
+    assert json.loads((out / "run.json").read_text())["x"] == 1
 
 
 def test_files_get_the_usual_mode(tmp_path):
@@ -146,9 +149,11 @@ def test_files_get_the_usual_mode(tmp_path):
         assert p.stat().st_mode & 0o777 == 0o644
 
 
-def test_also_names_are_recorded_not_foreign(tmp_path):
+def test_a_file_levgap_wrote_beside_a_run_is_known_not_foreign(tmp_path):
+    from levgap.outputs import atomic_write_bytes
+
     out = tmp_path / "o"
-    write_tables(_tables(), {}, out, also=["report.html"])
-    (out / "report.html").write_text("<html></html>")
-    write_tables(_tables(), {}, out, also=["report.html"])
-    assert (out / "report.html").exists()
+    write_tables(_tables(), {}, out)
+    atomic_write_bytes(out / "table.tex", b"\\begin{tabular}")  # e.g. levgap table -o
+    write_tables(_tables(), {}, out)  # not refused as foreign; the old file is removed
+    assert not (out / "table.tex").exists()

@@ -2,12 +2,17 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-import pandas as pd
+from levgap.panel import EXCLUSION_COLUMNS
+
+if TYPE_CHECKING:  # the readers of quick commands use the column constants without pandas
+    import pandas as pd
+
+    from levgap.outputs import Committed
 
 ProgressFn = Callable[[str, int, int], None]
 
@@ -28,6 +33,80 @@ FIT_COLUMNS = (
     "coverage_out_of_time", "out_of_time_year",
 )
 FOLD_COEF_COLUMNS = ("measure", "model", "fold", "term", "estimate")
+
+TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
+    "targets": TARGET_COLUMNS,
+    "drivers": DRIVER_COLUMNS,
+    "coefficients": COEF_COLUMNS,
+    "model_fit": FIT_COLUMNS,
+    "fold_coefficients": FOLD_COEF_COLUMNS,
+    "exclusions": EXCLUSION_COLUMNS,
+}
+"""Columns each output table has at least; readers refuse a table that lacks one."""
+
+COLUMN_KINDS: dict[str, str] = {
+    **dict.fromkeys(("fiscal_year", "peer_count", "n_obs", "n_firms", "n_industries",
+                     "source_row", "fold", "coverage_industries", "out_of_time_year"), "integer"),
+    **dict.fromkeys(("actual", "target", "gap", "gap_z", "band_low", "band_high", "peer_median",
+                     "peer_target", "debt_to_target", "target_full", "firm_value", "peer_value",
+                     "contribution", "estimate", "std_error", "t_stat", "p_value", "ci_low",
+                     "ci_high", "r2", "r2_oos", "rmse_oos", "coverage", "coverage_industry_min",
+                     "coverage_industry_max", "coverage_out_of_time"), "number"),
+}
+"""What output columns hold when they are not text: ``integer`` (whole numbers, blanks allowed)
+or ``number``. Columns not named here are read as text."""
+
+
+def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
+                        example: Callable[[str], str] = lambda c: "", *,
+                        legacy: bool = False) -> None:
+    """Refuse a table read back from an output folder that lacks a column or holds a wrong type.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The file, for the message.
+    name : str
+        The table (``targets``, ...); tables levgap does not know are not checked.
+    found : mapping of str to str
+        Column -> what the reader found in it: ``integer`` (whole numbers or blanks),
+        ``number``, ``text`` or ``other``.
+    example : callable, optional
+        A short example of a column's offending value, for the message.
+    legacy : bool, default=False
+        The folder was written by levgap 0.1: its tables are checked against the 0.1 columns.
+
+    Raises
+    ------
+    OutputError
+        Naming the file and the column.
+    """
+    from levgap.errors import OutputError
+
+    if legacy:
+        from levgap.outputs.legacy import V01_COLUMNS
+
+        wanted = V01_COLUMNS.get(name, ())
+    else:
+        wanted = TABLE_COLUMNS.get(name, ())
+    missing = [c for c in wanted if c not in found]
+    if missing:
+        raise OutputError(
+            f"{path}: the {name} table must have the column {missing[0]}"
+            f"{f' (and {len(missing) - 1} more)' if len(missing) > 1 else ''}; got none. The "
+            "file was edited or comes from another program; re-run `levgap analyze`."
+        )
+    for col in wanted:
+        kind = COLUMN_KINDS.get(col)
+        ok = {"integer": ("integer",), "number": ("integer", "number")}.get(kind or "")
+        if ok is not None and found[col] not in ok:
+            shown = example(col)
+            what = "whole numbers" if kind == "integer" else "numbers"
+            raise OutputError(
+                f"{path}: column {col} must hold {what}; got {found[col]}"
+                f"{f' such as {shown}' if shown else ''}. The file was edited or damaged; "
+                "re-run `levgap analyze`."
+            )
 
 
 @dataclass(frozen=True, slots=True)
@@ -61,7 +140,7 @@ class Analysis:
     coefficients: pd.DataFrame
     model_fit: pd.DataFrame
     exclusions: pd.DataFrame
-    fold_coefficients: pd.DataFrame = field(default_factory=pd.DataFrame)
+    fold_coefficients: pd.DataFrame = field(default_factory=lambda: _empty_frame())
     manifest: dict[str, Any] = field(default_factory=dict)
     saved_model: dict[str, Any] = field(default_factory=dict)
 
@@ -93,11 +172,13 @@ class Analysis:
     ) -> list[Path]:
         """Write the output contract (and the HTML report, and a workbook on request).
 
+        The files are one unit with one run id (see :func:`write_analysis`).
+
         Parameters
         ----------
         out_dir : str or Path
             Output folder; created if absent. A folder holding files levgap did not write is
-            refused unless ``force``.
+            refused unless ``force`` (they are left alone, and never replaced).
         fmt : {"csv", "parquet"}, default="csv"
         force : bool, default=False
         report : bool, default=True
@@ -105,41 +186,81 @@ class Analysis:
         xlsx : bool, default=False
             Also write ``workbook.xlsx``.
         inputs : tuple of str, default=()
-            Input files that must never be overwritten.
+            Input files, never replaced or removed; default the manifest's inputs.
         progress : callable, optional
             ``progress(stage, done, total)`` while the report renders.
+
+        Returns
+        -------
+        list of pathlib.Path
+            The files written, ``run.json`` last.
         """
-        from levgap.report.tables import write_tables
-
-        out = Path(out_dir)
-        sources = list(inputs or [i["path"] for i in self.manifest.get("inputs", [])])
-        also = [Path(s).name for s in sources if Path(s).parent.resolve() == out.resolve()]
-        also += ["report.html"] if report else []
-        also += ["workbook.xlsx"] if xlsx else []
-        also += ["model.json"] if self.saved_model else []
-        written = write_tables(self.tables(), self.manifest, out, fmt=fmt, force=force,
-                               inputs=sources, also=also)
-        if self.saved_model:
-            import json
-
-            from levgap.report.files import atomic_write_bytes
-
-            body = json.dumps(self.saved_model, allow_nan=False, separators=(",", ":"))
-            atomic_write_bytes(out / "model.json", body.encode("utf-8"))
-            written.append(out / "model.json")
-        if report:
-            from levgap.report.html import write_report
-
-            written.append(write_report(self.tables(), self.manifest, out_dir,
-                                        progress=progress))
-        if xlsx:
-            from levgap.report.workbook import write_workbook
-
-            path = Path(out_dir) / "workbook.xlsx"
-            write_workbook(self.tables(), self.manifest, path)
-            written.append(path)
-        return written
+        return list(write_analysis(self, out_dir, fmt=fmt, force=force, report=report,
+                                   xlsx=xlsx, inputs=inputs, progress=progress).written)
 
     def _repr_html_(self) -> str:
         head = self.model_fit.to_html(index=False, float_format=lambda v: f"{v:.4f}")
         return f"<p>levgap analysis: {len(self.targets)} target rows</p>{head}"
+
+
+def write_analysis(
+    analysis: Analysis,
+    out_dir: str | Path,
+    *,
+    fmt: str = "csv",
+    force: bool = False,
+    report: bool = True,
+    xlsx: bool = False,
+    inputs: tuple[str, ...] = (),
+    progress: ProgressFn | None = None,
+) -> Committed:
+    """Write an analysis as one run: tables, ``model.json``, report, workbook, ``run.json``.
+
+    Every file is staged and swapped in together under one new run id (``levgap.outputs``),
+    which ``run.json`` and ``model.json`` carry; files of a previous run in the folder that
+    this run does not replace (``report.html`` under ``report=False``, tables in the other
+    format) are removed when they are verifiably levgap's. Parameters as :meth:`Analysis.write`.
+
+    Returns
+    -------
+    levgap.outputs.Committed
+        The files written and the previous run's files removed.
+    """
+    import json
+
+    from levgap.errors import OutputError
+    from levgap.outputs import RunWriter, new_run_id
+    from levgap.report.tables import FORMATS, stage_tables
+
+    if fmt not in FORMATS:
+        raise OutputError(f"format must be one of {sorted(FORMATS)}; got {fmt!r}.")
+    run_id = new_run_id()
+    manifest = {**analysis.manifest, "run_id": run_id}
+    sources = list(inputs or [i["path"] for i in analysis.manifest.get("inputs", [])
+                              if isinstance(i, Mapping) and i.get("path")])
+    tables = analysis.tables()
+    with RunWriter(out_dir, run_id=run_id, inputs=sources, force=force) as run:
+        run.expect([*(f"{name}{FORMATS[fmt]}" for name in tables),
+                    *(["model.json"] if analysis.saved_model else []),
+                    *(["report.html"] if report else []), *(["workbook.xlsx"] if xlsx else [])])
+        stage_tables(run, tables, fmt=fmt)
+        if analysis.saved_model:
+            body = json.dumps({**analysis.saved_model, "run_id": run_id}, allow_nan=False,
+                              separators=(",", ":"))
+            run.add("model.json", body.encode("utf-8"))
+        if report:
+            from levgap.report.html import render_report
+
+            html = render_report(tables, manifest, progress=progress)
+            run.add("report.html", html.encode("utf-8"))
+        if xlsx:
+            from levgap.report.workbook import build_workbook
+
+            run.add_path("workbook.xlsx", lambda p: build_workbook(tables, manifest, p))
+        return run.commit(manifest)
+
+
+def _empty_frame() -> pd.DataFrame:
+    import pandas as pd
+
+    return pd.DataFrame()

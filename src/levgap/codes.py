@@ -10,10 +10,13 @@ from levgap.schema import COLUMNS
 
 REASONS: dict[str, str] = {
     "non_numeric": "a required number (or fx_rate) holds text that is not a number",
-    "missing_value": "a required value is blank (or fx_rate is blank where several "
-    "currencies appear)",
+    "missing_value": "a required value is blank, or one of the blank tokens (or fx_rate is "
+    "blank where several currencies appear, including on a row with a blank currency)",
     "bad_fiscal_year": "fiscal_year is not a whole number between 1800 and 2200",
     "bad_fx_rate": "fx_rate is zero or negative",
+    "unknown_currency": "currency is not an ISO 4217 code",
+    "money_overflow": "a money value is beyond +/-1e300 after [units] scale and fx_rate (too "
+    "large to compute with)",
     "assets_not_positive": "total_assets is zero or negative",
     "negative_debt": "total_debt is negative",
     "negative_ppe": "ppe_net is negative",
@@ -46,6 +49,10 @@ NA_TOKENS: tuple[str, ...] = ("", "na", "n/a", "#n/a", "nan", "null", "none", "-
 
 YEAR_RANGE: tuple[int, int] = (1800, 2200)
 
+MONEY_LIMIT = 1e300
+"""Largest money value (after ``[units] scale`` and ``fx_rate``) a row may carry: ratios and
+sums of such values stay finite in float64 (whose largest value is about 1.8e308)."""
+
 
 ANALYSIS_FLAGS: dict[str, str] = {
     "volatility_imputed": "fewer than three fiscal years of profitability in the trailing "
@@ -65,6 +72,19 @@ ANALYSIS_FLAGS: dict[str, str] = {
     "from every other firm-year of the panel",
     "no_peers": "the only firm-year of the panel with this measure: no peer profile, no "
     "contributions",
+    "industry_not_in_model": "scored by a saved model: the industry was not in the fitted "
+    "panel; its effect is that of the industries sharing the longest leading part of its code "
+    "(else of all)",
+    "year_not_in_model": "scored by a saved model: the fiscal year was not in the fitted panel; "
+    "the latest earlier fitted year's effect and limits are used",
+    "not_scorable": "scored by a saved model: a statement value breaks schema v1 (see the "
+    "note column); the row is returned blank",
+    "target_below_zero": "the target is below zero (linear model): debt to target repays all "
+    "debt",
+    "book_target_at_or_above_one": "a book target of 1 or more (linear model): debt to target "
+    "finances every asset",
+    "market_target_at_or_above_one": "a market target of 1 or more (linear model): debt to "
+    "target replaces every share",
     "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
 }
 """Flags the analysis adds to kept rows (beside those of validation)."""
@@ -84,3 +104,61 @@ MEASURE_REASONS: dict[str, str] = {
 }
 """Reason codes of rows the analysis leaves out of every measure."""
 
+
+
+SEC_REASONS: dict[str, str] = {
+    "foreign_private_issuer_form": "a 20-F or 40-F annual report of a foreign private issuer "
+    "(import-sec reads 10-K reports)",
+    "form_not_selected": "an annual report of a form not asked for with --forms (a 10-K/A "
+    "or 10-KT with no 10-K for that firm-year)",
+    "not_fiscal_year_report": "a 10-K whose fiscal period (fp) is neither FY nor empty",
+    "bad_submission_row": "sub.txt gives no usable CIK or period end for the report",
+    "ifrs_filer": "the statements use the IFRS taxonomy, not US-GAAP",
+    "non_usd_currency": "money is reported in a currency other than U.S. dollars and no "
+    "--fx-rates file was given",
+    "no_fx_rate": "the --fx-rates file has no rate for the filer's currency within 31 days "
+    "before to 7 days after the balance-sheet date",
+    "no_consolidated_facts": "every total-assets fact carries a co-registrant and the "
+    "ParentCompany facts do not balance (assets differ from liabilities and equity)",
+    "no_balance_sheet": "the year appears only in a comparative income or cash-flow "
+    "statement (two years back); its balance sheet is in an earlier 10-K not given",
+    "excluded_industry": "the SIC code lies in an --exclude-sic range (default financials "
+    "6000-6999 and utilities 4900-4999; --all-industries keeps them)",
+    "subsidiary_duplicate": "total assets equal another filer's at the same date: a "
+    "subsidiary filing its own 10-K, left out with --drop-subsidiaries",
+}
+"""Reason codes of ``levgap import-sec``'s ledger (``PANEL.excluded.csv``): firm-years filed
+but not in the panel."""
+
+SEC_FLAGS: dict[str, str] = {
+    "debt_zero": "the balance sheet presents no debt line (or its debt lines are nil) and "
+    "the filing has no debt facts outside its consolidated statements: total_debt is 0",
+    "debt_partial": "total_debt may leave debt out: a liabilities line that names borrowing "
+    "with something else is not counted, or (without pre.txt) only one side of the balance "
+    "sheet was found",
+    "debt_by_label": "total_debt includes a line counted by its label: a filer-defined tag, "
+    "or a standard tag for something broader than debt, whose label names borrowing",
+    "debt_from_tags": "the filing has no presentation lines (pre.txt): total_debt is built "
+    "from the debt tags alone",
+    "ppe_net_from_gross_tag": "ppe_net is a line tagged gross whose label says net (no "
+    "accumulated depreciation is filed)",
+    "ppe_real_estate": "ppe_net is the real estate of a REIT (no property, plant and "
+    "equipment line)",
+    "dna_sign_flipped": "depreciation and amortisation was filed negative; its absolute value "
+    "is used in ebitda",
+    "interest_sign_flipped": "interest expense was filed negative; its absolute value is used",
+    "dividends_sign_flipped": "dividends paid were filed negative; the absolute value is used",
+    "ebitda_from_pretax": "no operating income: ebitda is pretax income + interest expense + "
+    "D&A (the alternative definition)",
+    "liabilities_derived": "total_liabilities is total liabilities and equity minus equity "
+    "(with noncontrolling interests) and temporary equity",
+    "shares_weighted_average": "no period-end share count: shares_outstanding is the "
+    "weighted-average basic count",
+    "parent_company_facts": "the filing's consolidated figures sit under coreg "
+    "ParentCompany; they balance and are used",
+    "statement_facts_missing": "the filing presents a statement line of interest that has no "
+    "fact in num.txt (lost in the file); values built from it are missing",
+    "subsidiary_duplicate": "total assets equal another filer's at the same date (a "
+    "subsidiary filing its own 10-K); the sources name the filer taken for the parent",
+}
+"""Flags of ``levgap import-sec``'s panel rows, ``;``-joined in the ``import_flags`` column."""

@@ -40,13 +40,15 @@ import dataclasses
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 from levgap.errors import ConfigError
+from levgap.fields import check_fields
 from levgap.schema import BY_NAME, DRIVERS, MEASURES, OPTIONAL_DRIVERS
 
 CLUSTERS: tuple[str, ...] = ("firm", "firm-year", "industry")
 POOLINGS: tuple[str, ...] = ("shrink", "parent")
+_MAX_TOML = 1 << 20
 
 
 @dataclass(frozen=True, slots=True)
@@ -70,6 +72,8 @@ class InputOptions:
         Lines above the header line.
     """
 
+    TABLE: ClassVar[str] = "input"
+
     delimiter: str | None = None
     decimal: str = "."
     thousands: str | None = None
@@ -78,6 +82,7 @@ class InputOptions:
     skip_rows: int = 0
 
     def __post_init__(self) -> None:
+        check_fields(self)
         for name in ("delimiter", "decimal", "thousands"):
             v = getattr(self, name)
             if v is not None and (not isinstance(v, str) or len(v) != 1 or v in "\r\n\""):
@@ -117,18 +122,26 @@ class Units:
         Reference currency, recorded in ``run.json``.
     """
 
+    TABLE: ClassVar[str] = "units"
+
     scale: float = 1.0
     currency: str | None = None
 
     def __post_init__(self) -> None:
-        if not (isinstance(self.scale, int | float) and 0 < self.scale < float("inf")):
+        if isinstance(self.scale, int | float) and not isinstance(self.scale, bool) and not (
+                0 < self.scale < float("inf")):
             raise ConfigError(f"[units] scale must be a number > 0; got {self.scale!r}.")
-        if self.currency is not None and (
-            not isinstance(self.currency, str) or not self.currency.strip()
-        ):
-            raise ConfigError(
-                f"[units] currency must be a code such as 'EUR'; got {self.currency!r}."
-            )
+        check_fields(self)
+        if self.currency is not None:
+            from levgap.currencies import CURRENCIES
+
+            code = self.currency.strip().upper()
+            if code not in CURRENCIES:
+                raise ConfigError(
+                    f"[units] currency must be an ISO 4217 code such as 'EUR'; got "
+                    f"{self.currency!r}."
+                )
+            object.__setattr__(self, "currency", code)
 
 
 @dataclass(frozen=True, slots=True)
@@ -164,7 +177,8 @@ class ModelSpec:
         Coverage of the band around each target.
     model : str, default="fractional"
         Key of the fit function in ``levgap.models.MODELS``: ``fractional`` (Papke and
-        Wooldridge's fractional logit, targets in [0, 1]) or ``linear`` (replication).
+        Wooldridge's fractional logit, targets in [0, 1]) or ``linear`` (replication);
+        checked when the spec is built.
     year : int or None, default=None
         Report only this fiscal year (the model is still fitted on every year).
     pooling : {"shrink", "parent"}, default="shrink"
@@ -179,6 +193,8 @@ class ModelSpec:
         replication studies often do; a row without the firm's previous year is left out with
         reason ``no_prior_year``.
     """
+
+    TABLE: ClassVar[str] = "model"
 
     measures: tuple[str, ...] = MEASURES
     cluster: str = "firm"
@@ -198,42 +214,59 @@ class ModelSpec:
     band_prior_rows: float = 10.0
 
     def __post_init__(self) -> None:
+        check_fields(self)
         bad = [m for m in self.measures if m not in MEASURES]
         if bad or not self.measures:
             raise ConfigError(
-                f"measures must be among {list(MEASURES)}; got {list(self.measures)}."
+                f"[model] measures must be among {list(MEASURES)}; got {list(self.measures)}."
             )
         if self.cluster not in CLUSTERS:
-            raise ConfigError(f"cluster must be one of {list(CLUSTERS)}; got {self.cluster!r}.")
+            raise ConfigError(
+                f"[model] cluster must be one of {list(CLUSTERS)}; got {self.cluster!r}.")
         lo, hi = self.winsorize
         if not (0.0 <= lo < hi <= 1.0):
             raise ConfigError(
-                f"winsorize must be two quantiles 0 <= low < high <= 1; got {list(self.winsorize)}."
+                f"[model] winsorize must be two quantiles 0 <= low < high <= 1; got "
+                f"{list(self.winsorize)}."
             )
         allowed = DRIVERS + OPTIONAL_DRIVERS
         bad = [d for d in self.drivers if d not in allowed]
         if bad or not self.drivers:
             raise ConfigError(
-                f"drivers must be among {list(allowed)}; got {list(self.drivers)}."
+                f"[model] drivers must be among {list(allowed)}; got {list(self.drivers)}."
             )
         if self.min_industry_firms < 1:
             raise ConfigError(
-                f"min_industry_firms must be at least 1; got {self.min_industry_firms}."
+                f"[model] min_industry_firms must be at least 1; got {self.min_industry_firms}."
             )
         if self.industry_digits < 0:
             raise ConfigError(
-                f"industry_digits must be 0 or more; got {self.industry_digits}.")
+                f"[model] industry_digits must be 0 or more; got {self.industry_digits}.")
         if self.peer_digits < 0:
-            raise ConfigError(f"peer_digits must be 0 or more; got {self.peer_digits}.")
+            raise ConfigError(f"[model] peer_digits must be 0 or more; got {self.peer_digits}.")
         if self.folds < 2:
-            raise ConfigError(f"folds must be at least 2; got {self.folds}.")
+            raise ConfigError(f"[model] folds must be at least 2; got {self.folds}.")
+        if self.seed < 0:
+            raise ConfigError(f"[model] seed must be 0 or more; got {self.seed}.")
         if self.pooling not in POOLINGS:
-            raise ConfigError(f"pooling must be one of {list(POOLINGS)}; got {self.pooling!r}.")
+            raise ConfigError(
+                f"[model] pooling must be one of {list(POOLINGS)}; got {self.pooling!r}.")
         if not (0.0 <= self.band_prior_rows < float("inf")):
             raise ConfigError(
-                f"band_prior_rows must be a number >= 0; got {self.band_prior_rows}.")
+                f"[model] band_prior_rows must be a number >= 0; got {self.band_prior_rows}.")
         if not (0.0 < self.coverage < 1.0):
-            raise ConfigError(f"coverage must lie strictly between 0 and 1; got {self.coverage}.")
+            raise ConfigError(
+                f"[model] coverage must lie strictly between 0 and 1; got {self.coverage}.")
+        if self.year is not None and not (1800 <= self.year <= 2200):
+            raise ConfigError(f"[model] year must be a fiscal year 1800..2200; got {self.year}.")
+        if self.model != ModelSpec.__dataclass_fields__["model"].default:
+            # looked up only when another model is asked for: the models import scipy, which
+            # `levgap check` must not pay for (the default is a key of MODELS, tested)
+            from levgap.models import MODELS
+
+            if self.model not in MODELS:
+                raise ConfigError(
+                    f"[model] model must be one of {sorted(MODELS)}; got {self.model!r}.")
 
 
 @dataclass(frozen=True, slots=True)
@@ -257,17 +290,62 @@ class RunConfig:
     model: ModelSpec = field(default_factory=ModelSpec)
     source: str | None = None
 
+    def __post_init__(self) -> None:
+        if not isinstance(self.columns, dict):
+            raise ConfigError(f"[columns] must be a table of schema column = header; got "
+                              f"{self.columns!r}.")
+        bad = sorted(str(k) for k in self.columns if k not in BY_NAME)
+        if bad:
+            raise ConfigError(
+                f"unknown key {bad[0]!r} in [columns]; allowed keys are the schema columns "
+                f"{sorted(BY_NAME)}."
+            )
+        for k, v in self.columns.items():
+            if not isinstance(v, str) or not v.strip():
+                raise ConfigError(f"[columns] {k} must be a header name; got {v!r}.")
+        by_header: dict[str, list[str]] = {}
+        for k, v in self.columns.items():
+            by_header.setdefault(v.strip().lower(), []).append(k)
+        shared = [ks for ks in by_header.values() if len(ks) > 1]
+        if shared:
+            ks = shared[0]
+            raise ConfigError(
+                f"[columns] {' and '.join(ks)} must name different headers; got each = "
+                f"{self.columns[ks[0]]!r}. Map each schema column to its own header."
+            )
+        for name, kind in (("input", InputOptions), ("units", Units), ("model", ModelSpec)):
+            if not isinstance(getattr(self, name), kind):
+                raise ConfigError(f"[{name}] must be a {kind.__name__}; got "
+                                  f"{getattr(self, name)!r}.")
+
     @classmethod
     def from_toml(cls, path: str | Path) -> RunConfig:
-        """Read a run configuration; unknown tables or keys are an error naming them."""
+        """Read a run configuration; unknown tables or keys are an error naming them.
+
+        The file is UTF-8 (a byte-order mark is allowed) and at most 1 MB.
+        """
+        import stat
+
         p = Path(path)
         try:
-            raw = tomllib.loads(p.read_text(encoding="utf-8"))
+            if not stat.S_ISREG(p.stat().st_mode):
+                raise ConfigError(f"{p}: the run configuration must be a regular file; got a "
+                                  "folder, device or pipe.")
+            with open(p, "rb") as fh:
+                data = fh.read(_MAX_TOML + 1)
         except FileNotFoundError:
             raise ConfigError(
                 f"{p}: the run configuration must be an existing TOML file; got no file there. "
                 "Check the --config path, or write an example with `levgap template`."
             ) from None
+        except OSError as exc:
+            raise ConfigError(f"{p}: the run configuration must be readable; got "
+                              f"{exc.strerror or exc}.") from None
+        if len(data) > _MAX_TOML:
+            raise ConfigError(f"{p}: a run configuration must be at most 1 MB; got a larger "
+                              "file. Is this the right --config file?")
+        try:
+            raw = tomllib.loads(data.decode("utf-8-sig"))
         except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
             raise ConfigError(f"{p}: not a valid TOML file: {exc}.") from None
         return cls.from_dict(raw, source=str(p))
@@ -283,22 +361,17 @@ class RunConfig:
                 f"{where}unknown table [{unknown[0]}]; allowed tables are {sorted(tables)}."
             )
         columns = raw.get("columns", {})
-        bad = sorted(set(columns) - set(BY_NAME))
-        if bad:
-            raise ConfigError(
-                f"{where}unknown key {bad[0]!r} in [columns]; allowed keys are the schema "
-                f"columns {sorted(BY_NAME)}."
-            )
-        for k, v in columns.items():
-            if not isinstance(v, str) or not v:
-                raise ConfigError(f"{where}[columns] {k} must be a header name; got {v!r}.")
-        return cls(
-            columns=dict(columns),
-            input=_build(InputOptions, raw.get("input", {}), "input", where),
-            units=_build(Units, raw.get("units", {}), "units", where),
-            model=_build(ModelSpec, raw.get("model", {}), "model", where),
-            source=source,
-        )
+        if not isinstance(columns, dict):
+            raise ConfigError(f"{where}[columns] must be a table of keys; got {columns!r}.")
+        parts = {
+            "input": _build(InputOptions, raw.get("input", {}), "input", where),
+            "units": _build(Units, raw.get("units", {}), "units", where),
+            "model": _build(ModelSpec, raw.get("model", {}), "model", where),
+        }
+        try:
+            return cls(columns=dict(columns), source=source, **parts)
+        except ConfigError as exc:
+            raise ConfigError(f"{where}{exc}") from None
 
     def to_dict(self) -> dict[str, Any]:
         """The resolved configuration, as echoed into ``run.json``."""
@@ -317,32 +390,14 @@ class RunConfig:
 def _build(kind: type, values: Any, table: str, where: str) -> Any:
     if not isinstance(values, dict):
         raise ConfigError(f"{where}[{table}] must be a table of keys; got {values!r}.")
-    fields = {f.name: f for f in dataclasses.fields(kind)}
-    unknown = sorted(set(values) - set(fields))
+    fields = {f.name for f in dataclasses.fields(kind)}
+    unknown = sorted(set(values) - fields)
     if unknown:
         raise ConfigError(
             f"{where}unknown key {unknown[0]!r} in [{table}]; allowed keys are {sorted(fields)}."
         )
-    kwargs: dict[str, Any] = {}
-    for k, v in values.items():
-        default = getattr(kind(), k)
-        if isinstance(default, tuple) and isinstance(v, list):
-            v = tuple(v)
-        if isinstance(default, bool) and not isinstance(v, bool):
-            raise ConfigError(f"{where}[{table}] {k} must be true or false; got {v!r}.")
-        if isinstance(default, int) and not isinstance(default, bool) and (
-            isinstance(v, bool) or not isinstance(v, int)
-        ):
-            raise ConfigError(f"{where}[{table}] {k} must be a whole number; got {v!r}.")
-        if isinstance(default, float) and (isinstance(v, bool) or not isinstance(v, int | float)):
-            raise ConfigError(f"{where}[{table}] {k} must be a number; got {v!r}.")
-        if isinstance(default, float):
-            v = float(v)
-        kwargs[k] = v
     try:
-        return kind(**kwargs)
-    except TypeError as exc:
-        raise ConfigError(f"{where}[{table}]: {exc}.") from None
+        return kind(**values)
     except ConfigError as exc:
         if where and not str(exc).startswith(where):
             raise ConfigError(f"{where}{exc}") from None

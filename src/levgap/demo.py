@@ -174,6 +174,30 @@ def make_panel(seed: int = 7) -> pd.DataFrame:
             "currency": "EUR",
         }
     )
+    return _statement_items(out, p["other_liab"].to_numpy(), seed)
+
+
+def _statement_items(out: pd.DataFrame, other_liab: np.ndarray, seed: int) -> pd.DataFrame:
+    """Optional statement items for the credit and distress checks (Altman Z and Z'').
+
+    Drawn from a random stream of their own, so the columns above keep their values whatever
+    is added here. Total liabilities close the balance sheet (assets minus equity); current
+    assets are cash plus receivables and stock, never more than the assets that are not PP&E;
+    current liabilities are part of the other liabilities plus the current portion of debt;
+    retained earnings are part of book equity; EBIT is EBITDA less depreciation of PP&E.
+    """
+    rng = np.random.default_rng(seed + 5000)
+    n = len(out)
+    assets, equity = out["total_assets"].to_numpy(), out["book_equity"].to_numpy()
+    ppe, cash = out["ppe_net"].to_numpy(), out["cash"].to_numpy()
+    current = np.minimum(cash + assets * rng.uniform(0.10, 0.30, n), assets - ppe)
+    out["current_assets"] = np.maximum(current, cash).round(3)
+    out["current_liabilities"] = (assets * other_liab * rng.uniform(0.4, 0.8, n)
+                                  + out["total_debt"].to_numpy() * rng.uniform(0.05, 0.25, n)
+                                  ).round(3)
+    out["total_liabilities"] = (assets - equity).round(3)
+    out["retained_earnings"] = (equity * rng.uniform(0.3, 0.9, n)).round(3)
+    out["ebit"] = (out["ebitda"].to_numpy() - ppe * rng.uniform(0.05, 0.10, n)).round(3)
     return out
 
 

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
-import pandas as pd
+if TYPE_CHECKING:  # the output readers use EXCLUSION_COLUMNS without pandas
+    import pandas as pd
 
 EXCLUSION_COLUMNS: tuple[str, ...] = (
     "source_row", "firm_id", "fiscal_year", "measure", "reason", "detail"
@@ -45,6 +47,8 @@ class Panel:
 
 def empty_exclusions() -> pd.DataFrame:
     """An exclusion ledger with no rows and the contract's columns."""
+    import pandas as pd
+
     return pd.DataFrame(
         {
             "source_row": pd.Series(dtype="int64"),

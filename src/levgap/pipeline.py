@@ -38,6 +38,7 @@ from levgap.models.pooling import Components, estimate_components, hard, penalis
 from levgap.models.result import Fit
 from levgap.models.saved import measure_record, saved_record
 from levgap.panel import Panel
+from levgap.recap import RECAP_FLAGS, debt_to_target
 
 COVERAGE_MIN_ROWS = 100  # industries with at least this many firm-years in the coverage range
 
@@ -325,8 +326,12 @@ def _target_part(ctx: Context, rows: np.ndarray, measure: str, y: np.ndarray, es
                  else ctx.feats.frame["fiscal_year"].to_numpy()[rows] == spec.year)
     target = est.cf.target
     gap = y - target
-    money = ctx.feats.frame[["total_debt", "total_assets", "market_equity"]].iloc[rows]
-    flags = {"industry_effect_from_parent": est.cf.from_parent, **attr["flags"]}
+    frame = ctx.feats.frame
+    debt, flag = debt_to_target(measure, frame["total_debt"].to_numpy()[rows],
+                                frame["total_assets"].to_numpy()[rows],
+                                frame["market_equity"].to_numpy()[rows], target)
+    flags = {"industry_effect_from_parent": est.cf.from_parent, **attr["flags"],
+             **{code: flag == code for code in RECAP_FLAGS}}
     return {
         "rows": rows[keep], "keep": keep, "measure": measure, "actual": y[keep],
         "target": target[keep], "gap": gap[keep],
@@ -335,22 +340,10 @@ def _target_part(ctx: Context, rows: np.ndarray, measure: str, y: np.ndarray, es
         "status": bands.status_codes(y, low, high)[keep],
         "peer_median": attr["peer_median"][keep], "peer_count": attr["peer_count"][keep],
         "peer_target": attr["peer_target"][keep],
-        "debt_to_target": debt_to_target(measure, money, target)[keep],
+        "debt_to_target": debt[keep],
         "target_full": est.target_full[keep], "fold": est.cf.fold[keep],
         "extra_flags": {k: v[keep] for k, v in flags.items()},
     }
-
-
-def debt_to_target(measure: str, sub: pd.DataFrame, target: np.ndarray) -> np.ndarray:
-    """Change in debt that brings the firm to its target (recapitalisation convention)."""
-    debt = sub["total_debt"].to_numpy(dtype=float)
-    if measure == "book":
-        wanted = np.maximum(target, 0.0) * sub["total_assets"].to_numpy(dtype=float)
-        return wanted - debt
-    equity = sub["market_equity"].to_numpy(dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        wanted = np.where(target < 1.0, target * equity / (1.0 - target), np.nan)
-    return np.where(target < 0.0, -debt, wanted - debt)
 
 
 def _fit_row(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, measure: str,

@@ -2,11 +2,48 @@
 
 from __future__ import annotations
 
+import sys
+from collections.abc import Sequence
+from typing import Any
+
 import typer
+from typer.core import TyperGroup
 
 import levgap
+from levgap.cli.common import err
+
+
+class _OneLineErrors(TyperGroup):
+    """The command group, with usage errors printed as one line (exit 2), never a usage block."""
+
+    def main(self, args: Sequence[str] | None = None, prog_name: str | None = None,
+             complete_var: str | None = None, standalone_mode: bool = True,
+             **extra: Any) -> Any:
+        try:
+            rv = super().main(args=args, prog_name=prog_name, complete_var=complete_var,
+                              standalone_mode=False, **extra)
+        except typer.TyperException as exc:
+            if not standalone_mode:
+                raise
+            ctx = getattr(exc, "ctx", None)
+            if type(exc).__name__ == "NoArgsIsHelpError":  # `levgap` alone: the help
+                typer.echo(exc.format_message())
+            else:
+                where = f" (see `{ctx.command_path} --help`)" if ctx is not None else ""
+                err(f"{exc.format_message()}{where}")
+            sys.exit(getattr(exc, "exit_code", 2))
+        except typer.Abort:
+            if not standalone_mode:
+                raise
+            err("aborted.")
+            sys.exit(1)
+        if not standalone_mode:
+            return rv
+        sys.exit(rv if isinstance(rv, int) else 0)
+
 
 app = typer.Typer(
+    cls=_OneLineErrors,
     add_completion=False,
     no_args_is_help=True,
     rich_markup_mode=None,

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import re
 from collections.abc import Iterator
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -18,8 +19,34 @@ MEASURE_CHOICES = ("book", "market", "both")
 BIG_PANEL = 50_000  # rows above which a progress bar is shown
 
 
+_ESCAPE = re.compile(
+    r"\x1b\[[0-?]*[ -/]*[@-~]"            # CSI: colours, cursor moves
+    r"|\x1b\][^\x07\x1b]*(?:\x07|\x1b\\)?"  # OSC: titles, hyperlinks
+    r"|\x1b[PX^_][^\x1b]*(?:\x1b\\)?"      # DCS, SOS, PM, APC strings
+    r"|\x1b.?|\x9b[0-?]*[ -/]*[@-~]"       # any other escape, 8-bit CSI
+)
+_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u200e\u200f\u202a-\u202e"
+                      "\u2066-\u2069]")
+
+
+def plain(text: Any) -> str:
+    """Text from data made safe for a terminal: escape sequences and control characters go.
+
+    ANSI and OSC escape sequences (colours, cursor moves, window titles, hyperlinks), other
+    C0 and C1 control characters and bidirectional overrides are removed; tabs and line
+    breaks become spaces. Every command passes data through this before printing it.
+    """
+    s = _ESCAPE.sub("", str(text))
+    return _CONTROL.sub("", s.replace("\t", " ").replace("\r", " ").replace("\n", " "))
+
+
 def err(message: str) -> None:
-    typer.echo(f"levgap: error: {' '.join(str(message).split())}", err=True)
+    typer.echo(f"levgap: error: {' '.join(plain(message).split())}", err=True)
+
+
+def echo(message: str) -> None:
+    """Print one line of text that may hold data (paths, names), made plain."""
+    typer.echo(plain(message))
 
 
 @contextlib.contextmanager
@@ -61,7 +88,7 @@ def parse_measures(measure: str) -> tuple[str, ...]:
     return ("book", "market") if measure == "both" else (measure,)
 
 
-def console(stderr: bool = False) -> Any:
+def rich_console(stderr: bool = False) -> Any:
     from rich.console import Console
 
     # markup off: data and messages hold square brackets ([input], firm names) to show as is
@@ -70,6 +97,26 @@ def console(stderr: bool = False) -> Any:
         # Piped or captured output: wide enough that tables are not cut to 80 columns.
         con = Console(stderr=stderr, highlight=False, soft_wrap=False, markup=False, width=160)
     return con
+
+
+class _PlainConsole:
+    """A rich console whose ``print`` makes text arguments plain (see :func:`plain`)."""
+
+    def __init__(self, con: Any) -> None:
+        self._con = con
+
+    def print(self, *objects: Any, **kwargs: Any) -> None:
+        if all(isinstance(o, str) for o in objects):
+            kwargs.setdefault("soft_wrap", True)  # a line of text stays one line
+        self._con.print(*(plain(o) if isinstance(o, str) else o for o in objects), **kwargs)
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._con, name)
+
+
+def console(stderr: bool = False) -> Any:
+    """The console commands print through: text is made plain; tables are built plain."""
+    return _PlainConsole(rich_console(stderr))
 
 
 @contextlib.contextmanager
@@ -98,7 +145,7 @@ def progress_bar(enabled: bool) -> Any:
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
     return Progress(TextColumn("{task.description}"), BarColumn(), TextColumn(
-        "{task.completed}/{task.total}"), TimeElapsedColumn(), console=console(stderr=True),
+        "{task.completed}/{task.total}"), TimeElapsedColumn(), console=rich_console(stderr=True),
         transient=True)
 
 
@@ -121,7 +168,7 @@ def stepper(bar: Any) -> Any:
 def screen_table(rows: list[dict[str, Any]], title: str) -> Any:
     from rich.table import Table
 
-    table = Table(title=title, title_justify="left")
+    table = Table(title=plain(title), title_justify="left")
     for col, just in (("firm", "left"), ("name", "left"), ("industry", "left"),
                       ("year", "right"), ("actual", "right"), ("target", "right"),
                       ("gap pp", "right"), ("gap z", "right"), ("band", "right"),
@@ -130,9 +177,21 @@ def screen_table(rows: list[dict[str, Any]], title: str) -> Any:
     for r in rows:
         z = r["gap_z"]
         table.add_row(
-            str(r["firm_id"]), str(r["firm_name"] or ""), str(r["industry"]),
-            str(r["fiscal_year"]), f"{r['actual']:.1%}", f"{r['target']:.1%}",
-            f"{100 * r['gap']:+.1f}", "" if z is None or z != z else f"{z:+.2f}",
-            f"{r['band_low']:.1%} to {r['band_high']:.1%}", str(r["status"]),
+            plain(r["firm_id"]), plain(r["firm_name"] or ""), plain(r["industry"]),
+            plain(r["fiscal_year"]), _pct(r["actual"]), _pct(r["target"]),
+            _num(r["gap"], 100, "+.1f"), _num(z, 1, "+.2f"),
+            f"{_pct(r['band_low'])} to {_pct(r['band_high'])}", plain(r["status"]),
         )
     return table
+
+
+def _num(v: Any, scale: float, spec: str) -> str:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return ""
+    return "" if f != f else format(scale * f, spec)
+
+
+def _pct(v: Any) -> str:
+    return _num(v, 1, ".1%")

@@ -8,7 +8,7 @@ from typing import TYPE_CHECKING, Any
 import typer
 
 from levgap.cli.app import app
-from levgap.cli.common import console, guard, matches, screen_table
+from levgap.cli.common import console, echo, guard, matches, plain, screen_table
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -53,18 +53,30 @@ def explain(
     year: int = typer.Option(None, "--year", help="Fiscal year (default: the firm's latest)."),
     measure: str = typer.Option("book", "--measure", help="book or market."),
     plot: Path = typer.Option(None, "--plot", help="Also draw the steps to a PNG or SVG file."),
+    add_debt: float = typer.Option(None, "--add-debt",
+                                   help="Show before and after this change in debt."),
+    fund_assets: bool = typer.Option(False, "--fund-assets",
+                                     help="With --add-debt: the debt buys new assets."),
 ) -> None:
     """Show why a firm's target differs from its peers', driver by driver.
 
     Example: levgap explain results/ TR0069 --year 2023 --plot steps.svg
     """
     with guard():
+        if add_debt is not None or fund_assets:  # the deal check's view of one change
+            from levgap.cli.deal import explain_change
+
+            if add_debt is None:
+                raise typer.BadParameter("needs --add-debt X.", param_hint="--fund-assets")
+            return explain_change(out_dir, firm_id, year, measure, add_debt, fund_assets)
         from levgap.report.tables import read_outputs
         from levgap.report.terminal import driver_steps, render_steps
 
         if plot is not None and plot.suffix.lower() not in (".png", ".svg"):
             raise typer.BadParameter(f"must end in .png or .svg; got {plot.name!r}.",
                                      param_hint="--plot")
+        if plot is not None:  # refused before anything is explained
+            _refuse_run_files(out_dir, plot)
         tables, _ = read_outputs(out_dir, names=["targets", "drivers"])
         if "targets" not in tables or "drivers" not in tables:
             raise typer.BadParameter(f"{out_dir} holds no targets or drivers table.",
@@ -104,11 +116,13 @@ def explain(
             f"{row['debt_to_target']:+,.1f} (input money units)"
         )
         steps = driver_steps(row, d)
-        con.print(render_steps(steps, title=f"{firm_id} {yr}, {measure} leverage"))
+        shown = steps.assign(label=steps["label"].map(plain))
+        con.print(render_steps(shown, title=plain(f"{firm_id} {yr}, {measure} leverage")))
         if plot is not None:
             from levgap.report.plots import plot_steps
 
-            plot_steps(steps, plot, title=f"{firm_id} {yr}, {measure} leverage")
+            plot_steps(steps, plot, title=f"{firm_id} {yr}, {measure} leverage",
+                       inputs=_refuse_run_files(out_dir, plot))
             con.print(f"Chart written to {plot}.")
 
 
@@ -116,17 +130,20 @@ def _explain_table(row: Any, drivers: pd.DataFrame) -> Any:
     from rich.table import Table
 
     name = f" ({row['firm_name']})" if str(row.get("firm_name", "")) else ""
+    peers = row["peer_count"]
+    peers = "no" if peers != peers else int(peers)
     table = Table(
-        title=f"{row['firm_id']}{name}, {int(row['fiscal_year'])}, {row['measure']} leverage: "
+        title=plain(
+        f"{row['firm_id']}{name}, {int(row['fiscal_year'])}, {row['measure']} leverage: "
         f"actual {row['actual']:.1%}, target {row['target']:.1%}, peer target "
         f"{row['peer_target']:.1%}, peer median {row['peer_median']:.1%} "
-        f"({int(row['peer_count'])} peers)",
+        f"({peers} peers)"),
         title_justify="left",
     )
     for col in ("driver", "firm value", "peer value", "contribution pp"):
         table.add_column(col, justify="left" if col == "driver" else "right")
     for r in drivers.itertuples():
-        table.add_row(str(r.driver), f"{r.firm_value:.4f}", f"{r.peer_value:.4f}",
+        table.add_row(plain(r.driver), f"{r.firm_value:.4f}", f"{r.peer_value:.4f}",
                       f"{100 * r.contribution:+.2f}")
     return table
 
@@ -143,7 +160,7 @@ def report(
         from levgap.report.html import build_report
 
         path = build_report(out_dir)
-        typer.echo(f"Report written to {path}.")
+        echo(f"Report written to {path}.")
 
 
 @app.command()
@@ -167,6 +184,7 @@ def table(
         if fmt not in FORMATS:
             raise typer.BadParameter(f"must be latex, markdown or csv; got {fmt!r}.",
                                      param_hint="--format")
+        protected = _refuse_run_files(out_dir, output) if output is not None else []
         tables, manifest = read_outputs(out_dir, names=["coefficients", "model_fit"])
         missing = [n for n in ("coefficients", "model_fit") if n not in tables]
         if missing:
@@ -177,7 +195,31 @@ def table(
         if output is None:
             typer.echo(text, nl=False)
         else:
-            from levgap.report.files import atomic_write_bytes
+            from levgap.outputs import atomic_write_bytes
 
-            atomic_write_bytes(output, text.encode("utf-8"))
-            typer.echo(f"Table written to {output}.")
+            atomic_write_bytes(output, text.encode("utf-8"), inputs=protected)
+            echo(f"Table written to {output}.")
+
+
+def _refuse_run_files(out_dir: Path, target: Path) -> list[Path]:
+    """Refuse an output path that is a file of the run or one of its inputs; return the inputs.
+
+    Inputs are recognised by path (as recorded in run.json) and, for a file already at the
+    target, by content (its SHA-256 equals a recorded input's), so a panel moved since the run
+    is still never replaced.
+    """
+    from levgap.errors import OutputError
+    from levgap.outputs import check_replaceable, file_digest, verify_run
+
+    run = verify_run(out_dir)
+    inputs = [p for p, _ in run.inputs()]
+    if target.is_file():
+        sha = file_digest(target)[1]
+        for path, digest in run.inputs():
+            if digest == sha:
+                raise OutputError(
+                    f"{target}: an output must never replace an input file; got a file with "
+                    f"the content of the run's input {path}. Choose another output path."
+                )
+    check_replaceable(target, inputs)  # the run's own files: its marker says whose they are
+    return inputs

@@ -13,6 +13,7 @@ from levgap.cli.common import (
     BIG_PANEL,
     collect_notes,
     console,
+    echo,
     err,
     guard,
     load_config,
@@ -36,7 +37,9 @@ def _run_analysis(
     xlsx: bool,
     report: bool,
     quiet: bool,
-) -> tuple[Any, list[Path]]:
+    year_from: str = "--year",
+) -> tuple[Any, Any]:
+    from levgap.analysis import write_analysis
     from levgap.ingest import read_panel
     from levgap.pipeline import analyze
 
@@ -46,16 +49,29 @@ def _run_analysis(
     if not quiet:
         for note in merge_notes(panel.warnings, notes):
             console(stderr=True).print(f"note: {note}")
+    year = config.model.year
+    if year is not None and len(panel.data) and year not in set(panel.data["fiscal_year"]):
+        from levgap.errors import ConfigError
+
+        years = panel.data["fiscal_year"]
+        raise ConfigError(
+            f"{year_from} must be a fiscal year of the panel; got {year}. The panel's usable "
+            f"rows cover {int(years.min())}-{int(years.max())}."
+        )
     show = not quiet and len(panel.data) >= BIG_PANEL
     with progress_bar(show) as bar:
         result = analyze(panel, config=config, progress=stepper(bar))
+    inputs = (str(panel_path), *((config.source,) if config.source else ()))
     # The bar's refresh thread would compete with the writers for the interpreter: it is
     # shown again only while the report renders.
-    with progress_bar(show and report) as bar:
-        written = result.write(out, fmt=fmt, force=force, report=report, xlsx=xlsx,
-                               inputs=(str(panel_path),), progress=stepper(bar))
-    return result, written
-
+    write_notes: list[str] = []
+    with progress_bar(show and report) as bar, collect_notes(write_notes):
+        committed = write_analysis(result, out, fmt=fmt, force=force, report=report,
+                                   xlsx=xlsx, inputs=inputs, progress=stepper(bar))
+    if not quiet:
+        for note in write_notes:
+            console(stderr=True).print(f"note: {note}")
+    return result, committed
 
 
 def _summary(result: Any, out: Path) -> dict[str, Any]:
@@ -78,7 +94,17 @@ def _summary(result: Any, out: Path) -> dict[str, Any]:
     }
 
 
-def _print_run(result: Any, out: Path, top: int) -> None:
+def _written_line(committed: Any) -> str:
+    """The closing line: exactly the files this run wrote, and what it removed."""
+    names = ", ".join(p.name for p in committed.written)
+    line = f"Outputs written to {committed.folder}/ (run {committed.run_id}): {names}."
+    if committed.removed:
+        line += (f" Removed {', '.join(committed.removed)} of the previous run there "
+                 "(levgap's own files, which this run does not rewrite).")
+    return line
+
+
+def _print_run(result: Any, committed: Any, top: int) -> None:
     con = console()
     counts = result.manifest["counts"]
     con.print(
@@ -107,8 +133,7 @@ def _print_run(result: Any, out: Path, top: int) -> None:
         under = m.sort_values("gap").head(top).to_dict(orient="records")
         con.print(screen_table(over, f"Most over-levered ({measure}, {year})"))
         con.print(screen_table(under, f"Most under-levered ({measure}, {year})"))
-    con.print(f"Outputs written to {out}/ (targets, drivers, coefficients, model_fit, "
-              "exclusions, run.json, report.html).")
+    con.print(_written_line(committed))
     con.print("levgap is a statistical peer benchmark, not investment, credit or legal advice.")
 
 
@@ -125,25 +150,18 @@ def demo(
     """
     with guard():
         from levgap.demo import make_panel
-        from levgap.report.tables import write_tables
+        from levgap.outputs import refuse_foreign
+        from levgap.report.tables import write_table
 
         if out.exists() and not out.is_dir():
             raise typer.BadParameter(f"must be a folder; got the file {out}.", param_hint="--out")
-        out.mkdir(parents=True, exist_ok=True)
-        panel_path = out / "demo_panel.csv"
-        write_tables({"demo_panel": make_panel()}, {"what": "the invented demo panel"}, out,
-                     fmt="csv", force=force, also=_previous_outputs(out))
-        result, _ = _run_analysis(panel_path, out, config=load_config(None), fmt="csv",
-                                  force=True, xlsx=False, report=True, quiet=False)
-        _print_run(result, out, top)
-        typer.echo(f"The demo's input panel is {panel_path}.")
-
-
-def _previous_outputs(out: Path) -> list[str]:
-    from levgap.report.files import MARKER
-
-    marker = out / MARKER
-    return marker.read_text(encoding="utf-8").split() if marker.is_file() else []
+        if not force:  # refused before the demo's panel is written
+            refuse_foreign(out)
+        panel_path = write_table(make_panel(), out / "demo_panel.csv")
+        result, committed = _run_analysis(panel_path, out, config=load_config(None), fmt="csv",
+                                          force=force, xlsx=False, report=True, quiet=False)
+        _print_run(result, committed, top)
+        echo(f"The demo's input panel is {panel_path}.")
 
 
 @app.command()
@@ -188,12 +206,17 @@ def analyze(
             changes["year"] = year
         if changes:
             cfg = replace(cfg, model=replace(cfg.model, **changes))
-        result, _ = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force, xlsx=xlsx,
-                                  report=not no_report, quiet=quiet or as_json)
+        year_from = "--year" if year is not None else f"{config}: [model] year"
+        result, committed = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force,
+                                          xlsx=xlsx, report=not no_report,
+                                          quiet=quiet or as_json, year_from=year_from)
         if as_json:
-            typer.echo(json.dumps(_summary(result, out), indent=2, default=str))
+            summary = {**_summary(result, out), "run_id": committed.run_id,
+                       "written": [p.name for p in committed.written],
+                       "removed": list(committed.removed)}
+            typer.echo(json.dumps(summary, indent=2, default=str))
         elif not quiet:
-            _print_run(result, out, top)
+            _print_run(result, committed, top)
 
 
 
@@ -211,8 +234,13 @@ def check(
         from levgap.ingest import read_panel
 
         notes: list[str] = []
+        cfg = load_config(config)
+        if ledger is not None:  # refused before the panel is read
+            from levgap.outputs import check_replaceable
+
+            check_replaceable(ledger, [panel, *([config] if config else [])])
         with collect_notes(notes):
-            p = read_panel(panel, config=load_config(config))
+            p = read_panel(panel, config=cfg)
         con = console()
         data = p.data
         whole = p.exclusions
@@ -231,7 +259,7 @@ def check(
         if ledger is not None:
             from levgap.report.tables import write_table
 
-            write_table(whole, ledger, inputs=[panel])
+            write_table(whole, ledger, inputs=[panel, *([config] if config else [])])
             con.print(f"Exclusion ledger written to {ledger}.")
         if len(data) == 0:
             err(f"{panel}: the panel must keep at least one usable row; got none.")
@@ -250,4 +278,4 @@ def template(
         from levgap.report.files import write_template
 
         for path in write_template(out):
-            typer.echo(f"wrote {path}")
+            echo(f"wrote {path}")

@@ -105,7 +105,15 @@ def read_table(path: str | Path, options: InputOptions | None = None) -> RawTabl
 
 
 def _read_bytes(p: Path) -> bytes:
+    import stat
+
     try:
+        if not stat.S_ISREG(p.stat().st_mode) and not p.is_dir():
+            # a device (/dev/zero) or a pipe never ends: refused before any read
+            raise SchemaError(
+                f"{p}: the panel must be a regular file; got a device or pipe. Save the data "
+                "to a CSV, Parquet or XLSX file first."
+            )
         return p.read_bytes()
     except FileNotFoundError:
         raise SchemaError(
@@ -263,6 +271,16 @@ def _to_utf8(p: Path, data: bytes, encoding: str | None) -> tuple[bytes, list[st
         notes.append("read as UTF-16 (byte-order mark found)")
         return text.lstrip("\ufeff").encode("utf-8"), notes
     data = data.removeprefix(codecs.BOM_UTF8)
+    head = data[:4096]
+    if head.count(b"\x00") * 4 > len(head) > 0:
+        # ASCII text saved as UTF-16 without a byte-order mark: every other byte is NUL
+        even, odd = head[0::2].count(b"\x00"), head[1::2].count(b"\x00")
+        guess = "utf-16-le" if odd > even else "utf-16-be"
+        raise SchemaError(
+            f"{p}: the panel must be text in UTF-8 (or a configured [input] encoding); got "
+            f"bytes that look like UTF-16 without a byte-order mark. Re-save it as UTF-8 CSV, "
+            f"or set [input] encoding = \"{guess}\" in run.toml."
+        )
     if data.isascii():
         return data, notes
     try:
@@ -395,8 +413,8 @@ def _record_numbers(body: bytes, delimiter: str) -> np.ndarray:
 
 def _all_blank(frame: pd.DataFrame) -> np.ndarray:
     blank = np.ones(len(frame), dtype=bool)
-    for col in frame.columns:
-        s = frame[col]
+    for j in range(frame.shape[1]):  # by position: a repeated header names several columns
+        s = frame.iloc[:, j]
         if s.dtype == object or isinstance(s.dtype, pd.StringDtype):
             blank &= (s.astype("str").str.strip().fillna("") == "").to_numpy(dtype=bool)
         else:

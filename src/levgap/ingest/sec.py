@@ -1,136 +1,118 @@
 """Build a schema-v1 peer panel from the SEC's Financial Statement Data Sets.
 
 The U.S. Securities and Exchange Commission publishes every filer's XBRL statement facts as
-quarterly bulk files (``sub.txt`` one row per submission, ``num.txt`` one row per fact).
-:func:`import_sec` turns any number of quarters into one row per firm and fiscal year, and
-records for every number the tag or formula it came from.
+quarterly bulk files (``sub.txt`` one row per submission, ``num.txt`` one row per fact,
+``pre.txt`` how each filing presented its statements). :func:`import_sec` turns any number
+of quarters into one row per firm and fiscal year, records for every number the tag or
+formula, filing, date and statement it came from, and lists every firm-year filed but not
+in the panel with a reason.
 
-Rules
------
-Submissions
-    ``form`` in ``forms`` (10-K by default) and ``fp`` = ``FY``, or ``fp`` empty (the SEC
-    leaves it empty on some 10-K filings; the form itself makes them annual reports). One
-    submission per (``cik``, ``period``): the latest ``filed`` (then ``accepted``, then
-    ``adsh``) when ``restated=True``, the earliest otherwise, across all quarters given.
+The rules live beside the code that applies them:
+
+* reading, layouts and the limits on hostile files: :mod:`levgap.ingest.sec_files`;
+* submissions kept, entity, currency, fiscal years of facts, cover page:
+  :mod:`levgap.ingest.sec_facts` and :mod:`levgap.ingest.sec_quarter` (10-K, 10-K/A,
+  10-KT as asked, ``fp`` FY or empty; 20-F and 40-F to the ledger);
+* debt from the balance sheet as presented: :mod:`levgap.ingest.sec_debt`;
+* the other columns: :mod:`levgap.ingest.sec_tags`;
+* several years, restated or first filed, item by item: :mod:`levgap.ingest.sec_years`;
+* market equity and currencies: :mod:`levgap.ingest.sec_market`;
+* subsidiaries and industries: :mod:`levgap.ingest.sec_ledger`.
+
 Fiscal year
-    From the period end (``period``), not from the SEC's ``fy``: the calendar year of the
-    period end, except that a period ending in January to May counts as the previous year
-    (a fiscal year ending 31 January 2010 is fiscal 2009). This is the convention of the
-    common research databases (common practice; recalled from memory, not re-read). Should
-    two periods of one firm fall in one fiscal year (a change of fiscal year end), the later
-    period is kept and a warning names the firm.
-Facts
-    Consolidated entity only (empty ``segments`` and ``coreg``), standard taxonomy
-    (``version`` starting ``us-gaap/`` or ``dei/``; when ``tag.txt`` is present, tags it
-    marks custom or abstract are not used either), non-empty ``value``, ``ddate`` equal to
-    the period end, ``qtrs`` 0 for balance-sheet items and 4 for flows, ``uom`` USD (shares
-    for share counts). Cover-page facts: ``dei:EntityCommonStockSharesOutstanding`` on the
-    latest cover date on or after the period end, summed over share classes (facts with no
-    segment; in the current layout, when there are none, facts whose only segment is a
-    class of stock); a sum of zero is treated as missing. ``dei:EntityPublicFloat`` on the
-    latest date on or before the period end. The tag precedence of each column is in
-    :mod:`levgap.ingest.sec_tags`. Items the data sets do not hold stay missing, never zero.
-Market equity
-    With a price file: the latest price of the firm's CIK dated from 31 days before to 7
-    days after the period end, times ``shares_outstanding`` (``market_equity_source`` =
-    ``"price_file"``). Otherwise, or when no price matches, the cover-page public float, the
-    market value of the equity held by non-affiliates at the end of the second fiscal
-    quarter: a proxy, flagged ``"public_float_proxy"``. Missing when neither exists.
+    The calendar year of the balance-sheet date, except that dates in January to May count
+    as the previous year (a fiscal year ending 31 January 2010 is fiscal 2009). This is the
+    convention of the common research databases (common practice; recalled from memory, not
+    re-read).
 Identifiers
-    ``firm_id`` is the CIK as text without leading zeros; ``firm_name`` is ``name`` and
-    ``industry`` is ``sic`` of sub.txt, as four-digit text (zero-padded; missing when empty or
-    0). The submission behind every number is in the sources table (``adsh``).
+    ``firm_id`` is the CIK as text without leading zeros; ``firm_name`` and ``industry``
+    (``sic`` as four-digit text, missing when empty or 0) are those of the firm's latest
+    filing; ``industry_name`` is the SEC's title of the SIC code
+    (:func:`levgap.industries.sic_title`).
 Units
-    Money in U.S. dollars as filed (``currency`` = ``USD``); shares in shares.
-
-``pre.txt``, when present, adds to each source row the statements on which the filing
-presented the tags used (``BS`` balance sheet, ``IS`` income statement, ``CF`` cash flows,
-...; a trailing ``*`` marks a parenthetical presentation).
+    Money as filed (``currency``; U.S. dollars unless an exchange-rate file admits another
+    currency, with ``fx_rate`` to U.S. dollars); shares in shares.
 """
 
 from __future__ import annotations
 
+import os
 import re
 from collections.abc import Sequence
+from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
+from multiprocessing import get_context
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
-import pyarrow as pa
-import pyarrow.compute as pc
 
-from levgap.errors import ConfigError, SchemaError
-from levgap.ingest.sec_files import BatchFilter, Quarter, locate_quarter, read_filtered
-from levgap.ingest.sec_tags import (
-    COVER_SHARES,
-    DEI_TAGS,
-    NEEDED_TAGS,
-    PUBLIC_FLOAT,
-    TAG_KINDS,
-    build_columns,
+from levgap.errors import ConfigError
+from levgap.ingest.sec_facts import fiscal_year_of
+from levgap.ingest.sec_files import DEFAULT_LIMITS, ReadLimits
+from levgap.ingest.sec_ledger import find_subsidiaries, industry_ranges, ledger_lines
+from levgap.ingest.sec_market import (
+    MARKET_EQUITY_SOURCES,
+    market_equity,
+    match_by_date,
+    read_fx_rates,
+    read_prices,
 )
-from levgap.schema import BY_NAME
+from levgap.ingest.sec_quarter import ANNUAL_FORMS, QuarterExtract, extract_quarter
+from levgap.ingest.sec_years import LEDGER_COLUMNS, SOURCE_COLUMNS, assemble
+from levgap.schema import BY_NAME, COLUMNS
 
 __all__ = [
+    "DEFAULT_EXCLUDE_SIC",
+    "LEDGER_COLUMNS",
+    "MARKET_EQUITY_SOURCES",
+    "PANEL_COLUMNS",
+    "SOURCE_COLUMNS",
     "SecImport",
     "fiscal_year_of",
     "import_sec",
     "parse_sic_ranges",
+    "read_fx_rates",
     "read_prices",
     "write_sec_import",
 ]
 
-#: Period-end months counted in the previous fiscal year (January to May).
-LAST_MONTH_OF_PREVIOUS_YEAR = 5
+#: SIC ranges left out unless the caller says otherwise: financials and utilities, whose
+#: balance sheets answer to regulators (common practice in leverage studies).
+DEFAULT_EXCLUDE_SIC = "6000-6999,4900-4999"
 
-#: Forms an import may keep.
-ANNUAL_FORMS: tuple[str, ...] = ("10-K", "10-K/A", "10-KT", "10-KT/A")
+#: Inputs (zips or folders, bytes in all) from which quarters are read in parallel processes
+#: by default.
+PARALLEL_FROM_BYTES = 64 << 20
 
-#: Panel columns, in schema order, then the flag of the market-equity source.
+#: Panel columns: schema v1 in its order, then the import's own columns.
 PANEL_COLUMNS: tuple[str, ...] = (
-    "firm_id", "fiscal_year", "industry", "total_assets", "total_debt", "ppe_net", "ebitda",
-    "book_equity", "firm_name", "market_equity", "shares_outstanding", "share_price",
-    "revenue", "cash", "interest_expense", "rd_expense", "lease_liabilities", "currency",
-    "market_equity_source",
+    *(c.name for c in COLUMNS), "industry_name", "market_equity_source", "import_flags",
 )
-#: Columns of the sources table.
-SOURCE_COLUMNS: tuple[str, ...] = (
-    "firm_id", "fiscal_year", "column", "source", "adsh", "form", "period", "filed", "statement",
-)
-#: Columns of the exclusion table of the SIC filter.
-EXCLUDED_COLUMNS: tuple[str, ...] = (
-    "firm_id", "firm_name", "industry", "sic_range", "firm_years",
-)
+_VALUE_COLUMNS = tuple(c.name for c in COLUMNS if c.kind == "number" and c.name != "fx_rate")
 
-#: How ``market_equity`` was obtained.
-MARKET_EQUITY_SOURCES: dict[str, str] = {
-    "price_file": "share price from the user's price file times shares_outstanding",
-    "public_float_proxy": "dei:EntityPublicFloat, non-affiliate float at mid-year (a proxy)",
-}
-
-_SUB_COLUMNS = ("adsh", "cik", "name", "sic", "form", "period", "fp", "filed", "accepted")
-_NUM_COLUMNS = ("adsh", "tag", "version", "ddate", "qtrs", "uom", "segments", "coreg", "value")
-_CLASS_SEGMENT = re.compile(r"^(ClassOfStock|StatementClassOfStockAxis)=[^;]*;?$")
 _SIC_ITEM = re.compile(r"^\s*(\d{1,4})\s*(?:-\s*(\d{1,4})\s*)?$")
-_TAG_IN_LABEL = re.compile(r"(?:dei:)?[A-Z][A-Za-z0-9]+")
 
 
 @dataclass(frozen=True, slots=True)
 class SecImport:
-    """A peer panel built from the SEC data sets, with its audit trail.
+    """A peer panel built from the SEC data sets, with its audit trail and ledger.
 
     Parameters
     ----------
     panel : pandas.DataFrame
-        One row per firm and fiscal year in schema v1 (``PANEL_COLUMNS``), plus
-        ``market_equity_source`` (``"price_file"``, ``"public_float_proxy"`` or missing).
-        Money in U.S. dollars.
+        One row per firm and fiscal year (``PANEL_COLUMNS``): schema v1, then
+        ``industry_name``, ``market_equity_source`` (``"price_file"``,
+        ``"public_float_proxy"`` or missing) and ``import_flags`` (``;``-joined codes of
+        :data:`levgap.codes.SEC_FLAGS`).
     sources : pandas.DataFrame
-        One row per non-missing number of the panel (``SOURCE_COLUMNS``): the tag or formula
-        that produced it and the submission (``adsh``) it came from.
+        One row per number of the panel (``SOURCE_COLUMNS``): the tag or formula, the
+        filing (``adsh``, form, period, filed), the date of the fact, whether it is the
+        filing's own year or a comparative, the statements that presented it, its flags.
     excluded : pandas.DataFrame
-        Firms removed by the SIC filter (``EXCLUDED_COLUMNS``), with how many firm-years each.
+        The import ledger (``LEDGER_COLUMNS``): each firm-year filed but not in the panel,
+        with a reason code of :data:`levgap.codes.SEC_REASONS`.
     warnings : tuple of str
         What the import had to work around or leave out, one line each.
     """
@@ -142,8 +124,13 @@ class SecImport:
 
     @property
     def n_excluded_firms(self) -> int:
-        """Firms removed by the SIC filter."""
-        return len(self.excluded)
+        """Firms with at least one firm-year in the ledger."""
+        return int(self.excluded["firm_id"].nunique())
+
+    def excluded_by_reason(self) -> dict[str, int]:
+        """Ledger firm-years per reason code, most frequent first."""
+        counts = self.excluded["reason"].value_counts()
+        return {str(k): int(v) for k, v in counts.items()}
 
     def tidy(self) -> pd.DataFrame:
         """The panel (the table every later step reads)."""
@@ -153,36 +140,10 @@ class SecImport:
         from html import escape
 
         head = (f"<p>SEC import: {len(self.panel)} firm-years, {len(self.sources)} sourced "
-                f"values, {self.n_excluded_firms} firms excluded by SIC, "
+                f"values, {len(self.excluded)} firm-years in the ledger, "
                 f"{len(self.warnings)} notes.</p>")
         notes = "".join(f"<li>{escape(w)}</li>" for w in self.warnings)
         return head + (f"<ul>{notes}</ul>" if notes else "") + self.panel.head(10).to_html()
-
-
-def fiscal_year_of(period_end: pd.Series) -> pd.Series:
-    """Fiscal year of a period end: its calendar year, one less for January to May.
-
-    Parameters
-    ----------
-    period_end : pandas.Series of datetime64
-        Period-end dates.
-
-    Returns
-    -------
-    pandas.Series of int64
-
-    Examples
-    --------
-    >>> fiscal_year_of(pd.Series(pd.to_datetime(["2010-01-31", "2009-06-30", "2009-12-31"])))
-    ... # doctest: +NORMALIZE_WHITESPACE
-    0    2009
-    1    2009
-    2    2009
-    dtype: int64
-    """
-    year = period_end.dt.year.astype("int64")
-    early = period_end.dt.month <= LAST_MONTH_OF_PREVIOUS_YEAR
-    return (year - early.astype("int64")).astype("int64")
 
 
 def parse_sic_ranges(text: str) -> tuple[tuple[int, int], ...]:
@@ -204,9 +165,8 @@ def parse_sic_ranges(text: str) -> tuple[tuple[int, int], ...]:
         On an empty string, a non-numeric item, a code of more than four digits or a range
         whose low end exceeds its high end.
     """
-    items = [s for s in str(text).split(",")]
     ranges: list[tuple[int, int]] = []
-    for item in items:
+    for item in str(text).split(","):
         m = _SIC_ITEM.match(item)
         lo = hi = -1
         if m:
@@ -222,108 +182,17 @@ def parse_sic_ranges(text: str) -> tuple[tuple[int, int], ...]:
     return tuple(ranges)
 
 
-def read_prices(path: str | Path) -> pd.DataFrame:
-    """Read a price file: one row per CIK and date.
-
-    Parameters
-    ----------
-    path : str or pathlib.Path
-        CSV with a header holding ``cik``, ``date`` (``YYYY-MM-DD`` or ``YYYYMMDD``) and
-        ``price`` (>= 0, in U.S. dollars per share), in any order and case; other columns
-        are ignored.
-
-    Returns
-    -------
-    pandas.DataFrame
-        Columns ``firm_id`` (CIK without leading zeros, text), ``date`` (datetime64),
-        ``price`` (float), sorted by date.
-
-    Raises
-    ------
-    SchemaError
-        Naming the file, the 1-based data row and the column of the first bad cell.
-    """
-    p = Path(path)
-    try:
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise SchemaError(
-            f"{p}: price file must be a readable CSV file; got {exc.strerror or exc}. "
-            "Check the path."
-        ) from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        text = raw.decode("latin-1")
-    from io import StringIO
-
-    try:
-        frame = pd.read_csv(StringIO(text), dtype=str, keep_default_na=False, sep=None,
-                            engine="python")
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, csv_error()) as exc:
-        raise SchemaError(
-            f"{p}: price file must be a CSV with columns cik, date, price; got an unreadable "
-            f"file ({str(exc).splitlines()[0] if str(exc) else exc}). Fix the file."
-        ) from None
-    frame.columns = [str(c).strip().lower() for c in frame.columns]
-    for col in ("cik", "date", "price"):
-        if col not in frame.columns:
-            raise SchemaError(
-                f"{p}: price file must have columns cik, date, price; column {col!r} is "
-                f"missing (header: {list(frame.columns)}). Add it."
-            )
-    cik = frame["cik"].str.strip()
-    ok_cik = cik.str.fullmatch(r"\d{1,10}").fillna(False).astype(bool)
-    _bad_cell(p, ok_cik, cik, "cik", "a CIK of up to 10 digits")
-    date_text = frame["date"].str.strip()
-    date = pd.to_datetime(date_text, format="%Y-%m-%d", errors="coerce")
-    compact = pd.to_datetime(date_text, format="%Y%m%d", errors="coerce")
-    date = date.fillna(compact)
-    _bad_cell(p, date.notna(), date_text, "date", "a date YYYY-MM-DD or YYYYMMDD")
-    price_text = frame["price"].str.strip()
-    price = pd.to_numeric(price_text, errors="coerce")
-    _bad_cell(p, price.notna() & (price >= 0) & np.isfinite(price.fillna(0)), price_text,
-              "price", "a number >= 0")
-    out = pd.DataFrame({
-        "firm_id": cik.str.lstrip("0").replace("", "0").astype(str),
-        "date": date.astype("datetime64[ns]"),
-        "price": price.astype(float),
-    })
-    dup = out.duplicated(["firm_id", "date"], keep="first")
-    if dup.any():
-        row = int(np.flatnonzero(dup.to_numpy())[0]) + 1
-        raise SchemaError(
-            f"{p}: price file must hold one price per cik and date; got a second price for "
-            f"cik {out['firm_id'].iloc[row - 1]} on {date_text.iloc[row - 1]} at data row {row}, "
-            "column date. Remove the duplicate."
-        )
-    return out.sort_values("date", kind="stable").reset_index(drop=True)
-
-
-def csv_error() -> type[Exception]:
-    """The csv module's parse error (raised by pandas' python engine)."""
-    import csv
-
-    return csv.Error
-
-
-def _bad_cell(path: Path, ok: pd.Series, text: pd.Series, column: str, expected: str) -> None:
-    bad = ~ok.to_numpy(dtype=bool)
-    if bad.any():
-        i = int(np.flatnonzero(bad)[0])
-        raise SchemaError(
-            f"{path}: price file column {column} must be {expected}; got {text.iloc[i]!r} at "
-            f"data row {i + 1}, column {column}. Fix that cell."
-        )
-
-
 def import_sec(
     paths: Sequence[str | Path],
     *,
     forms: Sequence[str] = ("10-K",),
     restated: bool = True,
     prices: str | Path | None = None,
-    exclude_sic: str | None = None,
+    exclude_sic: str | None = DEFAULT_EXCLUDE_SIC,
+    fx_rates: str | Path | None = None,
+    drop_subsidiaries: bool = False,
+    workers: int | None = None,
+    limits: ReadLimits = DEFAULT_LIMITS,
 ) -> SecImport:
     """Build a schema-v1 panel from quarters of the SEC Financial Statement Data Sets.
 
@@ -335,13 +204,25 @@ def import_sec(
     forms : sequence of str, default=("10-K",)
         Forms kept, among ``ANNUAL_FORMS`` (e.g. ``("10-K", "10-K/A", "10-KT")``).
     restated : bool, default=True
-        For each firm and period keep the latest filed submission (restated figures);
+        For each firm, year and column keep the latest filed figure (restated);
         ``False`` keeps the first filed.
     prices : str or pathlib.Path, optional
         Price file (see :func:`read_prices`) for market equity; without it the cover-page
         public float serves as a flagged proxy.
-    exclude_sic : str, optional
-        SIC ranges to leave out, e.g. ``"6000-6999,4900-4999"`` (financials and utilities).
+    exclude_sic : str or None, default="6000-6999,4900-4999"
+        SIC ranges to leave out (financials and utilities by default); ``None`` keeps every
+        industry.
+    fx_rates : str or pathlib.Path, optional
+        Exchange-rate file (see :func:`read_fx_rates`); without it filers reporting in
+        another currency than U.S. dollars are left out (ledger).
+    drop_subsidiaries : bool, default=False
+        Leave out (rather than flag) firm-years whose total assets equal another filer's.
+    workers : int, optional
+        Processes reading quarters in parallel (each holds one quarter at a time); default:
+        one for inputs under 64 MB in all, else the smaller of the number of quarters and
+        of CPUs.
+    limits : ReadLimits, default=DEFAULT_LIMITS
+        Bounds on what a quarter may make the importer read (hostile files).
 
     Returns
     -------
@@ -350,37 +231,44 @@ def import_sec(
     Raises
     ------
     ConfigError
-        On an unknown form, no paths or a bad SIC range string.
+        On an unknown form, no paths, a bad SIC range string or a bad worker count.
     SchemaError
         When a quarter lacks ``sub.txt`` or ``num.txt`` or a required column, cannot be
-        parsed, or the price file is malformed.
-
-    Notes
-    -----
-    The rules (submissions, fiscal year, facts, market equity) are in the module docstring.
-    ``num.txt`` is filtered while it streams, so memory grows with the facts kept, not with
-    the size of the quarter.
+        parsed, crosses a read limit, or the price or exchange-rate file is malformed.
     """
     forms_t = _check_forms(forms)
     if isinstance(paths, str | Path):
         paths = [paths]
+    paths = [Path(p) for p in paths]
     if not paths:
         raise ConfigError(
-            "paths must name at least one SEC quarter (zip or folder); got none. Give a path."
+            "paths must name at least one SEC quarter (zip or folder); got none. Give e.g. "
+            "2010q1.zip."
         )
     ranges = parse_sic_ranges(exclude_sic) if exclude_sic is not None else ()
     price_table = read_prices(prices) if prices is not None else None
-
+    fx_table = read_fx_rates(fx_rates) if fx_rates is not None else None
+    extracts = _extract_all(paths, forms_t, limits, workers)
     notes: list[str] = []
-    quarters = [locate_quarter(p) for p in paths]
-    subs = _read_submissions(quarters, notes)
-    chosen = _choose_submissions(subs, forms_t, restated, notes)
-    facts, pre = _read_facts(quarters, chosen, notes)
-    wide = _wide_facts(facts, chosen, notes)
-    panel, sources, meta = _assemble(chosen, wide)
-    panel, sources = _market_equity(panel, sources, meta, wide, price_table, chosen)
-    sources = _add_statements(sources, pre)
-    panel, sources, excluded = _filter_sic(panel, sources, ranges, exclude_sic)
+    currency_out = _currency_exclusions(extracts, fx_table)
+    assembled = assemble(extracts, restated=restated, excluded_filings=currency_out)
+    notes.extend(assembled.notes)
+    rows = assembled.rows
+    ledger = [assembled.ledger]
+    sources = assembled.sources
+    rows, fx_ledger = _apply_fx(rows, fx_table)
+    ledger.append(fx_ledger)
+    rows, extra = market_equity(_with_columns(rows), price_table)
+    rows = _float_in_currency(rows)
+    sources = _extra_sources(sources, rows, extra)
+    rows, sources, sub_ledger = _subsidiaries(rows, sources, drop_subsidiaries)
+    ledger.append(sub_ledger)
+    rows, industry_ledger = _filter_industries(rows, ranges)
+    ledger.append(industry_ledger)
+    panel = _panel(rows)
+    sources = _order_sources(sources, panel)
+    excluded = _order_ledger(pd.concat([x for x in ledger if len(x)] or [ledger[0]],
+                                       ignore_index=True))
     _coverage_notes(panel, notes)
     return SecImport(panel=panel, sources=sources, excluded=excluded, warnings=tuple(notes))
 
@@ -398,375 +286,204 @@ def _check_forms(forms: Sequence[str]) -> tuple[str, ...]:
     return out
 
 
-def _read_submissions(quarters: Sequence[Quarter], notes: list[str]) -> pd.DataFrame:
-    frames = []
-    for i, q in enumerate(quarters):
-        table, report = read_filtered(q, "sub", _SUB_COLUMNS)
-        notes.extend(report.messages(q.where("sub")))
-        frame = table.to_pandas()
-        frame = frame.astype({c: object for c in frame.columns})
-        frame["quarter"] = i
-        frames.append(frame)
-    subs = pd.concat(frames, ignore_index=True)
-    for c in _SUB_COLUMNS:
-        subs[c] = subs[c].astype(object).fillna("").map(str).str.strip()
-    dup = subs.duplicated("adsh", keep="first")
-    if dup.any():
-        notes.append(
-            f"{int(dup.sum())} submissions appear in more than one quarter given; each was "
-            "used once."
-        )
-        subs = subs.loc[~dup]
-    return subs.reset_index(drop=True)
+def _extract_all(paths: list[Path], forms: tuple[str, ...], limits: ReadLimits,
+                 workers: int | None) -> list[QuarterExtract]:
+    if workers is not None and (not isinstance(workers, int) or workers < 1):
+        raise ConfigError(f"workers must be a whole number >= 1; got {workers!r}. Use e.g. 2.")
+    if workers is None:  # starting a process costs seconds: worth it for big quarters only
+        big = sum(_size(p) for p in paths) >= PARALLEL_FROM_BYTES
+        workers = min(len(paths), os.cpu_count() or 1) if big else 1
+    n = max(1, min(workers, len(paths)))
+    if n == 1:
+        return [extract_quarter(p, forms=forms, index=i, limits=limits)
+                for i, p in enumerate(paths)]
+    # One fresh process per quarter (spawned, not forked: pyarrow's threads do not survive a
+    # fork), so each quarter's memory is returned to the system when it is done. A process
+    # that cannot be spawned (a main program read from standard input) falls back to one.
+    try:
+        with ProcessPoolExecutor(max_workers=n, mp_context=get_context("spawn"),
+                                 max_tasks_per_child=1) as pool:
+            futures = [pool.submit(extract_quarter, p, forms=forms, index=i, limits=limits)
+                       for i, p in enumerate(paths)]
+            return [f.result() for f in futures]
+    except BrokenProcessPool:
+        return [extract_quarter(p, forms=forms, index=i, limits=limits)
+                for i, p in enumerate(paths)]
 
 
-def _choose_submissions(
-    subs: pd.DataFrame, forms: tuple[str, ...], restated: bool, notes: list[str]
-) -> pd.DataFrame:
-    form = subs["form"].str.upper()
-    annual = form.isin(forms) & subs["fp"].str.upper().isin(["FY", ""])
-    sel = subs.loc[annual].copy()
-    period = pd.to_datetime(sel["period"], format="%Y%m%d", errors="coerce")
-    bad = period.isna()
-    if bad.any():
-        notes.append(
-            f"{int(bad.sum())} annual submissions have no valid period (YYYYMMDD) in sub.txt "
-            f"and were left out (first: adsh {sel.loc[bad, 'adsh'].iloc[0]})."
-        )
-    sel["period_end"] = period
-    sel = sel.loc[~bad]
-    cik = pd.to_numeric(sel["cik"], errors="coerce")
-    bad = cik.isna()
-    if bad.any():
-        notes.append(
-            f"{int(bad.sum())} annual submissions have no numeric cik and were left out "
-            f"(first: adsh {sel.loc[bad, 'adsh'].iloc[0]})."
-        )
-    sel = sel.loc[~bad]
-    sel["firm_id"] = cik.loc[~bad].astype("int64").astype(str)
-    sel = sel.sort_values(["firm_id", "period_end", "filed", "accepted", "adsh"], kind="stable")
-    keep = "last" if restated else "first"
-    dup = sel.duplicated(["firm_id", "period_end"], keep=keep)
-    if dup.any():
-        which = "later" if not restated else "earlier"
-        notes.append(
-            f"{int(dup.sum())} {which}-filed submissions for a firm and period already covered "
-            f"were not used ({'latest' if restated else 'first'} filed kept)."
-        )
-    sel = sel.loc[~dup].copy()
-    sel["fiscal_year"] = fiscal_year_of(sel["period_end"])
-    clash = sel.duplicated(["firm_id", "fiscal_year"], keep="last")
-    if clash.any():
-        firms = ", ".join(sorted(sel.loc[clash, "firm_id"].unique())[:5])
-        notes.append(
-            f"{int(clash.sum())} firm-years had two period ends in one fiscal year (a change of "
-            f"fiscal year end); the later period was kept (CIK {firms})."
-        )
-        sel = sel.loc[~clash]
-    return sel.reset_index(drop=True)
+def _size(path: Path) -> int:
+    if path.is_file():
+        return path.stat().st_size
+    if path.is_dir():
+        return sum(f.stat().st_size for f in path.iterdir() if f.is_file())
+    return 0
 
 
-def _fact_filters(adsh_set: pa.Array) -> tuple[BatchFilter, BatchFilter]:
-    """Block filters of num.txt and pre.txt: the chosen submissions and the needed tags.
-
-    Consolidated facts only (empty ``coreg``; empty ``segments``, except for the cover-page
-    share count, which some filers give per class of stock) with a non-empty value.
-    """
-    tag_set = pa.array(list(NEEDED_TAGS), pa.string())
-    shares_tag = DEI_TAGS[0]
-
-    def keep_num(batch: pa.RecordBatch) -> pa.Array:
-        names = batch.schema.names
-        col = lambda c: batch.column(names.index(c))  # noqa: E731
-        mask = pc.and_(pc.is_in(col("adsh"), value_set=adsh_set),
-                       pc.is_in(col("tag"), value_set=tag_set))
-        mask = pc.and_(mask, pc.not_equal(col("value"), ""))
-        mask = pc.and_(mask, pc.equal(col("coreg"), ""))
-        if "segments" in names:
-            seg_ok = pc.or_(pc.equal(col("segments"), ""), pc.equal(col("tag"), shares_tag))
-            mask = pc.and_(mask, seg_ok)
-        return mask
-
-    def keep_pre(batch: pa.RecordBatch) -> pa.Array:
-        names = batch.schema.names
-        col = lambda c: batch.column(names.index(c))  # noqa: E731
-        return pc.and_(pc.is_in(col("adsh"), value_set=adsh_set),
-                       pc.is_in(col("tag"), value_set=tag_set))
-
-    return keep_num, keep_pre
+def _currency_exclusions(extracts: list[QuarterExtract], fx: pd.DataFrame | None) -> pd.Series:
+    filings = pd.concat([e.filings for e in extracts], ignore_index=True)
+    foreign = filings.loc[(filings["status"] == "") & (filings["currency"] != "USD")
+                          & (filings["currency"] != "")]
+    if fx is not None:
+        return pd.Series(dtype=object)
+    return pd.Series("non_usd_currency", index=foreign["adsh"].to_numpy(), dtype=object)
 
 
-def _tag_filter(batch: pa.RecordBatch) -> pa.Array:
-    names = batch.schema.names
-    return pc.is_in(batch.column(names.index("tag")),
-                    value_set=pa.array(list(NEEDED_TAGS), pa.string()))
+def _apply_fx(rows: pd.DataFrame, fx: pd.DataFrame | None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    rows = rows.copy()
+    rows["fx_rate"] = np.nan
+    foreign = (rows["currency"] != "USD").to_numpy()
+    if fx is None or not foreign.any():
+        return rows, pd.DataFrame(columns=list(LEDGER_COLUMNS))
+    rate, _ = match_by_date(rows.loc[foreign, "currency"], rows.loc[foreign, "row_date"], fx,
+                            "currency", "rate")
+    rows.loc[foreign, "fx_rate"] = rate
+    missing = foreign & rows["fx_rate"].isna().to_numpy()
+    out = ledger_lines(rows.loc[missing], "no_fx_rate",
+                       "currency " + rows.loc[missing, "currency"].astype(str))
+    return rows.loc[~missing].reset_index(drop=True), out
 
 
-def _read_facts(
-    quarters: Sequence[Quarter], chosen: pd.DataFrame, notes: list[str]
-) -> tuple[pd.DataFrame, pd.DataFrame]:
-    facts, pres, hidden = [], [], []
-    for i, q in enumerate(quarters):
-        # Each submission's facts are read from the quarter its sub.txt row came from, so a
-        # quarter given twice is not counted twice; a quarter with nothing chosen is skipped.
-        mine = chosen.loc[chosen["quarter"] == i, "adsh"].to_numpy(dtype=str)
-        if not len(mine):
-            continue
-        keep_num, keep_pre = _fact_filters(pa.array(mine, pa.string()))
-        table, report = read_filtered(q, "num", _NUM_COLUMNS, keep_num)
-        notes.extend(report.messages(q.where("num")))
-        facts.append(table)
-        if "pre" in q.members:
-            table, report = read_filtered(q, "pre", ("adsh", "tag", "stmt", "inpth"), keep_pre)
-            notes.extend(report.messages(q.where("pre")))
-            pres.append(table)
-        if "tag" in q.members:
-            table, report = read_filtered(q, "tag", ("tag", "version", "custom", "abstract"),
-                                          _tag_filter)
-            notes.extend(report.messages(q.where("tag")))
-            t = table.to_pandas()
-            flagged = (t["custom"].astype(str).str.strip() == "1") | (
-                t["abstract"].astype(str).str.strip() == "1")
-            hidden.append(t.loc[flagged & t["tag"].isin(NEEDED_TAGS), ["tag", "version"]])
-    if not facts:
-        facts = [pa.table({c: pa.array([], pa.string()) for c in _NUM_COLUMNS})]
-    fact_frame = pa.concat_tables(facts).to_pandas()
-    fact_frame = fact_frame.astype({c: object for c in fact_frame.columns})
-    if hidden:
-        h = pd.concat(hidden, ignore_index=True).drop_duplicates().astype(object)
-        h["_hidden"] = True
-        fact_frame = fact_frame.merge(h, on=["tag", "version"], how="left")
-        fact_frame = fact_frame.loc[fact_frame["_hidden"].isna()].drop(columns="_hidden")
-    if pres:
-        pre = pa.concat_tables(pres).to_pandas().astype(object)
-    else:
-        pre = pd.DataFrame({c: pd.Series(dtype=object) for c in ("adsh", "tag", "stmt", "inpth")})
-    return fact_frame.reset_index(drop=True), pre
+def _with_columns(rows: pd.DataFrame) -> pd.DataFrame:
+    rows = rows.copy()
+    for c in (*_VALUE_COLUMNS, "public_float"):
+        if c not in rows.columns:
+            rows[c] = np.nan
+    return rows
 
 
-def _wide_facts(facts: pd.DataFrame, chosen: pd.DataFrame, notes: list[str]) -> pd.DataFrame:
-    """One row per chosen submission, one column per tag (cover-page facts prefixed dei:)."""
-    f = facts.merge(chosen[["adsh", "period"]], on="adsh", how="inner")
-    value = pd.to_numeric(f["value"], errors="coerce")
-    bad = value.isna()
-    if bad.any():
-        notes.append(f"{int(bad.sum())} facts with a non-numeric value were not used.")
-    f = f.assign(value=value.astype(float)).loc[~bad]
-    version = f["version"].astype(str)
-    standard = version.str.startswith("us-gaap/") | version.str.startswith("dei/")
-    f = f.loc[standard]
-    qtrs = pd.to_numeric(f["qtrs"], errors="coerce")
-    ddate = f["ddate"].astype(str)
-    period = f["period"].astype(str)
-    kind = f["tag"].map(TAG_KINDS)
-    is_dei = version.loc[f.index].str.startswith("dei/")
-    want_qtrs = kind.map({"instant": 0, "flow": 4, "shares_instant": 0, "shares_flow": 4})
-    want_uom = kind.map({"instant": "USD", "flow": "USD",
-                         "shares_instant": "shares", "shares_flow": "shares"})
-    gaap_ok = (~is_dei & kind.notna() & (qtrs == want_qtrs) & (f["uom"] == want_uom)
-               & (ddate == period) & (f["segments"] == ""))
-    g = f.loc[gaap_ok]
-    dup = g.duplicated(["adsh", "tag"], keep="first")
-    if dup.any():
-        notes.append(
-            f"{int(dup.sum())} facts repeated a tag already found for the same submission and "
-            "date; the first in num.txt was used."
-        )
-    wide = g.loc[~dup].pivot(index="adsh", columns="tag", values="value")
-
-    # Cover page: shares outstanding on the latest cover date on or after the period end,
-    # summed over share classes; public float on the latest date on or before it.
-    dei = f.loc[is_dei & (qtrs == 0)]
-    shares = dei.loc[(dei["tag"] == DEI_TAGS[0]) & (dei["uom"] == "shares")
-                     & (dei["ddate"].astype(str) >= dei["period"].astype(str))]
-    plain = shares["segments"] == ""
-    by_class = shares["segments"].astype(str).str.match(_CLASS_SEGMENT)
-    has_plain = plain.groupby(shares["adsh"]).transform("any").astype(bool)
-    shares = shares.loc[(plain & has_plain) | (by_class & ~has_plain)]
-    shares = shares.loc[shares["ddate"] == shares.groupby("adsh")["ddate"].transform("max")]
-    cover = shares.groupby("adsh")["value"].sum()
-    cover = cover.where(cover > 0)
-    pf = dei.loc[(dei["tag"] == DEI_TAGS[1]) & (dei["uom"] == "USD")
-                 & (dei["segments"] == "")
-                 & (dei["ddate"].astype(str) <= dei["period"].astype(str))]
-    pf = pf.loc[pf["ddate"] == pf.groupby("adsh")["ddate"].transform("max")]
-    floats = pf.groupby("adsh")["value"].sum()
-
-    wide = wide.reindex(chosen["adsh"].to_numpy())
-    wide[COVER_SHARES] = cover.reindex(wide.index).to_numpy(dtype=float)
-    wide[PUBLIC_FLOAT] = floats.reindex(wide.index).to_numpy(dtype=float)
-    wide.columns.name = None
-    return wide.astype(float)
+def _float_in_currency(rows: pd.DataFrame) -> pd.DataFrame:
+    """The public float is filed in U.S. dollars: restate it in the row's currency."""
+    proxy = (rows["market_equity_source"] == "public_float_proxy").to_numpy() & (
+        rows["currency"] != "USD").to_numpy()
+    if proxy.any():
+        rows = rows.copy()
+        rate = rows["fx_rate"].to_numpy(dtype=float)
+        rows.loc[proxy, "market_equity"] = rows.loc[proxy, "market_equity"] / rate[proxy]
+    return rows
 
 
-def _assemble(
-    chosen: pd.DataFrame, wide: pd.DataFrame
-) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
-    fy = chosen["fiscal_year"].to_numpy(dtype="int64")
-    cols = build_columns(wide, fy)
-    sic = chosen["sic"].astype(str).str.strip()
-    sic = sic.where(sic.str.fullmatch(r"\d+") & (pd.to_numeric(sic, errors="coerce") > 0))
-    panel = pd.DataFrame({
-        "firm_id": chosen["firm_id"].astype(str).to_numpy(),
-        "fiscal_year": fy,
-        "industry": sic.str.zfill(4).to_numpy(dtype=object),
-        "firm_name": chosen["name"].astype(str).to_numpy(dtype=object),
-        "currency": "USD",
-    })
-    for name, (values, _) in cols.items():
-        panel[name] = values
-    panel["market_equity"] = np.nan
-    panel["share_price"] = np.nan
-    panel["market_equity_source"] = pd.Series([None] * len(panel), dtype=object)
-    long = []
-    for name, (_, labels) in cols.items():
-        part = pd.DataFrame({"row": np.arange(len(panel)), "column": name, "source": labels})
-        long.append(part.loc[part["source"] != ""])
-    sources = pd.concat(long, ignore_index=True) if long else pd.DataFrame(
-        columns=["row", "column", "source"])
-    meta = pd.DataFrame({
-        "firm_id": panel["firm_id"],
-        "fiscal_year": panel["fiscal_year"],
-        "adsh": chosen["adsh"].to_numpy(dtype=object),
-        "form": chosen["form"].to_numpy(dtype=object),
-        "period": chosen["period_end"].dt.strftime("%Y-%m-%d").to_numpy(dtype=object),
-        "filed": pd.to_datetime(chosen["filed"], format="%Y%m%d", errors="coerce")
-        .dt.strftime("%Y-%m-%d").to_numpy(dtype=object),
-    })
-    sources = sources.join(meta, on="row")
-    return panel, sources, meta
-
-
-def _market_equity(
-    panel: pd.DataFrame,
-    sources: pd.DataFrame,
-    meta: pd.DataFrame,
-    wide: pd.DataFrame,
-    prices: pd.DataFrame | None,
-    chosen: pd.DataFrame,
-) -> tuple[pd.DataFrame, pd.DataFrame]:
-    panel = panel.copy()
-    n = len(panel)
-    price = np.full(n, np.nan)
-    price_date = np.full(n, "", dtype=object)
-    if prices is not None and n:
-        # Latest price from 31 days before to 7 days after the period end.
-        left = pd.DataFrame({
-            "row": np.arange(n),
-            "firm_id": panel["firm_id"].astype(str).to_numpy(),
-            "key": (chosen["period_end"] + pd.Timedelta(days=7)).astype("datetime64[ns]")
-            .to_numpy(),
-        }).sort_values("key", kind="stable")
-        right = prices.rename(columns={"date": "key"}).assign(
-            price_date=prices["date"].dt.strftime("%Y-%m-%d"))
-        right["firm_id"] = right["firm_id"].astype(str)
-        matched = pd.merge_asof(left, right, on="key", by="firm_id", direction="backward",
-                                tolerance=pd.Timedelta(days=38)).sort_values("row")
-        price = matched["price"].to_numpy(dtype=float)
-        price_date = matched["price_date"].astype(object).fillna("").to_numpy(dtype=object)
-    shares = panel["shares_outstanding"].to_numpy(dtype=float)
-    from_price = ~np.isnan(price) & ~np.isnan(shares)
-    floats = wide[PUBLIC_FLOAT].to_numpy(dtype=float)
-    from_float = ~from_price & ~np.isnan(floats)
-    panel["share_price"] = np.where(~np.isnan(price), price, np.nan)
-    panel["market_equity"] = np.where(from_price, price * shares,
-                                      np.where(from_float, floats, np.nan))
-    panel["market_equity_source"] = pd.Series(
-        np.where(from_price, "price_file", np.where(from_float, "public_float_proxy", None)),
-        dtype=object,
-    )
-    rows = np.arange(n)
-    extra = []
-    if from_price.any() or (~np.isnan(price)).any():
-        have_price = ~np.isnan(price)
-        extra.append(pd.DataFrame({
-            "row": rows[have_price], "column": "share_price",
-            "source": "price file " + price_date[have_price].astype(object),
-        }))
-        extra.append(pd.DataFrame({
-            "row": rows[from_price], "column": "market_equity",
-            "source": "share_price x shares_outstanding",
-        }))
-    extra.append(pd.DataFrame({
-        "row": rows[from_float], "column": "market_equity",
-        "source": f"{PUBLIC_FLOAT} (proxy)",
-    }))
-    add = pd.concat(extra, ignore_index=True)
-    add = add.join(meta, on="row")
-    sources = pd.concat([sources, add], ignore_index=True)
-    return panel, sources
-
-
-def _add_statements(sources: pd.DataFrame, pre: pd.DataFrame) -> pd.DataFrame:
-    sources = sources.copy()
-    if pre.empty or sources.empty:
-        sources["statement"] = ""
+def _extra_sources(sources: pd.DataFrame, rows: pd.DataFrame, extra: pd.DataFrame
+                   ) -> pd.DataFrame:
+    if extra.empty:
         return sources
-    p = pre.assign(
-        stmt=pre["stmt"].astype(str).str.strip()
-        + np.where(pre["inpth"].astype(str).str.strip() == "1", "*", ""),
-        tag=pre["tag"].astype(str),
-    )
-    p = p.drop_duplicates(["adsh", "tag", "stmt"])
-    tags = sources[["adsh", "source"]].assign(
-        tag=sources["source"].astype(str).str.findall(_TAG_IN_LABEL))
-    tags = tags.explode("tag").dropna(subset=["tag"])
-    tags = tags.reset_index().merge(p[["adsh", "tag", "stmt"]], on=["adsh", "tag"])
-    stmt = (tags.drop_duplicates(["index", "stmt"]).sort_values(["index", "stmt"])
-            .groupby("index")["stmt"].agg(";".join))
-    sources["statement"] = stmt.reindex(sources.index).fillna("").astype(object).to_numpy()
-    return sources
+    pick = rows.iloc[extra["row"].to_numpy()]
+    own = pick["own_adsh"].astype(str).to_numpy()
+    meta = sources.drop_duplicates("adsh").set_index("adsh")
+    add = pd.DataFrame({
+        "firm_id": pick["firm_id"].to_numpy(), "fiscal_year": pick["fiscal_year"].to_numpy(),
+        "column": extra["column"].to_numpy(), "source": extra["source"].to_numpy(),
+        "adsh": own,
+        "form": pd.Series(own).map(meta["form"]).fillna("").to_numpy(dtype=object),
+        "period": pd.Series(own).map(meta["period"]).fillna("").to_numpy(dtype=object),
+        "filed": pd.Series(own).map(meta["filed"]).fillna("").to_numpy(dtype=object),
+        "fact_date": pick["row_date"].to_numpy(), "role": "own year", "statement": "",
+        "flags": "",
+    })
+    proxy = add["source"].str.contains("Public").to_numpy()
+    add.loc[proxy, "statement"] = "cover page"
+    add.loc[~proxy & (add["column"] == "share_price"), "adsh"] = ""
+    return pd.concat([sources, add], ignore_index=True)
 
 
-def _filter_sic(
-    panel: pd.DataFrame,
-    sources: pd.DataFrame,
-    ranges: tuple[tuple[int, int], ...],
-    text: str | None,
-) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
-    sic = pd.to_numeric(panel["industry"], errors="coerce").to_numpy(dtype=float)
-    matched = np.full(len(panel), "", dtype=object)
-    for lo, hi in reversed(ranges):
-        inside = (sic >= lo) & (sic <= hi)
-        matched = np.where(inside, f"{lo:04d}-{hi:04d}", matched)
+def _subsidiaries(rows: pd.DataFrame, sources: pd.DataFrame, drop: bool
+                  ) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    flagged, parent = find_subsidiaries(rows)
+    if not flagged.any():
+        return rows, sources, pd.DataFrame(columns=list(LEDGER_COLUMNS))
+    rows = rows.copy()
+    detail = pd.Series(parent[flagged], index=rows.index[flagged])
+    detail = "total assets equal CIK " + detail + "'s at " + rows.loc[flagged, "row_date"]
+    if drop:
+        out = ledger_lines(rows.loc[flagged], "subsidiary_duplicate", detail)
+        rows = rows.loc[~flagged].reset_index(drop=True)
+        return rows, sources, out
+    old = rows.loc[flagged, "flags"].astype(str)
+    rows.loc[flagged, "flags"] = np.where(old == "", "subsidiary_duplicate",
+                                          old + ";subsidiary_duplicate")
+    note = pd.DataFrame({
+        "firm_id": rows.loc[flagged, "firm_id"].to_numpy(),
+        "fiscal_year": rows.loc[flagged, "fiscal_year"].to_numpy(),
+        "column": "import_flags", "source": "subsidiary_duplicate: " + detail.to_numpy(),
+        "adsh": rows.loc[flagged, "own_adsh"].to_numpy(), "form": "", "period": "",
+        "filed": "", "fact_date": rows.loc[flagged, "row_date"].to_numpy(), "role": "",
+        "statement": "BS", "flags": "subsidiary_duplicate",
+    })
+    return rows, pd.concat([sources, note], ignore_index=True), pd.DataFrame(
+        columns=list(LEDGER_COLUMNS))
+
+
+def _filter_industries(rows: pd.DataFrame, ranges: tuple[tuple[int, int], ...]
+                       ) -> tuple[pd.DataFrame, pd.DataFrame]:
+    rows = rows.copy()
+    sic = rows["industry"].astype(str).str.strip()
+    number = pd.to_numeric(sic, errors="coerce")
+    rows["industry"] = sic.where(sic.str.fullmatch(r"\d+") & (number > 0)).str.zfill(4)
+    matched = industry_ranges(rows, ranges)
     out = matched != ""
-    dropped = panel.loc[out].assign(sic_range=matched[out])
-    excluded = (
-        dropped.groupby("firm_id", sort=False)
-        .agg(firm_name=("firm_name", "last"), industry=("industry", "last"),
-             sic_range=("sic_range", "first"), firm_years=("fiscal_year", "size"))
-        .reset_index()
-    )
-    excluded = excluded.reindex(columns=list(EXCLUDED_COLUMNS))
-    excluded["firm_years"] = excluded["firm_years"].astype("int64")
-    keep_rows = np.flatnonzero(~out)
-    new_row = np.full(len(panel), -1)
-    new_row[keep_rows] = np.arange(len(keep_rows))
-    panel = panel.iloc[keep_rows]
-    sources = sources.loc[~out[sources["row"].to_numpy(dtype=int)]]
-    sources = sources.assign(row=new_row[sources["row"].to_numpy(dtype=int)])
+    ledger = ledger_lines(rows.loc[out], "excluded_industry",
+                          "SIC " + rows.loc[out, "industry"].astype(str) + " in "
+                          + pd.Series(matched[out], index=rows.index[out]))
+    return rows.loc[~out].reset_index(drop=True), ledger
 
-    # Stable output order: firm (numeric CIK), fiscal year; sources by schema column order.
-    order = np.lexsort((panel["fiscal_year"].to_numpy(),
-                        panel["firm_id"].astype("int64").to_numpy()))
-    rank = np.empty(len(order), dtype=int)
-    rank[order] = np.arange(len(order))
-    panel = panel.iloc[order].reset_index(drop=True)
-    panel = panel.reindex(columns=list(PANEL_COLUMNS))
+
+def _panel(rows: pd.DataFrame) -> pd.DataFrame:
+    from levgap.industries import sic_title
+
+    order = np.lexsort((rows["fiscal_year"].to_numpy(),
+                        pd.to_numeric(rows["firm_id"], errors="coerce").to_numpy()))
+    rows = rows.iloc[order].reset_index(drop=True)
+    panel = pd.DataFrame(index=rows.index)
+    for c in PANEL_COLUMNS:
+        if c == "industry_name":
+            panel[c] = rows["industry"].map(lambda s: sic_title(s) if isinstance(s, str)
+                                            else None).astype(object)
+        elif c == "import_flags":
+            panel[c] = rows["flags"].astype(object)
+        elif c in rows.columns:
+            panel[c] = rows[c]
+        else:
+            panel[c] = np.nan
     panel = panel.astype({
-        "firm_id": object, "industry": object, "firm_name": object,
-        "currency": object, "market_equity_source": object, "fiscal_year": "int64",
+        "firm_id": object, "industry": object, "firm_name": object, "currency": object,
+        "market_equity_source": object, "industry_name": object, "import_flags": object,
+        "fiscal_year": "int64",
         **{c: float for c in PANEL_COLUMNS if c in BY_NAME and BY_NAME[c].kind == "number"},
     })
+    panel["market_equity_source"] = panel["market_equity_source"].where(
+        panel["market_equity_source"].notna(), None)
+    return panel
+
+
+def _order_sources(sources: pd.DataFrame, panel: pd.DataFrame) -> pd.DataFrame:
+    keys = pd.MultiIndex.from_frame(panel[["firm_id", "fiscal_year"]])
+    rank = pd.Series(np.arange(len(panel)), index=keys)
+    s = sources.reindex(columns=list(SOURCE_COLUMNS))
+    pos = pd.MultiIndex.from_frame(s[["firm_id", "fiscal_year"]].astype(
+        {"firm_id": object, "fiscal_year": "int64"}))
+    r = rank.reindex(pos).to_numpy()
+    s = s.loc[~np.isnan(r)].assign(_r=r[~np.isnan(r)])
     col_rank = {c: i for i, c in enumerate(PANEL_COLUMNS)}
-    sources = sources.assign(
-        _r=rank[sources["row"].to_numpy(dtype=int)],
-        _c=sources["column"].map(col_rank),
-    ).sort_values(["_r", "_c"], kind="stable")
-    sources = sources.reindex(columns=list(SOURCE_COLUMNS)).reset_index(drop=True)
-    sources = sources.astype({c: object for c in SOURCE_COLUMNS if c != "fiscal_year"})
-    sources["fiscal_year"] = sources["fiscal_year"].astype("int64")
-    return panel, sources, excluded.reset_index(drop=True)
+    s = s.assign(_c=s["column"].map(col_rank)).sort_values(["_r", "_c"], kind="stable")
+    s = s.drop(columns=["_r", "_c"]).reset_index(drop=True)
+    s = s.astype({c: object for c in SOURCE_COLUMNS if c != "fiscal_year"})
+    s["fiscal_year"] = s["fiscal_year"].astype("int64")
+    return s
+
+
+def _order_ledger(ledger: pd.DataFrame) -> pd.DataFrame:
+    ledger = ledger.reindex(columns=list(LEDGER_COLUMNS))
+    if ledger.empty:
+        return ledger.astype({c: object for c in LEDGER_COLUMNS if c != "fiscal_year"}
+                             ).astype({"fiscal_year": "int64"})
+    cik = pd.to_numeric(ledger["firm_id"], errors="coerce").fillna(-1).to_numpy()
+    order = np.lexsort((ledger["fiscal_year"].to_numpy(), cik))
+    ledger = ledger.iloc[order].reset_index(drop=True)
+    sic = ledger["industry"].astype(object).where(ledger["industry"].notna(), "").astype(str)
+    ledger["industry"] = np.where(sic.str.fullmatch(r"\d+") & (sic != "0"), sic.str.zfill(4),
+                                  None)
+    ledger = ledger.astype({c: object for c in LEDGER_COLUMNS if c != "fiscal_year"})
+    ledger["fiscal_year"] = ledger["fiscal_year"].astype("int64")
+    return ledger
 
 
 def _coverage_notes(panel: pd.DataFrame, notes: list[str]) -> None:
@@ -776,9 +493,9 @@ def _coverage_notes(panel: pd.DataFrame, notes: list[str]) -> None:
     no_sic = int(panel["industry"].isna().sum())
     if no_sic:
         notes.append(f"{no_sic} firm-years have no SIC code in sub.txt (industry missing).")
-    for col in PANEL_COLUMNS:
-        spec = BY_NAME.get(col)
-        if spec is None or spec.kind != "number" or spec.minimum is None:
+    for col in _VALUE_COLUMNS:
+        spec = BY_NAME[col]
+        if spec.minimum is None:
             continue
         values = panel[col]
         below = int((values <= spec.minimum).sum() if spec.strict
@@ -798,19 +515,20 @@ def _coverage_notes(panel: pd.DataFrame, notes: list[str]) -> None:
             )
 
 
-def write_sec_import(result: SecImport, out_path: str | Path) -> tuple[Path, Path]:
-    """Write the panel and its sources beside it, each atomically.
+def write_sec_import(result: SecImport, out_path: str | Path) -> tuple[Path, Path, Path]:
+    """Write the panel, its sources and its ledger beside it, each atomically.
 
     Parameters
     ----------
     result : SecImport
     out_path : str or pathlib.Path
-        ``PANEL.csv`` or ``PANEL.parquet``; the sources go to ``PANEL.sources.csv``.
+        ``PANEL.csv`` or ``PANEL.parquet``; the sources go to ``PANEL.sources.csv`` and the
+        ledger to ``PANEL.excluded.csv``.
 
     Returns
     -------
-    (pathlib.Path, pathlib.Path)
-        The panel file and the sources file.
+    (pathlib.Path, pathlib.Path, pathlib.Path)
+        The panel, sources and ledger files.
 
     Raises
     ------
@@ -827,10 +545,10 @@ def write_sec_import(result: SecImport, out_path: str | Path) -> tuple[Path, Pat
             "panel.csv."
         )
     sources_path = out.with_name(out.stem + ".sources.csv")
+    excluded_path = out.with_name(out.stem + ".excluded.csv")
     # The project's one atomic writer (temporary name beside the target, then os.replace)
     # and its formula neutraliser for CSV cells.
-    from levgap.report.files import atomic_file
-    from levgap.report.tables import neutralise
+    from levgap.outputs import atomic_file, neutralise
 
     with atomic_file(out) as tmp:
         if suffix == ".csv":
@@ -839,4 +557,6 @@ def write_sec_import(result: SecImport, out_path: str | Path) -> tuple[Path, Pat
             result.panel.to_parquet(tmp, index=False)
     with atomic_file(sources_path) as tmp:
         neutralise(result.sources).to_csv(tmp, index=False)
-    return out, sources_path
+    with atomic_file(excluded_path) as tmp:
+        neutralise(result.excluded).to_csv(tmp, index=False)
+    return out, sources_path, excluded_path

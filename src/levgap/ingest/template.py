@@ -1,6 +1,7 @@
-"""The input template, generated from ``schema.py``: a CSV, its README and an example run.toml.
+"""The input template, generated from ``schema.py``: a CSV, its README, an example run.toml
+and an example deal scenario file (``deal.toml``, from ``levgap.ingest.deal_template``).
 
-``levgap template`` writes these three files (``levgap.report.files.write_template``); the
+``levgap template`` writes these four files (``levgap.report.files.write_template``); the
 repository's ``data_templates/`` holds the same text and a test keeps the two identical, so
 the documentation cannot drift from the schema the reader enforces.
 """
@@ -17,11 +18,14 @@ from levgap.codes import (
     MEASURE_REASONS,
     NA_TOKENS,
     REASONS,
+    SEC_FLAGS,
+    SEC_REASONS,
     YEAR_RANGE,
 )
+from levgap.ingest.deal_template import deal_template
 from levgap.schema import COLUMNS, SCHEMA_VERSION, Column
 
-TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml")
+TEMPLATE_FILES: tuple[str, ...] = ("panel_template.csv", "README.md", "run.toml", "deal.toml")
 
 # Invented example rows (a fictitious axle maker and a fictitious food co-operative); the
 # first row is the schema's own examples.
@@ -93,11 +97,15 @@ def template_readme() -> str:
                         {**REASONS, **ANALYSIS_REASONS, **MEASURE_REASONS}.items())
     flags = "\n".join(f"| `{k}` | {v} |" for k, v in {**FLAGS, **ANALYSIS_FLAGS}.items())
     blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"
+    sec_reasons = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_REASONS.items())
+    sec_flags = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_FLAGS.items())
     return f"""# levgap input template (schema v{SCHEMA_VERSION})
 
 `panel_template.csv` shows the layout levgap reads: one row per firm and fiscal year,
 `firm_id` + `fiscal_year` unique. The example rows are invented. `run.toml` is an annotated
 run configuration (`levgap analyze PANEL --config run.toml`); every key in it is optional.
+`deal.toml` is an annotated deal scenario file (`levgap proforma RESULTS FIRM_ID --scenario
+deal.toml`), written for the demo's firm TR0144.
 
 Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without BOM), Parquet
 or XLSX (the first sheet, or `[input] sheet`; formulas are read as the values the spreadsheet
@@ -117,19 +125,32 @@ currency; outputs are in that unit.
 {cols}
 
 - `firm_id`, `industry`, `firm_name` and `currency` are text: leading zeros are kept
-  (`0457` stays `0457`); surrounding spaces are removed.
+  (`0457` stays `0457`); surrounding spaces and NUL bytes are removed. A code written as a
+  whole number with a `.0` fraction (`3711.0`, as spreadsheets export numbers) is the whole
+  number (`3711`) in `firm_id` and `industry`, as a number cell of a workbook is, so `3711`
+  and `3711.0` are one industry.
 - `fiscal_year` must be a whole number between {lo} and {hi} (`2021` or `2021.0`).
-- Numbers use `.` as the decimal mark unless `[input] decimal` says otherwise, and no
-  thousands separator unless `[input] thousands` gives one (a space there also accepts
-  no-break spaces). Exponents (`1.5e3`) and accounting negatives (`(12.5)` is -12.5) are
-  accepted; currency signs and `%` are not.
-- Blank values: {blanks} (case ignored) are read as a blank, not as text.
+- Numbers use `.` as the decimal mark unless `[input] decimal` says otherwise. A thousands
+  mark is read only where `[input] thousands` gives one (a space there also accepts no-break
+  spaces) or, with `decimal = ","`, as `.` when none is given; it must group the digits by
+  three: with `decimal = ","`, `147.782` is 147782 and `1.234.567,8` is 1234567.8, while
+  `1.5` is not a number (the row is excluded as `non_numeric`) rather than a guess. With
+  the default `decimal = "."`, `147.782` is 147.782 and `1,5` is not a number. Exponents
+  (`1.5e3`) and accounting negatives (`(12.5)` is -12.5) are accepted; currency signs and
+  `%` are not.
+- Blank values: {blanks} (case ignored) are read as a blank, not as text, in every column:
+  a `firm_id` of `NA` or `null` is a blank `firm_id` (reason `missing_value`).
 - `market_equity`: when blank, `shares_outstanding * share_price` is used where both are
   given.
+- `currency` must be an ISO 4217 code (case ignored; the list ships with levgap, withdrawn
+  codes such as `DEM` included); another value excludes the row (`unknown_currency`).
 - `currency` and `fx_rate`: when several currencies appear, or rows carry a currency other
   than `[units] currency`, a file without an `fx_rate` column is refused; with the column,
-  rows whose currency is not `[units] currency` need a value. A blank `fx_rate` otherwise
-  counts as 1.
+  every row whose currency is not `[units] currency` needs a value, a row with a blank
+  `currency` included (it is not assumed to be in the reference currency). A blank `fx_rate`
+  otherwise counts as 1.
+- Money after `[units] scale` and `fx_rate` must stay within +/-1e300 (ratios and sums of
+  larger values overflow); a row beyond it is excluded (`money_overflow`).
 
 ## What happens to each row
 
@@ -167,16 +188,48 @@ Flags appear, `;`-joined, in the `flags` column of the outputs.
 Optional numbers that are not numbers, or below their allowed minimum, are treated as blank,
 the row is flagged `invalid_<column>`, and a warning names the rows.
 
+## Panels built by `levgap import-sec`
+
+A panel written by `levgap import-sec` (the SEC's Financial Statement Data Sets) carries,
+beside the columns above, `industry_name` (the SEC's title of the SIC code),
+`market_equity_source` and `import_flags`, which levgap's analysis ignores. Its conventions:
+
+- `book_equity` excludes noncontrolling interests: StockholdersEquity; else PartnersCapital
+  or MembersEquity; else the total including noncontrolling interests minus the
+  noncontrolling-interest line.
+- `total_debt` is the sum of the debt lines the filer presents on its balance sheet
+  (subtotals not added; finance and capital leases presented there included), so
+  `lease_liabilities` holds operating leases only and `leases_as_debt` adds just those.
+- `fiscal_year` is the calendar year of the balance-sheet date, one less for dates in
+  January to May; a 10-K also gives the previous year (its comparatives), and the latest
+  filing's figure is used for a year reported twice unless `--as-first-filed`.
+- `PANEL.sources.csv` names, for every number, the tag or formula (every line summed), the
+  filing (`adsh`), the date of the fact, whether it is the filing's own year or a
+  comparative, the statement that presented it and its flags.
+
+### Import flags (`import_flags`, the row is kept)
+
+| flag | meaning |
+|---|---|
+{sec_flags}
+
+### Import reasons (`PANEL.excluded.csv`, the firm-year is not in the panel)
+
+| reason | meaning |
+|---|---|
+{sec_reasons}
+
 ## Whole-file errors (exit code 2, one line naming the file)
 
 - a required column is missing (the message lists the missing columns and the columns found);
 - a `[columns]` entry names a header the file lacks, or a column matches several headers;
 - several currencies, or a currency other than `[units] currency`, without an `fx_rate`
   column;
-- the file cannot be read: not CSV/Parquet/XLSX, an unclosed quote in the header, a row with
-  more or fewer fields than the header (the message names the row), bytes that are not text
-  in the configured `[input] encoding`. Without a configured encoding, text that is not UTF-8
-  is read as Windows-1252/Latin-1 with a warning.
+- the file cannot be read: not CSV/Parquet/XLSX, not a regular file (a device or a pipe), an
+  unclosed quote in the header, a row with more or fewer fields than the header (the message
+  names the row), bytes that are not text in the configured `[input] encoding`. Without a
+  configured encoding, text that is not UTF-8 is read as Windows-1252/Latin-1 with a
+  warning, and UTF-16 without a byte-order mark is refused (set `[input] encoding`).
 """
 
 
@@ -233,7 +286,7 @@ band_prior_rows = 10           # firm-years at which an industry's own spread se
 
 
 def template_files() -> dict[str, str]:
-    """File name -> text of the three template files.
+    """File name -> text of the four template files.
 
     Returns
     -------
@@ -243,4 +296,5 @@ def template_files() -> dict[str, str]:
         "panel_template.csv": template_csv(),
         "README.md": template_readme(),
         "run.toml": TEMPLATE_TOML,
+        "deal.toml": deal_template(),
     }

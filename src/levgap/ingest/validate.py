@@ -17,18 +17,18 @@ from collections.abc import Callable, Iterable, Mapping
 
 import numpy as np
 import pandas as pd
-import pyarrow as pa
-import pyarrow.compute as pc
 
-from levgap.codes import FLAGS, NA_TOKENS, YEAR_RANGE
-from levgap.config import InputOptions, RunConfig
+from levgap.codes import FLAGS, MONEY_LIMIT, YEAR_RANGE
+from levgap.config import RunConfig
+from levgap.currencies import CURRENCIES
 from levgap.errors import SchemaError, warn_data
+from levgap.ingest.cells import CODE_COLUMNS, parse_numbers, text_cells
 from levgap.panel import EXCLUSION_COLUMNS, Panel
-from levgap.schema import BY_NAME, COLUMNS, KEY, NUMERIC, REQUIRED
+from levgap.schema import BY_NAME, COLUMNS, KEY, MONEY, NUMERIC, REQUIRED
+
+__all__ = ["parse_numbers", "resolve_columns", "validate_panel"]
 
 _TEXT = tuple(c.name for c in COLUMNS if c.kind == "text")
-_NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
-_SPACES = (" ", "\u00a0", "\u202f")
 _EXCLUDE_ON_BAD = frozenset(REQUIRED) | {"fx_rate"}
 
 Texts = dict[str, pd.Series]
@@ -123,15 +123,16 @@ def validate_panel(
         notes.append(f"columns not in schema v1 were ignored: {_listing(ignored)}")
 
     text: dict[str, pd.Series] = {}
+    raw: dict[str, pd.Series] = {}
     for col in _TEXT:
         if col in names:
-            text[col] = _text(frame[names[col]])
+            text[col] = text_cells(frame[names[col]], code=col in CODE_COLUMNS)
+            raw[col] = frame[names[col]]
         else:
             text[col] = pd.Series(np.full(n, "", dtype=object), dtype="str")
     values: dict[str, np.ndarray] = {}
     blank: dict[str, np.ndarray] = {}
     bad: dict[str, np.ndarray] = {}
-    raw: dict[str, pd.Series] = {}
     for col in NUMERIC:
         if col in names:
             values[col], blank[col], bad[col] = parse_numbers(frame[names[col]], opts)
@@ -141,7 +142,7 @@ def validate_panel(
             blank[col] = np.ones(n, dtype=bool)
             bad[col] = np.zeros(n, dtype=bool)
 
-    currencies = sorted(c for c in text["currency"].str.upper().unique() if c)
+    currencies = sorted(c for c in text["currency"].str.upper().unique() if c in CURRENCIES)
     reference = (config.units.currency or "").strip().upper()
     foreign = [c for c in currencies if reference and c != reference]
     needs_fx = len(currencies) > 1 or bool(foreign)
@@ -154,7 +155,8 @@ def validate_panel(
             "currency."
         )
 
-    checks = _row_checks(text, values, blank, bad, raw, reference, needs_fx)
+    checks = _row_checks(text, values, blank, bad, raw, reference, needs_fx,
+                         config.units.scale)
     reason = np.full(n, "", dtype=object)
     details: dict[int, list[str]] = {}
     for code, mask, describe in checks:
@@ -228,6 +230,15 @@ def resolve_columns(
     by_norm: dict[str, list[str]] = {}
     for h in headers:
         by_norm.setdefault(_norm(h), []).append(h)
+    by_header: dict[str, list[str]] = {}
+    for col, want in mapping.items():
+        by_header.setdefault(str(want).strip().lower(), []).append(col)
+    for cols in by_header.values():
+        if len(cols) > 1:
+            raise SchemaError(
+                f"{source}: [columns] {' and '.join(cols)} must name different headers; got "
+                f"both = {mapping[cols[0]]!r}. Map each schema column to its own header."
+            )
     for col in BY_NAME:
         if col in mapping:
             want = mapping[col]
@@ -255,6 +266,15 @@ def resolve_columns(
                 f"{_listing(cands)}. Rename one or map it in [columns]."
             )
     missing = [c for c in REQUIRED if c not in found]
+    taken = {v: k for k, v in found.items() if k in mapping}
+    for col in missing:
+        own = [h for h in by_norm.get(_norm(col), []) if h in taken]
+        if own:
+            raise SchemaError(
+                f"{source}: required column {col} matches the header {own[0]!r}, but [columns] "
+                f"{taken[own[0]]} = {own[0]!r} takes that header; map {col} to another header "
+                f"in [columns] or correct the {taken[own[0]]} entry."
+            )
     if missing:
         raise SchemaError(
             f"{source}: required columns must be present; missing {', '.join(missing)}; "
@@ -271,124 +291,6 @@ def _listing(items: Iterable[str], limit: int = 40) -> str:
         for i in items[:limit]
     )
     return shown + (f", ... ({len(items) - limit} more)" if len(items) > limit else "")
-
-
-# ---------------------------------------------------------------------------------------------
-# cells
-
-
-def _text(series: pd.Series) -> pd.Series:
-    """Text cells stripped, blanks as ``""``; whole-number floats lose their ``.0``."""
-    if isinstance(series.dtype, pd.StringDtype):
-        out = series.str.strip().fillna("")
-    elif pd.api.types.is_integer_dtype(series.dtype):
-        out = series.astype("str").mask(series.isna(), "")
-    else:
-        obj = series.to_numpy(dtype=object)
-        out = pd.Series([_cell_text(v) for v in obj], dtype="str")
-    return out.astype("str").reset_index(drop=True)
-
-
-def _cell_text(v: object) -> str:
-    if v is None or v is pd.NA or v is pd.NaT:
-        return ""
-    if isinstance(v, float | np.floating):
-        if v != v:
-            return ""
-        if float(v).is_integer():
-            return str(int(v))
-    return str(v).replace("\x00", "").strip()
-
-
-def parse_numbers(
-    series: pd.Series, options: InputOptions | None = None
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Parse a column of cells as numbers, vectorised.
-
-    Parameters
-    ----------
-    series : pandas.Series
-        Numbers, text, or a mix (from a workbook).
-    options : InputOptions, optional
-        ``decimal`` and ``thousands`` marks of text numbers. A thousands mark that is a space
-        also removes no-break spaces.
-
-    Returns
-    -------
-    values : numpy.ndarray
-        float64, NaN where blank or not a number.
-    blank : numpy.ndarray
-        bool, the cell is empty or one of ``NA_TOKENS``.
-    bad : numpy.ndarray
-        bool, the cell holds something that is not a finite number.
-    """
-    options = options or InputOptions()
-    dtype = series.dtype
-    if pd.api.types.is_bool_dtype(dtype):
-        series = series.astype(object)
-        dtype = series.dtype
-    if pd.api.types.is_numeric_dtype(dtype):
-        values = series.to_numpy(dtype=np.float64, na_value=np.nan)
-        blank = np.isnan(values)
-        bad = np.isinf(values)
-        values = np.where(bad, np.nan, values)
-        return values, blank, bad
-    if isinstance(dtype, pd.StringDtype):
-        return _parse_text(pa.array(series, from_pandas=True), options)
-    obj = series.to_numpy(dtype=object)
-    isnum = np.fromiter(
-        (
-            isinstance(v, int | float | np.integer | np.floating)
-            and not isinstance(v, bool | np.bool_)
-            for v in obj
-        ),
-        dtype=bool,
-        count=len(obj),
-    )
-    strs = pa.array(
-        ["" if (isnum[i] or v is None or v is pd.NA or v is pd.NaT) else str(v)
-         for i, v in enumerate(obj)],
-        type=pa.string(),
-    )
-    values, blank, bad = _parse_text(strs, options)
-    if isnum.any():
-        nums = obj[isnum].astype(np.float64)
-        values[isnum] = np.where(np.isinf(nums), np.nan, nums)
-        blank[isnum] = np.isnan(nums)
-        bad[isnum] = np.isinf(nums)
-    return values, blank, bad
-
-
-def _parse_text(
-    arr: pa.Array | pa.ChunkedArray, options: InputOptions
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    if not pa.types.is_string(arr.type) and not pa.types.is_large_string(arr.type):
-        arr = pc.cast(arr, pa.string())
-    arr = pc.utf8_trim_whitespace(pc.fill_null(arr, ""))
-    blank = pc.is_in(pc.utf8_lower(arr), value_set=pa.array(NA_TOKENS))
-    if options.thousands:
-        seps = _SPACES if options.thousands in _SPACES else (options.thousands,)
-        for sep in seps:
-            arr = pc.replace_substring(arr, sep, "")
-    if options.decimal != ".":
-        arr = pc.replace_substring(arr, options.decimal, ".")
-    # accounting negatives: (12.5) is -12.5
-    if pc.any(pc.starts_with(arr, "(")).as_py():
-        arr = pc.replace_substring_regex(arr, r"^\(\s*(.*?)\s*\)$", r"-\1")
-    ok = pc.match_substring_regex(arr, _NUMBER_RE)
-    nums = pc.cast(pc.if_else(ok, arr, pa.scalar(None, pa.string())), pa.float64())
-    values = nums.to_numpy(zero_copy_only=False).astype(np.float64, copy=True)
-    blank_np = _bool(blank)
-    ok_np = _bool(ok)
-    finite = np.isfinite(values)
-    bad = ~blank_np & ~(ok_np & finite)
-    values[~finite] = np.nan
-    values[blank_np] = np.nan
-    return values, blank_np, bad
-
-
-def _bool(arr: pa.Array | pa.ChunkedArray) -> np.ndarray:
-    return np.asarray(pc.fill_null(arr, False).to_numpy(zero_copy_only=False), dtype=bool)
 
 
 def _show(raw: pd.Series, i: int) -> str:
@@ -409,9 +311,11 @@ def _row_checks(
     raw: Texts,
     reference: str,
     needs_fx: bool,
+    scale: float,
 ) -> list[tuple[str, np.ndarray, Describe]]:
     """(code, mask, describe) in the order of ``REASONS``; describe words each hit."""
     v = values
+    n = len(v["total_assets"])
 
     def non_numeric(hit: np.ndarray) -> list[str]:
         out: dict[int, list[str]] = {int(i): [] for i in hit}
@@ -423,13 +327,17 @@ def _row_checks(
         return ["; ".join(out[int(i)]) for i in hit]
 
     miss_cols = list(REQUIRED)
+    currency = text["currency"].str.upper()
+    # With several currencies (or one other than the reference), a row's money reaches the
+    # reference currency only through its fx_rate: a blank currency is not assumed to be the
+    # reference one.
     fx_needed = (
-        (text["currency"].str.upper() != reference).to_numpy(dtype=bool)
-        if needs_fx else np.zeros(len(v["total_assets"]), dtype=bool)
+        ((currency == "") | (currency != reference)).to_numpy(dtype=bool)
+        if needs_fx else np.zeros(n, dtype=bool)
     )
 
     def missing_mask() -> np.ndarray:
-        m = np.zeros(len(v["total_assets"]), dtype=bool)
+        m = np.zeros(n, dtype=bool)
         for c in miss_cols:
             m |= (text[c] == "").to_numpy(dtype=bool) if c in text else blank[c]
         return m | (fx_needed & blank["fx_rate"])
@@ -437,12 +345,35 @@ def _row_checks(
     def missing(hit: np.ndarray) -> list[str]:
         out = []
         for i in hit:
-            cols = [c for c in miss_cols
+            cols = [f"{c}{_token(raw, c, int(i))}" for c in miss_cols
                     if (text[c].iloc[i] == "" if c in text else blank[c][i])]
             if fx_needed[i] and blank["fx_rate"][i]:
-                cols.append("fx_rate")
+                why = ("currency is blank" if currency.iloc[i] == "" else
+                       f"currency is {currency.iloc[i]}")
+                cols.append(f"fx_rate{_token(raw, 'fx_rate', int(i))} ({why} in a file with "
+                            "several currencies)")
             out.append(f"{', '.join(cols)} must have a value; got a blank")
         return out
+
+    unknown = ((currency != "") & ~currency.isin(CURRENCIES)).to_numpy(dtype=bool)
+
+    def unknown_currency(hit: np.ndarray) -> list[str]:
+        return [f"currency must be an ISO 4217 code such as EUR; got "
+                f"{_show(text['currency'], int(i))}" for i in hit]
+
+    fx = np.where(np.isnan(v["fx_rate"]), 1.0, v["fx_rate"])
+    with np.errstate(over="ignore", invalid="ignore"):
+        factor = scale * fx
+        scaled = {c: v[c] * factor for c in MONEY}
+        scaled["market_equity (shares_outstanding * share_price)"] = (
+            v["shares_outstanding"] * scaled["share_price"])
+        too_big = {c: ~np.isnan(x) & ~(np.abs(x) <= MONEY_LIMIT) for c, x in scaled.items()}
+    overflow = _any(too_big.values())
+
+    def money_overflow(hit: np.ndarray) -> list[str]:
+        return ["; ".join(f"{c} is {_num(scaled[c][i])} after [units] scale {_num(scale)} and "
+                          f"fx_rate {_num(fx[i])}, beyond +/-{MONEY_LIMIT:g}"
+                          for c in too_big if too_big[c][i]) for i in hit]
 
     year = v["fiscal_year"]
     lo, hi = YEAR_RANGE
@@ -464,6 +395,8 @@ def _row_checks(
                     "fiscal_year")),
             ("bad_fx_rate", v["fx_rate"] <= 0,
              simple("fx_rate must be > 0; got {}", "fx_rate")),
+            ("unknown_currency", unknown, unknown_currency),
+            ("money_overflow", overflow, money_overflow),
             ("assets_not_positive", v["total_assets"] <= 0,
              simple("total_assets must be > 0; got {}", "total_assets")),
             ("negative_debt", v["total_debt"] < 0,
@@ -479,6 +412,17 @@ def _row_checks(
              simple("|ebitda| must be <= total_assets; got |{}| > {}", "ebitda",
                     "total_assets")),
         ]
+
+
+def _token(raw: Texts, col: str, i: int) -> str:
+    """`` ('NA' counts as blank)`` when the cell held a blank token rather than nothing."""
+    if col not in raw:
+        return ""
+    v = raw[col].iloc[i]
+    if v is None or (isinstance(v, float) and v != v) or v is pd.NA:
+        return ""
+    t = str(v).replace("\x00", "").strip()
+    return f" ({_show(pd.Series([t]), 0)} counts as blank)" if t else ""
 
 
 def _numeric_checked() -> list[str]:

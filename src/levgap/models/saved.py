@@ -25,6 +25,7 @@ from levgap.config import ModelSpec
 from levgap.errors import ModelError, OutputError
 from levgap.groups import WHOLE_SAMPLE
 from levgap.models.result import Fit
+from levgap.outputs import saved_model_file
 from levgap.transforms import DriverTransforms
 
 if TYPE_CHECKING:
@@ -236,14 +237,23 @@ class SavedModel:
             peer_median, peer_count, fold, flags`` and, per driver, ``<driver>`` (the value
             used), ``<driver>_raw``, ``<driver>_peer`` and ``<driver>_contribution`` (the
             contributions sum to ``target - peer_target``). ``fold`` is -1 for the
-            full-sample fit.
+            full-sample fit. A row whose statement values schema v1 refuses (total assets not
+            a finite number > 0, say) is returned blank with status ``""``, the flag
+            ``not_scorable`` and the rule it breaks in ``note``.
         """
         from levgap.features import build_features, peer_group
 
         data = _schema_frame(rows)
+        bad, notes = _unscorable(data)
+        if bad.any():  # stand-in values keep the arithmetic quiet; the rows are blanked below
+            data.loc[bad, ["total_assets", "total_debt", "ppe_net", "ebitda",
+                           "book_equity"]] = [1.0, 0.0, 0.0, 0.0, 1.0]
+            data.loc[bad, "fiscal_year"] = data.loc[~bad, "fiscal_year"].max() if (~bad).any() \
+                else self.record["years"][-1]
         spec = self.spec
         transforms = DriverTransforms.from_dict(self.record["transforms"])
-        feats = build_features(data, spec, transforms=transforms)
+        with np.errstate(all="ignore"):
+            feats = build_features(data, spec, transforms=transforms)
         f = feats.frame
         drivers = list(self.drivers)
         missing = [d for d in drivers if d not in f]
@@ -253,9 +263,20 @@ class SavedModel:
         industry = peer_group(f["industry"], spec.industry_digits).to_numpy(dtype=object)
         level, year, new_ind, new_year = self.codes(industry, f["fiscal_year"].to_numpy())
         out = []
-        for measure in self.measures:
-            out.append(self._score_measure(measure, f, X, industry, level, year, new_ind,
-                                           new_year, fold, peer_profile))
+        with np.errstate(all="ignore"):
+            for measure in self.measures:
+                part = self._score_measure(measure, f, X, industry, level, year, new_ind,
+                                           new_year, fold, peer_profile)
+                part["note"] = notes
+                if bad.any():
+                    blank = [c for c in part.columns if c not in (
+                        "firm_id", "fiscal_year", "industry", "measure", "fold", "flags",
+                        "note", "status")]
+                    part.loc[bad, blank] = np.nan
+                    part.loc[bad, "status"] = ""
+                    part.loc[bad, "flags"] = "not_scorable"
+                    part.loc[bad, "fiscal_year"] = rows["fiscal_year"].to_numpy()[bad]
+                out.append(part)
         return pd.concat(out, ignore_index=True)
 
     def _score_measure(self, measure: str, f: pd.DataFrame, X: np.ndarray,
@@ -343,7 +364,7 @@ def load_model(results_dir: str | Path) -> SavedModel:
     OutputError
         The folder has no readable ``model.json`` of a format this levgap knows.
     """
-    path = Path(results_dir) / MODEL_FILE
+    path = saved_model_file(results_dir, MODEL_FILE)  # the run verified first (levgap.outputs)
     try:
         record = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
@@ -357,6 +378,32 @@ def load_model(results_dir: str | Path) -> SavedModel:
         raise OutputError(f"{path}: saved-model format {record.get('format_version')} is "
                           f"newer than this levgap reads ({FORMAT_VERSION}); upgrade levgap.")
     return SavedModel(record)
+
+
+def _unscorable(data: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Rows whose statement values the model cannot score, and why (schema v1's rules)."""
+    from levgap.schema import BY_NAME
+
+    n = len(data)
+    bad = np.zeros(n, dtype=bool)
+    notes = np.full(n, "", dtype=object)
+    year = pd.to_numeric(data["fiscal_year"], errors="coerce").to_numpy(dtype=float)
+    checks = [("fiscal_year", ~np.isfinite(year) | (year != np.round(year)),
+               "fiscal_year must be a whole number")]
+    for name in ("total_assets", "total_debt", "ppe_net", "ebitda", "book_equity"):
+        col = BY_NAME[name]
+        v = data[name].to_numpy(dtype=float)
+        wrong = ~np.isfinite(v)
+        if col.minimum is not None:
+            wrong |= (v <= col.minimum) if col.strict else (v < col.minimum)
+        rule = "a finite number" + (
+            "" if col.minimum is None else f" {'>' if col.strict else '>='} {col.minimum:g}")
+        checks.append((name, wrong, f"{name} must be {rule}"))
+    for _, wrong, text in checks:
+        new = wrong & ~bad
+        notes[new] = text
+        bad |= wrong
+    return bad, notes
 
 
 def _schema_frame(rows: pd.DataFrame) -> pd.DataFrame:

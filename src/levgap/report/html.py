@@ -22,7 +22,6 @@ from typing import Any
 import pandas as pd
 
 from levgap.errors import OutputError
-from levgap.report.files import atomic_write_bytes, register_outputs
 
 REPORT_NAME = "report.html"
 CAUTION = (
@@ -92,14 +91,16 @@ def write_report(
     OutputError
         If a table is missing or the folder cannot be written.
     """
+    from levgap.outputs import atomic_write_bytes
+
     html = render_report(tables, manifest, options=options, progress=progress)
-    path = Path(out_dir) / REPORT_NAME
-    atomic_write_bytes(path, html.encode("utf-8"))
-    return path
+    return atomic_write_bytes(Path(out_dir) / REPORT_NAME, html.encode("utf-8"))
 
 
 def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -> Path:
-    """Rebuild ``report.html`` from the outputs written earlier into ``out_dir``.
+    """Rebuild ``report.html`` of the run in ``out_dir`` from the tables written there.
+
+    The report joins the run: it is swapped in with the run's id, and ``run.json`` lists it.
 
     Parameters
     ----------
@@ -111,13 +112,27 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -
     -------
     pathlib.Path
         Path of the report written.
-    """
-    from levgap.report.tables import read_outputs
 
-    tables, manifest = read_outputs(out_dir)
-    path = write_report(tables, manifest, out_dir, options=options)
-    register_outputs(out_dir, [path.name])
-    return path
+    Raises
+    ------
+    OutputError
+        The folder does not hold one complete run (``levgap.outputs.verify_run``), a table is
+        missing or damaged, or ``report.html`` there is a file levgap did not write.
+    """
+    from levgap.outputs import RunWriter, new_run_id, verify_run
+    from levgap.report.tables import read_table_file
+
+    run = verify_run(out_dir)
+    tables = {name: read_table_file(p, name, legacy=run.run_id is None)
+              for name, p in run.tables.items()}
+    _check_tables(tables)
+    html = render_report(tables, run.manifest, options=options)
+    with RunWriter(out_dir, run_id=run.run_id or new_run_id(),
+                   inputs=[p for p, _ in run.inputs()], force=True,
+                   amend=[n for n in run.files if n != REPORT_NAME]) as writer:
+        writer.add(REPORT_NAME, html.encode("utf-8"))
+        writer.commit({k: v for k, v in run.manifest.items() if k not in ("run_id", "files")})
+    return Path(out_dir) / REPORT_NAME
 
 
 # ----------------------------------------------------------------------------- content
@@ -235,7 +250,9 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         key=lambda t: (t[0], -t[2], t[1]),
     ) if len(partial) else []
     return {
-        "inputs": list(manifest.get("inputs", [])),
+        "inputs": [{"path": str(i.get("path", "")), "rows": i.get("rows"),
+                    "sha256": str(i.get("sha256") or ""), "role": str(i.get("role", "file"))}
+                   for i in manifest.get("inputs", []) or [] if isinstance(i, Mapping)],
         "firms": counts.get("firms", targets["firm_id"].nunique()),
         "industries": counts.get("industries", targets["industry"].nunique()),
         "years": years,
@@ -257,6 +274,7 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         "pooled": [_pooled(b) for b in manifest.get("pooled_industries", []) or []],
         "warnings": [str(w) for w in manifest.get("warnings", [])],
         "version": manifest.get("levgap_version", ""),
+        "run_id": str(manifest.get("run_id") or ""),
     }
 
 

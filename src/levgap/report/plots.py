@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import io
 import re
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from contextlib import AbstractContextManager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -150,7 +150,8 @@ def steps_figure(steps: pd.DataFrame, *, title: str | None = None) -> Figure:
     return fig
 
 
-def plot_steps(steps: pd.DataFrame, path: str | Path, *, title: str | None = None) -> Path:
+def plot_steps(steps: pd.DataFrame, path: str | Path, *, title: str | None = None,
+               inputs: Iterable[str | Path] = ()) -> Path:
     """Write the step chart of one firm-year to a PNG or SVG file (chosen by suffix).
 
     Parameters
@@ -161,6 +162,8 @@ def plot_steps(steps: pd.DataFrame, path: str | Path, *, title: str | None = Non
         Destination ending in ``.png`` or ``.svg``.
     title : str, optional
         Chart title.
+    inputs : iterable of path, default=()
+        Files never replaced (the run's files and inputs).
 
     Returns
     -------
@@ -171,8 +174,10 @@ def plot_steps(steps: pd.DataFrame, path: str | Path, *, title: str | None = Non
     ------
     ConfigError
         If the suffix is neither ``.png`` nor ``.svg``.
+    OutputError
+        If the path is an input or a file levgap did not write (``levgap.outputs``).
     """
-    from levgap.report.files import atomic_write_bytes
+    from levgap.outputs import atomic_write_bytes, check_replaceable
 
     p = Path(path)
     fmt = _PLOT_FORMATS.get(p.suffix.lower())
@@ -180,11 +185,12 @@ def plot_steps(steps: pd.DataFrame, path: str | Path, *, title: str | None = Non
         raise ConfigError(
             f"plot file must end in .png or .svg; got {p.name!r}. Choose a name like steps.png."
         )
+    check_replaceable(p, inputs)  # before drawing
     fig = steps_figure(steps, title=title)
     buf = io.BytesIO()
     with _rc():
         fig.savefig(buf, format=fmt, dpi=150, metadata={"Date": None} if fmt == "svg" else None)
-    atomic_write_bytes(p, buf.getvalue())
+    atomic_write_bytes(p, buf.getvalue(), inputs=inputs)
     return p
 
 

@@ -11,7 +11,6 @@ from pathlib import Path
 from typing import Any
 
 from levgap.errors import OutputError
-from levgap.report.files import MARKER
 
 TEXT = ("firm_id", "firm_name", "industry", "measure", "status", "flags")
 
@@ -22,38 +21,32 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
     Parameters
     ----------
     out_dir : str or pathlib.Path
-        A folder written by ``levgap analyze``.
+        A folder written by ``levgap analyze``; checked first with
+        ``levgap.outputs.verify_run``.
     columns : sequence of str, optional
         Columns to read; default all.
 
     Raises
     ------
     OutputError
-        The folder holds no levgap outputs, or the table cannot be read.
+        The folder does not hold one complete run, or the table cannot be read, lacks a
+        contract column or holds a wrong type (the message names the file and column).
     """
     import pyarrow as pa
 
+    from levgap.analysis import check_table_columns
+    from levgap.outputs import verify_run
+
     out = Path(out_dir)
-    if not (out / "run.json").is_file():
-        raise OutputError(
-            f"{out}: the folder must hold levgap outputs (run.json); got none. Run "
-            f"`levgap analyze PANEL --out {out}` first."
-        )
-    try:
-        listed = set((out / MARKER).read_text(encoding="utf-8").split())
-    except (OSError, UnicodeDecodeError):
-        listed = set()
-    found = [p for p in (out / "targets.parquet", out / "targets.csv") if p.is_file()]
-    if listed:
-        found = [p for p in found if p.name in listed] or found
-    if not found:
+    run = verify_run(out)
+    path = run.tables.get("targets")
+    if path is None:
         raise OutputError(f"{out}: the folder must hold a targets table; got none.")
-    path = max(found, key=lambda p: p.stat().st_mtime)
     try:
         if path.suffix == ".parquet":
             import pyarrow.parquet as pq
 
-            table = pq.read_table(path, columns=list(columns) if columns else None)
+            table = pq.read_table(path)
         else:
             import pyarrow.csv as pv
 
@@ -61,7 +54,6 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
                 path,
                 convert_options=pv.ConvertOptions(
                     column_types={c: pa.string() for c in TEXT},
-                    include_columns=list(columns) if columns else None,
                     strings_can_be_null=False,
                 ),
             )
@@ -70,7 +62,49 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
             f"{path}: a levgap table must be readable; got {' '.join(str(exc).split())[:200]}. "
             "Re-run `levgap analyze`."
         ) from None
-    return table
+    check_table_columns(path, "targets", {n: _kind(table[n]) for n in table.column_names},
+                        lambda c: _example(table[c]), legacy=run.run_id is None)
+    for c in TEXT:
+        if c in table.column_names and not pa.types.is_string(table[c].type):
+            i = table.column_names.index(c)
+            table = table.set_column(i, c, table[c].cast(pa.string()))
+    return table.select(list(columns)) if columns else table
+
+
+def _kind(col: Any) -> str:
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    t = col.type
+    if pa.types.is_integer(t):
+        return "integer"
+    if pa.types.is_floating(t):
+        vals = pc.drop_null(col)
+        vals = pc.filter(vals, pc.invert(pc.is_nan(vals)))
+        if len(vals) == 0:
+            return "integer"
+        if pc.any(pc.is_inf(vals)).as_py():
+            return "number"
+        return "integer" if pc.all(pc.equal(vals, pc.round(vals))).as_py() else "number"
+    if pa.types.is_null(t):
+        return "integer"  # an empty column: nothing of the wrong type in it
+    if pa.types.is_string(t) or pa.types.is_large_string(t):
+        return "text"
+    return "other"
+
+
+def _example(col: Any) -> str:
+    import pyarrow as pa
+
+    if not (pa.types.is_string(col.type) or pa.types.is_large_string(col.type)):
+        return ""
+    for v in col.to_pylist()[:1000]:
+        if v and v.strip():
+            try:
+                float(v)
+            except ValueError:
+                return repr(v if len(v) <= 30 else v[:27] + "...")
+    return ""
 
 
 def screen_rows(

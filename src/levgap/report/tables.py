@@ -1,42 +1,46 @@
 """Writing and reading the tabular outputs (CSV or Parquet) and the run manifest, safely.
 
-Safety rules, each tested:
+Safety rules, each tested (the mechanisms live in ``levgap.outputs``):
 
 - text cells that a spreadsheet would run as a formula (starting with ``=``, ``+``, ``-``,
-  ``@``, a tab or a carriage return) get a leading apostrophe (the usual guidance against
-  spreadsheet formula injection); numeric columns are untouched;
+  ``@`` or their fullwidth forms, possibly after spaces, or with a tab or a carriage return)
+  get a leading apostrophe (the usual guidance against spreadsheet formula injection);
+  numeric columns are untouched;
 - CSV lines end in CRLF (RFC 4180), so that the csv writer quotes any cell holding a
   carriage return or a line feed;
-- every file is written to a temporary name in the target folder and renamed over the
-  target (``os.replace``), so a reader never sees half a file;
-- a folder that holds files levgap did not write is refused unless ``force=True``; levgap
-  lists what it wrote in a marker file ``.levgap-output`` so that a re-run into its own
-  folder is allowed;
-- an input file is never overwritten, even with ``force=True``.
+- a run's files are staged and swapped in as one unit with one run id; readers refuse a
+  folder holding an interrupted run, a damaged or newer ``run.json``, a missing file, or a
+  table without a contract column or with a wrong type;
+- a folder that holds files levgap did not write is refused unless ``force=True``, and such a
+  file is never replaced or removed; an input file never is either.
 """
 
 from __future__ import annotations
 
-import json
-import math
-import os
 import re
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from levgap.errors import OutputError
-from levgap.report.files import (  # one writer for every file levgap writes
-    MARKER,
-    _atomic_text,
+from levgap.outputs import (  # one layer under every file levgap writes
+    FORMULA_PREFIXES,
+    RUN_FILE,
+    RunWriter,
     atomic_file,
+    neutralise,
+    new_run_id,
+    verify_run,
 )
 
-MANIFEST = "run.json"
+__all__ = ["FORMULA_PREFIXES", "FORMATS", "MANIFEST", "TEXT_COLUMNS", "neutralise",
+           "read_outputs", "stage_tables", "write_table", "write_tables"]
+
+MANIFEST = RUN_FILE
 FORMATS: dict[str, str] = {"csv": ".csv", "parquet": ".parquet"}
-FORMULA_PREFIXES: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
 
 TEXT_COLUMNS: tuple[str, ...] = (
     "firm_id", "firm_name", "industry", "measure", "driver", "status", "reason", "detail",
@@ -47,43 +51,6 @@ TEXT_COLUMNS: tuple[str, ...] = (
 _NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
 
 
-def neutralise(frame: pd.DataFrame) -> pd.DataFrame:
-    """Prefix an apostrophe to text cells that a spreadsheet would run as a formula.
-
-    Parameters
-    ----------
-    frame : pandas.DataFrame
-
-    Returns
-    -------
-    pandas.DataFrame
-        A copy in which every text cell starting with ``=``, ``+``, ``-``, ``@``, a tab or a
-        carriage return starts with ``'`` instead; numbers and other cells are unchanged.
-
-    Examples
-    --------
-    >>> neutralise(pd.DataFrame({"name": ["=1+1", "ok"]}))["name"].tolist()
-    ["'=1+1", 'ok']
-    """
-    out = frame.copy(deep=False)  # columns are replaced, never changed in place
-    for col in out.columns:
-        s = out[col]
-        if isinstance(s.dtype, pd.StringDtype):
-            risky = s.str.startswith(FORMULA_PREFIXES).fillna(False).to_numpy(dtype=bool)
-            if risky.any():
-                out[col] = s.mask(risky, "'" + s)
-        elif s.dtype == object:
-            vals = s.to_numpy(dtype=object, copy=True)
-            changed = False
-            for i, v in enumerate(vals):
-                if isinstance(v, str) and v.startswith(FORMULA_PREFIXES):
-                    vals[i] = "'" + v
-                    changed = True
-            if changed:
-                out[col] = pd.Series(vals, index=s.index, dtype=object)
-    return out
-
-
 def write_tables(
     tables: Mapping[str, pd.DataFrame],
     manifest: Mapping[str, Any],
@@ -92,9 +59,8 @@ def write_tables(
     fmt: str = "csv",
     force: bool = False,
     inputs: Iterable[str | Path] = (),
-    also: Iterable[str] = (),
 ) -> list[Path]:
-    """Write each table and ``run.json`` into a folder, atomically and without harm.
+    """Write each table and ``run.json`` into a folder as one run, atomically and without harm.
 
     Parameters
     ----------
@@ -103,20 +69,16 @@ def write_tables(
         ``<name>.parquet``, text cells neutralised (see :func:`neutralise`).
     manifest : mapping
         Written as ``run.json`` (indent 2; values JSON cannot hold are written as text, NaN
-        as null).
+        as null), with the new run's ``run_id`` and ``files``.
     out_dir : str or pathlib.Path
         Output folder; created if absent.
     fmt : {"csv", "parquet"}, default="csv"
         File format of the tables.
     force : bool, default=False
         Write even into a folder that holds files levgap did not write (those files are
-        left alone unless a levgap output has the same name).
+        left alone; one with the name of an output refuses the run).
     inputs : iterable of path, default=()
-        Input files, never overwritten.
-    also : iterable of str, default=()
-        Names of other files levgap writes (or wrote) into the folder in the same run
-        (``report.html``, ``workbook.xlsx``, the demo's panel): recorded in the marker so that
-        a later run does not count them as foreign or remove them as stale.
+        Input files, never replaced or removed.
 
     Returns
     -------
@@ -127,8 +89,37 @@ def write_tables(
     ------
     OutputError
         Unknown format or table name, a folder with foreign files (without ``force``), an
-        output path that is an input file, or a file system error.
+        output path that is an input or a file levgap did not write, or a file system error.
     """
+    _check_tables(tables, fmt)
+    run_id = new_run_id()
+    with RunWriter(out_dir, run_id=run_id, inputs=inputs, force=force) as run:
+        stage_tables(run, tables, fmt=fmt)
+        return list(run.commit(manifest).written)
+
+
+def stage_tables(run: RunWriter, tables: Mapping[str, pd.DataFrame], *, fmt: str = "csv"
+                 ) -> list[Path]:
+    """Stage each table into a run being written (see ``levgap.outputs.RunWriter``).
+
+    Returns
+    -------
+    list of pathlib.Path
+        Where the tables will be once the run is committed.
+    """
+    from levgap.analysis import TABLE_COLUMNS
+
+    _check_tables(tables, fmt)
+    out = []
+    for name, frame in tables.items():
+        if frame.shape[1] == 0 and name in TABLE_COLUMNS:  # an empty table keeps its header
+            frame = pd.DataFrame(columns=list(TABLE_COLUMNS[name]))
+        out.append(run.add(f"{name}{FORMATS[fmt]}",
+                           _table_writer(neutralise(frame), fmt, run.run_id)))
+    return out
+
+
+def _check_tables(tables: Mapping[str, Any], fmt: str) -> None:
     if fmt not in FORMATS:
         raise OutputError(f"format must be one of {sorted(FORMATS)}; got {fmt!r}.")
     for name in tables:
@@ -136,67 +127,20 @@ def write_tables(
             raise OutputError(
                 f"table name must be letters, digits and _ (not 'run'); got {name!r}."
             )
-    out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise OutputError(
-            f"{out}: the output path must be a folder; got a file. Choose another --out."
-        )
-    targets = [out / f"{name}{FORMATS[fmt]}" for name in tables] + [out / MANIFEST]
-    _refuse_inputs(targets, inputs)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise OutputError(
-            f"{out}: the output folder must be creatable; got {exc.strerror or exc}. "
-            "Choose another --out."
-        ) from None
-    previous = _marker_names(out)
-    foreign = sorted(
-        p.name for p in out.iterdir()
-        if p.name != MARKER and p.name not in previous and not _is_our_temp(p.name)
-    )
-    if foreign and not force:
-        shown = ", ".join(foreign[:5]) + (f" and {len(foreign) - 5} more" if len(foreign) > 5
-                                         else "")
-        raise OutputError(
-            f"{out}: the output folder must be empty or hold only levgap outputs; got files "
-            f"levgap did not write ({shown}). Choose another --out or pass --force."
-        )
-    names = [t.name for t in targets] + [n for n in also if n not in {t.name for t in targets}]
-    try:
-        _atomic_text(out / MARKER, "\n".join(sorted(set(previous) | set(names))) + "\n")
-        written = []
-        for (_, frame), target in zip(tables.items(), targets, strict=False):
-            _atomic_table(neutralise(frame), target, fmt)
-            written.append(target)
-        body = json.dumps(_jsonable(manifest), default=str, indent=2, allow_nan=False)
-        _atomic_text(out / MANIFEST, body + "\n")
-        written.append(out / MANIFEST)
-        for stale in sorted(set(previous) - set(names)):
-            # a previous run's table in another format: remove so readers see one version
-            p = out / stale
-            if p.is_file() and not _is_input(p, inputs):
-                p.unlink()
-        _atomic_text(out / MARKER, "\n".join(sorted(names)) + "\n")
-    except OSError as exc:
-        raise OutputError(
-            f"{out}: outputs must be writable; got {exc.strerror or exc}. Check the folder's "
-            "permissions and free space."
-        ) from None
-    return written
 
 
 def read_outputs(
     out_dir: str | Path, names: Iterable[str] | None = None
 ) -> tuple[dict[str, pd.DataFrame], dict[str, Any]]:
-    """Read the tables and manifest a run wrote (for ``screen``, ``explain`` and reports).
+    """Read the tables and manifest of one run (for ``explain``, ``table`` and reports).
 
     Parameters
     ----------
     out_dir : str or pathlib.Path
-        A folder written by :func:`write_tables`.
+        A folder written by :func:`write_tables` or ``levgap analyze``; checked first with
+        ``levgap.outputs.verify_run`` (one complete run, readable ``run.json``).
     names : iterable of str, optional
-        Only these tables (e.g. ``["targets"]``); default every table in the folder.
+        Only these tables (e.g. ``["targets"]``); default every table of the run.
 
     Returns
     -------
@@ -209,54 +153,70 @@ def read_outputs(
     Raises
     ------
     OutputError
-        The folder holds no ``run.json`` or a table cannot be read.
+        The folder does not hold one complete run, or a table cannot be read, lacks a
+        contract column or holds a wrong type (the message names the file and column).
     """
-    out = Path(out_dir)
-    manifest_path = out / MANIFEST
-    if not manifest_path.is_file():
-        raise OutputError(
-            f"{out}: the folder must hold levgap outputs (run.json); got none. Run "
-            f"`levgap analyze PANEL --out {out}` first."
-        )
-    try:
-        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise OutputError(f"{manifest_path}: run.json must be valid JSON; got {exc}.") from None
-    listed = _marker_names(out)
-    files: dict[str, Path] = {}
-    candidates = sorted(
-        (p for p in out.iterdir() if p.suffix in FORMATS.values() and p.is_file()),
-        key=lambda p: (p.name not in listed, p.stat().st_mtime),
-        reverse=True,
-    )
-    for p in candidates:
-        if listed and p.name not in listed:
-            continue
-        files.setdefault(p.stem, p)
+    run = verify_run(out_dir)
     wanted = None if names is None else set(names)
     tables = {}
-    for name, p in sorted(files.items()):
+    for name, p in run.tables.items():
         if wanted is not None and name not in wanted:
             continue
-        try:
-            if p.suffix == ".parquet":
-                frame = pd.read_parquet(p)
-            else:
-                frame = pd.read_csv(
-                    p, dtype={c: "str" for c in TEXT_COLUMNS}, keep_default_na=False,
-                    na_values=[""], encoding="utf-8", engine="pyarrow",
-                )
-        except (OSError, ValueError, pd.errors.ParserError) as exc:
-            raise OutputError(
-                f"{p}: a levgap table must be readable; got {str(exc)[:200]}. Re-run "
-                "`levgap analyze`."
-            ) from None
-        for c in TEXT_COLUMNS:
-            if c in frame.columns:
-                frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
-                    frame[c].fillna("").astype("str"))
-        tables[name] = frame
-    return tables, manifest
+        tables[name] = read_table_file(p, name, legacy=run.run_id is None)
+    return tables, run.manifest
+
+
+def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFrame:
+    """One output table, read back and checked against the contract (columns and types);
+    ``legacy``: a table levgap 0.1 wrote, checked against the 0.1 columns."""
+    from levgap.analysis import check_table_columns
+
+    try:
+        if path.suffix == ".parquet":
+            frame = pd.read_parquet(path)
+        else:
+            frame = pd.read_csv(
+                path, dtype={c: "str" for c in TEXT_COLUMNS}, keep_default_na=False,
+                na_values=[""], encoding="utf-8", engine="pyarrow",
+            )
+    except (OSError, ValueError, TypeError, pd.errors.ParserError) as exc:
+        raise OutputError(
+            f"{path}: a levgap table must be readable; got {' '.join(str(exc).split())[:200]}. "
+            "Re-run `levgap analyze`."
+        ) from None
+    kinds = {str(c): _kind(frame[c]) for c in frame.columns}
+    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy)
+    for c in TEXT_COLUMNS:
+        if c in frame.columns:
+            frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
+                frame[c].fillna("").astype("str"))
+    return frame
+
+
+def _kind(col: pd.Series) -> str:
+    if pd.api.types.is_bool_dtype(col.dtype):
+        return "other"
+    if pd.api.types.is_integer_dtype(col.dtype):
+        return "integer"
+    if pd.api.types.is_float_dtype(col.dtype):
+        x = col.to_numpy(dtype=float, na_value=np.nan)
+        x = x[~np.isnan(x)]
+        return "integer" if np.isfinite(x).all() and np.array_equal(x, np.round(x)) else "number"
+    if pd.api.types.is_string_dtype(col.dtype) or col.dtype == object:
+        return "text"
+    return "other"
+
+
+def _example(col: pd.Series) -> str:
+    if pd.api.types.is_numeric_dtype(col.dtype):
+        return ""
+    for v in col:
+        if isinstance(v, str) and v.strip():
+            try:
+                float(v)
+            except ValueError:
+                return repr(v if len(v) <= 30 else v[:27] + "...")
+    return ""
 
 
 # ---------------------------------------------------------------------------------------------
@@ -271,91 +231,45 @@ def write_table(
     ----------
     frame : pandas.DataFrame
     path : str or pathlib.Path
-        Destination ending in ``.csv`` or ``.parquet``.
+        Destination ending in ``.csv`` or ``.parquet``; an existing file there is replaced
+        only when levgap wrote it (``levgap.outputs.atomic_file``).
     inputs : iterable of path, default=()
-        Input files, never overwritten.
+        Input files, never replaced.
 
     Raises
     ------
     OutputError
-        Unknown suffix, the path of an input file, or a file system error.
+        Unknown suffix, the path of an input or of a file levgap did not write, or a file
+        system error.
     """
     target = Path(path)
     fmt = {v: k for k, v in FORMATS.items()}.get(target.suffix.lower())
     if fmt is None:
         raise OutputError(f"{target}: a table file must end in .csv or .parquet; got "
                           f"{target.suffix or 'no suffix'}.")
-    _refuse_inputs([target], inputs)
-    try:
-        _atomic_table(neutralise(frame), target, fmt)
-    except OSError as exc:
-        raise OutputError(f"{target}: the file must be writable; got {exc.strerror or exc}.") \
-            from None
+    write = _table_writer(neutralise(frame), fmt, None)
+    with atomic_file(target, inputs=inputs) as tmp, open(tmp, "wb") as fh:
+        write(fh)
     return target
 
 
-def _marker_names(out: Path) -> set[str]:
-    try:
-        text = (out / MARKER).read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError):
-        return set()
-    return {line.strip() for line in text.splitlines() if line.strip()}
-
-
-def _is_our_temp(name: str) -> bool:
-    return name.startswith(".levgap-tmp-")
-
-
-def _same_file(a: Path, b: Path) -> bool:
-    try:
-        if a.exists() and b.exists():
-            return os.path.samefile(a, b)
-    except OSError:
-        pass
-    return a.resolve() == b.resolve()
-
-
-def _is_input(p: Path, inputs: Iterable[str | Path]) -> bool:
-    return any(_same_file(p, Path(i)) for i in inputs)
-
-
-def _refuse_inputs(targets: list[Path], inputs: Iterable[str | Path]) -> None:
-    inputs = list(inputs)
-    for t in targets:
-        if _is_input(t, inputs):
-            raise OutputError(
-                f"{t}: an output must never replace an input file; got the input's own path. "
-                "Choose another --out."
-            )
-
-
-def _atomic_table(frame: pd.DataFrame, target: Path, fmt: str) -> None:
+def _table_writer(frame: pd.DataFrame, fmt: str, run_id: str | None) -> Any:
+    """A function writing ``frame`` as CSV or Parquet to a binary handle."""
     if fmt == "parquet":
-        _atomic(target, lambda tmp: frame.to_parquet(tmp, index=False))
-    else:
-        _atomic(
-            target,
-            lambda tmp: frame.to_csv(tmp, index=False, encoding="utf-8", lineterminator="\r\n"),
-        )
+        def parquet(fh: Any) -> None:
+            import pyarrow as pa
+            import pyarrow.parquet as pq
 
+            table = pa.Table.from_pandas(frame, preserve_index=False)
+            if run_id is not None:
+                meta = dict(table.schema.metadata or {})
+                meta[b"levgap_run_id"] = run_id.encode("ascii")
+                table = table.replace_schema_metadata(meta)
+            pq.write_table(table, fh)
 
-def _atomic(target: Path, write: Any) -> None:
-    with atomic_file(target) as tmp:
-        write(tmp)
+        return parquet
 
+    def csv(fh: Any) -> None:
+        frame.to_csv(fh, index=False, encoding="utf-8", lineterminator="\r\n")
 
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, Mapping):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, list | tuple | set | frozenset):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    if hasattr(obj, "item") and not isinstance(obj, str | bytes):
-        try:
-            return _jsonable(obj.item())
-        except (ValueError, TypeError):
-            return str(obj)
-    if isinstance(obj, Path):
-        return str(obj)
-    return obj
+    return csv

@@ -19,7 +19,7 @@ import io
 import math
 import re
 import zipfile
-from collections.abc import Iterator, Mapping
+from collections.abc import Iterable, Iterator, Mapping
 from html import escape
 from pathlib import Path, PurePosixPath
 from typing import Any
@@ -51,6 +51,10 @@ RATIO_DRIVERS = frozenset({"tangibility", "profitability", "earnings_volatility"
                            "rd_intensity"})
 _SOURCES = {"Targets": "targets", "Drivers": "drivers", "Coefficients": "coefficients",
             "Exclusions": "exclusions"}
+EXCEL_MAX_CHARS = 32_767
+"""Characters an Excel cell holds (a limit of the file format); longer text is cut, with a
+note in the cell and on the Summary sheet."""
+_CUT_NOTE = " [cut by levgap: {n:,} characters; the CSV or Parquet output holds them all]"
 _ILLEGAL_XML = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
 _NS = {"m": "http://schemas.openxmlformats.org/spreadsheetml/2006/main",
        "r": "http://schemas.openxmlformats.org/officeDocument/2006/relationships",
@@ -59,9 +63,10 @@ _CHUNK = 10_000
 
 
 def write_workbook(
-    tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any], path: str | Path
+    tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any], path: str | Path, *,
+    inputs: Iterable[str | Path] = (),
 ) -> Path:
-    """Write ``workbook.xlsx`` (or any ``path``) with the run's tables.
+    """Write ``workbook.xlsx`` (or any ``path``) with the run's tables, atomically.
 
     Parameters
     ----------
@@ -70,7 +75,9 @@ def write_workbook(
     manifest : Mapping
         The run manifest (``run.json``), summarised on the Summary sheet with the model fit.
     path : str or pathlib.Path
-        Destination file; written atomically.
+        Destination file; replaced only when levgap wrote it (``levgap.outputs.atomic_file``).
+    inputs : iterable of path, default=()
+        Files never replaced.
 
     Returns
     -------
@@ -80,45 +87,90 @@ def write_workbook(
     Raises
     ------
     OutputError
-        If a table is missing or the file cannot be written.
+        If a table is missing or the file cannot (or may not) be written.
 
     Warns
     -----
     DataWarning
-        If a table has more rows than an Excel sheet holds; the sheet keeps the first rows
-        and the Summary says so (the CSV or Parquet outputs hold every row).
+        If a table has more rows than an Excel sheet holds (the sheet keeps the first rows),
+        or a text longer than a cell holds (it is cut); the Summary says so, and the CSV or
+        Parquet outputs hold everything.
     """
+    from levgap.outputs import atomic_file
+
+    with atomic_file(path, inputs=inputs) as tmp:
+        build_workbook(tables, manifest, tmp)
+    return Path(path)
+
+
+def build_workbook(
+    tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any], path: str | Path
+) -> None:
+    """Write the workbook to ``path`` as it is (a run's stage; see :func:`write_workbook`)."""
     from openpyxl import Workbook
 
-    from levgap.report.files import atomic_file
+    from levgap.outputs import neutralise
     from levgap.report.html import _check_tables
-    from levgap.report.tables import neutralise
 
     _check_tables(tables)
     wb = Workbook(write_only=True)
     truncated: dict[str, int] = {}
     data: dict[str, pd.DataFrame] = {}
+    long_cells = 0
     for sheet, key in _SOURCES.items():
         frame = tables[key]
         if len(frame) > EXCEL_MAX_ROWS - 1:
             truncated[sheet] = len(frame)
             frame = frame.iloc[: EXCEL_MAX_ROWS - 1]
         data[sheet] = neutralise(frame)
-    _write_summary(wb.create_sheet("Summary"), tables, manifest, truncated)
+        long_cells += _long_cells(data[sheet])
+    _write_summary(wb.create_sheet("Summary"), tables, manifest, truncated, long_cells)
     plans: dict[str, _Plan] = {}
     for sheet, frame in data.items():
         plans[sheet] = _write_head(wb.create_sheet(sheet), frame, FORMATS.get(sheet, {}))
     buf = io.BytesIO()
     wb.save(buf)
-    with atomic_file(path) as tmp:
-        _splice(buf, tmp, plans)
+    _splice(buf, Path(path), plans)
     for sheet, n in truncated.items():
         warn_data(
             f"{sheet} has {n:,} rows, more than an Excel sheet holds; workbook.xlsx keeps the "
             f"first {EXCEL_MAX_ROWS - 1:,}. The CSV or Parquet outputs hold every row.",
             stacklevel=2,
         )
-    return Path(path)
+    if long_cells:
+        warn_data(
+            f"{long_cells} text cell(s) are longer than the {EXCEL_MAX_CHARS:,} characters an "
+            "Excel cell holds; workbook.xlsx cuts them with a note. The CSV or Parquet outputs "
+            "hold the whole text.", stacklevel=2,
+        )
+
+
+def _long_cells(frame: pd.DataFrame) -> int:
+    n = 0
+    for col in frame.columns:
+        s = frame[col]
+        if s.dtype == object or isinstance(s.dtype, pd.StringDtype):
+            text = s.astype("str")
+            n += sum(_u16(v) > EXCEL_MAX_CHARS
+                     for v in text[text.str.len() > EXCEL_MAX_CHARS // 2])
+    return n
+
+
+def _u16(text: str) -> int:
+    """Length as Excel counts it (UTF-16 code units)."""
+    return len(text.encode("utf-16-le")) // 2
+
+
+def _fit(text: str) -> str:
+    """Text cut to what an Excel cell holds, with a note saying so."""
+    if len(text) <= EXCEL_MAX_CHARS // 2 or _u16(text) <= EXCEL_MAX_CHARS:
+        return text
+    note = _CUT_NOTE.format(n=len(text))
+    keep = EXCEL_MAX_CHARS - len(note)
+    cut = text[:keep]
+    while (excess := _u16(cut) - keep) > 0:
+        cut = cut[:-excess]
+    return cut + note
 
 
 # ----------------------------------------------------------------------------- values
@@ -135,7 +187,7 @@ def _py(v: Any) -> Any:
 
 
 def _clean_text(v: str) -> str:
-    return _ILLEGAL_XML.sub("", v)
+    return _fit(_ILLEGAL_XML.sub("", v))
 
 
 @functools.lru_cache(maxsize=65536)
@@ -310,19 +362,21 @@ def _describe(item: Any) -> str:
 
 def _write_summary(
     ws: Any, tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
-    truncated: Mapping[str, int],
+    truncated: Mapping[str, int], long_cells: int = 0,
 ) -> None:
     from openpyxl.cell import WriteOnlyCell
     from openpyxl.styles import Font
 
+    from levgap.outputs import neutralise
     from levgap.report.html import CAUTION
-    from levgap.report.tables import neutralise
 
     counts = manifest.get("counts", {}) or {}
     model = (manifest.get("options", {}) or {}).get("model", {}) or {}
     targets = tables["targets"]
     years = sorted({int(y) for y in targets["fiscal_year"].dropna().unique()})
     pairs: list[tuple[str, Any]] = [("levgap version", manifest.get("levgap_version", ""))]
+    if manifest.get("run_id"):
+        pairs.append(("run id", manifest.get("run_id")))
     for inp in manifest.get("inputs", []) or []:
         pairs += [("input file", inp.get("path")), ("input rows", inp.get("rows")),
                   ("input sha256", inp.get("sha256"))]
@@ -346,6 +400,10 @@ def _write_summary(
     for sheet, n in truncated.items():
         pairs.append(("truncated", f"{sheet}: first {EXCEL_MAX_ROWS - 1:,} of {n:,} rows; "
                                    "the CSV or Parquet output holds them all"))
+    if long_cells:
+        pairs.append(("cut cells", f"{long_cells} text cell(s) longer than "
+                                   f"{EXCEL_MAX_CHARS:,} characters are cut, with a note; "
+                                   "the CSV or Parquet output holds the whole text"))
     pairs.append(("caution", CAUTION))
     info = neutralise(pd.DataFrame(
         {"item": [p[0] for p in pairs], "value": [_py(p[1]) for p in pairs]}, dtype=object))

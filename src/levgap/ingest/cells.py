@@ -1,0 +1,177 @@
+"""Cells to values: text cells and numbers as the template README documents them.
+
+- Text cells lose surrounding spaces and NUL bytes; the blank tokens (``NA_TOKENS``, any case)
+  are blank in text columns as in number columns; codes (``firm_id``, ``industry``) written as
+  a whole number with a ``.0`` fraction (``3711.0``, as spreadsheets export them) are the
+  whole number (``3711``), as a workbook's or Parquet file's number cell is.
+- Numbers: the decimal mark is ``[input] decimal``. A thousands mark (``[input] thousands``;
+  with ``decimal = ","`` and none given, ``.``) must group digits by three (``1.234.567,8``);
+  a cell where it does not (``1.5`` with ``decimal = ","``) is not a number, rather than a
+  guess. Exponents and accounting negatives (``(12.5)``) are read.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from levgap.codes import NA_TOKENS
+from levgap.config import InputOptions
+
+NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
+SPACES = (" ", "\u00a0", "\u202f")
+CODE_COLUMNS = ("firm_id", "industry")
+"""Text columns holding codes, whose ``3711.0`` is ``3711``."""
+_WHOLE_CODE = r"^([0-9]+)\.0+$"
+
+
+def text_cells(series: pd.Series, *, code: bool = False) -> pd.Series:
+    """Text cells stripped, without NUL bytes, blank tokens as ``""``.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        Text, or numbers (a workbook's or Parquet file's cells): whole-number floats lose
+        their ``.0``.
+    code : bool, default=False
+        Also read text ``3711.0`` as ``3711`` (``firm_id`` and ``industry``).
+
+    Returns
+    -------
+    pandas.Series
+        Text (``str`` dtype), a fresh 0..n-1 index.
+    """
+    if isinstance(series.dtype, pd.StringDtype):
+        out = series.fillna("").str.replace("\x00", "", regex=False).str.strip()
+    elif pd.api.types.is_integer_dtype(series.dtype):
+        out = series.astype("str").mask(series.isna(), "")
+    else:
+        obj = series.to_numpy(dtype=object)
+        out = pd.Series([_cell_text(v) for v in obj], dtype="str")
+    out = out.astype("str").reset_index(drop=True)
+    out = out.mask(out.str.lower().isin(NA_TOKENS), "")
+    if code:
+        out = out.str.replace(_WHOLE_CODE, r"\1", regex=True)
+    return out
+
+
+def _cell_text(v: object) -> str:
+    if v is None or v is pd.NA or v is pd.NaT:
+        return ""
+    if isinstance(v, float | np.floating):
+        if v != v:
+            return ""
+        if float(v).is_integer():
+            return str(int(v))
+    return str(v).replace("\x00", "").strip()
+
+
+def parse_numbers(
+    series: pd.Series, options: InputOptions | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Parse a column of cells as numbers, vectorised.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        Numbers, text, or a mix (from a workbook).
+    options : InputOptions, optional
+        ``decimal`` and ``thousands`` marks of text numbers (see the module docstring). A
+        thousands mark that is a space also takes no-break spaces.
+
+    Returns
+    -------
+    values : numpy.ndarray
+        float64, NaN where blank or not a number.
+    blank : numpy.ndarray
+        bool, the cell is empty or one of ``NA_TOKENS``.
+    bad : numpy.ndarray
+        bool, the cell holds something that is not a finite number.
+    """
+    options = options or InputOptions()
+    dtype = series.dtype
+    if pd.api.types.is_bool_dtype(dtype):
+        series = series.astype(object)
+        dtype = series.dtype
+    if pd.api.types.is_numeric_dtype(dtype):
+        values = series.to_numpy(dtype=np.float64, na_value=np.nan)
+        blank = np.isnan(values)
+        bad = np.isinf(values)
+        values = np.where(bad, np.nan, values)
+        return values, blank, bad
+    if isinstance(dtype, pd.StringDtype):
+        return _parse_text(pa.array(series, from_pandas=True), options)
+    obj = series.to_numpy(dtype=object)
+    isnum = np.fromiter(
+        (
+            isinstance(v, int | float | np.integer | np.floating)
+            and not isinstance(v, bool | np.bool_)
+            for v in obj
+        ),
+        dtype=bool,
+        count=len(obj),
+    )
+    strs = pa.array(
+        ["" if (isnum[i] or v is None or v is pd.NA or v is pd.NaT) else str(v)
+         for i, v in enumerate(obj)],
+        type=pa.string(),
+    )
+    values, blank, bad = _parse_text(strs, options)
+    if isnum.any():
+        nums = obj[isnum].astype(np.float64)
+        values[isnum] = np.where(np.isinf(nums), np.nan, nums)
+        blank[isnum] = np.isnan(nums)
+        bad[isnum] = np.isinf(nums)
+    return values, blank, bad
+
+
+def thousands_marks(options: InputOptions) -> tuple[str, ...]:
+    """The characters read as thousands marks (see the module docstring)."""
+    if options.thousands:
+        return SPACES if options.thousands in SPACES else (options.thousands,)
+    return (".",) if options.decimal == "," else ()
+
+
+def _cls(chars: tuple[str, ...] | str) -> str:
+    """A regular-expression character class holding exactly ``chars``."""
+    return "[" + "".join("\\" + c if c in "]\\^-[" else c for c in chars) + "]"
+
+
+def _parse_text(
+    arr: pa.Array | pa.ChunkedArray, options: InputOptions
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    if not pa.types.is_string(arr.type) and not pa.types.is_large_string(arr.type):
+        arr = pc.cast(arr, pa.string())
+    arr = pc.utf8_trim_whitespace(pc.fill_null(arr, ""))
+    blank = pc.is_in(pc.utf8_lower(arr), value_set=pa.array(NA_TOKENS))
+    # accounting negatives: (12.5) is -12.5
+    if pc.any(pc.starts_with(arr, "(")).as_py():
+        arr = pc.replace_substring_regex(arr, r"^\(\s*(.*?)\s*\)$", r"-\1")
+    grouped = pa.scalar(True)
+    seps = thousands_marks(options)
+    if seps:
+        sep, dec = _cls(seps), _cls(options.decimal)
+        has_sep = pc.match_substring_regex(arr, sep)
+        well = pc.match_substring_regex(
+            arr, rf"^[+-]?\d{{1,3}}(?:{sep}\d{{3}})+(?:{dec}\d*)?(?:[eE][+-]?\d+)?$")
+        grouped = pc.or_(pc.invert(has_sep), well)
+        for s in seps:
+            arr = pc.replace_substring(arr, s, "")
+    if options.decimal != ".":
+        arr = pc.replace_substring(arr, options.decimal, ".")
+    ok = pc.and_(pc.match_substring_regex(arr, NUMBER_RE), grouped)
+    nums = pc.cast(pc.if_else(ok, arr, pa.scalar(None, pa.string())), pa.float64())
+    values = nums.to_numpy(zero_copy_only=False).astype(np.float64, copy=True)
+    blank_np = _bool(blank)
+    ok_np = _bool(ok)
+    finite = np.isfinite(values)
+    bad = ~blank_np & ~(ok_np & finite)
+    values[~finite] = np.nan
+    values[blank_np] = np.nan
+    return values, blank_np, bad
+
+
+def _bool(arr: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    return np.asarray(pc.fill_null(arr, False).to_numpy(zero_copy_only=False), dtype=bool)
