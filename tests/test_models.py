@@ -247,3 +247,25 @@ def test_pooled_levels_are_recorded_for_every_level_code() -> None:
     assert np.isnan(p.weight[15:]).all() and not p.members[:, 15:].any()
     assert np.isfinite(p.deviation[[13, 14]]).all() and np.isnan(p.deviation[:13]).all()
     assert np.isnan(fit.effects[0][[13, 14, 15, 16]]).all()
+
+
+@pytest.mark.parametrize("model", ["linear", "fractional"])
+def test_the_identification_test_follows_check_not_cov(model: str) -> None:
+    # check (default: cov) decides whether the data-space test names the driver; a fit
+    # without it still refuses the singular system, with the generic message
+    from levgap.models.fractional import fit_fractional
+
+    fit = {"linear": fit_linear, "fractional": fit_fractional}[model]
+    rng = np.random.default_rng(0)
+    n = 200
+    ind, yr = rng.integers(0, 5, n), rng.integers(0, 4, n)
+    X = np.column_stack([rng.normal(size=n), ind * 1.0])  # the second: industry's own
+    y = rng.uniform(0.1, 0.9, n)
+    kw = {"effects": [ind, yr], "names": ["free", "absorbed"]}
+    with pytest.raises(ModelError, match="got absorbed explained entirely"):
+        fit(y, X, cov=False, check=True, **kw)
+    with pytest.raises(ModelError, match="got absorbed explained entirely"):
+        fit(y, X, cov=True, **kw)
+    for cov, check in ((True, False), (False, None)):
+        with pytest.raises(ModelError, match="drivers are collinear with each other"):
+            fit(y, X, cov=cov, check=check, **kw)
