@@ -98,10 +98,12 @@ def make_outputs(
         for d in DRIVERS:
             driver_rows.append(pd.DataFrame({
                 "firm_id": fy["firm_id"], "fiscal_year": fy["fiscal_year"], "measure": measure,
-                "driver": d, "firm_value": x[d], "peer_value": peer[d],
+                "driver": d, "firm_value": x[d], "raw_value": np.nan, "peer_value": peer[d],
                 "contribution": contrib[d],
             }))
-    targets = pd.concat(target_rows, ignore_index=True)
+    from levgap.history import with_history
+
+    targets = with_history(pd.concat(target_rows, ignore_index=True))
     drivers = pd.concat(driver_rows, ignore_index=True).sort_values(
         ["firm_id", "fiscal_year", "measure"], kind="stable", ignore_index=True)
     coef_rows, fit_rows = [], []

@@ -32,10 +32,11 @@ FLAGS = ("--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-
 CONSOLE = re.compile(r":CONSOLE[:(]\d*\)?\]? ?(.*)")
 
 
-def _chromium(page: Path, tmp: Path, *args: str) -> subprocess.CompletedProcess[str]:
+def _chromium(page: Path, tmp: Path, *args: str,
+              fragment: str = "") -> subprocess.CompletedProcess[str]:
     profile = tmp / f"profile-{len(list(tmp.glob('profile-*')))}"
     cmd = [CHROMIUM, *FLAGS, f"--user-data-dir={profile}", "--virtual-time-budget=3000",
-           *args, page.resolve().as_uri()]
+           *args, page.resolve().as_uri() + (f"#{fragment}" if fragment else "")]
     proc = subprocess.run(cmd, capture_output=True, text=True, timeout=120, check=False)
     assert proc.returncode == 0, proc.stderr[-2000:]
     return proc
@@ -46,9 +47,9 @@ def console_messages(stderr: str) -> list[str]:
     return [m.group(1) for line in stderr.splitlines() if (m := CONSOLE.search(line))]
 
 
-def load(page: Path, tmp: Path) -> tuple[str, list[str]]:
-    """The DOM after load and the console messages of that load."""
-    proc = _chromium(page, tmp, "--dump-dom")
+def load(page: Path, tmp: Path, fragment: str = "") -> tuple[str, list[str]]:
+    """The DOM after load (of ``page#fragment``) and the console messages of that load."""
+    proc = _chromium(page, tmp, "--dump-dom", fragment=fragment)
     return proc.stdout, console_messages(proc.stderr)
 
 
@@ -177,3 +178,75 @@ def test_proforma_page_renders_every_scenario(deal_run, tmp_path):
     assert "&lt;script&gt;document.title='pwned'&lt;/script&gt;" in dom
     assert "<script>document.title" not in dom
     assert looks_rendered(screenshot(page, tmp_path, size="1280,3000"))
+
+
+# -- the table of every firm (issue 13) ---------------------------------------------------
+
+
+def _rows(dom: str) -> list[str]:
+    """Firm ids of the table rows drawn, in order."""
+    return re.findall(r'<tr class="firm" data-firm="([^"]*)"', dom)
+
+
+def _cells(dom: str, firm: str) -> list[str]:
+    m = re.search(rf'<tr class="firm" data-firm="{re.escape(firm)}">(.*?)</tr>', dom, re.S)
+    assert m is not None, firm
+    return [re.sub(r"<[^>]+>", "", c) for c in re.findall(r"<td[^>]*>(.*?)</td>", m.group(1),
+                                                          re.S)]
+
+
+def test_report_search_finds_any_firm_of_the_year(analyst_run, tmp_path):
+    from levgap import glossary as g
+
+    page = analyst_run.out / "report.html"
+    t = analyst_run.targets
+    year = int(t["fiscal_year"].max())
+    book = t[(t["measure"] == "book") & (t["fiscal_year"] == year)].reset_index(drop=True)
+    rng = np.random.default_rng(1)
+    picks = {book["firm_id"].iloc[0], analyst_run.long_id,
+             book["firm_id"].iloc[int(rng.integers(1, len(book)))]}
+    for firm in sorted(picks):
+        dom, console = load(page, tmp_path, f"q={firm.lower()}")
+        assert console == [], console
+        assert firm in _rows(dom), firm
+        row = book[book["firm_id"] == firm].iloc[0]
+        cells = _cells(dom, firm)
+        # the page's own unpacking of the embedded data shows the run's numbers
+        assert cells[2] == g.pct(row["actual"]) and cells[3] == g.pct(row["target"])
+        assert cells[4] == g.pp(round(row["actual"], 3) - round(row["target"], 3))
+        assert cells[6] == row["status"]
+    assert int(re.search(r'data-levgap-firms="(\d+)"', dom).group(1)) == book["firm_id"].nunique()
+
+
+def test_report_search_by_name_and_no_match(analyst_run, tmp_path):
+    page = analyst_run.out / "report.html"
+    t = analyst_run.targets
+    year = int(t["fiscal_year"].max())
+    now = t[(t["measure"] == "book") & (t["fiscal_year"] == year)]
+    name = now.loc[now["firm_id"] == analyst_run.shocked, "firm_name"].iloc[0]
+    word = name.split()[0].upper()
+    dom, _ = load(page, tmp_path, f"q={word}")
+    want = set(now.loc[now["firm_name"].str.upper().str.contains(word) |
+                       now["firm_id"].str.upper().str.contains(word), "firm_id"])
+    assert int(re.search(r'data-matched="(\d+)"', dom).group(1)) == len(want)
+    assert set(_rows(dom)) == want
+    dom, _ = load(page, tmp_path, "q=zz-no-such-firm")
+    assert _rows(dom) == [] and 'data-matched="0"' in dom
+
+
+def test_report_firm_view_tells_persistent_from_new(analyst_run, tmp_path):
+    page = analyst_run.out / "report.html"
+    views = {}
+    for firm in (analyst_run.standing, analyst_run.shocked):
+        dom, console = load(page, tmp_path, f"open={firm}")
+        assert console == [], console
+        m = re.search(rf'<tr class="detail" data-detail="{re.escape(firm)}">(.*?)'
+                      r'(?:<tr class="firm"|<div class="pager">)', dom, re.S)
+        assert m is not None, firm
+        views[firm] = m.group(1)
+        assert m.group(1).count("<svg") == 2  # the bridge and the history chart
+        assert "polygon" in m.group(1) and "polyline" in m.group(1)  # band, target, actual
+    standing, shocked = views[analyst_run.standing], views[analyst_run.shocked]
+    assert "persistent: under" in standing and "outside the band on the same side" in standing
+    assert "new outside the band: over" in shocked and "persistent:" not in shocked
+    assert "newly_outside</code>: outside the band this year" in shocked

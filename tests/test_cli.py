@@ -134,7 +134,7 @@ def test_screen_and_explain(out_dir: Path, tmp_path: Path) -> None:
     rows = [ln for ln in result.output.splitlines() if ln.startswith("│")]
     # the three rows are the three largest gaps among firms over their band, in that order
     assert [r.split("│")[1].strip() for r in rows] == over["firm_id"].head(3).tolist()
-    assert all(r.split("│")[-2].strip() == "over" for r in rows)
+    assert all(r.split("│")[2].strip() == "over" for r in rows)
     assert f"{len(over)} firms over" in result.output
     firm = targets.iloc[0]["firm_id"]
     plot = tmp_path / "steps.svg"
@@ -198,7 +198,7 @@ def test_explain_and_screen_edge_cases(out_dir: Path, tmp_path: Path) -> None:
         market.set_index(["firm_id", "fiscal_year"]).index)].iloc[0]
     result = runner.invoke(app, ["explain", str(out_dir), only_book["firm_id"], "--year",
                                  str(only_book["fiscal_year"]), "--measure", "market"])
-    _one_line_error(result, "left out of that measure")
+    _one_line_error(result, "excluded from that measure")
     result = runner.invoke(app, ["explain", str(out_dir), only_book["firm_id"], "--plot",
                                  str(tmp_path / "x.csv")])
     _one_line_error(result, ".png or .svg")
@@ -231,6 +231,9 @@ def test_check_without_usable_rows_and_demo_into_a_file(tmp_path: Path) -> None:
 
 
 @pytest.mark.parametrize("args", [["screen", "{out}", "--top", "2"], ["template", "--out", "{tmp}"],
+                                  ["screen", "{out}", "--new", "--industry", "3711",
+                                   "--sort", "change", "--format", "json"],
+                                  ["screen", "{out}", "--persistent", "--format", "csv"],
                                   ["--version"], ["--help"]])
 def test_quick_commands_do_not_import_heavy_libraries(args: list[str], out_dir: Path,
                                                       tmp_path: Path) -> None:

@@ -8,6 +8,7 @@ can stand in for it.
 from __future__ import annotations
 
 import json
+import re
 import sys
 from pathlib import Path
 
@@ -63,9 +64,14 @@ def test_runs_top_to_bottom(name, kernel, tmp_path):
     )
     assert f"KERNEL={sys.executable}" in text  # the kernel really was this interpreter
     if name.startswith("01"):
-        assert "Most over-levered against peers" in text
-        assert "no network needed" in text
-        assert any("image/svg+xml" in o.get("data", {}) for o in outputs)
+        assert "not in the run: ['TR9999']" in text  # the coverage list, one id absent
+        assert "moved outside their band in the latest year" in text
+        assert "under their band for three years or more" in text
+        assert "= the run's peer median" in text and "no network needed" in text
+        assert "persistent: outside the band on the same side" in text or "newly_outside" in text
+        source = "\n".join(c.source for c in nb.cells if c.cell_type == "code")
+        imports = re.findall(r"^(?:from|import) (\S+)", source, flags=re.M)
+        assert [m for m in imports if m.startswith("levgap")] == ["levgap"]  # public API only
     else:
         assert "percentage points" in text and "book leverage" in text
         assert "= target" in text

@@ -101,6 +101,26 @@ def test_a_folder_without_a_saved_model_is_a_clear_error(tmp_path) -> None:
         levgap.load_model(tmp_path / "mixed")
 
 
+def test_rows_the_schema_refuses_are_returned_blank_not_scored(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.iloc[:4].copy().astype({"total_assets": object})
+    rows.loc[rows.index[0], "total_assets"] = -5.0
+    rows.loc[rows.index[1], "total_assets"] = "abc"
+    rows.loc[rows.index[2], "total_assets"] = float("inf")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no RuntimeWarning may escape
+        s = model.score(rows)
+    assert (s.groupby("measure").size() == 4).all()
+    bad = s[s["flags"] == "not_scorable"]
+    assert len(bad) == 3 * len(model.measures)
+    assert bad["target"].isna().all() and (bad["status"] == "").all()
+    assert set(bad["note"]) == {"total_assets must be a finite number > 0"}
+    good = s[s["flags"] != "not_scorable"]
+    assert good["target"].notna().all() and (good["note"] == "").all()
+
+
 def test_scores_carry_the_band_status_gap_and_saved_peers(saved) -> None:
     panel, result, model = saved
     scored = model.score(panel)
@@ -231,19 +251,26 @@ def test_the_specification_and_record_are_read_back(saved) -> None:
 def test_unreadable_or_newer_saved_models_are_clear_errors(tmp_path) -> None:
     from levgap.outputs import RunWriter
 
-    def folder(name: str, content: bytes):
+    def folder(name: str, text: str):
+        # a verified run whose model.json holds `text` (the run is checked first)
         with RunWriter(tmp_path / name, run_id="abc") as run:
-            run.add("model.json", content)
+            run.add("model.json", text.encode("utf-8"))
             run.commit({})
         return tmp_path / name
 
     with pytest.raises(OutputError, match="model.json must be valid JSON"):
-        levgap.load_model(folder("broken", b"{not json"))
+        levgap.load_model(folder("broken", "{not json"))
+    with pytest.raises(OutputError, match="levgap saved model"):
+        levgap.load_model(folder("list", "[1, 2]"))
     newer = {"format": FORMAT, "format_version": 2, "run_id": "abc"}
     with pytest.raises(OutputError, match="saved-model format 2 is newer"):
-        levgap.load_model(folder("newer", json.dumps(newer).encode("utf-8")))
-    bare = {"format": FORMAT, "run_id": "abc"}
-    assert levgap.load_model(folder("bare", json.dumps(bare).encode("utf-8"))).record == bare
+        levgap.load_model(folder("newer", json.dumps(newer)))
+    for bad in ("x", [1], None):
+        odd = {"format": FORMAT, "format_version": bad, "run_id": "abc"}
+        with pytest.raises(OutputError, match="format_version must be a whole number"):
+            levgap.load_model(folder(f"odd{bad!s:.1}", json.dumps(odd)))
+    plain = {"format": FORMAT, "run_id": "abc"}
+    assert levgap.load_model(folder("plain", json.dumps(plain))).record == plain
 
 
 def test_rows_to_score_must_be_a_schema_frame(saved) -> None:
@@ -258,23 +285,3 @@ def test_rows_to_score_must_be_a_schema_frame(saved) -> None:
     b = model.score(panel.head(2))
     np.testing.assert_allclose(a["target"], b["target"], rtol=0, atol=0)
     assert (a["industry"] == b["industry"]).all()
-
-
-def test_rows_the_schema_refuses_are_returned_blank_not_scored(saved) -> None:
-    import warnings
-
-    panel, _, model = saved
-    rows = panel.iloc[:4].copy().astype({"total_assets": object})
-    rows.loc[rows.index[0], "total_assets"] = -5.0
-    rows.loc[rows.index[1], "total_assets"] = "abc"
-    rows.loc[rows.index[2], "total_assets"] = float("inf")
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")  # no RuntimeWarning may escape
-        s = model.score(rows)
-    assert (s.groupby("measure").size() == 4).all()
-    bad = s[s["flags"] == "not_scorable"]
-    assert len(bad) == 3 * len(model.measures)
-    assert bad["target"].isna().all() and (bad["status"] == "").all()
-    assert set(bad["note"]) == {"total_assets must be a finite number > 0"}
-    good = s[s["flags"] != "not_scorable"]
-    assert good["target"].notna().all() and (good["note"] == "").all()

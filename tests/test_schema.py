@@ -63,16 +63,22 @@ def test_template_panel_reads_cleanly_with_template_config():
 
 
 def test_write_template_generates_without_checkout(tmp_path):
-    written = write_template(tmp_path / "tpl")
-    assert [p.name for p in written] == list(TEMPLATE_FILES)
+    written, kept = write_template(tmp_path / "tpl")
+    assert [p.name for p in written] == list(TEMPLATE_FILES) and kept == []
     for p in written:
         assert p.read_text(encoding="utf-8") == template_files()[p.name]
     # files levgap wrote are replaced
-    assert len(write_template(tmp_path / "tpl")) == len(TEMPLATE_FILES)
+    assert len(write_template(tmp_path / "tpl")[0]) == len(TEMPLATE_FILES)
     mine = tmp_path / "mine"
     mine.mkdir()
     (mine / "README.md").write_text("my notes")
-    with pytest.raises(OutputError, match="README.md: the file exists and levgap did not write"):
+    with pytest.raises(OutputError, match="README.md: the file exists and levgap did not write"
+                       ".* pass --force to write the other template files"):
         write_template(mine)
     assert (mine / "README.md").read_text() == "my notes"
     assert sorted(p.name for p in mine.iterdir()) == ["README.md"]  # nothing written
+    # the --force the message promises: the others written, the user's file kept
+    written, kept = write_template(mine, force=True)
+    assert [p.name for p in kept] == ["README.md"]
+    assert sorted(p.name for p in written) == sorted(set(TEMPLATE_FILES) - {"README.md"})
+    assert (mine / "README.md").read_text() == "my notes"

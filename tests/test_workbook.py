@@ -15,7 +15,7 @@ from _report_data import make_outputs
 from levgap.errors import DataWarning, OutputError
 from levgap.report import workbook as wbmod
 from levgap.report.tables import neutralise
-from levgap.report.workbook import SHEETS, write_workbook
+from levgap.report.workbook import SHEETS, readable_targets, write_workbook
 
 
 @pytest.fixture(scope="module")
@@ -43,6 +43,8 @@ def test_five_sheets_frozen_headers_autofilter(book, outputs):
     for sheet, key in sizes.items():
         ws = wb[sheet]
         frame = tables[key]
+        if sheet == "Targets":  # the words beside the codes
+            frame = readable_targets(frame, outputs[1])
         assert ws.freeze_panes == "A2", sheet
         last = openpyxl.utils.get_column_letter(frame.shape[1])
         assert ws.auto_filter.ref == f"A1:{last}{len(frame) + 1}", sheet
@@ -72,8 +74,15 @@ def test_no_formula_cells(book):
 def test_values_round_trip(book, outputs):
     path, _ = book
     tables, _ = outputs
-    expected = neutralise(tables["targets"])
+    expected = neutralise(readable_targets(tables["targets"], outputs[1]))
     got = pd.read_excel(path, sheet_name="Targets", engine="openpyxl")
+    cols = list(got.columns)
+    assert cols[cols.index("industry") + 1] == "industry_name"
+    assert cols[cols.index("flags") + 1] == "flag_notes"
+    flagged = got[got["flags"].fillna("").str.startswith("volatility_imputed")]
+    assert len(flagged)
+    assert flagged["flag_notes"].str.startswith("volatility_imputed: fewer than three").all()
+    assert (got["flag_notes"].isna() == (got["flags"].fillna("") == "")).all()
     assert list(got.columns) == list(expected.columns)
     for col in ("actual", "target", "gap", "gap_z", "debt_to_target", "peer_target"):
         np.testing.assert_array_equal(got[col].to_numpy(float), expected[col].to_numpy(float))
@@ -112,8 +121,13 @@ def test_number_formats(book):
 def test_summary(book, outputs):
     _, wb = book
     tables, manifest = outputs
-    items = {r[0]: r[1] for r in wb["Summary"].iter_rows(min_row=2, values_only=True) if r[0]}
+    rows = list(wb["Summary"].iter_rows(min_row=2, values_only=True))
+    cut = next(i for i, r in enumerate(rows) if r[0] and str(r[0]).startswith("Glossary"))
+    items = {r[0]: r[1] for r in rows[:cut] if r[0]}
     assert items["firms"] == manifest["counts"]["firms"]
+    glossary = {r[0]: r[1:4] for r in rows[cut + 2:] if r[0]}
+    assert glossary["gap"] == ("gap", "pp", "actual minus target")
+    assert glossary["debt_to_target"][0] == "debt to target"
     assert items["standard errors clustered by"] == "firm"
     assert items["input file"] == "panels/<odd> name.csv"
     assert "not investment, credit or legal advice" in items["caution"]

@@ -6,6 +6,7 @@ Public API::
     result = levgap.analyze(panel)
     result.targets, result.drivers, result.coefficients, result.model_fit, result.exclusions
     result.write("out/")
+    res = levgap.open_results("out/")         # screen, one firm, its history and peers
 
 Heavy modules (pandas, statsmodels, ...) are imported on first use, so that
 ``import levgap`` and the CLI's quick commands stay fast.
@@ -32,10 +33,16 @@ _EXPORTS = {
     "DealCheck": "levgap.deal.result",
     "Scenario": "levgap.deal.scenario",
     "load_model": "levgap.models.saved",
+    "open_results": "levgap.results",
+    "Results": "levgap.results",
     "SavedModel": "levgap.models.saved",
     "Panel": "levgap.panel",
     "RunConfig": "levgap.config",
     "ModelSpec": "levgap.config",
+    "InputOptions": "levgap.config",
+    "Units": "levgap.config",
+    "Industry": "levgap.config",
+    "demo_panel": "levgap.demo",
     "LevgapError": "levgap.errors",
     "SchemaError": "levgap.errors",
     "DataWarning": "levgap.errors",

@@ -19,10 +19,12 @@ ProgressFn = Callable[[str, int, int], None]
 TARGET_COLUMNS = (
     "firm_id", "firm_name", "fiscal_year", "industry", "measure", "actual", "target", "gap",
     "gap_z", "band_low", "band_high", "status", "peer_median", "peer_count", "peer_target",
-    "debt_to_target", "target_full", "fold", "flags",
+    "debt_to_target", "target_full", "fold", "gap_prev", "gap_change", "gap_mean_prior",
+    "years_outside", "flags",
 )
 DRIVER_COLUMNS = (
-    "firm_id", "fiscal_year", "measure", "driver", "firm_value", "peer_value", "contribution"
+    "firm_id", "fiscal_year", "measure", "driver", "firm_value", "raw_value", "peer_value",
+    "contribution"
 )
 COEF_COLUMNS = (
     "measure", "model", "term", "estimate", "std_error", "t_stat", "p_value", "ci_low", "ci_high"
@@ -33,6 +35,14 @@ FIT_COLUMNS = (
     "coverage_out_of_time", "out_of_time_year",
 )
 FOLD_COEF_COLUMNS = ("measure", "model", "fold", "term", "estimate")
+
+ADDED_COLUMNS: dict[str, tuple[str, ...]] = {
+    "targets": ("gap_prev", "gap_change", "gap_mean_prior", "years_outside"),
+    "drivers": ("raw_value",),
+}
+"""Columns a run writes since the analyst's screen (issue 13). A folder written before lacks
+them and stays readable: the readers compute the history from the targets' own rows and leave
+``raw_value`` blank (``fill_added_columns``)."""
 
 TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "targets": TARGET_COLUMNS,
@@ -46,9 +56,11 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
 
 COLUMN_KINDS: dict[str, str] = {
     **dict.fromkeys(("fiscal_year", "peer_count", "n_obs", "n_firms", "n_industries",
-                     "source_row", "fold", "coverage_industries", "out_of_time_year"), "integer"),
+                     "source_row", "fold", "coverage_industries", "out_of_time_year",
+                     "years_outside"), "integer"),
     **dict.fromkeys(("actual", "target", "gap", "gap_z", "band_low", "band_high", "peer_median",
                      "peer_target", "debt_to_target", "target_full", "firm_value", "peer_value",
+                     "raw_value", "gap_prev", "gap_change", "gap_mean_prior",
                      "contribution", "estimate", "std_error", "t_stat", "p_value", "ci_low",
                      "ci_high", "r2", "r2_oos", "rmse_oos", "coverage", "coverage_industry_min",
                      "coverage_industry_max", "coverage_out_of_time"), "number"),
@@ -88,7 +100,9 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
 
         wanted = V01_COLUMNS.get(name, ())
     else:
-        wanted = TABLE_COLUMNS.get(name, ())
+        added = ADDED_COLUMNS.get(name, ())
+        wanted = tuple(c for c in TABLE_COLUMNS.get(name, ())
+                       if c in found or c not in added)
     missing = [c for c in wanted if c not in found]
     if missing:
         raise OutputError(
@@ -107,6 +121,24 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
                 f"{f' such as {shown}' if shown else ''}. The file was edited or damaged; "
                 "re-run `levgap analyze`."
             )
+
+
+def fill_added_columns(name: str, frame: pd.DataFrame) -> pd.DataFrame:
+    """A table of a run written before ``ADDED_COLUMNS`` existed, with them: the history from
+    the targets' own rows (``levgap.history.with_history``), ``raw_value`` blank."""
+    missing = [c for c in ADDED_COLUMNS.get(name, ()) if c not in frame.columns]
+    if not missing:
+        return frame
+    if name == "targets":
+        from levgap.history import with_history
+
+        return with_history(frame)
+    import numpy as np
+
+    out = frame.copy()
+    at = list(out.columns).index("firm_value") + 1 if "firm_value" in out else len(out.columns)
+    out.insert(at, "raw_value", np.nan)
+    return out
 
 
 @dataclass(frozen=True, slots=True)

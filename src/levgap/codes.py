@@ -86,8 +86,34 @@ ANALYSIS_FLAGS: dict[str, str] = {
     "market_target_at_or_above_one": "a market target of 1 or more (linear model): debt to "
     "target replaces every share",
     "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
+    "persistent": "outside the band on the same side for three or more consecutive fiscal "
+    "years: a standing policy rather than a new event",
+    "newly_outside": "outside the band this year, and not on that side the year before: a "
+    "new event",
+    "few_peers": "the peer median and profile rest on fewer peers than [model] min_peers",
+    "peers_from_parent": "no other firm of the peer group that year: the peers are the "
+    "industries of its parent group",
+    "peers_whole_year": "no peer group or parent group with another firm that year: the "
+    "peers are every other firm of the year",
+    "peers_listed": "the peers are the firm's own list (peers.csv) present that year",
+    "peer_list_unmatched": "the firm has a peer list but none of its peers is present that "
+    "year: the usual peers are used",
 }
 """Flags the analysis adds to kept rows (beside those of validation)."""
+
+
+def flag_words(flags: object) -> list[tuple[str, str]]:
+    """Each flag of a ``;``-joined flags cell with its meaning in words.
+
+    Examples
+    --------
+    >>> flag_words("persistent;few_peers")[0][0]
+    'persistent'
+    """
+    if flags is None or (isinstance(flags, float) and flags != flags):
+        return []
+    known = {**FLAGS, **ANALYSIS_FLAGS}
+    return [(code, known.get(code, code)) for code in str(flags).split(";") if code]
 
 ANALYSIS_REASONS: dict[str, str] = {
     "no_prior_year": "lag_drivers is on and the firm has no row for the previous fiscal year",

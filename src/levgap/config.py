@@ -12,10 +12,17 @@ A run configuration has four tables; every key is optional::
     encoding = "utf-8"   # default: UTF-8 (BOM allowed), Latin-1 fallback with a warning
     sheet = "Panel"      # workbooks only; default: the first sheet
     skip_rows = 0        # lines above the header
+    industry_names = "industry_names.csv"   # code,name: readable industry names
+    peers = "peers.csv"  # firm_id,peer_id: a firm's own peers for the attribution
+    sic_titles = true    # name 4- and 2-digit numeric codes by the SEC's SIC titles
 
     [units]
     scale = 1.0          # multiply every money column by this (0.001: thousands -> millions)
-    currency = "EUR"     # reference currency, for the record
+    currency = "EUR"     # reference currency, for the record and the labels
+    unit = "millions"    # the money unit after scale, for the labels
+
+    [industries]         # text labels: parent groups (pooling, peers) and names
+    "Motor homes" = { parent = "Vehicles", name = "Motor homes and campers" }
 
     [model]
     measures = ["book", "market"]
@@ -24,6 +31,7 @@ A run configuration has four tables; every key is optional::
     min_industry_firms = 5
     industry_digits = 0  # industry effect: 0 the code as given; n its first n characters
     peer_digits = 0      # peer group (attribution): 0 the code as given; n its first n characters
+    min_peers = 5        # fewer peers than this: flagged few_peers
     drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
     leases_as_debt = false
     folds = 5
@@ -49,6 +57,8 @@ from levgap.schema import BY_NAME, DRIVERS, MEASURES, OPTIONAL_DRIVERS
 CLUSTERS: tuple[str, ...] = ("firm", "firm-year", "industry")
 POOLINGS: tuple[str, ...] = ("shrink", "parent")
 _MAX_TOML = 1 << 20
+FILE_KEYS: tuple[str, ...] = ("industry_names", "peers")
+"""Keys of ``[input]`` that name files (relative to the run configuration's folder)."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -70,6 +80,16 @@ class InputOptions:
         Worksheet of a workbook; ``None`` takes the first.
     skip_rows : int, default=0
         Lines above the header line.
+    industry_names : str or None, default=None
+        A CSV file of readable industry names (``code,name``); in a run configuration a
+        relative path is taken from the configuration's folder.
+    peers : str or None, default=None
+        A CSV file of peer lists (``firm_id,peer_id``): a listed firm's attribution takes
+        its listed peers instead of its peer group.
+    sic_titles : bool, default=True
+        Name numeric industry codes of four digits (and two-digit major groups) by the SEC's
+        SIC titles shipped with levgap, where no other name is given. Turn off for other code
+        lists (NAICS, ...).
     """
 
     TABLE: ClassVar[str] = "input"
@@ -80,6 +100,9 @@ class InputOptions:
     encoding: str | None = None
     sheet: str | None = None
     skip_rows: int = 0
+    industry_names: str | None = None
+    peers: str | None = None
+    sic_titles: bool = True
 
     def __post_init__(self) -> None:
         check_fields(self)
@@ -102,7 +125,7 @@ class InputOptions:
                 f"[input] decimal and thousands must not be letters or digits; got "
                 f"{self.decimal!r} and {self.thousands!r}."
             )
-        for name in ("encoding", "sheet"):
+        for name in ("encoding", "sheet", "industry_names", "peers"):
             v = getattr(self, name)
             if v is not None and (not isinstance(v, str) or not v):
                 raise ConfigError(f"[input] {name} must be a non-empty text; got {v!r}.")
@@ -120,18 +143,25 @@ class Units:
         Every money column is multiplied by this on reading.
     currency : str or None, default=None
         Reference currency, recorded in ``run.json``.
+    unit : str or None, default=None
+        The money unit after ``scale`` in words (``"millions"``), for labels: money figures
+        then read, say, "EUR millions".
     """
 
     TABLE: ClassVar[str] = "units"
 
     scale: float = 1.0
     currency: str | None = None
+    unit: str | None = None
 
     def __post_init__(self) -> None:
         if isinstance(self.scale, int | float) and not isinstance(self.scale, bool) and not (
                 0 < self.scale < float("inf")):
             raise ConfigError(f"[units] scale must be a number > 0; got {self.scale!r}.")
         check_fields(self)
+        if self.unit is not None and not self.unit.strip():
+            raise ConfigError(f"[units] unit must be a non-empty text such as 'millions'; got "
+                              f"{self.unit!r}.")
         if self.currency is not None:
             from levgap.currencies import CURRENCIES
 
@@ -165,6 +195,8 @@ class ModelSpec:
         Peer group of the attribution (the peer median and driver profile): 0 uses the
         industry code as given; n > 0 its first n characters. Independent of the model's
         ``industry_digits``.
+    min_peers : int, default=5
+        A firm-year whose peer median rests on fewer peers is flagged ``few_peers``.
     drivers : tuple of str
         Drivers in the model.
     leases_as_debt : bool, default=False
@@ -202,6 +234,7 @@ class ModelSpec:
     min_industry_firms: int = 5
     industry_digits: int = 0
     peer_digits: int = 0
+    min_peers: int = 5
     drivers: tuple[str, ...] = DRIVERS
     leases_as_debt: bool = False
     folds: int = 5
@@ -244,6 +277,8 @@ class ModelSpec:
                 f"[model] industry_digits must be 0 or more; got {self.industry_digits}.")
         if self.peer_digits < 0:
             raise ConfigError(f"[model] peer_digits must be 0 or more; got {self.peer_digits}.")
+        if self.min_peers < 1:
+            raise ConfigError(f"[model] min_peers must be at least 1; got {self.min_peers}.")
         if self.folds < 2:
             raise ConfigError(f"[model] folds must be at least 2; got {self.folds}.")
         if self.seed < 0:
@@ -270,6 +305,32 @@ class ModelSpec:
 
 
 @dataclass(frozen=True, slots=True)
+class Industry:
+    """What the run configuration says about one industry label (``[industries]``).
+
+    Parameters
+    ----------
+    parent : str or None, default=None
+        Parent group: a small industry is pooled toward the industries with effects of their
+        own that name the same parent, and looks for peers among them when it has none.
+    name : str or None, default=None
+        Readable name shown beside the label.
+    """
+
+    TABLE: ClassVar[str] = "industries"
+
+    parent: str | None = None
+    name: str | None = None
+
+    def __post_init__(self) -> None:
+        check_fields(self)
+        for key in ("parent", "name"):
+            v = getattr(self, key)
+            if v is not None and not v.strip():
+                raise ConfigError(f"[industries] {key} must be a non-empty text; got {v!r}.")
+
+
+@dataclass(frozen=True, slots=True)
 class RunConfig:
     """Everything a run needs besides the data.
 
@@ -282,6 +343,13 @@ class RunConfig:
     model : ModelSpec
     source : str or None
         Path of the TOML file this came from.
+    industries : dict of str to Industry
+        Industry label (as the model's industry level shows it) -> its parent group and name
+        (``[industries]``; names from ``[input] industry_names`` are merged in when the run
+        starts).
+    peers : dict of str to tuple of str
+        Firm id -> the firm ids of its own peers (from ``[input] peers``, read when the run
+        starts, or given directly).
     """
 
     columns: dict[str, str] = field(default_factory=dict)
@@ -289,6 +357,8 @@ class RunConfig:
     units: Units = field(default_factory=Units)
     model: ModelSpec = field(default_factory=ModelSpec)
     source: str | None = None
+    industries: dict[str, Industry] = field(default_factory=dict)
+    peers: dict[str, tuple[str, ...]] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         if not isinstance(self.columns, dict):
@@ -317,6 +387,16 @@ class RunConfig:
             if not isinstance(getattr(self, name), kind):
                 raise ConfigError(f"[{name}] must be a {kind.__name__}; got "
                                   f"{getattr(self, name)!r}.")
+        if not isinstance(self.industries, dict) or not all(
+                isinstance(k, str) and isinstance(v, Industry)
+                for k, v in self.industries.items()):
+            raise ConfigError("[industries] must map industry labels to Industry entries; got "
+                              f"{self.industries!r}.")
+        if not isinstance(self.peers, dict) or not all(
+                isinstance(k, str) and isinstance(v, tuple) and all(isinstance(p, str) for p in v)
+                for k, v in self.peers.items()):
+            raise ConfigError("peers must map firm ids to tuples of peer firm ids; got "
+                              f"{type(self.peers).__name__}.")
 
     @classmethod
     def from_toml(cls, path: str | Path) -> RunConfig:
@@ -348,13 +428,18 @@ class RunConfig:
             raw = tomllib.loads(data.decode("utf-8-sig"))
         except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
             raise ConfigError(f"{p}: not a valid TOML file: {exc}.") from None
+        inp = raw.get("input")
+        if isinstance(inp, dict):  # file names are taken from the configuration's folder
+            raw["input"] = {k: (str(p.parent / v) if k in FILE_KEYS and isinstance(v, str)
+                                and v.strip() and not Path(v).is_absolute() else v)
+                            for k, v in inp.items()}
         return cls.from_dict(raw, source=str(p))
 
     @classmethod
     def from_dict(cls, raw: dict[str, Any], *, source: str | None = None) -> RunConfig:
         """Build from the parsed TOML tables (see the module docstring)."""
         where = f"{source}: " if source else ""
-        tables = {"columns", "input", "units", "model"}
+        tables = {"columns", "input", "units", "model", "industries"}
         unknown = sorted(set(raw) - tables)
         if unknown:
             raise ConfigError(
@@ -368,8 +453,19 @@ class RunConfig:
             "units": _build(Units, raw.get("units", {}), "units", where),
             "model": _build(ModelSpec, raw.get("model", {}), "model", where),
         }
+        industries = raw.get("industries", {})
+        if not isinstance(industries, dict):
+            raise ConfigError(f"{where}[industries] must be a table of label = {{ parent = "
+                              f"..., name = ... }}; got {industries!r}.")
+        entries = {}
+        for label, value in industries.items():
+            if not isinstance(value, dict):
+                raise ConfigError(
+                    f"{where}[industries] {label!r} must be a table such as {{ parent = "
+                    f"\"Vehicles\", name = \"Motor homes\" }}; got {value!r}.")
+            entries[str(label).strip()] = _build(Industry, value, "industries", where)
         try:
-            return cls(columns=dict(columns), source=source, **parts)
+            return cls(columns=dict(columns), source=source, industries=entries, **parts)
         except ConfigError as exc:
             raise ConfigError(f"{where}{exc}") from None
 
@@ -383,6 +479,8 @@ class RunConfig:
                 k: (list(v) if isinstance(v, tuple) else v)
                 for k, v in dataclasses.asdict(self.model).items()
             },
+            "industries": {k: {f: x for f, x in dataclasses.asdict(v).items() if x is not None}
+                           for k, v in self.industries.items()},
             "source": self.source,
         }
 

@@ -90,6 +90,18 @@ def planted_shocks(seed: int = 7) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def demo_panel(seed: int = 7) -> pd.DataFrame:
+    """The demo panel (:func:`make_panel`), as the public API names it (``levgap.demo_panel``)."""
+    return make_panel(seed)
+
+
+def industry_names() -> pd.DataFrame:
+    """The demo's own names of its industries (``code, name``), for ``[input]
+    industry_names``: the Tarrow Reach's trades, not the SIC titles of the codes."""
+    return pd.DataFrame({"code": [c for c, *_ in INDUSTRIES],
+                         "name": [label for _, label, *_ in INDUSTRIES]})
+
+
 def make_panel(seed: int = 7) -> pd.DataFrame:
     """Invent the Tarrow Reach panel in schema v1 (money in millions).
 

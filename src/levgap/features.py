@@ -21,6 +21,7 @@ Drivers are winsorised within fiscal year at the quantiles of ``ModelSpec.winsor
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -70,7 +71,8 @@ class Features:
 
 
 def build_features(
-    data: pd.DataFrame, spec: ModelSpec, transforms: DriverTransforms | None = None
+    data: pd.DataFrame, spec: ModelSpec, transforms: DriverTransforms | None = None, *,
+    parents: Mapping[str, str] | None = None,
 ) -> Features:
     """Compute measures and drivers for a validated panel.
 
@@ -107,7 +109,8 @@ def build_features(
                           else "outside_fitted_range")
     if spec.lag_drivers:
         lag_rows(f, drivers)
-    levels = industry_levels(f["effect_group"], f["firm_id"], spec.min_industry_firms)
+    levels = industry_levels(f["effect_group"], f["firm_id"], spec.min_industry_firms,
+                             parents)
     f["flags"] = add_flag(f["flags"], levels.small[levels.codes], "industry_effect_pooled")
     return Features(frame=f, drivers=tuple(drivers), levels=levels, transforms=transforms,
                     notes=tuple(notes))
@@ -201,7 +204,7 @@ def lag_rows(f: pd.DataFrame, drivers: list[str]) -> None:
     prev = pd.MultiIndex.from_arrays([f["firm_id"], f["fiscal_year"] - 1])
     pos = here.get_indexer(prev)
     found = pos >= 0
-    for name in drivers:
+    for name in [*drivers, *(d + "_raw" for d in drivers if d + "_raw" in f)]:
         values = f[name].to_numpy()
         f[name] = np.where(found, values[np.where(found, pos, 0)], np.nan)
 

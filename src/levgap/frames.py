@@ -105,7 +105,7 @@ def drivers_frame(
     cols["measure"] = _labels([p["measure"] for p in parts]).take(which)
     del which
     cols["driver"] = _labels(names).take(np.tile(np.arange(k, dtype=np.int32), sum(sizes)))
-    for c in ("firm_value", "peer_value", "contribution"):
+    for c in ("firm_value", "raw_value", "peer_value", "contribution"):
         cols[c] = np.concatenate([p.pop(c).reshape(-1) for p in parts])
     return pd.DataFrame(cols, copy=False)
 

@@ -2,12 +2,14 @@
 
 An industry (peer group) with at least ``min_industry_firms`` distinct firms has an effect of
 its own; a smaller one is pooled toward its parent group (``levgap.models.pooling``): the
-industries with effects of their own that share the longest leading part of its numeric code,
-else every such industry ("the whole sample").
+industries with effects of their own that name the same parent in ``[industries]`` of the run
+configuration (how text labels get a parent), else those that share the longest leading part
+of its numeric code, else every such industry ("the whole sample").
 """
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -67,8 +69,22 @@ class IndustryLevels:
         }
 
 
-def industry_levels(peer: pd.Series, firm: pd.Series, min_firms: int) -> IndustryLevels:
-    """Levels, small industries and their parents (see the module docstring)."""
+def industry_levels(peer: pd.Series, firm: pd.Series, min_firms: int,
+                    parents: Mapping[str, str] | None = None) -> IndustryLevels:
+    """Levels, small industries and their parents (see the module docstring).
+
+    Parameters
+    ----------
+    peer : pandas.Series
+        Industry level of each row.
+    firm : pandas.Series
+        Firm of each row.
+    min_firms : int
+        Levels with fewer distinct firms are small.
+    parents : mapping of str to str, optional
+        Level label -> parent group named in the run configuration.
+    """
+    parents = parents or {}
     codes, labels = pd.factorize(peer.astype(str).to_numpy(), sort=True)
     labels = np.asarray(labels, dtype=object).astype(str)
     L = len(labels)
@@ -87,7 +103,11 @@ def industry_levels(peer: pd.Series, firm: pd.Series, min_firms: int) -> Industr
     for i in np.flatnonzero(small):
         code = str(labels[i])
         label, mem = WHOLE_SAMPLE, large
-        if code.isdigit():
+        named = [j for j in large if parents.get(str(labels[j])) == parents[code]] \
+            if code in parents else []
+        if named:
+            label, mem = parents[code], np.array(named, dtype=large.dtype)
+        elif code.isdigit():
             for cut in range(len(code) - 1, 0, -1):
                 hit = by_prefix.get(code[:cut])
                 if hit:

@@ -15,10 +15,12 @@ from __future__ import annotations
 
 import csv
 import io
+from collections.abc import Iterable, Mapping
 from functools import lru_cache
 from importlib.resources import files
+from typing import Any
 
-__all__ = ["major_group_title", "sic_title", "sic_titles"]
+__all__ = ["industry_names", "major_group_title", "sic_title", "sic_titles"]
 
 
 @lru_cache(maxsize=1)  # the shipped file never changes while a process runs
@@ -86,3 +88,49 @@ def sic_title(code: object) -> str | None:
     if hit is not None:
         return hit[1]
     return major_group_title(c)
+
+
+def industry_names(labels: Iterable[object], configured: Mapping[str, str] | None = None, *,
+                   sic: bool = True) -> dict[str, str]:
+    """Readable names of industry labels: configured names first, then the SEC's SIC titles.
+
+    Parameters
+    ----------
+    labels : iterable
+        Industry codes or labels (and peer groups, parent groups).
+    configured : mapping of str to str, optional
+        Names from ``[industries]`` or the ``industry_names`` file.
+    sic : bool, default=True
+        Name four-digit numeric codes by the SEC's titles (else their major group's) and
+        two-digit codes by the major group's title.
+
+    Returns
+    -------
+    dict of str to str
+        Label -> name, for the labels that have one.
+
+    Examples
+    --------
+    >>> industry_names(["2834", "28", "Motor homes"], {"Motor homes": "Motor homes and campers"})
+    {'2834': 'PHARMACEUTICAL PREPARATIONS', '28': 'Chemicals and Allied Products', \
+'Motor homes': 'Motor homes and campers'}
+    """
+    configured = configured or {}
+    out: dict[str, str] = {}
+    for label in dict.fromkeys(str(v) for v in labels):
+        name = configured.get(label)
+        if name is None and sic and label.isdigit():
+            name = (sic_title(label) if len(label) == 4 else
+                    major_group_title(label) if len(label) == 2 else None)
+        if name:
+            out[label] = name
+    return out
+
+
+def run_industry_names(feats: Any, config: Any) -> dict[str, str]:
+    """Names of every industry, industry level, peer group and parent group of a run."""
+    frame = feats.frame
+    labels = [*frame["industry"].unique(), *frame["effect_group"].unique(),
+              *frame["peer_group"].unique(), *feats.levels.parent_labels]
+    configured = {k: v.name for k, v in config.industries.items() if v.name}
+    return industry_names(labels, configured, sic=config.input.sic_titles)

@@ -44,12 +44,14 @@ def build_manifest(
             versions[pkg] = None
     versions["python"] = platform.python_version()
     records = records or {}
+    named = {v.parent for v in config.industries.values() if v.parent}
     pooled: dict[str, dict[str, Any]] = {}
     for measure, rec in records.items():
         for item in rec.get("pooled", []):
             entry = pooled.setdefault(item["industry"], {
                 "industry": item["industry"], "firms": item["firms"],
                 "parent": "whole sample" if item["parent"] == POOLED
+                else f"industries of parent group {item['parent']}" if item["parent"] in named
                 else f"industries with code prefix {item['parent']}",
                 "members": _members(feats, item["industry"]), "weight": {},
             })
@@ -60,7 +62,11 @@ def build_manifest(
         "schema_version": SCHEMA_VERSION,
         "inputs": [{"path": panel.source, "sha256": panel.sha256, "rows": panel.n_input_rows}]
         + ([{"path": config.source, "sha256": digest(config.source), "role": "run configuration"}]
-           if config.source and Path(config.source).is_file() else []),
+           if config.source and Path(config.source).is_file() else [])
+        + [{"path": path, "sha256": digest(path), "role": role}
+           for role, path in (("industry names", config.input.industry_names),
+                              ("peer list", config.input.peers))
+           if path and Path(path).is_file()],
         "options": config.to_dict(),
         "drivers": list(feats.drivers),
         "versions": versions,

@@ -8,7 +8,7 @@ function from ``levgap.models.MODELS`` and never branches on the model's name.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -30,6 +30,8 @@ from levgap.frames import (
     row_ledger,
     targets_frame,
 )
+from levgap.history import history_arrays
+from levgap.industries import run_industry_names
 from levgap.manifest import build_manifest
 from levgap.models import MODELS
 from levgap.models.crossfit import CrossFit, assign_folds, crossfit_targets
@@ -38,6 +40,8 @@ from levgap.models.pooling import Components, estimate_components, hard, penalis
 from levgap.models.result import Fit
 from levgap.models.saved import measure_record, saved_record
 from levgap.panel import Panel
+from levgap.peers import LISTED, basis_flags, listed_profile, peer_list_notes
+from levgap.peers import partitions as peer_partitions
 from levgap.recap import RECAP_FLAGS, debt_to_target
 
 COVERAGE_MIN_ROWS = 100  # industries with at least this many firm-years in the coverage range
@@ -95,7 +99,8 @@ def analyze(
     config, panel = _inputs(panel, config, spec)
     spec = config.model
     ledger = [panel.exclusions]
-    ctx = context(build_features(panel.data, spec), spec, panel.source, ledger)
+    parents = {k: v.parent for k, v in config.industries.items() if v.parent}
+    ctx = context(build_features(panel.data, spec, parents=parents), spec, panel.source, ledger)
     fit_fn = MODELS[spec.model]
     targets, drivers, coefs, folds, fits, records = [], [], [], [], [], {}
     notes = [*panel.warnings, *ctx.feats.notes]
@@ -107,12 +112,13 @@ def analyze(
         est = estimate(fit_fn, ctx, rows, measure, spec, step)
         y = ctx.feats.frame[measure].to_numpy(dtype=float)[rows]
         band, low, high = band_stage(y, est, ctx.level[rows], ctx, spec)
-        attr = attribute(ctx, rows, y, est)
+        attr = attribute(ctx, rows, y, est, config.peers, spec.min_peers)
         notes += [f"{measure}: {n}" for n in est.full.notes]
         part = _target_part(ctx, rows, measure, y, est, band, low, high, attr, spec)
         targets.append(part)
         drivers.append({"rows": part["rows"], "measure": measure,
                         "firm_value": ctx.X[rows][part["keep"]],
+                        "raw_value": raw_values(ctx, rows[part["keep"]]),
                         "peer_value": attr["X_peer"][part["keep"]],
                         "contribution": attr["contributions"][part["keep"]]})
         del part["keep"]
@@ -124,8 +130,12 @@ def analyze(
         raise ModelError(f"{panel.source}: at least one measure must be estimable; got none "
                          f"({' '.join(notes)}).")
     exclusions = concat_ledger(ledger)
+    notes += peer_list_notes(config.peers, ctx.feats.frame["firm_id"])
     manifest = build_manifest(panel, config, ctx.feats, ctx.feats.frame, exclusions, notes,
                               records)
+    manifest["industry_names"] = run_industry_names(ctx.feats, config)
+    saved = saved_record(ctx, spec, records, manifest)
+    saved["peer_lists"] = {k: list(v) for k, v in config.peers.items()}
     return Analysis(
         targets=targets_frame(ctx.feats.frame, targets),
         drivers=drivers_frame(ctx.feats.frame, drivers, ctx.feats.drivers),
@@ -134,14 +144,16 @@ def analyze(
         exclusions=exclusions,
         fold_coefficients=pd.concat(folds, ignore_index=True),
         manifest=manifest,
-        saved_model=saved_record(ctx, spec, records, manifest),
+        saved_model=saved,
     )
 
 
 def _inputs(
     panel: Panel | pd.DataFrame, config: RunConfig | None, spec: ModelSpec | None
 ) -> tuple[RunConfig, Panel]:
-    config = config or RunConfig()
+    from levgap.ingest.lists import load_references
+
+    config = load_references(config or RunConfig())
     if spec is not None:
         config = replace(config, model=spec)
     if not isinstance(panel, Panel):
@@ -285,24 +297,25 @@ def band_stage(
 # -- stage: attribution ------------------------------------------------------------------
 
 
-def attribute(ctx: Context, rows: np.ndarray, y: np.ndarray, est: Estimate) -> dict[str, Any]:
+def attribute(ctx: Context, rows: np.ndarray, y: np.ndarray, est: Estimate,
+              lists: Mapping[str, Sequence[str]] | None = None,
+              min_peers: int = 1) -> dict[str, Any]:
     """Peer profile and median (leave-one-out), peer target and exact contributions.
 
-    Peers: the firm's peer group in that year, without the firm; else the industries its
-    industry is pooled toward, in that year; else the whole year; else every other firm-year
-    of the panel (flagged ``peers_other_years``); else none (flagged ``no_peers``).
+    Peers (``levgap.peers``): the firm's listed peers when it has a peer list; else its peer
+    group in that year, without the firm; else the industries its industry is pooled toward,
+    in that year; else the whole year; else every other firm-year of the panel; else none.
+    Each fallback, a list without a match and fewer than ``min_peers`` peers are flagged.
     """
-    level, year, peer = ctx.level[rows], ctx.year[rows], ctx.peer[rows]
-    n_years = len(ctx.years)
     lv = ctx.feats.levels
-    parents = []
-    for pid in range(lv.members.shape[0]):
-        mask = lv.members[pid][level] | (lv.parent[level] == pid)
-        parents.append((mask, year))
-    partitions = [[(None, peer * n_years + year)], parents, [(None, year)],
-                  [(None, np.zeros(len(rows), dtype=np.int64))]]
+    parts = peer_partitions(ctx.level[rows], ctx.year[rows], ctx.peer[rows], len(ctx.years),
+                            lv.members, lv.parent)
     X = ctx.X[rows]
-    base, count, used = peer_profile(np.column_stack([X, y]), partitions)
+    values = np.column_stack([X, y])
+    base, count, used = peer_profile(values, parts)
+    own, own_count, found, listed = listed_profile(
+        ctx.feats.frame["firm_id"].to_numpy()[rows], ctx.year[rows], values, lists or {})
+    base[found], count[found], used[found] = own[found], own_count[found], LISTED
     X_peer, peer_med = base[:, :-1], base[:, -1]
     has = used >= 0
     contributions = np.full(X.shape, np.nan)
@@ -313,7 +326,7 @@ def attribute(ctx: Context, rows: np.ndarray, y: np.ndarray, est: Estimate) -> d
     return {"X_peer": X_peer, "peer_median": peer_med, "peer_count": count,
             "peer_target": peer_target, "contributions": contributions,
             "method": attr.method,
-            "flags": {"peers_other_years": used == 3, "no_peers": ~has}}
+            "flags": basis_flags(used, listed, found, count, min_peers)}
 
 
 # -- stage: tables -----------------------------------------------------------------------
@@ -326,24 +339,45 @@ def _target_part(ctx: Context, rows: np.ndarray, measure: str, y: np.ndarray, es
                  else ctx.feats.frame["fiscal_year"].to_numpy()[rows] == spec.year)
     target = est.cf.target
     gap = y - target
+    status = bands.status_codes(y, low, high)
+    hist = history_arrays(ctx.firm[rows], frame_years(ctx, rows), gap, status.astype(np.int64) - 1)
     frame = ctx.feats.frame
     debt, flag = debt_to_target(measure, frame["total_debt"].to_numpy()[rows],
                                 frame["total_assets"].to_numpy()[rows],
                                 frame["market_equity"].to_numpy()[rows], target)
     flags = {"industry_effect_from_parent": est.cf.from_parent, **attr["flags"],
-             **{code: flag == code for code in RECAP_FLAGS}}
+             **{code: flag == code for code in RECAP_FLAGS}, **hist.pop("flags")}
     return {
         "rows": rows[keep], "keep": keep, "measure": measure, "actual": y[keep],
         "target": target[keep], "gap": gap[keep],
         "gap_z": bands.gap_z(gap, band.scale_of(ctx.level[rows]))[keep],
         "band_low": low[keep], "band_high": high[keep],
-        "status": bands.status_codes(y, low, high)[keep],
+        "status": status[keep],
         "peer_median": attr["peer_median"][keep], "peer_count": attr["peer_count"][keep],
         "peer_target": attr["peer_target"][keep],
         "debt_to_target": debt[keep],
         "target_full": est.target_full[keep], "fold": est.cf.fold[keep],
+        **{name: values[keep] for name, values in hist.items()},
         "extra_flags": {k: v[keep] for k, v in flags.items()},
     }
+
+
+def frame_years(ctx: Context, rows: np.ndarray) -> np.ndarray:
+    """Fiscal year of each of the rows."""
+    return ctx.feats.frame["fiscal_year"].to_numpy()[rows]
+
+
+def raw_values(ctx: Context, rows: np.ndarray) -> np.ndarray:
+    """Each driver's value before winsorising, where winsorising changed it (else NaN)."""
+    frame = ctx.feats.frame
+    out = np.full((len(rows), len(ctx.feats.drivers)), np.nan)
+    for j, name in enumerate(ctx.feats.drivers):
+        if name + "_raw" in frame:
+            raw = frame[name + "_raw"].to_numpy(dtype=float)[rows]
+            used = ctx.X[rows, j]
+            clipped = np.isfinite(raw) & (raw != used)
+            out[clipped, j] = raw[clipped]
+    return out
 
 
 def _fit_row(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, measure: str,

@@ -14,7 +14,19 @@ from levgap.cli.common import err
 
 
 class _OneLineErrors(TyperGroup):
-    """The command group, with usage errors printed as one line (exit 2), never a usage block."""
+    """The command group, with usage errors printed as one line (exit 2), never a usage block,
+    and ``levgap --help`` listing each command with its whole description (click would cut it
+    to the terminal's width with "...")."""
+
+    def format_commands(self, ctx: Any, formatter: Any) -> None:
+        rows = []
+        for name in self.list_commands(ctx):
+            cmd = self.get_command(ctx, name)
+            if cmd is not None and not cmd.hidden:
+                rows.append((name, cmd.get_short_help_str(limit=10_000)))
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
 
     def main(self, args: Sequence[str] | None = None, prog_name: str | None = None,
              complete_var: str | None = None, standalone_mode: bool = True,

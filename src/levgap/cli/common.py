@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import os
 import re
 from collections.abc import Iterator
 from pathlib import Path
@@ -16,6 +17,9 @@ if TYPE_CHECKING:
     from levgap.config import RunConfig
 
 MEASURE_CHOICES = ("book", "market", "both")
+TOP_HELP = "Firms shown per list: the N furthest from their targets."
+"""What ``--top N`` means, in every command that has it."""
+TOP_DEFAULT = 10
 BIG_PANEL = 50_000  # rows above which a progress bar is shown
 
 
@@ -93,8 +97,9 @@ def rich_console(stderr: bool = False) -> Any:
 
     # markup off: data and messages hold square brackets ([input], firm names) to show as is
     con = Console(stderr=stderr, highlight=False, soft_wrap=False, markup=False)
-    if not con.is_terminal:
-        # Piped or captured output: wide enough that tables are not cut to 80 columns.
+    if not con.is_terminal and "COLUMNS" not in os.environ:
+        # Piped or captured output: wide enough that tables are not cut to 80 columns (a
+        # COLUMNS setting, the terminal convention, is honoured as rich honours it).
         con = Console(stderr=stderr, highlight=False, soft_wrap=False, markup=False, width=160)
     return con
 
@@ -162,36 +167,3 @@ def stepper(bar: Any) -> Any:
         bar.update(tasks[stage], completed=done)
 
     return step
-
-
-
-def screen_table(rows: list[dict[str, Any]], title: str) -> Any:
-    from rich.table import Table
-
-    table = Table(title=plain(title), title_justify="left")
-    for col, just in (("firm", "left"), ("name", "left"), ("industry", "left"),
-                      ("year", "right"), ("actual", "right"), ("target", "right"),
-                      ("gap pp", "right"), ("gap z", "right"), ("band", "right"),
-                      ("status", "left")):
-        table.add_column(col, justify=just)  # type: ignore[arg-type]
-    for r in rows:
-        z = r["gap_z"]
-        table.add_row(
-            plain(r["firm_id"]), plain(r["firm_name"] or ""), plain(r["industry"]),
-            plain(r["fiscal_year"]), _pct(r["actual"]), _pct(r["target"]),
-            _num(r["gap"], 100, "+.1f"), _num(z, 1, "+.2f"),
-            f"{_pct(r['band_low'])} to {_pct(r['band_high'])}", plain(r["status"]),
-        )
-    return table
-
-
-def _num(v: Any, scale: float, spec: str) -> str:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return ""
-    return "" if f != f else format(scale * f, spec)
-
-
-def _pct(v: Any) -> str:
-    return _num(v, 1, ".1%")

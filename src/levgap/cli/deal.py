@@ -7,6 +7,7 @@ from typing import Any
 
 import typer
 
+from levgap import glossary as g
 from levgap.cli.app import app
 from levgap.cli.common import console, guard
 
@@ -88,9 +89,9 @@ def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, 
         table.add_column(col, justify="left" if not col else "right")
     for name, col, fmt in (("total debt", "total_debt", money), ("total assets",
                            "total_assets", money), ("actual", "actual", pct),
-                           ("target", "target", pct), ("band low", "band_low", pct),
-                           ("band high", "band_high", pct), ("status", "status", str),
-                           ("gap pp", "gap", pp), ("gap z", "gap_z", num),
+                           ("target", "target", pct), (g.label("band_low"), "band_low", pct),
+                           (g.label("band_high"), "band_high", pct), ("status", "status", str),
+                           (g.header("gap"), "gap", pp), (g.label("gap_z"), "gap_z", num),
                            ("debt to band top (recap)", "capacity_to_band_top_recap", money),
                            ("net debt / EBITDA", "net_debt_to_ebitda", num)):
         table.add_row(name, fmt(before[col]), fmt(after[col]))
@@ -98,7 +99,8 @@ def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, 
     for d in dict.fromkeys(c["driver"]):
         b = c[(c["scenario"] == before["scenario"]) & (c["driver"] == d)].iloc[0]
         a = c[(c["scenario"] == after["scenario"]) & (c["driver"] == d)].iloc[0]
-        table.add_row(f"{d} (contribution pp)", f"{b['value']:.4f} ({pp(b['contribution'])})",
+        table.add_row(f"{d} ({g.header('contribution')})",
+                      f"{b['value']:.4f} ({pp(b['contribution'])})",
                       f"{a['value']:.4f} ({pp(a['contribution'])})")
     con = console()
     con.print(table)

@@ -6,6 +6,7 @@ from pathlib import Path
 
 import typer
 
+from levgap import glossary as g
 from levgap.cli.app import app
 from levgap.cli.common import console, guard, load_config, parse_measures
 
@@ -50,14 +51,15 @@ def _table(frame) -> object:  # noqa: ANN001 (a pandas frame; pandas is imported
 
     table = Table(title="Models compared on the same folds (out of sample)",
                   title_justify="left")
-    heads = ("measure", "model", "R² out of sample", "RMSE, pp", "band coverage",
-             "industries, min-max", "targets outside [0, 1]", "seconds")
+    heads = (g.label("measure"), "model", g.label("r2_oos"), g.header("rmse_oos"),
+             g.label("coverage"), g.label("coverage_range"), "targets outside [0, 1]",
+             "seconds")
     for h in heads:
-        table.add_column(h, justify="left" if h in ("measure", "model") else "right")
+        table.add_column(h, justify="left" if h in (g.label("measure"), "model") else "right")
     for r in frame.itertuples():
         spread = ("" if r.coverage_industry_min != r.coverage_industry_min else
                   f"{r.coverage_industry_min:.0%}-{r.coverage_industry_max:.0%}")
-        table.add_row(r.measure, r.model, f"{r.r2_oos:.3f}", f"{100 * r.rmse_oos:.2f}",
-                      f"{r.coverage:.1%}", spread, f"{r.outside_unit_interval:.1%}",
+        table.add_row(r.measure, r.model, g.number(r.r2_oos, 3), g.number(100 * r.rmse_oos, 2),
+                      g.pct(r.coverage), spread, g.pct(r.outside_unit_interval),
                       f"{r.fit_seconds:.2f}")
     return table

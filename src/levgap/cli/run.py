@@ -8,9 +8,12 @@ from typing import TYPE_CHECKING, Any
 
 import typer
 
+from levgap import glossary as g
 from levgap.cli.app import app
 from levgap.cli.common import (
     BIG_PANEL,
+    TOP_DEFAULT,
+    TOP_HELP,
     collect_notes,
     console,
     echo,
@@ -20,7 +23,6 @@ from levgap.cli.common import (
     merge_notes,
     parse_measures,
     progress_bar,
-    screen_table,
     stepper,
 )
 
@@ -61,7 +63,8 @@ def _run_analysis(
     show = not quiet and len(panel.data) >= BIG_PANEL
     with progress_bar(show) as bar:
         result = analyze(panel, config=config, progress=stepper(bar))
-    inputs = (str(panel_path), *((config.source,) if config.source else ()))
+    inputs = (str(panel_path), *((config.source,) if config.source else ()),
+              *(p for p in (config.input.peers, config.input.industry_names) if p))
     # The bar's refresh thread would compete with the writers for the interpreter: it is
     # shown again only while the report renders.
     write_notes: list[str] = []
@@ -105,34 +108,42 @@ def _written_line(committed: Any) -> str:
 
 
 def _print_run(result: Any, committed: Any, top: int) -> None:
+    from levgap.cli.screening import render_table
+
     con = console()
     counts = result.manifest["counts"]
     con.print(
-        f"Read {counts['rows_in']} rows: {counts['rows_used']} used, "
-        f"{counts['rows_excluded']} excluded."
+        f"Read {g.count(counts['rows_in'], 'row')}: {counts['rows_used']:,} used, "
+        f"{counts['rows_excluded']:,} {g.label('excluded')}."
     )
     for reason, n in counts["by_reason"].items():
-        con.print(f"  excluded, {reason}: {n}")
+        con.print(f"  {g.label('excluded')}, {reason}: {n:,}")
     for key, n in counts["measure_omissions"].items():
         measure, reason = key.split(":", 1)
-        con.print(f"  left out of {measure} leverage only, {reason}: {n}")
+        con.print(f"  {g.label('excluded')} from {g.MEASURES[measure]} only, {reason}: {n:,}")
     for b in result.manifest["pooled_industries"]:
         kept = ", ".join(f"{m} {100 * w:.0f}%" for m, w in b["weight"].items() if w is not None)
-        con.print(f"  industry {b['industry']} ({b['firms']} firms) is pooled toward "
+        con.print(f"  industry {b['industry']} ({g.count(b['firms'], 'firm')}) is pooled toward "
                   f"{b['parent']} (own level kept: {kept})")
     for f in result.model_fit.itertuples():
-        con.print(f"{f.measure} leverage: {f.n_obs} firm-years, {f.n_firms} firms, "
-                  f"R² {f.r2:.3f} in sample, {f.r2_oos:.3f} out of sample "
-                  f"(RMSE {100 * f.rmse_oos:.1f} pp)")
+        con.print(f"{g.MEASURES[f.measure]}: {g.count(f.n_obs, 'firm-year')}, "
+                  f"{g.count(f.n_firms, 'firm')}, {g.label('r2')} {g.number(f.r2, 3)}, "
+                  f"{g.label('r2_oos')} {g.number(f.r2_oos, 3)}, {g.label('rmse_oos')} "
+                  f"{g.number(100 * f.rmse_oos, 1)} {g.UNIT_PP}")
     t = result.targets
     latest = t[t["fiscal_year"] == t["fiscal_year"].max()]
+    units = (result.manifest.get("options") or {}).get("units")
+    money = g.money_unit(units) if g.money_unit(units) != g.money_unit({}) else ""
     for measure in latest["measure"].unique():
         m = latest[latest["measure"] == measure]
         year = int(m["fiscal_year"].max())
         over = m.sort_values("gap", ascending=False).head(top).to_dict(orient="records")
         under = m.sort_values("gap").head(top).to_dict(orient="records")
-        con.print(screen_table(over, f"Most over-levered ({measure}, {year})"))
-        con.print(screen_table(under, f"Most under-levered ({measure}, {year})"))
+        for title, rows in (("Most over-levered", over), ("Most under-levered", under)):
+            con.print(render_table(rows, f"{title} ({g.MEASURES[measure]}, {year})",
+                                   con.width, money))
+    if not money:
+        con.print(g.money_note(units))
     con.print(_written_line(committed))
     con.print("levgap is a statistical peer benchmark, not investment, credit or legal advice.")
 
@@ -142,7 +153,7 @@ def _print_run(result: Any, committed: Any, top: int) -> None:
 def demo(
     out: Path = typer.Option(Path("demo-out"), "--out", help="Folder for the demo's outputs."),
     force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
-    top: int = typer.Option(5, "--top", min=1, help="Firms listed at each end."),
+    top: int = typer.Option(TOP_DEFAULT, "--top", min=1, help=TOP_HELP),
 ) -> None:
     """Run the whole job on the invented demo panel (the Tarrow Reach, a fictional region).
 
@@ -157,11 +168,19 @@ def demo(
             raise typer.BadParameter(f"must be a folder; got the file {out}.", param_hint="--out")
         if not force:  # refused before the demo's panel is written
             refuse_foreign(out)
+        from dataclasses import replace
+
+        from levgap.demo import industry_names
+
         panel_path = write_table(make_panel(), out / "demo_panel.csv")
-        result, committed = _run_analysis(panel_path, out, config=load_config(None), fmt="csv",
+        names_path = write_table(industry_names(), out / "demo_industries.csv")
+        cfg = load_config(None)
+        cfg = replace(cfg, input=replace(cfg.input, industry_names=str(names_path)),
+                      units=replace(cfg.units, unit="millions"))  # the demo's money unit
+        result, committed = _run_analysis(panel_path, out, config=cfg, fmt="csv",
                                           force=force, xlsx=False, report=True, quiet=False)
         _print_run(result, committed, top)
-        echo(f"The demo's input panel is {panel_path}.")
+        echo(f"The demo's input panel is {panel_path}; its industry names {names_path}.")
 
 
 @app.command()
@@ -182,7 +201,11 @@ def analyze(
     force: bool = typer.Option(False, "--force", help="Write into a folder holding other files."),
     quiet: bool = typer.Option(False, "--quiet", help="No progress bar or tables."),
     as_json: bool = typer.Option(False, "--json", help="Print a machine-readable summary."),
-    top: int = typer.Option(5, "--top", min=1, help="Firms listed at each end."),
+    top: int = typer.Option(TOP_DEFAULT, "--top", min=1, help=TOP_HELP),
+    peers: Path = typer.Option(None, "--peers", help="A peer list (CSV: firm_id, peer_id): "
+                               "these firms take their listed peers."),
+    industry_names: Path = typer.Option(None, "--industry-names",
+                                        help="Readable industry names (CSV: code, name)."),
 ) -> None:
     """Estimate targets, gaps and driver contributions for every firm-year of a panel.
 
@@ -206,6 +229,10 @@ def analyze(
             changes["year"] = year
         if changes:
             cfg = replace(cfg, model=replace(cfg.model, **changes))
+        files = {k: str(v.resolve()) for k, v in (("peers", peers),
+                                                  ("industry_names", industry_names)) if v}
+        if files:
+            cfg = replace(cfg, input=replace(cfg.input, **files))
         year_from = "--year" if year is not None else f"{config}: [model] year"
         result, committed = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force,
                                           xlsx=xlsx, report=not no_report,
@@ -226,7 +253,7 @@ def check(
     config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
     ledger: Path = typer.Option(None, "--ledger", help="Write the exclusion ledger to this CSV."),
 ) -> None:
-    """Validate a panel without fitting anything: what would be used and what left out.
+    """Validate a panel without fitting anything: what would be used, what excluded, and why.
 
     Example: levgap check panel.csv --ledger exclusions.csv
     """
@@ -253,7 +280,7 @@ def check(
             if no_mkt:
                 con.print(f"  {no_mkt} rows have no market equity (book leverage only)")
         for reason, n in whole["reason"].value_counts().sort_index().items():
-            con.print(f"  excluded, {reason}: {n}")
+            con.print(f"  {g.label('excluded')}, {reason}: {n}")
         for w in merge_notes(p.warnings, notes):
             con.print(f"  note: {w}")
         if ledger is not None:
@@ -269,13 +296,20 @@ def check(
 @app.command()
 def template(
     out: Path = typer.Option(Path("."), "--out", help="Folder for the template files."),
+    force: bool = typer.Option(False, "--force",
+                               help="Write the template files that can be written and leave "
+                               "the others (files levgap did not write, or that you changed)."),
 ) -> None:
-    """Write an empty panel template, its column guide and an annotated run configuration.
+    """Write an empty panel template, its column guide, an annotated run configuration and a
+    deal scenario file.
 
     Example: levgap template --out my-panel/
     """
     with guard():
         from levgap.report.files import write_template
 
-        for path in write_template(out):
+        written, kept = write_template(out, force=force)
+        for path in written:
             echo(f"wrote {path}")
+        for path in kept:
+            echo(f"kept {path} (levgap did not write it, or it was changed since)")

@@ -22,6 +22,7 @@ from levgap.codes import (
     SEC_REASONS,
     YEAR_RANGE,
 )
+from levgap.glossary import glossary_markdown
 from levgap.ingest.deal_template import deal_template
 from levgap.schema import COLUMNS, SCHEMA_VERSION, Column
 
@@ -96,6 +97,7 @@ def template_readme() -> str:
     reasons = "\n".join(f"| `{k}` | {v} |" for k, v in
                         {**REASONS, **ANALYSIS_REASONS, **MEASURE_REASONS}.items())
     flags = "\n".join(f"| `{k}` | {v} |" for k, v in {**FLAGS, **ANALYSIS_FLAGS}.items())
+    glossary = glossary_markdown()
     blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"
     sec_reasons = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_REASONS.items())
     sec_flags = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_FLAGS.items())
@@ -188,6 +190,27 @@ Flags appear, `;`-joined, in the `flags` column of the outputs.
 Optional numbers that are not numbers, or below their allowed minimum, are treated as blank,
 the row is flagged `invalid_<column>`, and a warning names the rows.
 
+## Reference files (optional)
+
+- `industry_names` (`[input] industry_names`, or `levgap analyze --industry-names`): a CSV
+  with a header `code,name`; each industry code or label and its readable name. Without it,
+  four-digit numeric codes take the SEC's SIC titles shipped with levgap (two-digit codes
+  their major group's), unless `[input] sic_titles = false`.
+- `peers` (`[input] peers`, or `levgap analyze --peers`): a CSV with a header
+  `firm_id,peer_id`, one row per pair. A listed firm's peer median and driver profile come
+  from its listed peers present in the same fiscal year (flag `peers_listed`); when none is,
+  from its usual peers (flag `peer_list_unmatched`).
+- a coverage list (`levgap screen --firms FILE`): one firm id a line; blank lines and lines
+  starting with `#` are skipped.
+
+Each is UTF-8 text; a blank cell, a firm listed as its own peer, or a code given two names
+stops the run with one line naming the file, the row and the column.
+
+## Glossary
+
+The labels the command line, the report and the workbook show, with their units:
+
+{glossary}
 ## Panels built by `levgap import-sec`
 
 A panel written by `levgap import-sec` (the SEC's Financial Statement Data Sets) carries,
@@ -258,10 +281,22 @@ decimal = "."           # decimal mark of numbers ("," for many European exports
 # encoding = "latin-1"  # default: UTF-8 (BOM allowed), else Windows-1252/Latin-1 with a warning
 # sheet = "Panel"       # XLSX only; default: the first sheet
 skip_rows = 0           # lines above the header line (titles, notes)
+# industry_names = "industry_names.csv"  # example; CSV "code,name": readable industry names
+# peers = "peers.csv"   # example; CSV "firm_id,peer_id": a firm's own peers for the attribution
+sic_titles = true       # name 4-digit (and 2-digit) numeric codes by the SEC's SIC titles;
+                        # false for other code lists (NAICS, your own)
 
 [units]
 scale = 1.0             # every money column is multiplied by this (0.001: thousands -> millions)
 # currency = "EUR"      # reference currency; rows in it need no fx_rate
+# unit = "millions"     # the money unit after scale, for labels ("EUR millions")
+
+[industries]
+# label = { parent = "...", name = "..." } for industry labels (as the model's industry level
+# shows them). parent: a small industry is pooled toward the industries naming the same parent
+# and looks for peers among them; numeric codes without one use their leading digits. Example:
+# "Motor homes" = { parent = "Vehicles", name = "Motor homes and campers" }
+# "Caravans" = { parent = "Vehicles" }
 
 [model]
 measures = ["book", "market"]  # book = debt / assets; market = debt / (debt + market equity)
@@ -270,6 +305,7 @@ winsorize = [0.01, 0.99]       # drivers clipped at these quantiles within each 
 min_industry_firms = 5         # smaller industries are pooled toward a parent group
 industry_digits = 0            # industry effect: 0 code as given; n: its first n characters
 peer_digits = 0                # peers (attribution): 0 code as given; n: first n characters
+min_peers = 5                  # a peer median on fewer peers is flagged few_peers
 drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
                                # also available: "rd_intensity"
 leases_as_debt = false         # add lease_liabilities to total_debt

@@ -374,7 +374,10 @@ def load_model(results_dir: str | Path) -> SavedModel:
         raise OutputError(f"{path}: model.json must be valid JSON; got {exc}.") from None
     if not isinstance(record, dict) or record.get("format") != FORMAT:
         raise OutputError(f"{path}: must be a levgap saved model; got another file.")
-    if int(record.get("format_version", 0)) > FORMAT_VERSION:
+    version = record.get("format_version", 0)
+    if isinstance(version, bool) or not isinstance(version, int):
+        raise OutputError(f"{path}: format_version must be a whole number; got {version!r}.")
+    if version > FORMAT_VERSION:
         raise OutputError(f"{path}: saved-model format {record.get('format_version')} is "
                           f"newer than this levgap reads ({FORMAT_VERSION}); upgrade levgap.")
     return SavedModel(record)

@@ -215,7 +215,9 @@ def saved_model_file(out_dir: str | Path, name: str = "model.json") -> Path:
         except (UnicodeDecodeError, ValueError) as exc:
             raise OutputError(f"{path}: {name} must be valid JSON; got "
                               f"{' '.join(str(exc).split())[:120]}.") from None
-        theirs = raw.get("run_id") if isinstance(raw, dict) else None
+        if not isinstance(raw, dict):
+            raise OutputError(f"{path}: must be a levgap saved model; got another file.")
+        theirs = raw.get("run_id")
         if theirs != run.run_id:
             raise OutputError(
                 f"{path}: {name} belongs to run {theirs} but run.json to run {run.run_id}: the "

@@ -15,7 +15,7 @@ from levgap.outputs import MARKER, atomic_file, atomic_write_bytes
 __all__ = ["MARKER", "atomic_file", "atomic_write_bytes", "write_template"]
 
 
-def write_template(out_dir: str | Path) -> list[Path]:
+def write_template(out_dir: str | Path, *, force: bool = False) -> tuple[list[Path], list[Path]]:
     """Write the input template: ``panel_template.csv``, ``README.md``, ``run.toml``, ``deal.toml``.
 
     The files are generated from ``levgap.schema`` (see ``levgap.ingest.template``), so they
@@ -26,17 +26,20 @@ def write_template(out_dir: str | Path) -> list[Path]:
     ----------
     out_dir : str or pathlib.Path
         Folder to write into; created if absent.
+    force : bool, default=False
+        Write the files that can be written and keep the others as they are (they are
+        returned as kept), instead of refusing.
 
     Returns
     -------
-    list of pathlib.Path
-        The files written.
+    (list of pathlib.Path, list of pathlib.Path)
+        The files written, and the files kept because levgap may not replace them.
 
     Raises
     ------
     OutputError
-        A file of the same name that levgap did not write exists, or the folder is not
-        writable.
+        Without ``force``: a file of the same name that levgap did not write (or that was
+        changed since) exists. Always: the folder is not writable, or a name is an input.
     """
     from levgap.ingest.template import template_files
     from levgap.outputs import check_replaceable
@@ -45,6 +48,15 @@ def write_template(out_dir: str | Path) -> list[Path]:
     files = template_files()
     if out.exists() and not out.is_dir():
         raise OutputError(f"{out}: the template folder must be a folder; got a file.")
+    kept: list[Path] = []
     for name in files:  # refuse before writing any
-        check_replaceable(out / name)
-    return [atomic_write_bytes(out / name, text.encode("utf-8")) for name, text in files.items()]
+        try:
+            check_replaceable(out / name)
+        except OutputError as exc:
+            if not force or not (out / name).is_file():
+                raise OutputError(f"{exc} Or pass --force to write the other template files "
+                                  "and keep this one.") from None
+            kept.append(out / name)
+    written = [atomic_write_bytes(out / name, text.encode("utf-8"))
+               for name, text in files.items() if out / name not in kept]
+    return written, kept

@@ -21,7 +21,9 @@ from typing import Any
 
 import pandas as pd
 
+from levgap import glossary as g
 from levgap.errors import OutputError
+from levgap.glossary import CLUSTERS
 
 REPORT_NAME = "report.html"
 CAUTION = (
@@ -160,11 +162,37 @@ def _num(v: Any) -> float | None:
     return f if math.isfinite(f) else None
 
 
-def _firm_rows(frame: pd.DataFrame) -> list[dict[str, Any]]:
+def _firm_rows(frame: pd.DataFrame, names: Mapping[str, str]) -> list[dict[str, Any]]:
+    from levgap.matching import unneutralise
+
     cols = ["firm_id", "firm_name", "industry", "fiscal_year", "actual", "target", "gap",
-            "gap_z", "band_low", "band_high", "status", "debt_to_target"]
+            "gap_z", "band_low", "band_high", "status", "debt_to_target", "flags"]
     cols = [c for c in cols if c in frame.columns]
-    return frame[cols].to_dict("records")
+    rows = frame[cols].to_dict("records")
+    for r in rows:
+        r["industry_name"] = names.get(unneutralise(str(r["industry"])), "")
+        r["flags"] = str(r.get("flags") or "").replace(";", ", ")
+    return rows
+
+
+def universe_labels() -> dict[str, str]:
+    """The words the firm table's script shows, from the glossary."""
+    keys = ("driver", "firm_value", "peer_value", "peer_median", "peers_offset", "target",
+            "unexplained", "actual", "raw_value", "gap_prev")
+    labels = {k: g.label(k) for k in keys}
+    labels["contribution"] = g.header("contribution")
+    labels.update({
+        "pp": g.UNIT_PP, "firm": g.plural("firm", 1), "firms": g.plural("firm", 2),
+        "peer": g.plural("peer", 1), "peers": g.plural("peer", 2),
+        "persistent": "persistent", "newly": "new outside the band",
+        "few": "few peers, read the peer median with care", "years_in_row":
+        "consecutive years", "winsorised": "winsorised", "showing": "Showing", "of": "of",
+        "none": "No firm matches.", "bridge": "From peer median to actual",
+        "history": "Over the years", "legend": "actual (dots), target (dashed), band (grey)",
+        "unsupported": "This browser cannot unpack the firm table (it needs "
+        "DecompressionStream, in every current browser).",
+    })
+    return labels
 
 
 def top_firms(
@@ -265,9 +293,8 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
         "model": model_opts.get("model", ",".join(sorted(set(fit["model"].astype(str))))),
         "model_text": MODEL_TEXT.get(str(model_opts.get("model")),
                                      str(model_opts.get("model", "not recorded"))),
-        "cluster": {"firm": "firm", "firm-year": "firm and year (two-way)",
-                    "industry": "industry"}.get(model_opts.get("cluster"),
-                                                model_opts.get("cluster", "not recorded")),
+        "cluster": CLUSTERS.get(model_opts.get("cluster"),
+                                model_opts.get("cluster", "not recorded")),
         "coverage": _num(model_opts.get("coverage")),
         "folds": model_opts.get("folds"),
         "fit": fit_rows,
@@ -351,6 +378,13 @@ def render_report(
         charts["coefficients"] = svg(plots.coefficient_figure(coefficients), "coefficients")
 
     sections = []
+    names = dict(manifest.get("industry_names") or {})
+    units = (manifest.get("options") or {}).get("units") or {}
+    universe = ""
+    if year is not None and len(targets):
+        from levgap.report.universe import encode, firm_payload
+
+        universe = encode(firm_payload(targets, drivers, manifest, year))
     # Driver rows of the focus year only, indexed once, so each step chart is a cheap lookup.
     focus_drivers = drivers[drivers["fiscal_year"] == year] if year is not None else drivers
     for measure in measures:
@@ -368,9 +402,10 @@ def render_report(
             })
         sections.append({
             "measure": measure,
-            "over": _firm_rows(over),
-            "under": _firm_rows(under),
-            "industries": industry_table(targets, measure, year).to_dict("records")
+            "over": _firm_rows(over, names),
+            "under": _firm_rows(under, names),
+            "industries": [{**r, "industry_name": names.get(str(r["industry"]), "")}
+                           for r in industry_table(targets, measure, year).to_dict("records")]
             if year else [],
             "steps": steps,
         })
@@ -380,7 +415,9 @@ def render_report(
     n_charts = len(charts) + sum(len(s["steps"]) for s in sections)
     return _environment().get_template("report.html.j2").render(
         h=header, year=year, sections=sections, charts=charts, coefficients=coef_rows,
-        caution=CAUTION, n_charts=n_charts, options=opts,
+        caution=CAUTION, n_charts=n_charts, options=opts, g=g, universe=universe,
+        u_labels=universe_labels(), money=g.money_unit(units),
+        money_known=g.money_unit(units) != g.money_unit({}), money_note=g.money_note(units),
         sampled={m: int((targets["measure"] == m).sum()) > opts.max_points for m in measures},
     )
 
@@ -388,13 +425,11 @@ def render_report(
 # ----------------------------------------------------------------------------- jinja
 
 def _pct(v: Any, digits: int = 1) -> str:
-    f = _num(v)
-    return "–" if f is None else f"{f * 100:.{digits}f}%"
+    return g.pct(v, digits)
 
 
 def _pp(v: Any, digits: int = 1) -> str:
-    f = _num(v)
-    return "–" if f is None else f"{f * 100:+.{digits}f}"
+    return g.pp(v, digits)
 
 
 def _fmt(v: Any, digits: int = 3) -> str:
@@ -412,8 +447,7 @@ def _pvalue(v: Any) -> str:
 
 
 def _money(v: Any) -> str:
-    f = _num(v)
-    return "–" if f is None else f"{f:+,.1f}"
+    return g.money(v)
 
 
 def _sortkey(v: Any) -> str:
@@ -440,4 +474,5 @@ def _environment() -> Any:
     )
     env.filters.update(pct=_pct, pp=_pp, fmt=_fmt, money=_money, sortkey=_sortkey, stars=_stars,
                        pvalue=_pvalue)
+    env.policies["json.dumps_kwargs"] = {"sort_keys": True, "ensure_ascii": False}
     return env

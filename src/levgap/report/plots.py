@@ -22,6 +22,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from levgap import glossary as g
 from levgap.errors import ConfigError
 
 if TYPE_CHECKING:
@@ -271,8 +272,8 @@ def scatter_figure(
             ax.set_aspect("equal", adjustable="box")
             note = f" (sample of {len(shown):,} of {len(rows):,})" if len(shown) < len(rows) else ""
             ax.set_title(f"{_plain(measure)} leverage{note}", loc="left")
-            ax.set_xlabel("target, %")
-            ax.set_ylabel("actual, %")
+            ax.set_xlabel(f"{g.label('target')}, %")
+            ax.set_ylabel(f"{g.label('actual')}, %")
             ax.grid(color="#eeeeee", lw=0.6)
             ax.set_axisbelow(True)
         from matplotlib.lines import Line2D
@@ -322,9 +323,11 @@ def gap_figure(targets: pd.DataFrame, measures: Sequence[str], *, bins: int = 40
                         "\n".join(f"{s} {status.get(s, 0.0) * 100:.0f}%"
                                   for s in ("over", "within", "under")),
                         transform=ax.transAxes, ha="right", va="top", fontsize=8)
-            ax.set_title(f"{_plain(measure)}: gap, {len(gap):,} firm-years", loc="left")
-            ax.set_xlabel("gap = actual - target, percentage points")
-            ax.set_ylabel("firm-years")
+            ax.set_title(f"{_plain(measure)}: {g.label('gap')}, {g.count(len(gap), 'firm-year')}",
+                         loc="left")
+            ax.set_xlabel(f"{g.label('gap')} = {g.label('actual')} - {g.label('target')}, "
+                          "percentage points")
+            ax.set_ylabel(g.label("n_obs"))
             ax.grid(axis="y", color="#eeeeee", lw=0.6)
             ax.set_axisbelow(True)
     return fig

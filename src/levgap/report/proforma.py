@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
+from levgap import glossary as g
 from levgap.errors import OutputError
 from levgap.outputs import atomic_write_bytes
 
@@ -110,9 +111,10 @@ def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
 def proforma_json(check: DealCheck) -> dict[str, Any]:
     """Everything the page shows, as JSON-ready data (NaN as null, infinity as text)."""
     grids: dict[str, dict[str, Any]] = {}
-    for (scenario, measure), g in check.tradeoff.groupby(["scenario", "measure"], sort=False):
+    for (scenario, measure), grid in check.tradeoff.groupby(["scenario", "measure"],
+                                                             sort=False):
         grids.setdefault(str(scenario), {})[str(measure)] = {
-            c: _clean(g[c].tolist()) for c in ("debt", "tax_shield", "default_probability",
+            c: _clean(grid[c].tolist()) for c in ("debt", "tax_shield", "default_probability",
                                                "distress_cost", "net")}
     import levgap
 
@@ -181,7 +183,7 @@ def terminal_tables(check: DealCheck) -> list[Any]:
                   title_justify="left")
         width = min(max(len(str(x)) for x in rows["scenario"]), 24)
         t.add_column("scenario", min_width=width, no_wrap=True, overflow="ellipsis")
-        for col in ("actual", "target", "band", "status", "gap pp", "to top (recap)",
+        for col in ("actual", "target", "band", "status", g.header("gap"), "to top (recap)",
                     "to top (funded)", "ND/EBITDA", "EBITDA/int", "Altman", "PD 1y"):
             t.add_column(col, justify="left" if col in ("status", "Altman") else "right",
                          no_wrap=True)

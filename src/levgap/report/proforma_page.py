@@ -7,6 +7,7 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
+from levgap import glossary as g
 from levgap.report.svg import PALETTE, Canvas
 
 if TYPE_CHECKING:
@@ -24,6 +25,10 @@ LINE_LABELS = {
 CONVENTION_LABELS = {"funded": "debt funds new assets", "recap": "recapitalisation"}
 
 
+def _cap(text: str) -> str:
+    return text[:1].upper() + text[1:]
+
+
 def _f(v: Any) -> float | None:
     try:
         f = float(v)
@@ -33,29 +38,26 @@ def _f(v: Any) -> float | None:
 
 
 def pct(v: Any, digits: int = 1) -> str:
-    """A ratio as a percentage (an en dash when missing)."""
-    f = _f(v)
-    return "–" if f is None else f"{100 * f:.{digits}f}%"
+    """A ratio as a percentage (an en dash when missing; ``levgap.glossary``)."""
+    return g.pct(v, digits)
 
 
 def pp(v: Any) -> str:
-    """A change in percentage points."""
-    f = _f(v)
-    return "–" if f is None else f"{100 * f:+.1f}"
+    """A change in percentage points (``levgap.glossary``)."""
+    return g.pp(v)
 
 
 def money(v: Any) -> str:
     """A signed amount of money ('unbounded' for infinity)."""
     f = _f(v)
-    if f is None:
-        return "–"
-    return "unbounded" if math.isinf(f) else f"{f:+,.1f}"
+    if f is not None and math.isinf(f):
+        return "unbounded"
+    return g.money(v)
 
 
 def amount(v: Any) -> str:
     """An amount of money."""
-    f = _f(v)
-    return "–" if f is None else f"{f:,.1f}"
+    return g.number(v, 1)
 
 
 def ratio(v: Any) -> str:
@@ -119,8 +121,8 @@ def _measure_block(check: DealCheck, measure: str) -> dict[str, Any]:
         ("Band", [f"{pct(rows.at[x, 'band_low'])} to {pct(rows.at[x, 'band_high'])}"
                   for x in labels]),
         ("Status", _cells(rows, labels, "status", str)),
-        ("Gap, pp", _cells(rows, labels, "gap", pp)),
-        ("Gap z", _cells(rows, labels, "gap_z", lambda v: num(v))),
+        (_cap(g.header("gap")), _cells(rows, labels, "gap", pp)),
+        (_cap(g.header("gap_z")), _cells(rows, labels, "gap_z", lambda v: num(v))),
     ]
     for conv in ("recap", "funded"):
         for goal, name in (("target", "target"), ("band_top", "band top")):

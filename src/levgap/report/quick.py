@@ -6,11 +6,12 @@ the whole answer, so this module reads and filters the table with pyarrow and no
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from levgap.errors import OutputError
+from levgap.errors import ConfigError, OutputError
 
 TEXT = ("firm_id", "firm_name", "industry", "measure", "status", "flags")
 
@@ -68,7 +69,45 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
         if c in table.column_names and not pa.types.is_string(table[c].type):
             i = table.column_names.index(c)
             table = table.set_column(i, c, table[c].cast(pa.string()))
+    if "gap_prev" not in table.column_names and run.run_id is not None:
+        table = _with_history(table)
     return table.select(list(columns)) if columns else table
+
+
+def _with_history(table: Any) -> Any:
+    """A targets table written before the history columns existed, with them
+    (``levgap.history``). Only for such folders: building the new columns lets pyarrow load
+    pandas."""
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    from levgap.history import HISTORY_COLUMNS, SIDES, history_arrays
+
+    def codes(column: str) -> Any:
+        enc = pc.dictionary_encode(table[column]).combine_chunks()
+        return np.asarray(enc.indices.to_numpy(zero_copy_only=False)), enc.dictionary
+
+    firm, _ = codes("firm_id")
+    measure, _ = codes("measure")
+    status, labels = codes("status")
+    side = np.array([SIDES.get(v, 0) for v in labels.to_pylist()], dtype=np.int64)[status]
+    gap = np.asarray(table["gap"].to_numpy(), dtype=float)
+    hist = history_arrays(measure.astype(np.int64) * (int(firm.max()) + 1) + firm,
+                          np.asarray(table["fiscal_year"].to_numpy()), gap, side)
+    flags = table["flags"].to_pylist()
+    for code, mask in hist.pop("flags").items():
+        for i in np.flatnonzero(mask):
+            flags[i] = f"{flags[i]};{code}" if flags[i] else code
+    at = table.column_names.index("flags")
+    for name in HISTORY_COLUMNS:
+        values = hist[name]
+        arr = pa.array(values, mask=np.isnan(values)) if values.dtype.kind == "f" \
+            else pa.array(values)
+        table = table.add_column(at, name, arr)
+        at += 1
+    return table.set_column(table.column_names.index("flags"), "flags",
+                            pa.array(flags, type=pa.string()))
 
 
 def _kind(col: Any) -> str:
@@ -107,49 +146,175 @@ def _example(col: Any) -> str:
     return ""
 
 
-def screen_rows(
-    table: Any,
-    *,
-    measure: str,
-    status: str | None = None,
-    industry: str | None = None,
-    year: int | None = None,
-    top: int = 20,
-) -> tuple[list[dict[str, Any]], int, int | None]:
+SORTS: dict[str, str] = {"gap": "gap", "gap_z": "gap_z", "debt": "debt_to_target",
+                        "change": "gap_change"}
+"""``--sort`` choices and the column each orders by (largest size first)."""
+
+
+@dataclass(frozen=True, slots=True)
+class ScreenQuery:
+    """What a screen keeps and how it orders it.
+
+    Parameters
+    ----------
+    measure : str, default="book"
+    status : str or None
+        ``over``, ``within`` or ``under``.
+    industry : str or None
+        An industry code (ignoring case) or part of an industry name.
+    firm : str or None
+        A firm id (ignoring case) or part of a firm name.
+    firms : tuple of str
+        A coverage list: only these firm ids (ignoring case).
+    year : int or None
+        Fiscal year; default the latest of the measure.
+    new : bool
+        Only firms that moved outside their band this year (flag ``newly_outside``).
+    persistent : bool
+        Only firms outside on the same side for three years or more (flag ``persistent``).
+    sort : str or None
+        A key of ``SORTS``; default ``gap`` with a status, else ``gap_z``.
+    top : int or None
+        At most this many rows; None: every row.
+    """
+
+    measure: str = "book"
+    status: str | None = None
+    industry: str | None = None
+    firm: str | None = None
+    firms: tuple[str, ...] = ()
+    year: int | None = None
+    new: bool = False
+    persistent: bool = False
+    sort: str | None = None
+    top: int | None = 10
+
+
+@dataclass(frozen=True, slots=True)
+class Screen:
+    """The rows of a screen, in order, with what the query could not find.
+
+    Parameters
+    ----------
+    rows : list of dict
+        The rows shown (``top`` at most), each a targets row plus ``industry_name``.
+    matched : int
+        Rows that passed the filters (before ``top``).
+    year : int or None
+        The fiscal year screened; None when the measure has no row.
+    absent : tuple of (str, str)
+        Listed firm ids with no row of that measure and year, and a "did you mean" note.
+    """
+
+    rows: list[dict[str, Any]]
+    matched: int
+    year: int | None
+    absent: tuple[tuple[str, str], ...] = ()
+
+
+def _keep(t: Any, column: str, wanted: Sequence[Any]) -> Any:
+    """Rows whose ``column`` holds one of ``wanted``.
+
+    Compared with Arrow values taken from the column itself: turning a Python value into an
+    Arrow scalar or array makes pyarrow import pandas, which costs more than the whole screen.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    levels = pc.unique(t[column])
+    want = set(wanted)
+    hits = [levels.slice(i, 1) for i, v in enumerate(levels.to_pylist()) if v in want]
+    if not hits:
+        return t.slice(0, 0)
+    return t.filter(pc.is_in(t[column], value_set=pa.concat_arrays(hits)))
+
+
+def screen_rows(table: Any, query: ScreenQuery,
+                names: Mapping[str, str] | None = None) -> Screen:
     """Rows of one measure and year, filtered and ordered for a screen.
 
-    Order: by gap, largest first for ``over``, smallest first for ``under``, else by the size
-    of ``gap_z``. Returns the first ``top`` rows (as dicts), how many matched, and the year.
+    Order: by the size of the ``sort`` column, largest first (a gap of -30 pp before one of
+    +20 pp); blanks last.
+
+    Raises
+    ------
+    ConfigError
+        An industry or firm that matches nothing, with suggestions.
     """
     import pyarrow.compute as pc
 
-    def keep(t: Any, column: str, wanted: Sequence[Any]) -> Any:
-        # Compare with Arrow scalars taken from the column itself: turning a Python value into
-        # an Arrow scalar makes pyarrow import pandas, which costs more than the whole screen.
-        levels = pc.unique(t[column])
-        hits = [levels[i] for i, v in enumerate(levels.to_pylist()) if v in wanted]
-        if not hits:
-            return t.slice(0, 0)
-        mask = pc.equal(t[column], hits[0])
-        for h in hits[1:]:
-            mask = pc.or_(mask, pc.equal(t[column], h))
-        return t.filter(mask)
+    from levgap.matching import did_you_mean, unneutralise
 
-    t = keep(table, "measure", [measure])
+    names = names or {}
+    t = _keep(table, "measure", [query.measure])
     if t.num_rows == 0:
-        return [], 0, None
-    latest = pc.max(t["fiscal_year"])
-    yr = int(latest.as_py()) if year is None else int(year)
-    t = t.filter(pc.equal(t["fiscal_year"], latest)) if year is None else keep(
-        t, "fiscal_year", [yr])
-    if industry is not None:
-        t = keep(t, "industry", [industry, "'" + industry])
-    if status is not None:
-        t = keep(t, "status", [status])
-    if status == "under":
-        t = t.sort_by([("gap", "ascending")])
-    elif status == "over":
-        t = t.sort_by([("gap", "descending")])
-    else:
-        t = t.append_column("_size", pc.abs(t["gap_z"])).sort_by([("_size", "descending")])
-    return t.slice(0, top).to_pylist(), t.num_rows, yr
+        return Screen([], 0, None)
+    yr = int(pc.max(t["fiscal_year"]).as_py()) if query.year is None else int(query.year)
+    t = _keep(t, "fiscal_year", [yr])
+    if query.industry is not None:
+        codes = [c for c in pc.unique(t["industry"]).to_pylist() if c is not None]
+        want = query.industry.strip().casefold()
+        hit = [c for c in codes if unneutralise(c).casefold() == want
+               or want in names.get(unneutralise(c), "").casefold()]
+        if not hit:
+            shown = [unneutralise(c) for c in codes] + [names[c] for c in map(unneutralise, codes)
+                                                         if c in names]
+            raise ConfigError(f"--industry must name an industry of {query.measure} leverage "
+                              f"in {yr} (a code, or part of a name); got {query.industry!r}."
+                              + did_you_mean(query.industry, shown))
+        t = _keep(t, "industry", hit)
+    if query.firm is not None:
+        t = _filter_firm(t, query.firm, query.measure, yr)
+    absent: list[tuple[str, str]] = []
+    if query.firms:
+        ids = [c for c in pc.unique(t["firm_id"]).to_pylist() if c is not None]
+        by_fold: dict[str, list[str]] = {}
+        for c in ids:
+            by_fold.setdefault(unneutralise(c).casefold(), []).append(c)
+        keep: list[str] = []
+        for wanted in query.firms:
+            exact = [c for c in by_fold.get(wanted.casefold(), []) if unneutralise(c) == wanted]
+            found = exact or by_fold.get(wanted.casefold(), [])
+            if found:
+                keep += found
+            else:
+                absent.append((wanted, did_you_mean(wanted, ids)))
+        t = _keep(t, "firm_id", keep)
+    if query.status is not None:
+        t = _keep(t, "status", [query.status])
+    for flag, on in (("newly_outside", query.new), ("persistent", query.persistent)):
+        if on:
+            t = t.filter(pc.match_substring_regex(t["flags"], f"(^|;){flag}(;|$)"))
+    column = SORTS[query.sort or ("gap" if query.status in ("over", "under") else "gap_z")]
+    t = t.append_column("_size", pc.abs(t[column])).sort_by(
+        [("_size", "descending"), ("firm_id", "ascending")])
+    t = t.drop_columns(["_size"])
+    shown = t if query.top is None else t.slice(0, query.top)
+    rows = shown.to_pylist()
+    for r in rows:
+        r["industry_name"] = names.get(unneutralise(str(r["industry"])), "")
+    return Screen(rows, t.num_rows, yr, tuple(absent))
+
+
+def _filter_firm(t: Any, firm: str, measure: str, year: int) -> Any:
+    import pyarrow.compute as pc
+
+    from levgap.matching import did_you_mean, resolve
+
+    ids = [c for c in pc.unique(t["firm_id"]).to_pylist() if c is not None]
+    exact = resolve(firm, ids)
+    if exact is not None:
+        return _keep(t, "firm_id", [exact])
+    named = t.filter(pc.match_substring(t["firm_name"], firm.strip(), ignore_case=True))
+    if named.num_rows:
+        return named
+    raise ConfigError(f"--firm must be a firm id or part of a firm name of {measure} leverage "
+                      f"in {year}; got {firm!r}." + did_you_mean(firm, ids))
+
+
+def read_run_targets(out_dir: str | Path) -> tuple[Any, dict[str, Any]]:
+    """The targets table (as :func:`read_targets`) and the run's ``run.json``."""
+    from levgap.outputs import verify_run
+
+    table = read_targets(out_dir)
+    return table, verify_run(out_dir).manifest

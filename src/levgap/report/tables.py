@@ -169,7 +169,7 @@ def read_outputs(
 def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFrame:
     """One output table, read back and checked against the contract (columns and types);
     ``legacy``: a table levgap 0.1 wrote, checked against the 0.1 columns."""
-    from levgap.analysis import check_table_columns
+    from levgap.analysis import check_table_columns, fill_added_columns
 
     try:
         if path.suffix == ".parquet":
@@ -190,7 +190,7 @@ def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFr
         if c in frame.columns:
             frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
                 frame[c].fillna("").astype("str"))
-    return frame
+    return frame if legacy else fill_added_columns(name, frame)
 
 
 def _kind(col: pd.Series) -> str:

@@ -12,8 +12,10 @@ import math
 from collections.abc import Mapping
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
+from levgap import glossary as g
 from levgap.errors import LevgapError
 
 STEP_COLUMNS = ("step", "label", "kind", "delta", "start", "end")
@@ -70,8 +72,8 @@ def driver_steps(target_row: Mapping[str, Any], drivers: pd.DataFrame) -> pd.Dat
             "levgap analyze so that drivers and targets come from the same run."
         )
     steps: list[tuple[str, str, float, float]] = [
-        ("Peer median", "level", 0.0, peer_median),
-        ("Peers' offset", "change", peer_median, peer_target),
+        (_cap("peer_median"), "level", 0.0, peer_median),
+        (_cap("peers_offset"), "change", peer_median, peer_target),
     ]
     level = peer_target
     names, values = rows["driver"].astype(str), rows["contribution"].astype(float)
@@ -79,14 +81,19 @@ def driver_steps(target_row: Mapping[str, Any], drivers: pd.DataFrame) -> pd.Dat
         steps.append((name, "change", level, level + value))
         level += value
     steps += [
-        ("Target", "level", 0.0, target),
-        ("Unexplained gap", "change", target, actual),
-        ("Actual", "level", 0.0, actual),
+        (_cap("target"), "level", 0.0, target),
+        (_cap("unexplained"), "change", target, actual),
+        (_cap("actual"), "level", 0.0, actual),
     ]
     frame = pd.DataFrame(steps, columns=["label", "kind", "start", "end"])
     frame.insert(0, "step", range(len(frame)))
     frame.insert(3, "delta", frame["end"] - frame["start"])
     return frame[list(STEP_COLUMNS)]
+
+
+def _cap(key: str) -> str:
+    label = g.label(key)
+    return label[:1].upper() + label[1:]
 
 
 def render_steps(steps: pd.DataFrame, *, width: int = 40, title: str | None = None) -> Any:
@@ -115,15 +122,15 @@ def render_steps(steps: pd.DataFrame, *, width: int = 40, title: str | None = No
     scale = width / (hi - lo) if hi > lo else 1.0
 
     table = Table(title=Text(title) if title else None, show_edge=False, pad_edge=False)
-    table.add_column("step", no_wrap=True)
+    table.add_column(g.label("step"), no_wrap=True)
     table.add_column("", no_wrap=True, min_width=width + 1)
-    table.add_column("pp", justify="right", no_wrap=True)
+    table.add_column(g.UNIT_PP, justify="right", no_wrap=True)
     for row in steps.itertuples(index=False):
         if row.kind == "level":
-            style, value = "bold blue", f"{row.end * 100:.1f}"
+            style, value = "bold blue", g.number(row.end * 100, 1)
         else:
             style = "red" if row.delta > 0 else "green"
-            value = f"{row.delta * 100:+.1f}"
+            value = g.pp(row.delta)
         # The left edge sits on a character cell; the right edge is drawn to an eighth of one.
         left = int(round((min(row.start, row.end) - lo) * scale))
         size = (max(row.start, row.end) - lo) * scale - left
@@ -134,4 +141,50 @@ def render_steps(steps: pd.DataFrame, *, width: int = 40, title: str | None = No
             body = "▏"  # a change too small to draw still shows where it sits
         bar.append(body or "│", style=style if body else "dim")
         table.add_row(Text(str(row.label)), bar, value)
+    return table
+
+
+def render_history(history: pd.DataFrame, *, width: int = 24, title: str | None = None) -> Any:
+    """The firm's gap over its years as a terminal chart.
+
+    Parameters
+    ----------
+    history : pandas.DataFrame
+        The firm's rows of one measure, by fiscal year (``fiscal_year, actual, target,
+        band_low, band_high, gap, status, years_outside``).
+    width : int, default=24
+        Characters of the bar column; bars start at its middle (zero gap) and run left for
+        gaps under the target, right for gaps over it, to an eighth of a character.
+    title : str, optional
+
+    Returns
+    -------
+    rich.table.Table
+    """
+    from rich.table import Table
+    from rich.text import Text
+
+    gaps = history["gap"].astype(float).to_numpy()
+    top = float(np.nanmax(np.abs(gaps))) if np.isfinite(gaps).any() else 0.0
+    half = width // 2
+    scale = half / top if top > 0 else 0.0
+    table = Table(title=Text(title) if title else None, show_edge=False, pad_edge=False)
+    for key, right in (("fiscal_year", False), ("status", False), ("actual", True),
+                       ("target", True), ("band", True)):
+        table.add_column(g.header(key), justify="right" if right else "left", no_wrap=True)
+    table.add_column("", no_wrap=True, min_width=width + 1)
+    table.add_column(g.header("gap"), justify="right", no_wrap=True)
+    table.add_column(g.label("years_outside"), justify="right", no_wrap=True)
+    for r in history.itertuples(index=False):
+        size = abs(float(r.gap)) * scale if math.isfinite(float(r.gap)) else 0.0
+        full, eighths = divmod(int(round(size * 8)), 8)
+        body = "█" * full + (_EIGHTHS[eighths] if eighths else "")
+        if float(r.gap) < 0:
+            bar = Text(" " * max(half - len(body), 0)).append(body, style="green")
+            bar.append("│", style="dim")
+        else:
+            bar = Text(" " * half + "│", style="dim").append(body, style="red")
+        table.add_row(str(int(r.fiscal_year)), str(r.status), g.pct(r.actual), g.pct(r.target),
+                      f"{g.pct(r.band_low)}-{g.pct(r.band_high)}", bar, g.pp(r.gap),
+                      str(int(r.years_outside)) if r.years_outside == r.years_outside else "")
     return table

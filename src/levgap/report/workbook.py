@@ -25,8 +25,10 @@ from pathlib import Path, PurePosixPath
 from typing import Any
 from xml.etree import ElementTree as ET
 
+import numpy as np
 import pandas as pd
 
+from levgap import glossary as g
 from levgap.errors import warn_data
 
 SHEETS: tuple[str, ...] = ("Summary", "Targets", "Drivers", "Coefficients", "Exclusions")
@@ -39,8 +41,10 @@ PCT, PCT2, NUM2, NUM3, NUM4, MONEY, INT = (
 FORMATS: dict[str, dict[str, str | None]] = {
     "Targets": {"fiscal_year": INT, "actual": PCT, "target": PCT, "gap": PCT, "gap_z": NUM2,
                 "band_low": PCT, "band_high": PCT, "peer_median": PCT, "peer_count": INT,
-                "peer_target": PCT, "debt_to_target": MONEY},
-    "Drivers": {"fiscal_year": INT, "firm_value": None, "peer_value": None,
+                "peer_target": PCT, "debt_to_target": MONEY, "target_full": PCT,
+                "gap_prev": PCT, "gap_change": PCT, "gap_mean_prior": PCT,
+                "years_outside": INT},
+    "Drivers": {"fiscal_year": INT, "firm_value": None, "raw_value": None, "peer_value": None,
                 "contribution": PCT2},
     "Coefficients": {"estimate": NUM4, "std_error": NUM4, "t_stat": NUM2, "p_value": NUM3,
                      "ci_low": NUM4, "ci_high": NUM4},
@@ -119,6 +123,8 @@ def build_workbook(
     long_cells = 0
     for sheet, key in _SOURCES.items():
         frame = tables[key]
+        if sheet == "Targets":
+            frame = readable_targets(frame, manifest)
         if len(frame) > EXCEL_MAX_ROWS - 1:
             truncated[sheet] = len(frame)
             frame = frame.iloc[: EXCEL_MAX_ROWS - 1]
@@ -143,6 +149,27 @@ def build_workbook(
             "Excel cell holds; workbook.xlsx cuts them with a note. The CSV or Parquet outputs "
             "hold the whole text.", stacklevel=2,
         )
+
+
+def readable_targets(targets: pd.DataFrame, manifest: Mapping[str, Any]) -> pd.DataFrame:
+    """The targets table with the words a reader needs beside the codes: ``industry_name``
+    after ``industry`` and ``flag_notes`` (each flag in words, ``levgap.codes``) after
+    ``flags``."""
+    from levgap.codes import flag_words
+    from levgap.matching import unneutralise
+
+    names = dict(manifest.get("industry_names") or {})
+    out = targets.copy(deep=False)
+    codes, uniques = pd.factorize(out["industry"].astype(str))
+    named = np.array([names.get(unneutralise(u), "") for u in uniques], dtype=object)
+    out.insert(out.columns.get_loc("industry") + 1, "industry_name",
+               named[codes] if len(uniques) else named)
+    fcodes, funiques = pd.factorize(out["flags"].fillna("").astype(str))
+    notes = np.array(["; ".join(f"{c}: {w}" for c, w in flag_words(u)) for u in funiques],
+                     dtype=object)
+    out.insert(out.columns.get_loc("flags") + 1, "flag_notes",
+               notes[fcodes] if len(funiques) else notes)
+    return out
 
 
 def _long_cells(frame: pd.DataFrame) -> int:
@@ -388,11 +415,13 @@ def _write_summary(
         ("fiscal years", f"{years[0]}-{years[-1]} ({len(years)})" if years else "none"),
         ("model", model.get("model", "linear")),
         ("measures", ", ".join(map(str, model.get("measures", [])))),
-        ("standard errors clustered by", model.get("cluster")),
+        ("standard errors clustered by", g.CLUSTERS.get(str(model.get("cluster")),
+                                                        model.get("cluster"))),
         ("band coverage", model.get("coverage")),
+        ("money", g.money_note((manifest.get("options", {}) or {}).get("units"))),
     ]
     for reason, n in sorted((counts.get("by_reason") or {}).items()):
-        pairs.append((f"excluded: {reason}", n))
+        pairs.append((f"{g.label('excluded')}: {reason}", n))
     for b in manifest.get("pooled_industries", []) or []:
         pairs.append(("pooled industry effect", _describe(b)))
     for w in manifest.get("warnings", []) or []:
@@ -448,3 +477,9 @@ def _write_summary(
             cells.append(text(v) if isinstance(v, str) else
                          None if v is None else number(v, fmts.get(str(name))))
         ws.append(cells)
+    ws.append([])
+    ws.append([text("Glossary (the columns of the sheets)", Font(bold=True, size=12))])
+    ws.append(_header_cells(ws, ["column", "label", "unit", "meaning"]))
+    for key, term in g.TERMS.items():
+        if term.meaning:
+            ws.append([text(key), text(term.label), text(term.unit), text(term.meaning)])

@@ -1,0 +1,66 @@
+"""Finding what a user typed among firm ids, names and industries (pandas-free).
+
+Ids match as typed, then ignoring case; a value written neutralised (a leading apostrophe
+before ``=``, ``+``, ``-`` or ``@``) matches as it was in the panel. What matches nothing gets
+"did you mean" suggestions: the closest candidates by edit similarity, ignoring case.
+"""
+
+from __future__ import annotations
+
+import difflib
+from collections.abc import Iterable, Sequence
+
+
+def unneutralise(text: str) -> str:
+    """A text cell as it was before the formula neutraliser prefixed its apostrophe."""
+    from levgap.outputs.cells import is_formula_like
+
+    if text.startswith("'") and is_formula_like(text[1:]):
+        return text[1:]
+    return text
+
+
+def resolve(wanted: str, candidates: Iterable[str]) -> str | None:
+    """The candidate ``wanted`` names: equal as typed, else equal ignoring case (when only one
+    candidate is); ``None`` when none or several are.
+
+    Examples
+    --------
+    >>> resolve("tr0069", ["TR0069", "TR0070"])
+    'TR0069'
+    """
+    folded: dict[str, list[str]] = {}
+    for c in candidates:
+        plain = unneutralise(c)
+        if plain == wanted:
+            return c
+        folded.setdefault(plain.casefold(), []).append(c)
+    hits = folded.get(wanted.casefold(), [])
+    return hits[0] if len(hits) == 1 else None
+
+
+def suggest(wanted: str, candidates: Sequence[str], n: int = 3) -> list[str]:
+    """Up to ``n`` candidates close to ``wanted`` (ignoring case), closest first.
+
+    Examples
+    --------
+    >>> suggest("TR069", ["TR0069", "TR0169", "ZZ9"])
+    ['TR0069', 'TR0169']
+    """
+    key = wanted.casefold()
+    # only candidates of about the same length can be close: keeps this quick on 100k ids
+    pool = {}
+    for c in candidates:
+        plain = unneutralise(c)
+        if abs(len(plain) - len(key)) <= max(2, len(key) // 3):
+            pool.setdefault(plain.casefold(), plain)
+    hits = difflib.get_close_matches(key, list(pool), n=n, cutoff=0.6)
+    return [pool[h] for h in hits]
+
+
+def did_you_mean(wanted: str, candidates: Sequence[str]) -> str:
+    """`` Did you mean X or Y?`` (with a leading space), or an empty text."""
+    near = suggest(wanted, candidates)
+    if not near:
+        return ""
+    return " Did you mean " + " or ".join(repr(x) for x in near) + "?"
