@@ -437,7 +437,7 @@ def test_no_paths_is_a_config_error() -> None:
 def test_same_quarter_twice_is_used_once(both: SecImport) -> None:
     twice = import_sec([CURRENT, OLD, CURRENT], forms=BOTH_FORMS, exclude_sic=None)
     pd.testing.assert_frame_equal(twice.panel, both.panel)
-    assert any("more than one quarter" in w for w in twice.warnings)
+    assert any("given more than once; it was read once" in w for w in twice.warnings)
 
 
 # --- writing ------------------------------------------------------------------------------

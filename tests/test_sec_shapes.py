@@ -9,6 +9,7 @@ hand beside its assertion. Quarters are written in both layouts of the data sets
 from __future__ import annotations
 
 import sys
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -199,6 +200,88 @@ def _firms() -> list[Firm]:
             instant("Assets", 100), flow("WeightedAverageNumberOfSharesOutstandingBasic", 40,
                                          uom="shares"),
         ]),
+        # A filer-defined line "including" the lines above it, one of them a fair-value hedge
+        # adjustment that is not debt (Kroger's balance sheet at 31 Jan 2010: 7,420 + 57 =
+        # 7,477; total debt 579 + 7,477 = 8,056, and 558 + 7,505 = 8,063 a year earlier).
+        basic(9200026, "ABBOTSLEY MARKETS", [
+            Line("LongTermDebtAndCapitalLeaseObligationsCurrent", "Current portion of long-term "
+                 "debt including obligations under capital leases and financing obligations",
+                 579, 558),
+            Line("AccountsPayableTradeCurrent", "Trade accounts payable", 3890, 3822),
+            Line("LiabilitiesCurrent", "Total current liabilities", 7714, 7629),
+            Line("LongTermDebtAndCapitalLeaseObligations", "Face-value of long-term debt "
+                 "including obligations under capital leases and financing obligations", 7420,
+                 7460),
+            Line("AdjustmentRelatedToFairValueInterestRateHedges",
+                 "Adjustment related to fair-value of interest rate hedges", 57, 45,
+                 custom=True),
+            Line("LongTermDebtIncludingObligationsUnderCapitalLeasesAndFinancingObligations",
+                 "Long-term debt including obligations under capital leases and financing "
+                 "obligations", 7477, 7505, custom=True),
+        ], assets=23093),
+        # A filer-defined total of the long-term liabilities other than debt, its tag named
+        # "excluding debt" (CIK 740761's balance sheet at 31 Dec 2009: 7.566 + 499.666).
+        basic(9200027, "BARNSDALE INDUSTRIAL", [
+            Line("DebtCurrent", "Current maturities of long-term debt and short-term "
+                 "obligations", 7.566),
+            Line("DeferredTaxLiabilitiesNoncurrent", "Deferred income taxes", 82.26),
+            Line("PensionAndOtherPostretirementDefinedBenefitPlansLiabilitiesNoncurrent",
+                 "Pension and other", 198),
+            Line("NoncurrentLiabilitiesExcludingDebt", "Total Long-Term Liabilities", 280.26,
+                 custom=True),
+            Line("LongTermDebtNoncurrent", "LONG-TERM DEBT, less current maturities", 499.666),
+        ], assets=2704.112),
+        # A filer-defined tag named debt whose label names a derivative (CIK 1130310's
+        # balance sheet at 31 Dec 2009: "Indexed debt securities derivative" 201 under
+        # IndexedDebtCurrent is not debt; 541 + 6,314 are).
+        basic(9200028, "CALDERBROOK POWER", [
+            Line("OtherLongTermDebtCurrent", "Current portion of other long-term debt", 541),
+            Line("IndexedDebtCurrent", "Indexed debt securities derivative", 201, custom=True),
+            Line("OtherLongTermDebtNoncurrent", "Other", 6314),
+        ], assets=19773),
+        # Debt lines whose facts are filed only for segments (PACCAR's 2009 balance sheet:
+        # commercial paper and bank loans 3,011.2 of Financial Services; the old layout
+        # drops these facts): the debt exists, the value is missing, not 0.
+        basic(9200029, "DALBY TRUCKWORKS", [
+            Line("LongTermDebtNoncurrent", "Long-term debt", 172.3),
+            Line("CommercialPaperAndBankLoans", "Commercial paper and bank loans", 3011.2,
+                 custom=True),
+            Line("MediumTermNotes", "Term notes", 2889.3),
+        ], assets=14569.3, lost=("LongTermDebtNoncurrent", "CommercialPaperAndBankLoans",
+                                 "MediumTermNotes"),
+            facts=[instant("LongTermDebtNoncurrent", 172.3, segments="Scenario=Truck;"),
+                   instant("MediumTermNotes", 2889.3, segments="Scenario=Financial;")]),
+        # A debt line filed as 0 a year earlier and nil now, under a heading line (CIK
+        # 889900: LongTermLineOfCredit 0; the old layout's pre.txt lists headings such as
+        # "Long-term debt:", which have no facts): 0 both years, flagged.
+        basic(9200030, "EDGECOTT DESIGNS", [
+            Line("LongTermDebtAndCapitalLeaseObligationsAbstract", "Long-term debt:", None),
+            Line("LongTermLineOfCredit", "Line of credit", None, 0),
+        ], assets=700),
+        # A liabilities line "including" others that equals by chance the total assets and
+        # the borrowings between them (1,000 + 100): not their subtotal; 100 + 1,100.
+        Firm(9200032, "GARSTANG WORKS", lines=[
+            Line("Assets", "Total assets", 1000),
+            Line("ShortTermBorrowings", "Short-term borrowings", 100),
+            Line("LongTermDebt", "Notes payable, including current portion", 1100),
+        ]),
+        # A noncurrent line "including" others equal by chance to the two current lines
+        # above it: not their subtotal (20 + 30 + 50).
+        basic(9200033, "HATHERLEIGH TOOLS", [
+            Line("ShortTermBorrowings", "Short-term borrowings", 20),
+            Line("LongTermDebtCurrent", "Current portion of long-term debt", 30),
+            Line("LongTermDebtIncludingCapitalLeases", "Long-term debt including capital leases",
+                 50, custom=True),
+        ], assets=1000),
+        # A filer-defined debt line alone, its fact lost: missing and said.
+        basic(9200034, "INCHCAPE FABRICS", [
+            Line("BankLoansPayable", "Bank loans", 40, custom=True),
+        ], assets=400, lost=("BankLoansPayable",)),
+        # No presentation, debt tags filed as 0: 0 from the tags, flagged.
+        Firm(9200031, "FENWICK ASSAYS", facts=[
+            instant("Assets", 300), instant("DebtCurrent", 0),
+            instant("LongTermDebtNoncurrent", 0),
+        ]),
     ]
 
 
@@ -276,6 +359,51 @@ def test_subtotals_are_not_added_and_coincidences_are_not_subtotals(
     assert _row(r, 9200008)["total_debt"] == pytest.approx(509.2 + 31.6 + 3874.3 + 486.6)
     assert "LongTermDebtAndCapitalLeaseObligations" not in _source(r, 9200008, "total_debt")
     assert _row(r, 9200009)["total_debt"] == 20 + 30 + 50
+
+
+def test_a_line_including_other_lines_and_a_hedge_adjustment_is_counted_alone(
+    shapes: tuple[str, SecImport],
+) -> None:
+    _, r = shapes
+    assert _row(r, 9200026)["total_debt"] == 579 + 7477  # not + 7,420 (inside 7,477)
+    assert _row(r, 9200026, 2019)["total_debt"] == 558 + 7505
+    assert _row(r, 9200032)["total_debt"] == 100 + 1100  # assets are not its lines
+    assert _row(r, 9200033)["total_debt"] == 20 + 30 + 50  # a noncurrent line sums no current
+    assert _source(r, 9200026, "total_debt") == (
+        "LongTermDebtAndCapitalLeaseObligationsCurrent + custom:LongTermDebtIncludingObligations"
+        "UnderCapitalLeasesAndFinancingObligations")
+
+
+def test_labels_that_exclude_debt_or_name_a_derivative_are_not_debt(
+    shapes: tuple[str, SecImport],
+) -> None:
+    _, r = shapes
+    assert _row(r, 9200027)["total_debt"] == pytest.approx(7.566 + 499.666)
+    assert "debt_by_label" not in _flags(r, 9200027)
+    assert _row(r, 9200028)["total_debt"] == 541 + 6314
+    assert "IndexedDebtCurrent" not in _source(r, 9200028, "total_debt")
+
+
+def test_debt_filed_only_for_segments_is_missing_not_zero(
+    shapes: tuple[str, SecImport],
+) -> None:
+    _, r = shapes  # both layouts: the old one has no segment facts at all
+    for cik in (9200029, 9200023, 9200034):
+        assert np.isnan(_row(r, cik)["total_debt"])
+        assert "debt_zero" not in _flags(r, cik) and "statement_facts_missing" in _flags(r, cik)
+
+
+def test_every_zero_is_flagged(shapes: tuple[str, SecImport]) -> None:
+    _, r = shapes
+    assert _row(r, 9200030)["total_debt"] == 0 and "debt_zero" in _flags(r, 9200030)
+    assert _source(r, 9200030, "total_debt") == (
+        "0 (no value on the balance sheet's debt lines (nil))")
+    assert _row(r, 9200030, 2019)["total_debt"] == 0 and "debt_zero" in _flags(r, 9200030, 2019)
+    assert _source(r, 9200030, "total_debt", 2019) == "LongTermLineOfCredit"  # filed as 0
+    assert _row(r, 9200031)["total_debt"] == 0
+    assert {"debt_zero", "debt_from_tags"} <= _flags(r, 9200031)
+    p = r.panel
+    assert ((p["total_debt"] == 0) == p["import_flags"].str.contains("debt_zero")).all()
 
 
 def test_parent_company_facts_are_used_when_they_balance(shapes: tuple[str, SecImport]) -> None:
@@ -384,3 +512,86 @@ def test_lost_facts_and_share_fallback_are_flagged(shapes: tuple[str, SecImport]
     assert _row(r, 9200025)["shares_outstanding"] == 40
     assert "shares_weighted_average" in _flags(r, 9200025)
     assert any("no fact in num.txt" in w for w in r.warnings)
+
+
+def test_the_same_submissions_given_twice_are_read_once(tmp_path: Path) -> None:
+    # The shapes include a filer reporting in another currency, whose ledger line made the
+    # same quarter given twice crash (InvalidIndexError) before.
+    folder = write_quarter(tmp_path / "q", _firms())
+    old = write_quarter(tmp_path / "q_old", _firms(), "old")
+    packed = tmp_path / "q.zip"
+    with zipfile.ZipFile(packed, "w") as zf:
+        for name in ("sub.txt", "pre.txt", "num.txt"):
+            zf.write(folder / name, name)
+    once = import_sec([folder], exclude_sic=None, workers=1)
+    for paths in ([packed, folder], [folder, old], [packed, packed]):
+        twice = import_sec(paths, exclude_sic=None, workers=1)
+        pd.testing.assert_frame_equal(twice.panel, once.panel)
+        pd.testing.assert_frame_equal(twice.sources, once.sources)
+        pd.testing.assert_frame_equal(twice.excluded, once.excluded)
+        assert any("read once" in w for w in twice.warnings)
+        assert len(set(twice.warnings)) == len(twice.warnings)  # each note once
+        # The same path twice is not even read twice.
+        assert any("given more than once" in w for w in twice.warnings) == (
+            paths[0] == paths[1])
+    # Two copies that differ (one lost a fact): the first given supplies the whole filing,
+    # never a mixture of the two.
+    firms = _firms()
+    firms[0].lost = ("ConvertibleDebtNoncurrent", "AssetsCurrent")
+    poorer = write_quarter(tmp_path / "q_lost", firms)
+    alone = import_sec([poorer], exclude_sic=None, workers=1)
+    mixed = import_sec([poorer, folder], exclude_sic=None, workers=1)
+    pd.testing.assert_frame_equal(mixed.panel, alone.panel)
+    assert _row(mixed, 9200001)["total_debt"] == 0 + 6089  # the first copy's sum, flagged
+    assert np.isnan(_row(mixed, 9200001)["current_assets"])  # not 18,932 from the second
+    assert "statement_facts_missing" in _flags(mixed, 9200001)
+
+
+@pytest.mark.parametrize("twice", [("zip", "zip"), ("zip", "folder"), ("zip", "old")])
+def test_cli_reads_a_quarter_given_twice_once(tmp_path: Path, twice: tuple[str, str]) -> None:
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    folder = write_quarter(tmp_path / "q", _firms())
+    paths = {"folder": folder, "old": write_quarter(tmp_path / "q_old", _firms(), "old"),
+             "zip": tmp_path / "q.zip"}
+    with zipfile.ZipFile(paths["zip"], "w") as zf:
+        for name in ("sub.txt", "pre.txt", "num.txt"):
+            zf.write(folder / name, name)
+    out = tmp_path / "x.csv"
+    result = CliRunner().invoke(app, ["import-sec", *(str(paths[k]) for k in twice),
+                                      "--out", str(out), "--all-industries"])
+    assert result.exit_code == 0, result.output
+    assert "read once" in result.output and out.exists()
+
+
+@pytest.mark.parametrize("content", ["quarterly", "header"])
+@pytest.mark.parametrize("layout", ["current", "old"])
+def test_a_quarter_without_annual_reports_gives_an_empty_panel_and_says_so(
+    tmp_path: Path, content: str, layout: str,
+) -> None:
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    folder = write_quarter(tmp_path / "q", [basic(9200090, "JARROW QUARTERLY", [
+        Line("LongTermDebt", "Long-term debt", 5)], form="10-Q", fp="Q3")], layout)
+    if content == "header":  # sub.txt, pre.txt and num.txt hold their header only
+        for name in ("sub.txt", "pre.txt", "num.txt"):
+            text = (folder / name).read_text(encoding="utf-8")
+            (folder / name).write_text(text.splitlines()[0] + "\n", encoding="utf-8")
+    r = import_sec([folder], exclude_sic=None, workers=1)
+    assert r.panel.empty and r.excluded.empty and r.sources.empty
+    assert len(r.warnings) == 1 and "hold no annual report" in r.warnings[0]
+    if (content, layout) != ("quarterly", "current"):
+        return
+    # With a quarter that has annual reports, the empty one changes nothing.
+    full = write_quarter(tmp_path / "full", _firms()[:3], layout)
+    both = import_sec([folder, full], exclude_sic=None, workers=1)
+    pd.testing.assert_frame_equal(both.panel,
+                                  import_sec([full], exclude_sic=None, workers=1).panel)
+    out = tmp_path / "x.csv"
+    result = CliRunner().invoke(app, ["import-sec", str(folder), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "hold no annual report" in result.output and out.exists()

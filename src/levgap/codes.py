@@ -157,8 +157,9 @@ SEC_REASONS: dict[str, str] = {
 but not in the panel."""
 
 SEC_FLAGS: dict[str, str] = {
-    "debt_zero": "the balance sheet presents no debt line (or its debt lines are nil) and "
-    "the filing has no debt facts outside its consolidated statements: total_debt is 0",
+    "debt_zero": "total_debt is 0: the balance sheet presents no debt line, or its debt "
+    "lines are nil or filed as 0 (without pre.txt: the debt tags are filed as 0), and the "
+    "filing has no debt facts outside its consolidated statements; every 0 carries it",
     "debt_partial": "total_debt may leave debt out: a liabilities line that names borrowing "
     "with something else is not counted, or (without pre.txt) only one side of the balance "
     "sheet was found",
@@ -183,7 +184,8 @@ SEC_FLAGS: dict[str, str] = {
     "parent_company_facts": "the filing's consolidated figures sit under coreg "
     "ParentCompany; they balance and are used",
     "statement_facts_missing": "the filing presents a statement line of interest that has no "
-    "fact in num.txt (lost in the file); values built from it are missing",
+    "fact in num.txt (lost in the file, or filed only for segments); values built from it "
+    "are missing (total_debt too when no other debt line has a value, never 0)",
     "subsidiary_duplicate": "total assets equal another filer's at the same date (a "
     "subsidiary filing its own 10-K); the sources name the filer taken for the parent",
 }

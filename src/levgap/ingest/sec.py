@@ -59,7 +59,12 @@ from levgap.ingest.sec_market import (
     read_fx_rates,
     read_prices,
 )
-from levgap.ingest.sec_quarter import ANNUAL_FORMS, QuarterExtract, extract_quarter
+from levgap.ingest.sec_quarter import (
+    ANNUAL_FORMS,
+    FOREIGN_FORMS,
+    QuarterExtract,
+    extract_quarter,
+)
 from levgap.ingest.sec_years import LEDGER_COLUMNS, SOURCE_COLUMNS, assemble
 from levgap.schema import BY_NAME, COLUMNS
 
@@ -248,8 +253,9 @@ def import_sec(
     ranges = parse_sic_ranges(exclude_sic) if exclude_sic is not None else ()
     price_table = read_prices(prices) if prices is not None else None
     fx_table = read_fx_rates(fx_rates) if fx_rates is not None else None
-    extracts = _extract_all(paths, forms_t, limits, workers)
     notes: list[str] = []
+    paths = _once(paths, notes)
+    extracts = _extract_all(paths, forms_t, limits, workers)
     currency_out = _currency_exclusions(extracts, fx_table)
     assembled = assemble(extracts, restated=restated, excluded_filings=currency_out)
     notes.extend(assembled.notes)
@@ -269,8 +275,29 @@ def import_sec(
     sources = _order_sources(sources, panel)
     excluded = _order_ledger(pd.concat([x for x in ledger if len(x)] or [ledger[0]],
                                        ignore_index=True))
-    _coverage_notes(panel, notes)
+    if panel.empty and excluded.empty:
+        notes.append(f"The quarters given hold no annual report ({', '.join(ANNUAL_FORMS)}, "
+                     f"{', '.join(FOREIGN_FORMS)}): only other forms, or no submission at "
+                     "all; the panel is empty.")
+    else:
+        _coverage_notes(panel, notes)
     return SecImport(panel=panel, sources=sources, excluded=excluded, warnings=tuple(notes))
+
+
+def _once(paths: list[Path], notes: list[str]) -> list[Path]:
+    """The paths given, each file or folder once (the same quarter given twice is read once;
+    a zip and its extracted folder are two paths whose submissions are read once later)."""
+    seen: dict[Path, Path] = {}
+    for p in paths:
+        try:
+            key = p.resolve()
+        except (OSError, RuntimeError):
+            key = p
+        if key in seen:
+            notes.append(f"{p} was given more than once; it was read once.")
+            continue
+        seen[key] = p
+    return list(seen.values())
 
 
 def _check_forms(forms: Sequence[str]) -> tuple[str, ...]:
@@ -322,7 +349,7 @@ def _size(path: Path) -> int:
 def _currency_exclusions(extracts: list[QuarterExtract], fx: pd.DataFrame | None) -> pd.Series:
     filings = pd.concat([e.filings for e in extracts], ignore_index=True)
     foreign = filings.loc[(filings["status"] == "") & (filings["currency"] != "USD")
-                          & (filings["currency"] != "")]
+                          & (filings["currency"] != "")].drop_duplicates("adsh")
     if fx is not None:
         return pd.Series(dtype=object)
     return pd.Series("non_usd_currency", index=foreign["adsh"].to_numpy(), dtype=object)

@@ -14,24 +14,43 @@ Debt lines
     a label that names borrowing (``debt``, ``borrowings``, ``notes payable``, ``loan``,
     ``debentures``, ``credit facility``, ``commercial paper``, ``lease obligations``, ...)
     and nothing else (flag ``debt_by_label``). A filer-defined tag's name counts as a
-    second label ("Machinery and Engines" under ``ShortTermBorrowingsMachineryAndEngines``).
+    second label ("Machinery and Engines" under ``ShortTermBorrowingsMachineryAndEngines``)
+    unless the label names something that is not debt ("indexed debt securities derivative"
+    under ``IndexedDebtCurrent``). A label that excludes borrowing ("liabilities excluding
+    debt") does not name it.
 Subtotals
-    A debt line whose value equals the sum of the lines directly above it (two or more, or
-    one when its label says "total"), with ``negating`` lines subtracted, is a subtotal when
-    its label says "total", its tag names a total (``DebtCurrent``, ``LongTermDebt``, ...,
-    on a side consistent with the lines it sums), or the lines above include a "less ..."
-    line. A subtotal of debt lines is not counted (its lines are). A total whose lines
-    include lines that are not debt tags (a repurchase-agreement line inside "total short-
-    term borrowings") is counted as presented, and the debt lines inside it are not.
+    A debt line whose value equals the sum of the lines directly above it in the same
+    statement (two or more, or one when its label says "total"; ``negating`` lines
+    subtracted; within half a unit) is a subtotal when it says it sums: its label says
+    "total"; its tag names a total (:data:`~levgap.ingest.sec_tags.DEBT_AGGREGATES`:
+    ``DebtCurrent``, ``LongTermDebtNoncurrent``, ``LongTermDebtAndCapitalLeaseObligations``,
+    ``DebtAndCapitalLeaseObligations``, ...); its label says it includes other lines
+    ("including", "includes", "inclusive of", "together with", "combined", "... and ...
+    obligations"); or the lines above include a "less ..." line. Without a "total" label the
+    lines summed must lie on the line's side of the balance sheet (a noncurrent total sums
+    no current line). A subtotal of debt lines only is not counted (its lines are). A
+    total whose lines include lines that are not debt (a repurchase-agreement line inside
+    "total short-term borrowings", a fair-value hedge adjustment inside "long-term debt
+    including obligations under capital leases") is counted as presented, and the debt
+    lines inside it are not. The rule reads the statement's own arithmetic, never a
+    filer's numbers: a line that says it sums and equals the lines above it is their sum.
 Doubtful lines
     A liabilities line that is not counted but whose label names borrowing together with
     something else ("capital lease and other long-term liabilities") makes the value
-    ``debt_partial``: it may hold debt the total leaves out.
+    ``debt_partial``: it may hold debt the total leaves out. A presented debt line whose
+    tag has no fact at all in the filing's consolidated facts (lost in the file, or filed
+    only for segments) beside lines that are counted leaves the sum as it is; the row
+    carries ``statement_facts_missing``.
 No debt line
     A balance sheet that presents no debt line, or whose debt lines carry no value at the
-    row's date (nil), gives 0 flagged ``debt_zero``, unless the filing has debt facts at
-    that date outside its consolidated statements (segments, co-registrants), which leaves
-    the value missing.
+    row's date (nil: the line's tag has a fact at another date of the filing), gives 0; so
+    do debt lines filed as 0 (the provenance then lists them). Every 0 is flagged
+    ``debt_zero``, also one from the tags alone. The value is missing instead when the
+    filing has debt facts at that date outside its consolidated statements (segments,
+    co-registrants) or presents a debt line whose tag has no fact at all in its
+    consolidated facts (the old layout of the data sets drops segment facts, so a line
+    filed only for segments has none): the debt exists but is not in the file as a
+    consolidated figure.
 No presentation
     A filing without ``pre.txt`` lines falls back on the tags alone (flag
     ``debt_from_tags``): a combined total when filed; else the current side (DebtCurrent;
@@ -40,6 +59,9 @@ No presentation
     LongTermDebtAndCapitalLeaseObligations; LongTermDebt minus LongTermDebtCurrent). A side
     that is absent is absent, not 0: the value is then the side found, flagged
     ``debt_partial``.
+
+Headings and dimension members (tags ending ``Abstract``, ``Table``, ``Axis``, ``Domain``,
+``Member``, ``LineItems``; the old layout's ``pre.txt`` lists them) are never lines.
 
 The provenance label lists every line summed (custom tags as ``custom:Tag``; a subtracted
 line with ``-``).
@@ -91,7 +113,19 @@ _NOT_DEBT_TAG = re.compile(
     r"Deferred|Interest|Deposit|Tax|Accrued|AccountsPayable|Dividend|Pension|Benefit|"
     r"Retirement|Contingenc|Commitment|Minority|Noncontrolling|Capital(?!Lease)"
 )
+# Headings and dimension members of a statement (the old layout's pre.txt lists them):
+# never a line with a value.
+_STRUCTURAL_TAG = re.compile(r"(?:Abstract|Table|Axis|Domain|Member|LineItems)$")
 _TOTAL = re.compile(r"\btotal\b", re.IGNORECASE)
+# Labels that say the line includes other lines (a subtotal when it equals them).
+_INCLUDES = re.compile(
+    r"\binclud(?:ing|es|ed)\b|\binclusive\s+of\b|\btogether\s+with\b|\bcombined\b|"
+    r"\band\b[^,;()]*\bobligations?\b",
+    re.IGNORECASE,
+)
+# Words before a borrowing word that turn the label away from debt ("liabilities excluding
+# debt").
+_EXCLUDES = re.compile(r"\b(?:excluding|excludes|except|other\s+than)\b", re.IGNORECASE)
 _CURRENT = re.compile(r"current|short-term|short term|within one year", re.IGNORECASE)
 _NONCURRENT = re.compile(r"noncurrent|non-current|long-term|long term|net of current|"
                          r"less current|excluding current", re.IGNORECASE)
@@ -162,13 +196,16 @@ def classify_lines(lines: pd.DataFrame) -> LineKind:
     words = pd.Series(tag_names, dtype=object).str.replace(r"(?<=[a-z0-9])(?=[A-Z])", " ",
                                                            regex=True)
     by_name = words.map(_names_borrowing).to_numpy(dtype=bool)[tag_codes]
-    says |= custom & by_name
+    # ... unless the label itself names something that is not debt ("indexed debt securities
+    # derivative" under a tag named IndexedDebtCurrent).
+    says |= custom & by_name & ~per_label(_NOT_DEBT)
     mixed = per_label(_MIXED)
     not_debt_tag = pd.Series(tag_names, dtype=object).str.contains(_NOT_DEBT_TAG).to_numpy(
         dtype=bool)[tag_codes]
     standard_debt = ~custom & np.isin(tag, list(DEBT_TAGS))
     broader = ~custom & ~standard_debt & ~not_debt_tag
-    totals = np.isin(tag, list(_LIABILITY_TOTALS))
+    totals = np.isin(tag, list(_LIABILITY_TOTALS)) | pd.Series(
+        tag_names, dtype=object).str.contains(_STRUCTURAL_TAG).to_numpy(dtype=bool)[tag_codes]
     says_debt = liab & says & ~totals
     by_label = (custom | broader) & says_debt & ~mixed
     doubtful = says_debt & ~standard_debt & ~by_label & (custom | broader)
@@ -190,8 +227,9 @@ def _names_borrowing(label: str) -> bool:
     if m is None:
         return False
     after = " ".join(label[m.end():].split()[:3])
-    return not (_NOT_DEBT.search(label[: m.start()]) or _NOT_DEBT.search(m.group(0) + " "
-                                                                          + after))
+    before = label[: m.start()]
+    return not (_NOT_DEBT.search(before) or _EXCLUDES.search(before)
+                or _NOT_DEBT.search(m.group(0) + " " + after))
 
 
 def presented_debt(
@@ -235,6 +273,11 @@ def presented_debt(
     grid = keyed.merge(lines, on="adsh", how="inner")
     grid = grid.merge(values[["adsh", "fiscal_year", "tag", "value"]],
                       on=["adsh", "fiscal_year", "tag"], how="left")
+    # A line whose tag has a consolidated fact at some date of the filing (else it is lost,
+    # or filed only for segments).
+    known = values[["adsh", "tag"]].drop_duplicates().assign(_known=True)
+    grid = grid.merge(known, on=["adsh", "tag"], how="left")
+    grid["_known"] = grid["_known"].notna().to_numpy()
     grid = grid.sort_values(["_row", "report", "line"], kind="stable")
     row_ids = grid["_row"].to_numpy()
     if not len(row_ids):
@@ -243,7 +286,8 @@ def presented_debt(
     ends = np.r_[starts[1:], len(row_ids)]
     grid["_filer"] = grid["custom"].to_numpy(dtype=bool)
     cols = {c: grid[c].to_numpy() for c in ("tag", "label", "report", "_debt", "_doubt",
-                                            "_custom", "_filer", "_side", "negating", "value")}
+                                            "_custom", "_filer", "_side", "negating", "value",
+                                            "liabilities", "_known")}
     rows_adsh = rows["adsh"].to_numpy()
     rows_fy = rows["fiscal_year"].to_numpy()
     for s, e in zip(starts, ends, strict=True):
@@ -265,17 +309,21 @@ def _one_balance_sheet(c: dict[str, np.ndarray], has_outside: bool) -> tuple[flo
     side = c["_side"]
     status = np.where(debt, "in", "").astype(object)
     valued = ~np.isnan(value)
+    liab = c["liabilities"].astype(bool)
     for i in np.flatnonzero(debt & valued):
         total_label = bool(_TOTAL.search(str(label[i])))
-        total_like = total_label or tag[i] in DEBT_AGGREGATES
-        above = (np.arange(len(value)) < i) & (report == report[i]) & valued
+        total_like = total_label or tag[i] in DEBT_AGGREGATES or bool(
+            _INCLUDES.search(str(label[i])))
+        # A liabilities line sums liabilities lines only.
+        above = (np.arange(len(value)) < i) & (report == report[i]) & valued & (
+            liab | ~liab[i])
         # Only a total-like line, or a line below a "less ..." line, can be a subtotal.
         if not total_like and not (negating & above).any():
             continue
         comps = _components(signed, np.flatnonzero(above), signed[i], total_label)
         if comps is None:
             continue
-        if tag[i] in DEBT_AGGREGATES and not total_label:
+        if total_like and not total_label:
             total_like = _sides_fit(side[i], side[comps], signed[comps])
         has_less = bool(negating[comps].any())
         if debt[comps].all():
@@ -284,11 +332,13 @@ def _one_balance_sheet(c: dict[str, np.ndarray], has_outside: bool) -> tuple[flo
         elif total_like:
             status[comps[debt[comps]]] = "covered"
     counted = (status == "in") & valued
+    # Debt lines whose tag has no consolidated fact at any date of the filing.
+    lost = debt & ~c["_known"].astype(bool)
     flags = []
     if c["_doubt"].astype(bool)[valued & (value != 0)].any():
         flags.append("debt_partial")
     if not counted.any():
-        if has_outside:
+        if has_outside or lost.any():
             return np.nan, "", ""
         why = ("no value on the balance sheet's debt lines (nil)" if debt.any()
                else "no debt line on the balance sheet")
@@ -296,6 +346,8 @@ def _one_balance_sheet(c: dict[str, np.ndarray], has_outside: bool) -> tuple[flo
     if (c["_custom"].astype(bool) & counted).any():
         flags.append("debt_by_label")
     total = float(signed[counted].sum())
+    if total == 0:  # debt lines filed as 0
+        flags.insert(0, "debt_zero")
     text = ""
     for j in np.flatnonzero(counted):
         name = f"custom:{tag[j]}" if c["_filer"][j] else str(tag[j])
@@ -367,4 +419,5 @@ def debt_from_tags(wide: pd.DataFrame) -> Item:
     both = sum_present(current, noncurrent)
     both = both.flagged(one_side & ~whole_long, "debt_partial")
     out = first(combined, both)
+    out = out.flagged(out.value == 0, "debt_zero")  # every 0 is flagged
     return out.flagged(np.ones(n, dtype=bool), "debt_from_tags")

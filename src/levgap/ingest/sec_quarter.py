@@ -19,7 +19,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from levgap.ingest.sec_debt import debt_from_tags, presented_debt
+from levgap.ingest.sec_debt import classify_lines, debt_from_tags, presented_debt
 from levgap.ingest.sec_facts import (
     NUM_COLUMNS,
     FactFilter,
@@ -391,7 +391,11 @@ def _flag_missing_facts(filings: pd.DataFrame, pre: pd.DataFrame, facts: pd.Data
     if pre.empty:
         return
     interest = pre["tag"].isin(list(NEEDED_TAGS)) | pre["tag"].isin(list(DEBT_TAGS))
-    lines = pre.loc[interest & ~pre["custom"] & pre["adsh"].isin(cand["adsh"]),
+    interest &= ~pre["custom"]
+    bs = ((pre["stmt"] == "BS") & ~pre["inpth"]).to_numpy()
+    if bs.any():  # filer-defined balance-sheet lines counted as debt by their labels
+        interest.loc[bs] |= classify_lines(pre.loc[bs]).debt
+    lines = pre.loc[interest & pre["adsh"].isin(cand["adsh"]),
                     ["adsh", "tag"]].drop_duplicates()
     have = facts[["adsh", "tag"]].drop_duplicates().assign(_f=True)
     m = lines.merge(have, on=["adsh", "tag"], how="left")

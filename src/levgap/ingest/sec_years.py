@@ -19,6 +19,10 @@ Which firm-years are rows
     cash-flow statement (two years back) goes to the ledger (``no_balance_sheet``).
 Names and industries
     ``firm_name`` and ``industry`` (SIC) of a firm are those of its latest filing.
+Submissions given twice
+    A submission (``adsh``) held by several quarters given (the same quarter twice, a zip and
+    its extracted folder, a quarter in both layouts) is read once: the first quarter given
+    that holds it supplies its status and all its values, never a mixture of two copies.
 """
 
 from __future__ import annotations
@@ -82,25 +86,35 @@ def assemble(extracts: Sequence[QuarterExtract], *, restated: bool = True,
     -------
     Assembled
     """
-    notes: list[str] = [n for e in extracts for n in e.notes]
+    notes: list[str] = list(dict.fromkeys(n for e in extracts for n in e.notes))
     filings = pd.concat([e.filings for e in extracts], ignore_index=True)
-    cells = _concat([e.cells for e in extracts])
-    if excluded_filings is not None and len(excluded_filings):
-        hit = filings["adsh"].isin(excluded_filings.index) & (filings["status"] == "")
-        filings.loc[hit, "status"] = filings.loc[hit, "adsh"].map(excluded_filings)
+    # A submission given twice (the same quarter twice, a zip and its folder, both layouts)
+    # is read once: the first quarter given that holds it supplies all its values.
     dup = filings.duplicated("adsh", keep="first")
     if dup.any():
         notes.append(
-            f"{int(dup.sum())} submissions appear in more than one quarter given; their "
-            "facts were combined (each value taken once)."
+            f"{int(dup.sum())} submissions appear in more than one quarter given (the same "
+            "quarter twice, or a zip and its extracted folder?); each was read once, from "
+            "the first quarter given that holds it."
         )
-    meta = filings.loc[~dup].set_index("adsh")
+    filings = filings.loc[~dup].reset_index(drop=True)
+    first_of = filings.set_index("adsh")["quarter"]
+    cells = _concat([e.cells.loc[e.cells["adsh"].map(first_of).to_numpy() == i]
+                     for i, e in enumerate(extracts)] if dup.any() else
+                    [e.cells for e in extracts])
+    if excluded_filings is not None and len(excluded_filings):
+        hit = filings["adsh"].isin(excluded_filings.index) & (filings["status"] == "")
+        filings.loc[hit, "status"] = filings.loc[hit, "adsh"].map(excluded_filings)
+    meta = filings.set_index("adsh")
     used = meta.index[meta["status"] == ""]
     cells = cells.loc[cells["adsh"].isin(used)].copy()
     cells = cells.drop_duplicates(["adsh", "fiscal_year", "column"], keep="first")
     for c in ("firm_id", "form", "period", "filed", "accepted", "fiscal_year", "flags",
               "quarter"):
         cells["f_" + c] = cells["adsh"].map(meta[c]).to_numpy()
+    if cells.empty:  # no value at all (no annual report in the quarters): typed keys
+        cells = cells.astype({"f_firm_id": object, "f_fiscal_year": "int64",
+                              "f_quarter": "int64"})
     filing_flags = cells["f_flags"].astype(str)
     cells["flags"] = _join(cells["flags"].astype(str), filing_flags)
     cells = _latest_period(cells, notes)
