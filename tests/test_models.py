@@ -269,3 +269,35 @@ def test_the_identification_test_follows_check_not_cov(model: str) -> None:
     for cov, check in ((True, False), (False, None)):
         with pytest.raises(ModelError, match="drivers are collinear with each other"):
             fit(y, X, cov=cov, check=check, **kw)
+
+
+def test_r2_of_a_small_outcome_and_integer_inputs() -> None:
+    # R^2 does not depend on the outcome's units: a ratio whose total sum of squares is
+    # below 1 has the R^2 of the same outcome in percent. Integer inputs fit as floats.
+    rng = np.random.default_rng(12)
+    g = np.repeat(np.arange(5), 8)
+    Xi = rng.integers(0, 10, size=(40, 2))
+    yi = Xi @ np.array([2, -1]) + g + rng.integers(-3, 4, 40)
+    whole = fit_linear(yi, Xi, effects=[g], cov=False)
+    floats = fit_linear(yi.astype(float), Xi.astype(float), effects=[g], cov=False)
+    np.testing.assert_allclose(whole.coef, floats.coef, rtol=1e-12)
+    small = fit_linear(yi / 1000.0, Xi, effects=[g], cov=False)
+    assert float(((yi / 1000.0 - (yi / 1000.0).mean()) ** 2).sum()) < 1
+    assert small.r2 == pytest.approx(floats.r2, rel=1e-10) and 0 < small.r2 < 1
+
+
+def test_pooled_levels_keep_their_types() -> None:
+    # PooledLevels: members a bool matrix, parents integers (saved to model.json as such).
+    rng = np.random.default_rng(13)
+    g = np.repeat(np.arange(4), 10)
+    X = rng.normal(size=(40, 1))
+    y = X[:, 0] + g * 0.5 + rng.normal(0, 0.1, 40)
+    small = np.array([False, False, False, True])
+    pooling = Pooling(small, np.array([-1, -1, -1, 0]), np.array([[True, True, True, False]]),
+                      np.array([np.inf, np.inf, np.inf, 2.0]), np.array([np.nan] * 3 + [0.5]))
+    fit = fit_linear(y, X, effects=[g], pooling=pooling, n_levels=[6], cov=False)
+    p = fit.pooled
+    assert p.members.dtype == bool and p.members.shape == (1, 6)
+    assert p.parent.dtype == np.int64 and list(p.parent) == [-1, -1, -1, 0, -1, -1]
+    assert p.small.dtype == bool and list(p.small) == [False] * 3 + [True, False, False]
+    assert fit.to_dict()["pooled"]["members"][0] == [True, True, True, False, False, False]
