@@ -300,4 +300,58 @@ def test_pooled_levels_keep_their_types() -> None:
     assert p.members.dtype == bool and p.members.shape == (1, 6)
     assert p.parent.dtype == np.int64 and list(p.parent) == [-1, -1, -1, 0, -1, -1]
     assert p.small.dtype == bool and list(p.small) == [False] * 3 + [True, False, False]
-    assert fit.to_dict()["pooled"]["members"][0] == [True, True, True, False, False, False]
+    members = fit.to_dict()["pooled"]["members"][0]
+    assert members == [1, 1, 1, 0, 0, 0] and all(type(v) is int for v in members)
+
+
+def test_a_small_first_level_and_a_parent_of_one_row() -> None:
+    # Level 0 is small (its own deviation from one row), level 4 small without rows; the
+    # parent group of both is level 2 alone, which has a single row: the parent's effect is
+    # level 2's, not the mean effect.
+    rng = np.random.default_rng(14)
+    g = np.array([0] + [1] * 12 + [2] + [3] * 12)
+    X = rng.normal(size=(len(g), 1))
+    y = 0.5 * X[:, 0] + np.array([0.3, 0.0, 1.0, -0.5, 0.0])[g] + rng.normal(0, 0.05, len(g))
+    small = np.array([True, False, False, False, True])
+    pooling = Pooling(small, np.array([0, -1, -1, -1, 0]),
+                      np.array([[False, False, True, False, False]]),
+                      np.array([2.0, np.inf, np.inf, np.inf, np.inf]),
+                      np.array([0.5, np.nan, np.nan, np.nan, np.nan]))
+    fit = fit_linear(y, X, effects=[g], pooling=pooling, n_levels=[5], cov=False)
+    alpha = fit.effects[0]
+    assert fit.parent_effects()[0] == pytest.approx(alpha[2], rel=1e-12)
+    dev = fit.pooled.deviation
+    assert np.isfinite(dev[0]) and np.isnan(dev[4])
+    codes = np.array([0, 4, 2, 7, -1])
+    got = fit.effect_of(0, codes)
+    mean = float(np.nansum(alpha * fit.effect_weights[0]) / fit.effect_weights[0].sum())
+    np.testing.assert_allclose(got, [alpha[2] + dev[0], alpha[2], alpha[2], mean, mean],
+                               rtol=1e-12)
+    # level 0 has its own deviation; 4 (no rows), 7 and -1 (never seen) do not
+    assert fit.unseen(0, codes).tolist() == [False, True, False, True, True]
+    assert fit.unseen(0, np.array([5])).tolist() == [True]  # just past the last level
+
+
+def test_contributions_of_the_identity_link_are_beta_times_the_driver_gap() -> None:
+    rng = np.random.default_rng(15)
+    g = np.repeat(np.arange(3), 10)
+    X = rng.normal(size=(30, 2))
+    y = X @ np.array([2.0, -3.0]) + g + rng.normal(0, 0.1, 30)
+    fit = fit_linear(y, X, effects=[g], cov=False)
+    X_peer = rng.normal(size=(30, 2))
+    offset = fit.offset([g])
+    contrib, peer, _ = fit.contributions(X, X_peer, offset)
+    np.testing.assert_allclose(contrib, (X - X_peer) * fit.coef[1:], rtol=1e-10, atol=1e-12)
+    np.testing.assert_allclose(peer, offset + X_peer @ fit.coef[1:], rtol=1e-12)
+
+
+def test_a_loaded_fit_carries_no_statistics() -> None:
+    from levgap.models.result import Fit
+
+    rng = np.random.default_rng(16)
+    X = rng.normal(size=(30, 1))
+    fit = fit_linear(X[:, 0] + rng.normal(size=30), X, clusters=[np.arange(30) % 6])
+    loaded = Fit.from_dict(fit.to_dict())
+    assert loaded.vcov is None and loaded.cov_type == "none" and loaded.n_clusters == ()
+    assert np.isnan(loaded.r2) and np.isnan(loaded.deviance)
+    np.testing.assert_array_equal(loaded.coef, fit.coef)
