@@ -66,9 +66,17 @@ def _levgap() -> list[str]:
 
 
 def demo_results(work: Path) -> Path:
-    """The demo's results folder (``levgap demo``), written once."""
+    """The demo's results folder (``levgap demo``), written once (again when a folder left by
+    an older levgap no longer verifies)."""
+    from levgap.errors import OutputError
+    from levgap.outputs import verify_run
+
     out = work / "deal-demo"
-    if not (out / "model.json").is_file():
+    try:
+        fresh = (out / "model.json").is_file() and verify_run(out) is not None
+    except OutputError:
+        fresh = False
+    if not fresh:
         subprocess.run([*_levgap(), "demo", "--out", str(out), "--force"], check=True,
                        capture_output=True, text=True)
     return out

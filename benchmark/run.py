@@ -41,6 +41,7 @@ sys.path.insert(0, str(HERE))
 
 import lean  # noqa: E402
 import limit  # noqa: E402
+import newton  # noqa: E402
 import synth  # noqa: E402
 
 GOAL_SIZE = 1_000_000
@@ -50,10 +51,14 @@ STARTUP_GOAL_S = 0.5
 GOALS = {
     "b_over_a": 1.5,  # at most
     "c_over_b": 20.0,  # at least
-    "d_over_lean_time": 3.0,  # at most
+    "b2_over_a2": 2.0,  # at most: fractional fit / plain Newton loop (issue 10)
+    "d_over_lean_time": 3.0,  # at most: linear model
     "d_over_lean_rss": 2.5,  # at most
-    "fit_growth": 11.0,  # at most
+    "frac_over_lean_time": 6.0,  # at most: the fractional default (issues 10 and 15)
+    "fit_growth": 11.0,  # at most, for 10x the rows
+    "fit_10m_s": 3.0,  # at most: the linear fit alone at 10m firm-years
 }
+MODELS = ("linear", "fractional")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -78,15 +83,27 @@ def timed(fn: Callable[[], Any]) -> tuple[float, Any]:
     return time.perf_counter() - t0, out
 
 
+def load() -> float:
+    """The one-minute load average (other work on the machine)."""
+    return round(os.getloadavg()[0], 2) if hasattr(os, "getloadavg") else float("nan")
+
+
 def interleave(fns: dict[str, Callable[[], Any]], repeat: int, warmup: int) -> dict[str, list]:
-    """Run each function ``warmup`` times, then ``repeat`` rounds of all of them in turn."""
+    """Run each function ``warmup`` times, then ``repeat`` rounds of all of them in turn.
+
+    Returns the wall times per function, and under ``<key>_cpu`` the CPU times (this
+    process, all threads): on a shared machine the CPU time is what a run costs when it has
+    the cores to itself."""
     for _ in range(warmup):
         for fn in fns.values():
             fn()
     times: dict[str, list] = {k: [] for k in fns}
+    times.update({f"{k}_cpu": [] for k in fns})
     for _ in range(repeat):
         for k, fn in fns.items():
+            c0 = time.process_time()
             times[k].append(timed(fn)[0])
+            times[f"{k}_cpu"].append(time.process_time() - c0)
     return times
 
 
@@ -100,7 +117,8 @@ _WRAPPER = (
     "rc = subprocess.call(sys.argv[2:])\n"
     "t = time.perf_counter() - t0\n"
     "ru = resource.getrusage(resource.RUSAGE_CHILDREN)\n"
-    "open(sys.argv[1], 'w').write(json.dumps({'seconds': t, 'rss_kb': ru.ru_maxrss, 'rc': rc}))\n"
+    "open(sys.argv[1], 'w').write(json.dumps({'seconds': t, 'rss_kb': ru.ru_maxrss, 'rc': rc,\n"
+    "    'cpu': ru.ru_utime + ru.ru_stime}))\n"
 )
 
 
@@ -150,8 +168,10 @@ def run_child(cmd: list[str], *, log: Path, tty_stderr: bool = False) -> dict:
     try:
         r = json.loads(rec.read_text())
     except (OSError, ValueError):
-        r = {"seconds": float("nan"), "rss_kb": float("nan"), "rc": proc.returncode or -1}
-    result = {"seconds": r["seconds"], "rss_mb": r["rss_kb"] / 1024.0, "rc": r["rc"]}
+        r = {"seconds": float("nan"), "rss_kb": float("nan"), "rc": proc.returncode or -1,
+             "cpu": float("nan")}
+    result = {"seconds": r["seconds"], "rss_mb": r["rss_kb"] / 1024.0, "rc": r["rc"],
+              "cpu": r.get("cpu", float("nan")), "load": load()}
     if r["rc"] != 0:
         tail = err_path.read_text(errors="replace")[-2000:] if err_path.exists() else ""
         result["error"] = tail.strip().splitlines()[-1] if tail.strip() else "non-zero exit"
@@ -191,11 +211,14 @@ def child_series(cmds: dict[str, Callable[[], list[str]]], repeat: int, warmup: 
         bad = [r for r in rs if r["rc"] != 0]
         out[k] = {
             "seconds": median([r["seconds"] for r in ok]),
+            "cpu_s": median([r["cpu"] for r in ok]),
             "rss_mb": median([r["rss_mb"] for r in ok]),
             "runs": len(ok),
             "warmups": warmed[k],
             "all_seconds": [round(r["seconds"], 4) for r in ok],
+            "all_cpu_s": [round(r["cpu"], 4) for r in ok],
             "all_rss_mb": [round(r["rss_mb"], 1) for r in ok],
+            "load": [r["load"] for r in ok],
         }
         if bad:
             out[k]["error"] = bad[0].get("error", "failed")
@@ -208,7 +231,26 @@ def child_series(cmds: dict[str, Callable[[], list[str]]], repeat: int, warmup: 
 
 def model_arrays(parquet: Path) -> dict:
     """Book leverage, the five drivers and the codes, built by the lean implementation."""
-    cols = lean.read(parquet)
+    return _arrays(lean.read(parquet))
+
+
+def model_arrays_in_memory(rows: int) -> dict:
+    """The same arrays for a synthetic panel built in memory (the fit-only sizes: no files)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    table = synth.make_table(synth.SynthSpec(rows))
+    cols: dict = {"n_input": table.num_rows}
+    for c in lean.TEXT:
+        cols[c] = lean._codes(table[c])
+    cols["fiscal_year"] = table["fiscal_year"].cast(pa.float64()).to_numpy()
+    for c in lean.NUMERIC:
+        cols[c] = pc.fill_null(table[c].cast(pa.float64()), np.nan).to_numpy()
+    del table
+    return _arrays(cols)
+
+
+def _arrays(cols: dict) -> dict:
     keep, _ = lean.validate(cols)
     b = lean.build(cols, keep)
     y = b["measures"]["book"]
@@ -228,6 +270,17 @@ def run_levgap_fit(a: dict) -> Any:
 
     return fit_linear(a["y"], a["X"], effects=[a["industry"], a["year"]],
                       clusters=(a["firm"],), names=lean.DRIVERS)
+
+
+def run_newton(a: dict) -> newton.NewtonFit:
+    return newton.fit(a["y"], a["X"], (a["industry"], a["year"]), a["firm"])
+
+
+def run_levgap_fractional(a: dict) -> Any:
+    from levgap.models.fractional import fit_fractional
+
+    return fit_fractional(a["y"], a["X"], effects=[a["industry"], a["year"]],
+                          clusters=(a["firm"],), names=lean.DRIVERS)
 
 
 def run_statsmodels(a: dict) -> Any:
@@ -250,29 +303,36 @@ def run_statsmodels(a: dict) -> Any:
     return sm.OLS(y, Z).fit(cov_type="cluster", cov_kwds={"groups": a["firm"]})
 
 
-def bench_fits(a: dict, repeat: int, warmup: int, sm_runs: int, sm_warmup: int) -> dict:
-    res: dict[str, Any] = {"rows": int(len(a["y"]))}
-    try:
-        import levgap.models.linear  # noqa: F401
-        have_levgap = True
-    except ImportError as exc:
-        have_levgap = False
-        res["b_error"] = f"levgap.models.linear not importable: {exc}"
-    fns = {"a": lambda: run_limit(a)}
-    if have_levgap:
-        fns["b"] = lambda: run_levgap_fit(a)
+def bench_fits(a: dict, repeat: int, warmup: int, sm_runs: int, sm_warmup: int,
+               fractional: bool = True) -> dict:
+    """(a) limit and (b) levgap's linear fit; (a2) the plain Newton loop and (b2) levgap's
+    fractional fit; (c) statsmodels. Runs interleaved; wall and CPU times."""
+    res: dict[str, Any] = {"rows": int(len(a["y"])), "load_start": load()}
+    fns = {"a": lambda: run_limit(a), "b": lambda: run_levgap_fit(a)}
+    if fractional:
+        fns.update({"a2": lambda: run_newton(a), "b2": lambda: run_levgap_fractional(a)})
     times = interleave(fns, repeat, warmup)
-    res["a_s"] = median(times["a"])
-    res["a_all"] = [round(t, 4) for t in times["a"]]
-    fa = run_limit(a)
-    if have_levgap:
-        res["b_s"] = median(times["b"])
-        res["b_all"] = [round(t, 4) for t in times["b"]]
-        res["b_over_a"] = res["b_s"] / res["a_s"]
-        fb = run_levgap_fit(a)
-        res["max_abs_diff_coef_b_a"] = float(np.abs(np.asarray(fb.coef)[1:] - fa.coef).max())
-        res["max_rel_diff_se_b_a"] = float(
-            np.abs(np.asarray(fb.std_error)[1:] / fa.std_error - 1).max())
+    for k in fns:
+        res[f"{k}_s"] = median(times[k])
+        res[f"{k}_cpu_s"] = median(times[f"{k}_cpu"])
+        res[f"{k}_all"] = [round(t, 4) for t in times[k]]
+        res[f"{k}_cpu_all"] = [round(t, 4) for t in times[f"{k}_cpu"]]
+    res["load_end"] = load()
+    res["b_over_a"] = res["b_s"] / res["a_s"]
+    res["b_over_a_cpu"] = res["b_cpu_s"] / res["a_cpu_s"]
+    fa, fb = run_limit(a), run_levgap_fit(a)
+    res["max_abs_diff_coef_b_a"] = float(np.abs(np.asarray(fb.coef)[1:] - fa.coef).max())
+    res["max_rel_diff_se_b_a"] = float(
+        np.abs(np.asarray(fb.std_error)[1:] / fa.std_error - 1).max())
+    if fractional:
+        res["b2_over_a2"] = res["b2_s"] / res["a2_s"]
+        res["b2_over_a2_cpu"] = res["b2_cpu_s"] / res["a2_cpu_s"]
+        fn, ff = run_newton(a), run_levgap_fractional(a)
+        res["newton_iterations"], res["levgap_iterations"] = fn.iterations, ff.iterations
+        res["max_abs_diff_coef_b2_a2"] = float(np.abs(np.asarray(ff.coef)[1:] - fn.coef).max())
+        res["max_rel_diff_se_b2_a2"] = float(
+            np.abs(np.asarray(ff.std_error)[1:] / fn.std_error - 1).max())
+        del fn, ff
     if sm_runs > 0:
         import statsmodels.api  # noqa: F401  (import cost is not part of the fit)
 
@@ -288,8 +348,7 @@ def bench_fits(a: dict, repeat: int, warmup: int, sm_runs: int, sm_warmup: int) 
         res["c_runs"], res["c_warmup"] = sm_runs, sm_warmup
         res["max_abs_diff_coef_c_a"] = float(np.abs(fc.params[-k:] - fa.coef).max())
         res["max_rel_diff_se_c_a"] = float(np.abs(fc.bse[-k:] / fa.std_error - 1).max())
-        if "b_s" in res:
-            res["c_over_b"] = res["c_s"] / res["b_s"]
+        res["c_over_b"] = res["c_s"] / res["b_s"]
         del fc
     return res
 
@@ -335,55 +394,75 @@ def read_times(paths: dict[str, Path], repeat: int, warmup: int) -> dict[str, fl
 
 
 def bench_end_to_end(paths: dict[str, Path], work: Path, repeat: int, warmup: int,
-                     flags: list[str], *, large: bool, csv_runs_large: int,
+                     flags: list[str], *, large: bool, slow_runs_large: int,
                      with_bar: bool) -> dict:
-    """(d) with CSV and with Parquet outputs, the lean implementation, and the read baseline.
+    """The default path and the Parquet path, each model, against the lean implementation.
 
-    With ``with_bar`` a fourth command repeats (d) Parquet with stderr a terminal, so the
-    progress bar is drawn: its cost is the difference to (d) Parquet (stderr a file).
-    Only (d) Parquet takes the warm-up run (it warms the file cache and the byte-code for
-    all); at large sizes (d) CSV, which no goal compares, runs ``csv_runs_large`` times.
+    - ``default_<model>``: ``levgap analyze PANEL.csv --out DIR --measure both --model M``:
+      CSV in, CSV out and the report (what a user runs);
+    - ``parquet_<model>``: Parquet in, Parquet out, no report;
+    - ``lean_csv`` (CSV in and out) and ``lean`` (Parquet in and out): ``lean.py``.
+
+    All interleaved; one warm-up run of ``parquet_linear`` (it warms the file cache and the
+    byte-code for all). With ``with_bar`` a further command repeats ``parquet_linear`` with
+    stderr a terminal, so the progress bar is drawn. At large sizes the default path runs
+    ``slow_runs_large`` times.
     """
     lg = levgap_cmd()
-    d_csv, d_pq, lean_out = work / "d-csv", work / "d-parquet", work / "lean"
-    cmds = {
-        "d_parquet": lambda: [*lg, "analyze", str(paths["parquet"]), "--out",
-                              str(fresh(d_pq)), "--measure", "both", "--format", "parquet",
-                              *flags],
-        "lean": lambda: [sys.executable, str(HERE / "lean.py"), str(paths["parquet"]),
-                         "--out", str(fresh(lean_out)), "--measure", "both"],
-        "d_csv": lambda: [*lg, "analyze", str(paths["csv"]), "--out", str(fresh(d_csv)),
-                          "--measure", "both", "--format", "csv", *flags],
-    }
+    force = [f for f in flags if f != "--no-report"]
+    cmds: dict[str, Callable[[], list[str]]] = {}
+    for model in MODELS:
+        cmds[f"default_{model}"] = lambda m=model: [
+            *lg, "analyze", str(paths["csv"]), "--out", str(fresh(work / f"default-{m}")),
+            "--measure", "both", "--model", m, *force]
+        cmds[f"parquet_{model}"] = lambda m=model: [
+            *lg, "analyze", str(paths["parquet"]), "--out", str(fresh(work / f"parquet-{m}")),
+            "--measure", "both", "--format", "parquet", "--model", m, *flags]
+    cmds["lean_csv"] = lambda: [sys.executable, str(HERE / "lean.py"), str(paths["csv"]),
+                                "--out", str(fresh(work / "lean-csv")), "--measure", "both",
+                                "--format", "csv"]
+    cmds["lean"] = lambda: [sys.executable, str(HERE / "lean.py"), str(paths["parquet"]),
+                            "--out", str(fresh(work / "lean")), "--measure", "both"]
     if with_bar:
-        cmds["d_parquet_bar"] = lambda: [
-            *lg, "analyze", str(paths["parquet"]), "--out", str(fresh(work / "d-bar")),
-            "--measure", "both", "--format", "parquet", *flags]
-    res = child_series(cmds, repeat, warmup, work / "logs", tty=frozenset({"d_parquet_bar"}),
-                       repeats={"d_csv": csv_runs_large} if large else None,
-                       warm=frozenset({"d_parquet"}))
-    d: dict[str, Any] = {k: res[k] for k in cmds}
+        cmds["bar"] = lambda: [
+            *lg, "analyze", str(paths["parquet"]), "--out", str(fresh(work / "bar")),
+            "--measure", "both", "--format", "parquet", "--model", "linear", *flags]
+    slow = {f"default_{m}": slow_runs_large for m in MODELS} if large else None
+    d: dict[str, Any] = {"load_start": load()}
+    d.update(child_series(cmds, repeat, warmup, work / "logs", tty=frozenset({"bar"}),
+                          repeats=slow, warm=frozenset({"parquet_linear"})))
+    d["load_end"] = load()
     d.update(read_times(paths, repeat, warmup))
-    d["d_csv_over_read"] = d["d_csv"]["seconds"] / d["read_csv_s"]
-    d["d_parquet_over_read"] = d["d_parquet"]["seconds"] / d["read_parquet_s"]
-    d["d_csv_over_d_parquet"] = d["d_csv"]["seconds"] / d["d_parquet"]["seconds"]
-    d["d_over_lean_time"] = d["d_parquet"]["seconds"] / d["lean"]["seconds"]
-    d["d_over_lean_rss"] = d["d_parquet"]["rss_mb"] / d["lean"]["rss_mb"]
-    d["outputs_csv"] = sorted(p.name for p in d_csv.glob("*")) if d_csv.exists() else []
-    d["outputs_parquet"] = sorted(p.name for p in d_pq.glob("*")) if d_pq.exists() else []
+
+    def ratio(a: str, b: str, key: str = "seconds") -> float:
+        return d[a][key] / d[b][key] if d[b][key] else float("nan")
+
+    for m in MODELS:
+        d[f"default_{m}_over_lean_csv"] = ratio(f"default_{m}", "lean_csv")
+        d[f"default_{m}_over_lean_csv_cpu"] = ratio(f"default_{m}", "lean_csv", "cpu_s")
+        d[f"default_{m}_over_lean_csv_rss"] = ratio(f"default_{m}", "lean_csv", "rss_mb")
+        d[f"default_{m}_over_lean"] = ratio(f"default_{m}", "lean")
+        d[f"parquet_{m}_over_lean"] = ratio(f"parquet_{m}", "lean")
+        d[f"parquet_{m}_over_lean_cpu"] = ratio(f"parquet_{m}", "lean", "cpu_s")
+        d[f"parquet_{m}_over_lean_rss"] = ratio(f"parquet_{m}", "lean", "rss_mb")
+    d["outputs_default"] = sorted(p.name for p in (work / "default-linear").glob("*"))
+    d["output_mb"] = {m: {p.name: round(p.stat().st_size / 1e6, 2)
+                          for p in sorted((work / f"default-{m}").glob("*")) if p.is_file()}
+                      for m in MODELS}
+    d["outputs_parquet"] = sorted(p.name for p in (work / "parquet-linear").glob("*"))
     if with_bar:
-        last = work / "logs" / f"d_parquet_bar-{max(d['d_parquet_bar']['runs'] - 1, 0)}"
+        last = work / "logs" / f"bar-{max(d['bar']['runs'] - 1, 0)}"
         out = last.with_suffix(".out")
         text = out.read_text(errors="replace") if out.exists() else ""
         err = last.with_suffix(".err")
         drawn = err.read_text(errors="replace") if err.exists() else ""
-        base = d["d_parquet"]["seconds"]
-        spread = [abs(t / base - 1.0) for t in d["d_parquet"]["all_seconds"]]
+        base = d["parquet_linear"]["seconds"]
+        spread = [abs(t / base - 1.0) for t in d["parquet_linear"]["all_seconds"]]
         d["progress"] = {
-            "bar": d["d_parquet_bar"], "no_bar": d["d_parquet"],
+            "bar": d["bar"], "no_bar": d["parquet_linear"],
             "stdout_has_bar": ("\r" in text) or ("cross-fit" in text),
             "bar_drawn_on_stderr": "cross-fit" in drawn,
-            "overhead": d["d_parquet_bar"]["seconds"] / base - 1.0,
+            "overhead": d["bar"]["seconds"] / base - 1.0,
             "noise": max(spread) if spread else float("nan"),
         }
     return d
@@ -399,7 +478,7 @@ def bench_unseen(work: Path, data_dir: Path, repeat: int, warmup: int, flags: li
     cmds = {
         "levgap": lambda: [*lg, "analyze", str(paths["parquet"]), "--out",
                            str(fresh(work / "u-levgap")), "--measure", "book", "--format",
-                           "parquet", *flags],
+                           "parquet", "--model", "linear", *flags],
         "lean": lambda: [sys.executable, str(HERE / "lean.py"), str(paths["parquet"]), "--out",
                          str(fresh(work / "u-lean")), "--measure", "book"],
     }
@@ -412,20 +491,30 @@ def bench_unseen(work: Path, data_dir: Path, repeat: int, warmup: int, flags: li
     return res
 
 
-def bench_startup(small: dict[str, Path], outputs: Path, big_outputs: Path | None, work: Path,
-                  repeat: int, warmup: int, quick: bool) -> dict:
+def demo_outputs(work: Path) -> Path:
+    """The demo's panel and outputs (``levgap demo``), written once per run of the suite."""
+    out = fresh(work / "demo")
+    subprocess.run([*levgap_cmd(), "demo", "--out", str(out), "--force"], check=True,
+                   capture_output=True, text=True, timeout=900)
+    return out
+
+
+def bench_startup(demo: Path, big_outputs: Path | None, work: Path, repeat: int,
+                  warmup: int, quick: bool = False) -> dict:
+    """Quick commands on the demo outputs (``check`` reads the demo panel), in fresh
+    processes, median of at least five runs."""
     lg = levgap_cmd()
-    firm = _first_firm(outputs)
+    firm = _first_firm(demo)
     cmds: dict[str, Callable[[], list[str]]] = {
         "--help": lambda: [*lg, "--help"],
         "--version": lambda: [*lg, "--version"],
-        "check": lambda: [*lg, "check", str(small["csv"])],
-        "screen": lambda: [*lg, "screen", str(outputs)],
-        "explain": lambda: [*lg, "explain", str(outputs), firm or "?"],
+        "check": lambda: [*lg, "check", str(demo / "demo_panel.csv")],
+        "screen": lambda: [*lg, "screen", str(demo)],
+        "explain": lambda: [*lg, "explain", str(demo), firm or "?"],
         "template": lambda: [*lg, "template", "--out", str(fresh(work / "template"))],
     }
-    n = repeat
-    res = child_series(cmds, n, warmup, work / "logs")
+    runs = repeat if quick else max(repeat, 5)
+    res = child_series(cmds, runs, warmup if quick else max(warmup, 1), work / "logs")
     if big_outputs is not None and big_outputs.exists():
         big = child_series({"screen_large": lambda: [*lg, "screen", str(big_outputs)]},
                            repeat, warmup, work / "logs")
@@ -512,10 +601,13 @@ def bench_extra(name: str, csv_1m: Path | None, rows: int, repeat: int, quick: b
         return {"status": "error", "note": f"{type(exc).__name__}: {exc}"}
 
 
-def profile(parquet: Path, work: Path, target: Path, flags: list[str]) -> dict:
+def profile(csv_path: Path, work: Path, target: Path, flags: list[str]) -> dict:
+    """pyinstrument profile of the default path: CSV in, CSV out and the report, default
+    model."""
+    force = [f for f in flags if f != "--no-report"]
     cmd = [sys.executable, "-m", "pyinstrument", "-r", "text", "--no-color", "-o", str(target),
-           "-m", "levgap", "analyze", str(parquet), "--out", str(fresh(work / "profile")),
-           "--measure", "both", "--format", "parquet", *flags]
+           "-m", "levgap", "analyze", str(csv_path), "--out", str(fresh(work / "profile")),
+           "--measure", "both", *force]
     r = run_child(cmd, log=work / "logs" / "profile")
     return {"file": target.name, "rc": r["rc"], "seconds_profiled": r["seconds"],
             **({"error": r["error"]} if "error" in r else {})}
@@ -575,42 +667,64 @@ def goals(res: dict) -> list[dict]:
     rows: list[dict] = []
 
     def add(name: str, value: float | None, op: str, bound: float, fmt: str = "{:.2f}",
-            sized: bool = True) -> None:
+            sized: bool = True, cpu: float | None = None) -> None:
         name = name + (note if sized else "")
         if value is None or not np.isfinite(value):
             rows.append({"goal": name, "value": None, "bound": f"{op} {bound}", "met": None})
             return
         met = value <= bound if op == "<=" else value >= bound if op == ">=" else value < bound
-        rows.append({"goal": name, "value": fmt.format(value), "bound": f"{op} {bound}",
-                     "met": bool(met)})
+        shown = fmt.format(value) + ("" if cpu is None or not np.isfinite(cpu)
+                                     else f" (CPU {fmt.format(cpu)})")
+        rows.append({"goal": name, "value": shown, "bound": f"{op} {bound}", "met": bool(met)})
 
     s = sizes.get(at, {}) if at else {}
     f = s.get("fits", {})
     e = s.get("end_to_end", {})
-    add("(b)/(a): levgap fit / limit", f.get("b_over_a"), "<=", GOALS["b_over_a"])
+    add("(b)/(a): levgap linear fit / limit", f.get("b_over_a"), "<=", GOALS["b_over_a"],
+        cpu=f.get("b_over_a_cpu"))
+    add("(b2)/(a2): levgap fractional fit / plain Newton loop", f.get("b2_over_a2"), "<=",
+        GOALS["b2_over_a2"], cpu=f.get("b2_over_a2_cpu"))
     add("(c)/(b): statsmodels with dummies / levgap fit", f.get("c_over_b"), ">=",
         GOALS["c_over_b"], "{:.1f}")
-    add("(d) Parquet / lean implementation, time", e.get("d_over_lean_time"), "<=",
-        GOALS["d_over_lean_time"])
-    add("(d) Parquet / lean implementation, peak RSS", e.get("d_over_lean_rss"), "<=",
+    add("default path (CSV in, CSV out, report), linear / lean CSV, time",
+        e.get("default_linear_over_lean_csv"), "<=", GOALS["d_over_lean_time"],
+        cpu=e.get("default_linear_over_lean_csv_cpu"))
+    add("default path, linear / lean CSV, peak RSS", e.get("default_linear_over_lean_csv_rss"),
+        "<=", GOALS["d_over_lean_rss"])
+    add("default path, fractional (default model) / lean CSV, time",
+        e.get("default_fractional_over_lean_csv"), "<=", GOALS["frac_over_lean_time"],
+        cpu=e.get("default_fractional_over_lean_csv_cpu"))
+    add("Parquet path, linear / lean, time", e.get("parquet_linear_over_lean"), "<=",
+        GOALS["d_over_lean_time"], cpu=e.get("parquet_linear_over_lean_cpu"))
+    add("Parquet path, linear / lean, peak RSS", e.get("parquet_linear_over_lean_rss"), "<=",
         GOALS["d_over_lean_rss"])
+    add("Parquet path, fractional / lean, time", e.get("parquet_fractional_over_lean"), "<=",
+        GOALS["frac_over_lean_time"], cpu=e.get("parquet_fractional_over_lean_cpu"))
     g = res.get("fit_growth", {})
-    add("fit time growth 100k -> 1m (levgap, (b))", g.get("b"), "<=", GOALS["fit_growth"])
+    add("fit time growth 100k -> 1m, linear (b)", g.get("b"), "<=", GOALS["fit_growth"],
+        sized=False, cpu=g.get("b_cpu"))
+    add("fit time growth 100k -> 1m, fractional (b2)", g.get("b2"), "<=", GOALS["fit_growth"],
+        sized=False, cpu=g.get("b2_cpu"))
+    add("fit time growth 1m -> 10m, linear (b)", g.get("b_10m"), "<=", GOALS["fit_growth"],
+        sized=False, cpu=g.get("b_10m_cpu"))
+    big = res.get("fit_only", {}).get("10m", {})
+    add("linear fit alone at 10m firm-years, five drivers, two effects (s)", big.get("b_s"),
+        "<=", GOALS["fit_10m_s"], "{:.2f}", sized=False, cpu=big.get("b_cpu_s"))
     u = res.get("unseen", {})
-    add("never-seen panel, book only: levgap / lean, time", u.get("time_ratio"), "<=",
+    add("never-seen panel, book only, linear: levgap / lean, time", u.get("time_ratio"), "<=",
         GOALS["d_over_lean_time"], sized=False)
-    add("never-seen panel, book only: levgap / lean, peak RSS", u.get("rss_ratio"), "<=",
-        GOALS["d_over_lean_rss"], sized=False)
+    add("never-seen panel, book only, linear: levgap / lean, peak RSS", u.get("rss_ratio"),
+        "<=", GOALS["d_over_lean_rss"], sized=False)
     for cmd, r in res.get("startup", {}).items():
         if cmd == "screen_large":
             continue
-        add(f"start-up `levgap {cmd}` (s)", r.get("seconds"), "<", STARTUP_GOAL_S, "{:.3f}",
-            sized=False)
+        add(f"start-up `levgap {cmd}` on the demo (s)", r.get("seconds"), "<", STARTUP_GOAL_S,
+            "{:.3f}", sized=False, cpu=r.get("cpu_s"))
     p = res.get("progress", {})
     if p.get("overhead") is not None:
         over = p["overhead"]
         met = (not p.get("stdout_has_bar")) and over <= max(0.03, p.get("noise", 0.0))
-        rows.append({"goal": "progress bar on stderr, cost within run-to-run noise" + note,
+        rows.append({"goal": "progress bar on stderr, cost within run-to-run noise",
                      "value": f"{over * 100:+.1f}% (noise {p.get('noise', 0) * 100:.1f}%)",
                      "bound": "<= max(3%, noise); nothing on stdout", "met": bool(met)})
     return rows
@@ -642,71 +756,118 @@ def write_markdown(res: dict, path: Path) -> None:
                                f"({b['num_threads']} threads)" for b in m["blas"]) or "unknown")
          + "; thread variables: " + ", ".join(f"{k}={v}" for k, v in m["thread_env"].items())
          + ".", "",
-         f"Each figure is the median of {res['repeat']} runs"
-         + (" after one warm-up run" if res["warmup"] else " (no warm-up: --quick)")
+         (f"Each figure is the median of {res['repeat']} runs" if res["repeat"] > 1
+          else "Each figure is one run")
+         + (" after one warm-up run" if res["warmup"] else
+            " (no warm-up: " + ("--quick)" if res["quick"] else "--no-warmup)"))
          + ", runs of compared items interleaved; exceptions are stated beside the figure.",
          "", "## Goals", "", "| goal | measured | bound | met |", "|---|---|---|---|"]
     for g in res["goals"]:
         met = "n/a" if g["met"] is None else ("yes" if g["met"] else "**no**")
         L.append(f"| {g['goal']} | {g['value'] or 'not measured'} | {g['bound']} | {met} |")
-    L += ["", "## Model fit: (a) limit, (b) levgap, (c) statsmodels", "",
+    L += ["", "## Model fit: (a) limit, (b) levgap, (a2) Newton loop, (b2) levgap fractional,"
+          " (c) statsmodels", "",
           "Book leverage on the five drivers with industry and year effects, firm-clustered "
-          "errors, on the same in-memory arrays (all rows of the panel).", "",
-          "| firm-years | (a) limit s | (b) levgap s | (b)/(a) | (c) statsmodels s | (c)/(b) "
-          "| max abs coef diff b-a | max rel SE diff b-a | max rel SE diff c-a |",
-          "|---|---|---|---|---|---|---|---|---|"]
-    for key, s in res["sizes"].items():
-        f = s.get("fits", {})
+          "errors, on the same in-memory arrays (all rows of the panel). (a) `limit.py` and (a2) "
+          "`newton.py` are plain numpy/scipy written without levgap's code; (b) `fit_linear`, "
+          "(b2) `fit_fractional`. Wall seconds, CPU seconds in brackets (this process, all "
+          "threads); the load average at the start and end of the runs.", "",
+          "| firm-years | (a) s | (b) s | (b)/(a) | (a2) s | (b2) s | (b2)/(a2) | (c) s | (c)/(b) "
+          "| coef diff b-a | SE diff b-a | coef diff b2-a2 | SE diff b2-a2 | load |",
+          "|---|---|---|---|---|---|---|---|---|---|---|---|---|---|"]
+    rows = [(k, s.get("fits", {})) for k, s in res["sizes"].items()]
+    rows += [(f"{k} (fit only)", f) for k, f in res.get("fit_only", {}).items()]
+    for key, f in rows:
         c_note = ""
         if f.get("c_runs") is not None and (f["c_runs"] < res["repeat"] or f["c_warmup"] == 0):
             c_note = f" ({f['c_runs']} run{'s' if f['c_runs'] > 1 else ''}" + (
                 ", no warm-up)" if f["c_warmup"] == 0 else ")")
+
+        def both(k: str, f: dict = f) -> str:
+            if f.get(f"{k}_s") is None:
+                return "-"
+            return f"{fmt_s(f[f'{k}_s'])} ({fmt_s(f.get(f'{k}_cpu_s'))})"
+
+        def diff(k: str, f: dict = f) -> str:
+            v = f.get(k)
+            return "-" if v is None else f"{v:.1e}"
+
         L.append(
-            f"| {key} | {fmt_s(f.get('a_s'))} | {fmt_s(f.get('b_s'))} | "
-            f"{fmt_s(f.get('b_over_a'), 2)} | {fmt_s(f.get('c_s'), 2)}{c_note} | "
-            f"{fmt_s(f.get('c_over_b'), 1)} | {f.get('max_abs_diff_coef_b_a', float('nan')):.1e}"
-            f" | {f.get('max_rel_diff_se_b_a', float('nan')):.1e} | "
-            f"{f.get('max_rel_diff_se_c_a', float('nan')):.1e} |")
+            f"| {key} | {both('a')} | {both('b')} | {fmt_s(f.get('b_over_a'), 2)} | "
+            f"{both('a2')} | {both('b2')} | {fmt_s(f.get('b2_over_a2'), 2)} | "
+            f"{fmt_s(f.get('c_s'), 2)}{c_note} | {fmt_s(f.get('c_over_b'), 1)} | "
+            f"{diff('max_abs_diff_coef_b_a')} | {diff('max_rel_diff_se_b_a')} | "
+            f"{diff('max_abs_diff_coef_b2_a2')} | {diff('max_rel_diff_se_b2_a2')} | "
+            f"{f.get('load_start', '-')}-{f.get('load_end', '-')} |")
     g = res.get("fit_growth", {})
     if g:
-        L += ["", f"Fit time growth 100k -> 1m: (a) {fmt_s(g.get('a'), 2)}x, "
-                  f"(b) {fmt_s(g.get('b'), 2)}x (10x the rows)."]
-    L += ["", "## End to end: `levgap analyze` vs reading the file vs the lean implementation",
-          "", "`levgap analyze PANEL --out DIR --measure both` in a fresh child process (time "
-          "includes interpreter start-up and imports; peak RSS of that process from "
-          "`os.wait4`), CSV input with CSV outputs and Parquet input with Parquet outputs, no "
-          "report. The read baseline is `pyarrow` reading the same file in this process. "
-          "The lean implementation (`benchmark/lean.py`) reads the Parquet file and writes "
-          "Parquet. One warm-up run of (d) Parquet precedes the timed runs (it warms the file "
-          "cache and the byte-code for all three).", "",
-          "| firm-years | read CSV s | (d) CSV s | (d) CSV / read | (d) CSV RSS MB | "
-          "read Parquet s | (d) Parquet s | (d) Parquet / read | (d) Parquet RSS MB | "
-          "lean s | lean RSS MB | (d) Parquet / lean time | (d) Parquet / lean RSS |",
-          "|---|---|---|---|---|---|---|---|---|---|---|---|---|"]
-    for key, s in res["sizes"].items():
-        e = s.get("end_to_end")
+        L += ["", "Fit time growth for 10x the rows (wall, CPU in brackets): 100k -> 1m: (a) "
+              f"{fmt_s(g.get('a'), 2)}x, (b) {fmt_s(g.get('b'), 2)}x ({fmt_s(g.get('b_cpu'), 2)}"
+              f"x), (a2) {fmt_s(g.get('a2'), 2)}x, (b2) {fmt_s(g.get('b2'), 2)}x "
+              f"({fmt_s(g.get('b2_cpu'), 2)}x); 1m -> 10m: (a) {fmt_s(g.get('a_10m'), 2)}x, (b) "
+              f"{fmt_s(g.get('b_10m'), 2)}x ({fmt_s(g.get('b_10m_cpu'), 2)}x)."]
+    L += ["", "## End to end: the default path and the Parquet path vs the lean implementation",
+          "", "`levgap analyze` in a fresh child process (interpreter start-up and imports "
+          "included; peak RSS of that process from `getrusage`), `--measure both`: the **default "
+          "path** reads the CSV panel and writes CSV tables and `report.html` (what a user "
+          "runs); the **Parquet path** reads Parquet and writes Parquet, no report. Each with "
+          "`--model linear` and `--model fractional` (the default). The lean implementation "
+          "(`benchmark/lean.py`, linear) does the same job in numpy/pyarrow: `lean CSV` reads "
+          "and writes CSV (pyarrow's CSV writer), `lean` Parquet. Runs interleaved" + (
+              ", one warm-up (Parquet path, linear)" if res["warmup"] else ", no warm-up")
+          + "; wall seconds, CPU seconds of the process in brackets "
+          "(user + system: what the run costs with a core to itself), peak RSS in MB.", "",
+          "| firm-years | default linear | default fractional | Parquet linear | "
+          "Parquet fractional | lean CSV | lean | load |",
+          "|---|---|---|---|---|---|---|---|"]
+    for key, s_ in res["sizes"].items():
+        e = s_.get("end_to_end")
         if not e:
-            L.append(f"| {key} | " + " | ".join(["-"] * 12) + " |")
+            L.append(f"| {key} | " + " | ".join(["-"] * 7) + " |")
             continue
-        L.append(
-            f"| {key} | {fmt_s(e['read_csv_s'])} | {fmt_s(e['d_csv']['seconds'], 2)}"
-            f"{_runs_note(e['d_csv'], res)} | "
-            f"{fmt_s(e['d_csv_over_read'], 1)} | {fmt_s(e['d_csv']['rss_mb'], 0)} | "
-            f"{fmt_s(e['read_parquet_s'])} | {fmt_s(e['d_parquet']['seconds'], 2)}"
-            f"{_runs_note(e['d_parquet'], res)} | "
-            f"{fmt_s(e['d_parquet_over_read'], 1)} | {fmt_s(e['d_parquet']['rss_mb'], 0)} | "
-            f"{fmt_s(e['lean']['seconds'], 2)}{_runs_note(e['lean'], res)} | "
-            f"{fmt_s(e['lean']['rss_mb'], 0)} | "
-            f"{fmt_s(e['d_over_lean_time'], 2)} | {fmt_s(e['d_over_lean_rss'], 2)} |")
-    errs = [(k, n, r["error"]) for k, s in res["sizes"].items()
-            for n, r in (s.get("end_to_end") or {}).items()
-            if isinstance(r, dict) and "error" in r]
-    for k, n, err in errs:
-        L.append(f"\n{k} {n} failed: `{err}`")
-    if any(s.get("end_to_end_note") for s in res["sizes"].values()):
-        for k, s in res["sizes"].items():
-            if s.get("end_to_end_note"):
-                L.append(f"\n{k}: {s['end_to_end_note']}")
+
+        def cell(k: str, e: dict = e) -> str:
+            r = e.get(k) or {}
+            if "error" in r:
+                return f"failed: {r['error']}"
+            return (f"{fmt_s(r.get('seconds'), 2)} s ({fmt_s(r.get('cpu_s'), 2)}), "
+                    f"{fmt_s(r.get('rss_mb'), 0)} MB{_runs_note(r, res)}")
+
+        L.append(f"| {key} | {cell('default_linear')} | {cell('default_fractional')} | "
+                 f"{cell('parquet_linear')} | {cell('parquet_fractional')} | "
+                 f"{cell('lean_csv')} | {cell('lean')} | "
+                 f"{e.get('load_start', '-')}-{e.get('load_end', '-')} |")
+    L += ["", "Ratios (time, CPU time in brackets, peak RSS):", "",
+          "| firm-years | default linear / lean CSV | default fractional / lean CSV | "
+          "default linear / lean (Parquet) | Parquet linear / lean | Parquet fractional / lean |",
+          "|---|---|---|---|---|---|"]
+    for key, s_ in res["sizes"].items():
+        e = s_.get("end_to_end")
+        if not e:
+            continue
+
+        def rat(k: str, rss: bool = True, e: dict = e) -> str:
+            out = f"{fmt_s(e.get(k), 2)} ({fmt_s(e.get(k + '_cpu'), 2)})"
+            return out + (f", RSS {fmt_s(e.get(k + '_rss'), 2)}" if rss else "")
+
+        L.append(f"| {key} | {rat('default_linear_over_lean_csv')} | "
+                 f"{rat('default_fractional_over_lean_csv')} | "
+                 f"{fmt_s(e.get('default_linear_over_lean'), 2)} | "
+                 f"{rat('parquet_linear_over_lean')} | {rat('parquet_fractional_over_lean')} |")
+    sizes_mb = [(k, s_["end_to_end"]["output_mb"]) for k, s_ in res["sizes"].items()
+                if s_.get("end_to_end", {}).get("output_mb")]
+    if sizes_mb:
+        L += ["", "Files the default path writes (MB, fractional model; `report.html` holds the "
+              "universe table of the reported year, sampled charts and bounded tables):", "",
+              "| firm-years | " + " | ".join(sizes_mb[-1][1]["fractional"]) + " |",
+              "|---|" + "---|" * len(sizes_mb[-1][1]["fractional"])]
+        for key, mb in sizes_mb:
+            f_ = mb.get("fractional", {})
+            L.append(f"| {key} | " + " | ".join(
+                fmt_s(f_.get(n), 2) for n in sizes_mb[-1][1]["fractional"]) + " |")
+    for key, s_ in res["sizes"].items():
+        if s_.get("end_to_end_note"):
+            L.append(f"\n{key}: {s_['end_to_end_note']}")
     u = res.get("unseen")
     if u:
         p = u["panel"]
@@ -714,7 +875,7 @@ def write_markdown(res: dict, path: Path) -> None:
               f"{p['rows']:,} firm-years, {p['industries']} industries, {p['years']} years, seed "
               f"{p['seed']}, rows ordered by {p['row_order']}, {p['no_market_share']:.0%} of "
               "firms without a market value. `levgap analyze --measure book --format parquet` "
-              "vs `lean.py --measure book`, interleaved.", "",
+              "vs `lean.py --measure book`, both linear, interleaved.", "",
               "| | seconds | peak RSS MB |", "|---|---|---|",
               f"| levgap | {fmt_s(u['levgap']['seconds'], 2)} | "
               f"{fmt_s(u['levgap']['rss_mb'], 0)} |",
@@ -723,15 +884,19 @@ def write_markdown(res: dict, path: Path) -> None:
     st = res.get("startup")
     if st:
         L += ["", "## Start-up", "", "Wall time of each command in a fresh process (median "
-              f"of {res['repeat']} runs after a warm-up); `check` reads the smallest "
-              "synthetic panel, `screen` and `explain` read the outputs written for it; "
+              f"of {res['repeat'] if res['quick'] else max(res['repeat'], 5)} runs), on the "
+              "demo (`levgap demo`): "
+              "`check` reads the demo panel, `screen` and `explain` read the demo outputs; "
               "`screen (largest outputs)` reads the CSV outputs of the largest size "
-              "(informational).", "", "| command | seconds | peak RSS MB |", "|---|---|---|"]
+              "(informational). CPU seconds (user + system) beside.", "",
+              "| command | seconds | CPU s | peak RSS MB | load |", "|---|---|---|---|---|"]
         for cmd, r in st.items():
             name = "screen (largest outputs)" if cmd == "screen_large" else cmd
             extra = f" (failed: {r['error']})" if "error" in r else ""
+            ld = r.get("load") or []
             L.append(f"| `levgap {name}` | {fmt_s(r['seconds'])}{extra} | "
-                     f"{fmt_s(r['rss_mb'], 0)} |")
+                     f"{fmt_s(r.get('cpu_s'))} | {fmt_s(r['rss_mb'], 0)} | "
+                     f"{min(ld) if ld else '-'}-{max(ld) if ld else '-'} |")
         imp = res.get("imports", {})
         if imp:
             L += ["", "Heavy modules each quick command imports (`python -X importtime`), with "
@@ -762,8 +927,9 @@ def write_markdown(res: dict, path: Path) -> None:
     prof = res.get("profile")
     if prof:
         L += ["", "## Profile", "",
-              f"`{prof['file']}`: pyinstrument text profile of (d) with Parquet outputs at "
-              f"{prof['size']} (profiled wall time {fmt_s(prof['seconds_profiled'], 1)} s"
+              f"`{prof['file']}`: pyinstrument text profile of the default path (CSV in, CSV "
+              f"out, report, fractional) at {prof['size']} (profiled wall time "
+              f"{fmt_s(prof['seconds_profiled'], 1)} s"
               + (f"; failed: {prof['error']}" if "error" in prof else "") + ")."]
     L += ["", f"Suite wall time: {res['suite_seconds']:.0f} s.", ""]
     path.write_text("\n".join(L))
@@ -781,9 +947,14 @@ def main(argv: list[str] | None = None) -> int:
                     "(the smoke test)")
     ap.add_argument("--sm-runs-large", type=int, default=1,
                     help="statsmodels runs at 1m firm-years and above (no warm-up there)")
-    ap.add_argument("--csv-runs-large", type=int, default=1,
-                    help="runs of (d) with CSV outputs at 1m firm-years and above")
+    ap.add_argument("--slow-runs-large", type=int, default=3,
+                    help="runs of the default path (CSV, report) at 1m firm-years and above")
+    ap.add_argument("--fit-sizes", default="10m",
+                    help="sizes measured for the fit alone (arrays built in memory, no files; "
+                    "'' for none; --quick skips them)")
     ap.add_argument("--no-profile", action="store_true")
+    ap.add_argument("--no-warmup", action="store_true",
+                    help="no warm-up runs (a busy shared machine), everything else as usual")
     ap.add_argument("--data-dir", type=Path, default=HERE / "data")
     ap.add_argument("--work-dir", type=Path, default=HERE / "out")
     ap.add_argument("--results-dir", type=Path, default=HERE)
@@ -791,7 +962,7 @@ def main(argv: list[str] | None = None) -> int:
     t_suite = time.perf_counter()
     args.results_dir.mkdir(parents=True, exist_ok=True)
     sizes = sorted({synth.parse_size(s) for s in args.sizes.split(",") if s.strip()})
-    warmup = 0 if args.quick else 1
+    warmup = 0 if args.quick or args.no_warmup else 1
     repeat = max(1, args.repeat)
     work = args.work_dir
     work.mkdir(parents=True, exist_ok=True)
@@ -826,38 +997,51 @@ def main(argv: list[str] | None = None) -> int:
             with_bar = rows == bar_size and not args.quick
             s["end_to_end"] = bench_end_to_end(
                 paths, work / key, repeat, warmup, flags, large=large,
-                csv_runs_large=args.csv_runs_large, with_bar=with_bar)
+                slow_runs_large=args.slow_runs_large, with_bar=with_bar)
             if with_bar:
                 res["progress"] = {"size": key, **s["end_to_end"].pop("progress")}
         else:
             s["end_to_end_note"] = why
         res["sizes"][key] = s
-    keys = {label(r): r for r in sizes}
-    if "100k" in keys and "1m" in keys:
-        f1, f2 = res["sizes"]["100k"]["fits"], res["sizes"]["1m"]["fits"]
-        res["fit_growth"] = {"a": f2["a_s"] / f1["a_s"],
-                             "b": f2["b_s"] / f1["b_s"] if "b_s" in f1 and "b_s" in f2 else None}
+    fit_only = [] if args.quick else sorted(
+        {synth.parse_size(x) for x in args.fit_sizes.split(",") if x.strip()} - set(sizes))
+    res["fit_only"] = {}
+    for rows in fit_only:
+        key = label(rows)
+        say(f"{key}: the fit alone (arrays in memory)")
+        a = model_arrays_in_memory(rows)
+        res["fit_only"][key] = bench_fits(a, repeat, warmup, 0, 0, fractional=False)
+        del a
+    fits = {k: v["fits"] for k, v in res["sizes"].items()}
+    fits.update(res["fit_only"])
+    growth: dict[str, Any] = {}
+    for lo, hi, suffix in (("100k", "1m", ""), ("1m", "10m", "_10m")):
+        if lo in fits and hi in fits:
+            for k in ("a", "b", "a2", "b2"):
+                if f"{k}_s" in fits[lo] and f"{k}_s" in fits[hi]:
+                    growth[k + suffix] = fits[hi][f"{k}_s"] / fits[lo][f"{k}_s"]
+                    growth[k + suffix + "_cpu"] = (fits[hi][f"{k}_cpu_s"]
+                                                   / fits[lo][f"{k}_cpu_s"])
+    res["fit_growth"] = growth
     if flags is not None:
         largest = label(sizes[-1])
         say("never-seen panel")
         res["unseen"] = bench_unseen(work / "unseen", args.data_dir, repeat, warmup, flags,
                                      args.quick)
         say("start-up")
-        smallest = label(sizes[0])
-        big = work / largest / "d-csv" if largest != smallest else None
-        res["startup"] = bench_startup(panels[smallest], work / smallest / "d-csv", big,
-                                       work / "startup", repeat, warmup, args.quick)
+        demo = demo_outputs(work / "startup")
+        big = work / largest / "default-linear"
+        res["startup"] = bench_startup(demo, big, work / "startup", repeat, warmup, args.quick)
         res["imports"] = import_check(
             {"--help": ["--help"], "--version": ["--version"],
-             "check": ["check", str(panels[smallest]["csv"])],
-             "screen": ["screen", str(work / smallest / "d-csv")],
-             "explain": ["explain", str(work / smallest / "d-csv"),
-                         _first_firm(work / smallest / "d-csv") or "?"],
+             "check": ["check", str(demo / "demo_panel.csv")],
+             "screen": ["screen", str(demo)],
+             "explain": ["explain", str(demo), _first_firm(demo) or "?"],
              "template": ["template"]}, work / "startup")
         if not args.no_profile:
             say(f"profile at {largest}")
             res["profile"] = {"size": largest, **profile(
-                panels[largest]["parquet"], work / "profile",
+                panels[largest]["csv"], work / "profile",
                 args.results_dir / f"profile-{largest}.txt", flags)}
     say("other benchmarks")
     csv_big = panels[label(sizes[-1])]["csv"]

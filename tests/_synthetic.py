@@ -71,3 +71,59 @@ def panel(
                     "true_target": target, "spread": s,
                 })
     return pd.DataFrame(rows)
+
+
+def adjusting_panel(
+    seed: int,
+    speed: float,
+    *,
+    industries: int = 16,
+    firms_per_industry: int = 25,
+    years: int = 12,
+    offset_sd: float = 0.06,
+    noise_sd: float = 0.03,
+) -> pd.DataFrame:
+    """A panel in schema v1 whose book leverage closes the share ``speed`` of its gap a year.
+
+    Each firm's target is ``0.05 + 0.30 tangibility - 0.40 profitability`` plus its
+    industry's and its year's effects; the firm aims at its target plus an offset of its own
+    (a firm effect, drawn with sd ``offset_sd``), and each year moves ``speed`` of the way
+    there plus noise (sd ``noise_sd``):
+
+        L(t) = (1 - speed) L(t-1) + speed (target(t) + offset) + e(t),
+
+    starting from the stationary distribution around target plus offset. ``true_target``
+    holds the target without the offset (what a peer model can learn).
+    """
+    rng = np.random.default_rng(seed)
+    year_fx = rng.normal(0, 0.01, years)
+    rows = []
+    for g in range(industries):
+        code = f"{3000 + 10 * g}"
+        fx = float(rng.normal(0, 0.04))
+        for f in range(firms_per_industry):
+            tang_f, prof_f = rng.uniform(0.1, 0.7), rng.normal(0.12, 0.04)
+            size_f = rng.normal(6, 1.0)
+            offset = rng.normal(0, offset_sd)
+            lev = None
+            for t in range(years):
+                tang = float(np.clip(tang_f + rng.normal(0, 0.03), 0.01, 0.95))
+                prof = float(prof_f + rng.normal(0, 0.02))
+                target = 0.05 + 0.30 * tang - 0.40 * prof + fx + year_fx[t]
+                if lev is None:
+                    lev = (target + offset
+                           + rng.normal(0, noise_sd / np.sqrt(1 - (1 - speed) ** 2)))
+                else:
+                    lev = ((1 - speed) * lev + speed * (target + offset)
+                           + rng.normal(0, noise_sd))
+                assets = float(np.exp(size_f + 0.03 * t))
+                book = float(np.clip(lev, 0.0, 0.95))
+                rows.append({
+                    "firm_id": f"{code}-{f:03d}", "fiscal_year": 2008 + t, "industry": code,
+                    "total_assets": assets, "total_debt": book * assets,
+                    "ppe_net": tang * assets, "ebitda": prof * assets,
+                    "book_equity": 0.4 * assets,
+                    "market_equity": assets * float(rng.uniform(0.5, 2.0)),
+                    "true_target": target,
+                })
+    return pd.DataFrame(rows)

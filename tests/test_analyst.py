@@ -151,6 +151,55 @@ def test_screen_fits_80_columns_without_cutting_ids(analyst_run, tmp_path: Path)
     assert f"│ {analyst_run.long_id} │" in whole.stdout  # the whole id, in its cell
 
 
+def test_explain_fits_80_columns_without_cutting_years_ids_or_numbers(analyst_run) -> None:
+    t = analyst_run.targets
+    for firm in (analyst_run.long_id, analyst_run.shocked):
+        result = runner.invoke(app, ["explain", str(analyst_run.out), firm, "--peers"],
+                               env={"COLUMNS": "80"})
+        assert result.exit_code == 0, result.output
+        lines = result.stdout.splitlines()
+        tables = [ln for ln in lines if "│" in ln or "┃" in ln]
+        assert max(len(ln) for ln in tables) <= 80, max(tables, key=len)
+        mine = t[(t["firm_id"] == firm) & (t["measure"] == "book")].sort_values("fiscal_year")
+        for r in mine.itertuples():  # each year of the history chart, its gap and its count
+            row = next((ln for ln in lines if ln.startswith(f"{int(r.fiscal_year)} │")), None)
+            assert row is not None, (firm, r.fiscal_year)
+            assert g.pp(r.gap) in row and row.rstrip().endswith(str(int(r.years_outside)))
+        peers = levgap.open_results(analyst_run.out).peers(firm, measure="book")
+        for p in peers.table.itertuples():  # every peer's id whole, its drivers in full
+            row = next(ln for ln in lines if f"│ {p.firm_id} │" in ln)
+            for d in peers.peer_values:
+                assert g.number(getattr(p, d), 3) in row, (p.firm_id, d, row)
+
+
+def test_suggestions_put_the_same_id_with_other_zeros_first_and_find_words() -> None:
+    from levgap.matching import suggest
+
+    ids = ["Qx0207", "Qx0107", "Qx0097", "Qx0007"]
+    assert suggest("Qx007", ids)[0] == "Qx0007"
+    assert suggest("QX9999", ids) == []
+    assert suggest("motr", ["Motor homes", "Trailers"]) == ["Motor homes"]
+    assert suggest("traler", ["Motor homes", "Trailers"]) == ["Trailers"]
+
+
+def test_industry_labels_match_in_part_and_suggest(tmp_path: Path) -> None:
+    from levgap.errors import ConfigError
+    from levgap.report.quick import ScreenQuery, read_run_targets, screen_rows
+
+    panel = tmp_path / "p.csv"
+    levgap.demo_panel(seed=11).assign(
+        industry=lambda d: d["industry"].map(lambda c: f"Group {c} works")).to_csv(panel,
+                                                                                   index=False)
+    out = tmp_path / "out"
+    assert runner.invoke(app, ["analyze", str(panel), "--out", str(out), "--quiet",
+                               "--measure", "book"]).exit_code == 0
+    table, manifest = read_run_targets(out)
+    rows = screen_rows(table, ScreenQuery(measure="book", industry="GROUP 2421"), {}).rows
+    assert rows and {r["industry"] for r in rows} == {"Group 2421 works"}
+    with pytest.raises(ConfigError, match="Did you mean 'Group 2421 works'"):
+        screen_rows(table, ScreenQuery(measure="book", industry="grop 2421 works"), {})
+
+
 def test_explain_peers_median_equals_peer_median(analyst_run) -> None:
     out = str(analyst_run.out)
     result = runner.invoke(app, ["explain", out, analyst_run.standing, "--peers"])

@@ -31,21 +31,31 @@ def test_benchmark_suite_runs_at_10k(tmp_path: Path) -> None:
     assert (results / "profile-10k.txt").stat().st_size > 0
 
     fits = res["sizes"]["10k"]["fits"]
-    for key in ("a_s", "b_s", "c_s", "b_over_a", "c_over_b"):
+    for key in ("a_s", "b_s", "a2_s", "b2_s", "c_s", "b_over_a", "b2_over_a2", "c_over_b",
+                "b_cpu_s", "b2_cpu_s"):
         assert fits[key] > 0, key
-    # (a), (b) and (c) solve the same model: same estimates, same clustered errors.
+    # (a), (b) and (c) solve the same model, (a2) and (b2) the same fractional model: same
+    # estimates, same clustered errors.
     assert fits["max_abs_diff_coef_b_a"] < 1e-8
     assert fits["max_rel_diff_se_b_a"] < 1e-8
     assert fits["max_rel_diff_se_c_a"] < 1e-8
+    assert fits["max_abs_diff_coef_b2_a2"] < 1e-8
+    assert fits["max_rel_diff_se_b2_a2"] < 1e-8
 
     e2e = res["sizes"]["10k"]["end_to_end"]
-    for run in ("d_csv", "d_parquet", "lean"):
+    for run in ("default_linear", "default_fractional", "parquet_linear",
+                "parquet_fractional", "lean", "lean_csv"):
         assert "error" not in e2e[run], e2e[run]
         assert e2e[run]["seconds"] > 0 and e2e[run]["rss_mb"] > 0, run
+        assert e2e[run]["cpu_s"] > 0, run
     contract = {"targets", "drivers", "coefficients", "model_fit", "exclusions"}
-    assert {f"{t}.csv" for t in contract} | {"run.json"} <= set(e2e["outputs_csv"])
+    assert ({f"{t}.csv" for t in contract} | {"run.json", "report.html"}
+            <= set(e2e["outputs_default"]))
     assert {f"{t}.parquet" for t in contract} | {"run.json"} <= set(e2e["outputs_parquet"])
-    assert e2e["d_over_lean_time"] > 0 and e2e["d_over_lean_rss"] > 0
+    for key in ("default_linear_over_lean_csv", "default_fractional_over_lean_csv",
+                "parquet_linear_over_lean", "parquet_fractional_over_lean",
+                "default_linear_over_lean_csv_rss"):
+        assert e2e[key] > 0, key
 
     unseen = res["unseen"]
     assert unseen["time_ratio"] > 0 and unseen["rss_ratio"] > 0

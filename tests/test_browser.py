@@ -213,7 +213,7 @@ def test_report_search_finds_any_firm_of_the_year(analyst_run, tmp_path):
         cells = _cells(dom, firm)
         # the page's own unpacking of the embedded data shows the run's numbers
         assert cells[2] == g.pct(row["actual"]) and cells[3] == g.pct(row["target"])
-        assert cells[4] == g.pp(round(row["actual"], 3) - round(row["target"], 3))
+        assert cells[4] == g.pp(row["gap"])  # the gap explain and screen show
         assert cells[6] == row["status"]
     assert int(re.search(r'data-levgap-firms="(\d+)"', dom).group(1)) == book["firm_id"].nunique()
 
@@ -247,6 +247,58 @@ def test_report_firm_view_tells_persistent_from_new(analyst_run, tmp_path):
         assert m.group(1).count("<svg") == 2  # the bridge and the history chart
         assert "polygon" in m.group(1) and "polyline" in m.group(1)  # band, target, actual
     standing, shocked = views[analyst_run.standing], views[analyst_run.shocked]
+    from levgap import glossary as g
+
+    t = analyst_run.targets
+    now = t[(t["measure"] == "book") & (t["fiscal_year"] == t["fiscal_year"].max())]
+    twice = now[[g.pp(r.gap) != g.pp(round(r.actual, 3) - round(r.target, 3))
+                 for r in now.itertuples()]]
+    assert len(twice) > 0  # a firm whose gap, rounded from rounded levels, would be off
+    firm = twice["firm_id"].iloc[0]
+    dom, _ = load(page, tmp_path, f"open={firm}")
+    views[firm] = re.search(rf'<tr class="detail" data-detail="{re.escape(firm)}">(.*?)'
+                            r'(?:<tr class="firm"|<div class="pager">)', dom, re.S).group(1)
+    for firm, view in views.items():  # the bridge's figures are explain's, not rounded twice
+        row = t[(t["firm_id"] == firm) & (t["measure"] == "book")
+                & (t["fiscal_year"] == t["fiscal_year"].max())].iloc[0]
+        labels = re.findall(r"<text[^>]*>([^<]*)</text>", view)
+        after = {labels[i]: labels[i + 1] for i in range(len(labels) - 1)}
+        assert after[g.label("unexplained")] == g.pp(row["gap"])
+        assert after[g.label("peers_offset")] == g.pp(row["peer_target"] - row["peer_median"])
     assert "persistent: under" in standing and "outside the band on the same side" in standing
     assert "new outside the band: over" in shocked and "persistent:" not in shocked
     assert "newly_outside</code>: outside the band this year" in shocked
+
+
+def test_firm_view_shows_each_measures_own_industry_median(tmp_path):
+    """industry_median_leverage differs by measure: the page shows the market median under
+    market and the book median under book (drivers.csv), never one for both."""
+    import pandas as pd
+    from _synthetic import panel as synthetic_panel
+    from typer.testing import CliRunner
+
+    from levgap.cli import app
+
+    p = synthetic_panel(41, industries=6, firms=(8, 10), years=4)
+    src = tmp_path / "panel.csv"
+    p.drop(columns=["true_target", "spread"]).to_csv(src, index=False)
+    out = tmp_path / "run"
+    res = CliRunner().invoke(app, ["analyze", str(src), "--out", str(out), "--quiet",
+                                   "--model", "linear", "--effects", "year", "--drivers",
+                                   "tangibility,industry_median_leverage"])
+    assert res.exit_code == 0, res.output
+    d = pd.read_csv(out / "drivers.csv", dtype={"firm_id": str})
+    d = d[(d["fiscal_year"] == d["fiscal_year"].max())
+          & (d["driver"] == "industry_median_leverage")]
+    wide = d.pivot(index="firm_id", columns="measure", values="firm_value")
+    firm = (wide["market"] - wide["book"]).abs().idxmax()
+    shown = {}
+    for measure in ("book", "market"):
+        dom, console = load(out / "report.html", tmp_path, f"open={firm}&measure={measure}")
+        assert console == [], console
+        m = re.search(r"<td>industry_median_leverage</td><td class=\"n\">([-0-9.]+)", dom)
+        assert m is not None, measure
+        shown[measure] = m.group(1)
+        step = 10.0 ** -len(m.group(1).split(".")[1]) if "." in m.group(1) else 1.0
+        assert abs(float(m.group(1)) - wide.loc[firm, measure]) <= step / 2 + 1e-12
+    assert shown["book"] != shown["market"]

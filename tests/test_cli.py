@@ -98,7 +98,11 @@ def test_missing_column_is_exit_2_and_one_line(tmp_path: Path) -> None:
     [
         (["analyze", "nope.csv", "--out", "x"], "nope.csv"),
         (["analyze", "{panel}", "--out", "{tmp}/o", "--measure", "cash"], "book, market"),
-        (["analyze", "{panel}", "--out", "{tmp}/o", "--cluster", "country"], "cluster"),
+        # review L7: the value came from --cluster, not from a configuration's [model]
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--cluster", "country"],
+         "error: --cluster must be one of ['firm', 'firm-year', 'industry']; got 'country'"),
+        (["analyze", "{panel}", "--out", "{tmp}/o", "--model", "probit"],
+         "error: --model must be one of"),
         (["analyze", "{panel}", "--out", "{tmp}/o", "--format", "xls"], "csv or parquet"),
         (["analyze", "{panel}", "--out", "{tmp}/o", "--config", "{tmp}/none.toml"],
          "none.toml"),
@@ -158,6 +162,28 @@ def test_check_reports_exclusions(tmp_path: Path) -> None:
     assert "198 usable, 2 excluded" in result.output
     rows = pd.read_csv(ledger)
     assert sorted(rows["source_row"]) == [4, 5]
+
+
+
+def test_check_ledger_is_analyzes_whole_row_part(panel_csv: Path, out_dir: Path,
+                                                 tmp_path: Path) -> None:
+    # review L4: check lists whole-row exclusions only, and says so; analyze's ledger holds
+    # exactly those plus rows left out of one measure, whose reasons the README lists
+    from levgap.codes import ANALYSIS_REASONS, MEASURE_REASONS, REASONS
+
+    ledger = tmp_path / "ledger.csv"
+    result = runner.invoke(app, ["check", str(panel_csv), "--ledger", str(ledger)])
+    assert result.exit_code == 0, result.output
+    assert "whole rows" in result.output and "no_market_equity" in result.output
+    mine = pd.read_csv(ledger, keep_default_na=False)
+    theirs = pd.read_csv(out_dir / "exclusions.csv", keep_default_na=False)
+    whole = theirs[theirs["measure"] == ""]
+    assert sorted(mine["source_row"]) == sorted(whole["source_row"])
+    part = theirs[theirs["measure"] != ""]
+    assert len(part) and set(part["reason"]) <= set(MEASURE_REASONS)
+    readme = (Path(__file__).resolve().parents[1] / "data_templates" / "README.md").read_text()
+    for code in {*REASONS, *ANALYSIS_REASONS, *MEASURE_REASONS, *theirs["reason"]}:
+        assert f"| `{code}` |" in readme, code
 
 
 def test_template_writes_files(tmp_path: Path) -> None:

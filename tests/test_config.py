@@ -52,7 +52,7 @@ def test_full_config(tmp_path):
         ("[input]\nskip_rows = -1\n", r"skip_rows must be 0 or more"),
         ("[input]\ndelimiter = ';;'\n", r"delimiter must be one character"),
         ("[input]\ndecimal = ','\ndelimiter = ','\n", r"must differ"),
-        ("[input]\ndecimal = '1'\n", r"must not be letters or digits"),
+        ("[input]\ndecimal = '1'\n", r"decimal must be one of '.', ','"),
         ("[input]\nsheet = ''\n", r"sheet must be a non-empty text"),
         ("[units]\nscale = 0\n", r"scale must be a number > 0"),
         ("[units]\nscale = 'k'\n", r"scale must be a number"),

@@ -35,6 +35,11 @@ runner = CliRunner()
         ('measures = "book"', r"\[model\] measures must be a list of texts; got 'book'"),
         ('measures = ["book", 3]', r"measures must be a list of texts"),
         ('drivers = "size"', r"\[model\] drivers must be a list of texts; got 'size'"),
+        # review L1: a repeated name doubled rows (measures) or was called collinear (drivers)
+        ('measures = ["book", "book"]',
+         r"\[model\] measures must name each entry once; got 'book' more than once"),
+        ('drivers = ["size", "tangibility", "size"]',
+         r"\[model\] drivers must name each entry once; got 'size' more than once"),
         ("folds = 2.5", r"\[model\] folds must be a whole number; got 2.5"),
         ("folds = true", r"\[model\] folds must be a whole number; got True"),
         ('coverage = "high"', r"\[model\] coverage must be a number; got 'high'"),
@@ -59,6 +64,11 @@ def test_bad_model_values_name_file_and_key(tmp_path: Path, line: str, pattern: 
         ("[units]\nscale = true\n", r"\[units\] scale must be a number; got True"),
         ("[input]\nskip_rows = 1.5\n", r"\[input\] skip_rows must be a whole number"),
         ("[input]\ndecimal = 1\n", r"\[input\] decimal must be a text; got 1"),
+        # review L7: a delimiter or quote as a number mark would split or join cells
+        ('[input]\ndecimal = ";"\n', r"\[input\] decimal must be one of '.', ','; got ';'"),
+        ("[input]\ndecimal = \"'\"\n", r"\[input\] decimal must be one of"),
+        ('[input]\nthousands = "|"\n', r"\[input\] thousands must be one of .*; got '\|'"),
+        ('[input]\nthousands = "\\t"\n', r"\[input\] thousands must be one of"),
         ('[columns]\ntotal_debt = "X"\nppe_net = "x"\n',
          r"\[columns\] total_debt and ppe_net must name different headers"),
         ('[columns]\ntotal_debt = " "\n', r"\[columns\] total_debt must be a header name"),

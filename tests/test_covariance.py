@@ -27,6 +27,23 @@ def _one_way(U: np.ndarray, c: np.ndarray, p: int) -> np.ndarray:
     return g / (g - 1) * (n - 1) / (n - p) * _outer_by_cluster(U, c)
 
 
+def _by_cluster(U: np.ndarray):
+    """The influences' sums the sandwich asks for (``levgap.models.covariance.Sums``), by
+    explicit loops: one (G, m) array per code array, or [U'U] without codes."""
+    def sums(codes):
+        if not len(codes):
+            return [U.T @ U]
+        out = []
+        for c in codes:
+            S = np.zeros((int(c.max()) + 1, U.shape[1]))
+            for g in np.unique(c):
+                S[g] = U[c == g].sum(axis=0)
+            out.append(S)
+        return out
+
+    return sums
+
+
 def test_cluster_codes_are_dense_whatever_the_type() -> None:
     np.testing.assert_array_equal(cluster_codes(np.array([7, 3, 7, 100])), [1, 0, 1, 2])
     np.testing.assert_array_equal(cluster_codes(np.array([-2, 5, -2])), [0, 1, 0])
@@ -39,12 +56,12 @@ def test_meat_has_stata_s_factor() -> None:
     rng = np.random.default_rng(0)
     U = rng.normal(size=(50, 3))
     codes = rng.integers(0, 7, 50)
-    v, g = meat(U, codes, 50, 4)
+    v, g = meat(_by_cluster(U)([codes])[0], 50, 4)
     assert g == 7
     np.testing.assert_allclose(v, 7 / 6 * 49 / 46 * _outer_by_cluster(U, codes), rtol=1e-13)
-    v, g = meat(U, np.zeros(50, dtype=int), 50, 4)
+    v, g = meat(_by_cluster(U)([np.zeros(50, dtype=int)])[0], 50, 4)
     assert g == 1 and np.isnan(v).all()  # one cluster: no factor
-    v, _ = meat(U, codes, 4, 4)
+    v, _ = meat(_by_cluster(U)([codes])[0], 4, 4)
     assert np.isnan(v).all()  # no degrees of freedom
 
 
@@ -54,13 +71,13 @@ def test_one_way_two_way_and_hc0() -> None:
     U = rng.normal(size=(n, 3))
     firm = rng.integers(0, 40, n)
     year = rng.integers(0, 12, n)
-    hc0 = sandwich(U, (), p)
+    hc0 = sandwich(_by_cluster(U), (), len(U), p)
     np.testing.assert_allclose(hc0.vcov, U.T @ U, rtol=1e-13)
     assert hc0.cov_type == "robust" and hc0.n_clusters == () and hc0.df_inference == n - p
-    one = sandwich(U, (firm,), p)
+    one = sandwich(_by_cluster(U), (firm,), len(U), p)
     np.testing.assert_allclose(one.vcov, _one_way(U, firm, p), rtol=1e-12)
     assert one.cov_type == "cluster" and one.n_clusters == (40,) and one.df_inference == 39
-    two = sandwich(U, (firm, year), p)
+    two = sandwich(_by_cluster(U), (firm, year), len(U), p)
     both = firm * 100 + year
     expected = _one_way(U, firm, p) + _one_way(U, year, p) - _one_way(U, both, p)
     assert np.linalg.eigvalsh(expected).min() > 0  # positive definite: no repair
@@ -68,10 +85,10 @@ def test_one_way_two_way_and_hc0() -> None:
     assert two.notes == ()
     assert two.cov_type == "cluster2" and two.n_clusters == (40, 12)
     assert two.df_inference == 11  # the smaller dimension
-    swapped = sandwich(U, (year, firm), p)
+    swapped = sandwich(_by_cluster(U), (year, firm), len(U), p)
     np.testing.assert_allclose(swapped.vcov, two.vcov, rtol=1e-12)
     assert swapped.n_clusters == (12, 40) and swapped.df_inference == 11
-    text = sandwich(U, (firm.astype(str),), p)
+    text = sandwich(_by_cluster(U), (firm.astype(str),), len(U), p)
     np.testing.assert_allclose(text.vcov, one.vcov, rtol=1e-12)
 
 
@@ -79,12 +96,13 @@ def test_cluster_counts_are_checked() -> None:
     U = np.ones((10, 1))
     c = np.arange(10) % 2
     with pytest.raises(ModelError, match="at most two dimensions; got 3"):
-        sandwich(U, (c, c, c), 1)
+        sandwich(_by_cluster(U), (c, c, c), len(U), 1)
     with pytest.raises(ModelError, match="at least two clusters; got 1"):
-        sandwich(U, (np.zeros(10, dtype=int),), 1)
+        sandwich(_by_cluster(U), (np.zeros(10, dtype=int),), len(U), 1)
     with pytest.raises(ModelError, match="at least two clusters; got 1"):
-        sandwich(U, (c, np.zeros(10, dtype=int)), 1)
-    two = sandwich(np.arange(10.0)[:, None], (c,), 1)  # two clusters: the fewest
+        sandwich(_by_cluster(U), (c, np.zeros(10, dtype=int)), len(U), 1)
+    col = np.arange(10.0)[:, None]
+    two = sandwich(_by_cluster(col), (c,), 10, 1)  # two clusters: the fewest
     assert two.df_inference == 1
     sums = np.array([np.arange(0, 10, 2).sum(), np.arange(1, 10, 2).sum()], dtype=float)
     assert two.vcov[0, 0] == pytest.approx(2 / 1 * 9 / 9 * float(sums @ sums))

@@ -12,17 +12,10 @@ import numpy as np
 import pytest
 
 from levgap.errors import ModelError
-from levgap.models.design import (
-    Design,
-    Pooling,
-    check_identified,
-    cho_apply,
-    compress,
-    inverse_rows,
-    solve,
-    suspicious,
-)
+from levgap.models.design import Design, Pooling, compress
 from levgap.models.fractional import fit_fractional
+from levgap.models.identify import check_identified, suspicious
+from levgap.models.linalg import cho_apply, inverse_rows, solve
 from levgap.models.linear import fit_linear
 
 
@@ -90,7 +83,17 @@ def test_products_equal_the_explicit_design_matrix(penalty) -> None:
     theta = d["rng"].normal(size=Z.shape[1])
     np.testing.assert_allclose(design.matvec(theta), Z @ theta, rtol=0, atol=1e-12)
     R = d["rng"].normal(size=(4, Z.shape[1]))
-    np.testing.assert_allclose(design.influence_rows(R), Z @ R.T, rtol=0, atol=1e-12)
+    # the rows' influences u_i = R z_i e_i, summed within clusters and as sum_i u_i u_i'
+    e = d["rng"].normal(size=len(w))
+    U = (Z @ R.T) * e[:, None]
+    firms = d["rng"].integers(0, 37, len(w))
+    for codes in (firms, np.sort(firms), d["ind"]):
+        G = int(codes.max()) + 1
+        want = np.zeros((G, 4))
+        np.add.at(want, codes, U)
+        np.testing.assert_allclose(design.cluster_sums(R, e, [codes])[0], want, rtol=0,
+                                   atol=1e-10)
+    np.testing.assert_allclose(design.cluster_sums(R, e, [])[0], U.T @ U, rtol=0, atol=1e-9)
     np.testing.assert_array_equal(design.penalty, pen)
     assert design.any_dense == (pooling is not None)
     if pooling is not None:

@@ -135,6 +135,21 @@ def test_rd_intensity_adds_indicator() -> None:
     assert (feats.frame["rd_intensity"].iloc[12:] == 0).all()
 
 
+
+def test_rd_indicator_is_left_out_when_constant_and_errors_name_rd_intensity() -> None:
+    # review L7: with rd_expense in every row the indicator is constant; it is not a driver
+    # (the model used to refuse the run naming the internal rd_missing)
+    p = _panel()
+    p["rd_expense"] = np.linspace(1.0, 5.0, len(p))
+    feats = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                         winsorize=(0.0, 1.0)))
+    assert feats.drivers == ("tangibility", "rd_intensity")
+    from levgap.models.identify import _shown
+
+    assert _shown(["rd_intensity", "rd_missing"]) == "rd_intensity"
+    assert _shown(["size", "rd_missing"]).startswith("size, rd_intensity (")
+
+
 def test_effect_level_and_peer_group_are_separate_settings() -> None:
     p = _panel()
     peers = build_features(p, ModelSpec(peer_digits=2))
@@ -314,9 +329,10 @@ def test_money_in_integers_text_and_small_units() -> None:
 
 def test_optional_columns_absent() -> None:
     p = _panel()
-    rd = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
-                                     winsorize=(0.0, 1.0))).frame
-    assert (rd["rd_missing"] == 1.0).all() and (rd["rd_intensity"] == 0.0).all()
+    feats = build_features(p, ModelSpec(drivers=("tangibility", "rd_intensity"),
+                                        winsorize=(0.0, 1.0)))
+    # no rd_expense at all: the indicator would be constant, so it is no driver (review L7)
+    assert "rd_missing" not in feats.drivers and (feats.frame["rd_intensity"] == 0.0).all()
     leases = build_features(p, ModelSpec(leases_as_debt=True, winsorize=(0.0, 1.0))).frame
     assert all("no_lease_data" in t for t in _tokens(leases["flags"]))
     np.testing.assert_allclose(leases["book"], p["total_debt"] / p["total_assets"])

@@ -15,7 +15,11 @@ from levgap import glossary as g
 SRC = Path(__file__).resolve().parents[1] / "src" / "levgap"
 ROOT = SRC.parents[1]
 OLD_VARIANTS = ("gap pp", "gap, pp", "r² oos", "rmse oos", "std. error", "contribution pp",
-                "change, pp", "median gap, pp", "95% ci")
+                "change, pp", "median gap, pp", "95% ci",
+                # the deal check's terminal, explain --add-debt and page had their own
+                "to top (recap)", "to top (funded)", "nd/ebitda", "ebitda/int", "pd 1y",
+                "debt to band top (recap)", "actual leverage",
+                "target (saved model, full sample)", "trade-off: best debt")
 """Labels the vocabulary replaced (issue 13): none may come back."""
 
 
@@ -153,3 +157,24 @@ def test_top_level_help_shows_whole_descriptions() -> None:
     flat = " ".join(out.split())
     assert "Show why a firm's target differs from its peers', driver by driver, with its gap " \
            "history, its flags in words and (--peers) its peers." in flat
+
+
+def test_the_deal_check_and_compare_read_their_labels_here() -> None:
+    """Every figure the deal check (proforma.csv's page, terminal and explain --add-debt) and
+    levgap compare show has its label in the glossary, so the search above covers them."""
+    from levgap.compare import COMPARE_COLUMNS
+    from levgap.deal.result import CAPACITY_COLUMNS
+    from levgap.deal.statement import LINES
+
+    shown = {*CAPACITY_COLUMNS, "net_debt_to_ebitda", "debt_to_ebitda", "ebitda_to_interest",
+             "altman_score", "asset_value", "asset_volatility", "distance_to_default",
+             "default_probability", "tax_shield_pv", "expected_distress_cost",
+             "tradeoff_best_debt", "scenario", "total_debt", "total_assets",
+             *(set(COMPARE_COLUMNS) - {"coverage_industry_min", "coverage_industry_max",
+                                       "n_obs"})}
+    assert shown - set(g.TERMS) == set()
+    assert set(LINES) <= set(g.STATEMENT)
+    labels = _labels()
+    for key in ("capacity_to_band_top_recap", "net_debt_to_ebitda", "default_probability",
+                "outside_unit_interval"):
+        assert key in labels  # searched for by test_each_label_is_written_once_in_src

@@ -100,6 +100,14 @@ def test_a_map_taking_an_auto_matched_header_says_so_without_contradiction():
          [1234.5, None, 1234567.0]),
         (InputOptions(decimal=",", thousands=" "), ["1 234,5", "1\u00a0234", "12 34"],
          [1234.5, 1234.0, None]),
+        # review M1: with a decimal comma a dot is never a decimal point, whatever the
+        # thousands mark; L7: a decimal comma needs a digit after it
+        (InputOptions(decimal=",", thousands=" "),
+         ["147.782", "1.5", "12.34", ".782", "147 782,5", ",5", "147 782,"],
+         [None, None, None, None, 147782.5, 0.5, None]),
+        (InputOptions(decimal=",", thousands="."), ["147.782,", "12,", "1.234,", "1.234,0"],
+         [None, None, None, 1234.0]),
+        (InputOptions(decimal=","), ["147.782,", "147,", ".782"], [None, None, None]),
     ],
 )
 def test_number_marks_never_guess(options, cells, expected):
@@ -244,3 +252,13 @@ def test_a_repeated_header_is_one_line_not_a_crash(tmp_path: Path):
     path = _write(tmp_path, ["firm_id,firm_id,fiscal_year", "1,2,3"])
     with pytest.raises(SchemaError, match="headers must be unique; got firm_id"):
         read_panel(path)
+
+
+def test_a_columns_entry_matches_regardless_of_case_and_surrounding_spaces():
+    # review L7, as auto-matching does (documented in data_templates/README.md)
+    headers = ["firm_id", "fiscal_year", "industry", "total_assets", " Total Debt ", "ppe_net",
+               "ebitda", "book_equity"]
+    found = resolve_columns(headers, {"total_debt": "total debt"})
+    assert found["total_debt"] == " Total Debt "
+    with pytest.raises(SchemaError, match="several close matches"):
+        resolve_columns([*headers, "TOTAL DEBT"], {"total_debt": "total debt"})

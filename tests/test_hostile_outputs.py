@@ -15,6 +15,7 @@ import re
 import shutil
 import subprocess
 import sys
+import warnings
 from pathlib import Path
 
 import openpyxl
@@ -28,7 +29,7 @@ from levgap.cli import app
 from levgap.cli.common import plain
 from levgap.demo import make_panel
 from levgap.errors import DataWarning, OutputError
-from levgap.outputs import MARKER, neutralise
+from levgap.outputs import MARKER, file_digest, neutralise
 from levgap.report.tables import read_outputs
 
 runner = CliRunner()
@@ -76,6 +77,16 @@ def _copy(runs: dict[str, Path], tmp_path: Path, fmt: str = "csv") -> Path:
     return out
 
 
+def _restamp(out: Path) -> None:
+    """Record the tampered files' digests in run.json, as a tamperer who knows the format
+    would (``levgap report --accept-edits`` does the same): the table checks must still hold."""
+    run = json.loads((out / "run.json").read_text())
+    for name in run["files"]:
+        size, sha = file_digest(out / name)
+        run["digests"][name] = {"size": size, "sha256": sha}
+    (out / "run.json").write_text(json.dumps(run))
+
+
 def _invoke(name: str, out: Path):
     return runner.invoke(app, [a.format(out=out) for a in COMMANDS[name]])
 
@@ -87,6 +98,8 @@ def test_a_missing_column_names_file_and_column(runs, tmp_path, command):
     frame = pd.read_csv(out / f"{table}.csv", dtype=str)
     column = "std_error" if table == "coefficients" else "gap"
     frame.drop(columns=[column]).to_csv(out / f"{table}.csv", index=False)
+    _one_line(_invoke(command, out), f"{table}.csv", "is not the file run")
+    _restamp(out)
     _one_line(_invoke(command, out), f"{table}.csv", f"must have the column {column}")
 
 
@@ -98,6 +111,7 @@ def test_a_wrong_type_names_file_and_column(runs, tmp_path, command):
     frame = pd.read_csv(out / f"{table}.csv", dtype=str, keep_default_na=False)
     frame.loc[1, column] = "lots" if column == "estimate" else "2.5"
     frame.to_csv(out / f"{table}.csv", index=False)
+    _restamp(out)
     line = _one_line(_invoke(command, out), f"{table}.csv", f"column {column} must hold")
     assert ("such as 'lots'" in line) if column == "estimate" else "whole numbers" in line
 
@@ -108,6 +122,7 @@ def test_parquet_tables_are_checked_too(runs, tmp_path):
     i = t.column_names.index("gap")
     t = t.set_column(i, "gap", pa.array(["x"] * t.num_rows))
     pq.write_table(t, out / "targets.parquet")
+    _restamp(out)
     _one_line(_invoke("screen", out), "targets.parquet", "column gap must hold numbers")
     with pytest.raises(OutputError, match="column gap must hold numbers"):
         read_outputs(out)
@@ -253,3 +268,64 @@ def test_usage_errors_are_one_line_from_the_console_script():
     assert run.returncode == 2 and run.stdout == ""
     assert re.fullmatch(r"levgap: error: Missing argument 'out_dir'\. \(see `[^`]+ screen "
                         r"--help`\)\n", run.stderr), run.stderr
+
+
+# Review finding L2: hostile run.json and blanked tables are one line and exit 2 in every reader.
+
+@pytest.mark.parametrize("command", sorted(COMMANDS))
+def test_run_json_nested_too_deeply_is_one_line(runs, tmp_path, command):
+    out = _copy(runs, tmp_path)
+    (out / "run.json").write_text("[" * 100_000 + "]" * 100_000, encoding="utf-8")
+    _one_line(_invoke(command, out), "run.json", "nested too deeply")
+    with pytest.raises(OutputError, match="nested too deeply"):
+        read_outputs(out)
+
+
+def test_model_json_nested_too_deeply_is_refused(runs, tmp_path):
+    import levgap
+
+    out = _copy(runs, tmp_path)
+    (out / "model.json").write_text("[" * 100_000 + "]" * 100_000, encoding="utf-8")
+    _restamp(out)
+    with pytest.raises(OutputError, match="model.json must be valid JSON; got the JSON is "
+                                          "nested too deeply"):
+        levgap.load_model(out)
+
+
+@pytest.mark.parametrize(
+    ("change", "pattern"),
+    [
+        (lambda r: r.update(options="x"), "options must be an object; got 'x'"),
+        (lambda r: r["options"]["model"].update(measures=5),
+         "options.model.measures must be a list of names"),
+        (lambda r: r["options"]["model"].update(drivers="size"),
+         "options.model.drivers must be a list of names"),
+        (lambda r: r.update(counts=[1]), "counts must be an object"),
+        (lambda r: r.update(pooled_industries=[{"weight": [1]}]), "pooled_industries must be"),
+    ],
+)
+@pytest.mark.parametrize("command", sorted(COMMANDS))
+def test_run_json_parts_of_the_wrong_type(runs, tmp_path, command, change, pattern):
+    out = _copy(runs, tmp_path)
+    run = json.loads((out / "run.json").read_text())
+    change(run)
+    (out / "run.json").write_text(json.dumps(run))
+    _one_line(_invoke(command, out), "run.json", pattern)
+
+
+@pytest.mark.parametrize("command", sorted(COMMANDS))
+def test_a_blanked_column_is_refused_without_warnings(runs, tmp_path, command):
+    out = _copy(runs, tmp_path)
+    table, column = ("coefficients", "term") if command == "table" else ("targets", "target")
+    frame = pd.read_csv(out / f"{table}.csv", dtype=str, keep_default_na=False)
+    frame[column] = ""
+    frame.to_csv(out / f"{table}.csv", index=False)
+    _restamp(out)  # as `levgap report --accept-edits` would
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no RuntimeWarning from a blank column either
+        result = _invoke(command, out)
+    _one_line(result, f"{table}.csv", f"column {column} must have a value in every row")
+    report = runner.invoke(app, ["report", str(out), "--accept-edits"])
+    _one_line(report, f"{table}.csv" if command != "table" else "coefficients.csv",
+              "must have a value in every row")
+

@@ -12,6 +12,7 @@ from levgap.analysis import COEF_COLUMNS, DRIVER_COLUMNS, FIT_COLUMNS, TARGET_CO
 from levgap.config import ModelSpec, RunConfig
 from levgap.demo import TRUE_COEFFICIENTS, make_panel, planted_shocks
 from levgap.errors import ConfigError, ModelError
+from levgap.frames import SIGN_COLUMNS
 from levgap.pipeline import analyze
 
 
@@ -68,7 +69,7 @@ def test_contract_columns(demo_result) -> None:
     r = demo_result
     assert list(r.targets.columns) == list(TARGET_COLUMNS)
     assert list(r.drivers.columns) == list(DRIVER_COLUMNS)
-    assert list(r.coefficients.columns) == list(COEF_COLUMNS)
+    assert list(r.coefficients.columns) == [*COEF_COLUMNS, *SIGN_COLUMNS]
     assert list(r.model_fit.columns) == list(FIT_COLUMNS)
     assert set(r.targets["status"]) <= {"over", "within", "under"}
 

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from levgap.errors import OutputError
-from levgap.outputs import MARKER, read_marker
+from levgap.outputs import MARKER, file_digest, read_marker
 from levgap.report.tables import neutralise, read_outputs, write_tables
 
 NASTY = ["=HYPERLINK(\"http://x\",\"y\")", "@SUM(A1)", "+cmd|' /C calc'!A0", "-5 notes",
@@ -60,6 +60,9 @@ def test_write_and_read_back(tmp_path, fmt):
     tables, man = read_outputs(out)
     run_id = man.pop("run_id")
     assert run_id == read_marker(out).run_id and len(run_id) == 16
+    digests = man.pop("digests")
+    assert {n: (d["size"], d["sha256"]) for n, d in digests.items()} == {
+        n: file_digest(out / n) for n in (f"exclusions.{fmt}", f"firms.{fmt}")}
     assert man == {"counts": {"rows": 8}, "share": None, "path": str(out),
                    "files": [f"exclusions.{fmt}", f"firms.{fmt}"]}
     t = tables["firms"]
@@ -155,5 +158,7 @@ def test_a_file_levgap_wrote_beside_a_run_is_known_not_foreign(tmp_path):
     out = tmp_path / "o"
     write_tables(_tables(), {}, out)
     atomic_write_bytes(out / "table.tex", b"\\begin{tabular}")  # e.g. levgap table -o
-    write_tables(_tables(), {}, out)  # not refused as foreign; the old file is removed
-    assert not (out / "table.tex").exists()
+    write_tables(_tables(), {}, out)  # not refused as foreign
+    # and kept: no run record lists it, so a run never removes it (only the marker vouches)
+    assert (out / "table.tex").read_bytes() == b"\\begin{tabular}"
+    assert read_marker(out).records["table.tex"].written

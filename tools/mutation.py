@@ -43,6 +43,8 @@ MODULES: dict[str, tuple[str, ...]] = {
     "groups": ("test_groups.py", "test_features.py", "test_pooling.py",
                "test_pipeline_brute.py"),
     "models.design": MODEL_CORE,
+    "models.identify": MODEL_CORE,
+    "models.linalg": MODEL_CORE,
     "models.linear": (*MODEL_CORE, "test_pooling.py"),
     "models.fractional": (*MODEL_CORE, "test_pooling.py"),
     "models.assemble": MODEL_CORE,

@@ -68,10 +68,21 @@ COLUMN_KINDS: dict[str, str] = {
 """What output columns hold when they are not text: ``integer`` (whole numbers, blanks allowed)
 or ``number``. Columns not named here are read as text."""
 
+FILLED_COLUMNS: dict[str, tuple[str, ...]] = {
+    "targets": ("firm_id", "fiscal_year", "measure", "actual", "target", "gap"),
+    "drivers": ("firm_id", "fiscal_year", "measure", "driver"),
+    "coefficients": ("measure", "model", "term"),
+    "model_fit": ("measure", "model"),
+    "fold_coefficients": ("measure", "model", "term"),
+    "exclusions": ("reason",),
+}
+"""Columns levgap fills in every row of a table it writes; a reader refuses a blank there."""
+
 
 def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
                         example: Callable[[str], str] = lambda c: "", *,
-                        legacy: bool = False) -> None:
+                        legacy: bool = False,
+                        blanks: Callable[[str], int] | None = None) -> None:
     """Refuse a table read back from an output folder that lacks a column or holds a wrong type.
 
     Parameters
@@ -87,6 +98,9 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
         A short example of a column's offending value, for the message.
     legacy : bool, default=False
         The folder was written by levgap 0.1: its tables are checked against the 0.1 columns.
+    blanks : callable, optional
+        How many rows of a column are blank; given, the ``FILLED_COLUMNS`` of the table (not
+        of a 0.1 table) must have none.
 
     Raises
     ------
@@ -120,6 +134,15 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
                 f"{path}: column {col} must hold {what}; got {found[col]}"
                 f"{f' such as {shown}' if shown else ''}. The file was edited or damaged; "
                 "re-run `levgap analyze`."
+            )
+    if blanks is None or legacy:
+        return
+    for col in FILLED_COLUMNS.get(name, ()):
+        n = blanks(col)
+        if n:
+            raise OutputError(
+                f"{path}: column {col} must have a value in every row; got {n:,} blank. The "
+                "file was edited or damaged; re-run `levgap analyze`."
             )
 
 
@@ -165,6 +188,9 @@ class Analysis:
     saved_model : dict
         The fitted model as data (``model.json``): everything needed to score a firm-year that
         is not in the panel (see ``levgap.models.saved``); empty until a model records it.
+    sample : pandas.DataFrame
+        The estimation sample (``analyze(..., sample=True)``, ``levgap.sample``): one row per
+        firm-year used, each measure and driver raw and as used; empty unless asked for.
     """
 
     targets: pd.DataFrame
@@ -175,10 +201,11 @@ class Analysis:
     fold_coefficients: pd.DataFrame = field(default_factory=lambda: _empty_frame())
     manifest: dict[str, Any] = field(default_factory=dict)
     saved_model: dict[str, Any] = field(default_factory=dict)
+    sample: pd.DataFrame = field(default_factory=lambda: _empty_frame())
 
     def tables(self) -> dict[str, pd.DataFrame]:
-        """The contract's tables by file stem."""
-        return {
+        """The contract's tables by file stem (and ``sample`` when it was asked for)."""
+        out = {
             "targets": self.targets,
             "drivers": self.drivers,
             "coefficients": self.coefficients,
@@ -186,6 +213,9 @@ class Analysis:
             "fold_coefficients": self.fold_coefficients,
             "exclusions": self.exclusions,
         }
+        if self.sample.shape[1]:
+            out["sample"] = self.sample
+        return out
 
     def tidy(self) -> pd.DataFrame:
         """The targets table, from which screens and charts are built."""

@@ -41,6 +41,8 @@ FLAGS: dict[str, str] = {
         for c in COLUMNS
         if not c.required and c.kind == "number" and c.name != "fx_rate"  # fx_rate excludes
     },
+    "invalid_input_driver": "a [model] input_drivers cell is not a number and is treated as "
+    "missing (the row is then left out, reason driver_missing)",
 }
 """Flags of kept rows, written ``;``-joined into the ``flags`` column."""
 
@@ -86,6 +88,9 @@ ANALYSIS_FLAGS: dict[str, str] = {
     "market_target_at_or_above_one": "a market target of 1 or more (linear model): debt to "
     "target replaces every share",
     "no_lease_data": "leases_as_debt is on but lease_liabilities is blank: counted as zero",
+    "industry_median_imputed": "no other firm of the industry has the measure in that fiscal "
+    "year: industry_median_leverage is the median of the year's other firms",
+    "dividends_missing": "dividends_paid is blank: dividend_payer counts the row as not paying",
     "persistent": "outside the band on the same side for three or more consecutive fiscal "
     "years: a standing policy rather than a new event",
     "newly_outside": "outside the band this year, and not on that side the year before: a "
@@ -117,6 +122,9 @@ def flag_words(flags: object) -> list[tuple[str, str]]:
 
 ANALYSIS_REASONS: dict[str, str] = {
     "no_prior_year": "lag_drivers is on and the firm has no row for the previous fiscal year",
+    "driver_missing": "a driver without an imputation rule has no value: log_revenue without "
+    "revenue above zero, or a blank [model] input_drivers column (with lag_drivers: in the "
+    "previous fiscal year)",
 }
 """Reason codes of rows the analysis leaves out of every measure."""
 
@@ -128,7 +136,8 @@ MEASURE_REASONS: dict[str, str] = {
     "debt_above_assets_with_leases": "leases_as_debt is on and debt plus leases exceed "
     "total_assets: left out of book leverage only",
 }
-"""Reason codes of rows the analysis leaves out of every measure."""
+"""Reason codes of rows the analysis leaves out of one measure (the ledger names it); ``levgap
+check`` does not list them (it fits nothing)."""
 
 
 

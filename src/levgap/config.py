@@ -33,6 +33,11 @@ A run configuration has four tables; every key is optional::
     peer_digits = 0      # peer group (attribution): 0 the code as given; n its first n characters
     min_peers = 5        # fewer peers than this: flagged few_peers
     drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
+    input_drivers = []   # numeric columns of the input used as drivers, as given
+    effects = "industry,year"  # industry,year | firm,year | year | none
+    estimator = "pooled"       # pooled | fama-macbeth (levgap estimate)
+    fm_errors = "newey-west"   # Fama-MacBeth standard error: newey-west | plain
+    # nw_lags = 2        # Newey-West lags (default: floor(4 (T/100)^(2/9)), at most T - 1)
     leases_as_debt = false
     folds = 5
     seed = 0
@@ -56,10 +61,27 @@ from levgap.schema import BY_NAME, DRIVERS, MEASURES, OPTIONAL_DRIVERS
 
 CLUSTERS: tuple[str, ...] = ("firm", "firm-year", "industry")
 POOLINGS: tuple[str, ...] = ("shrink", "parent")
+EFFECTS: tuple[str, ...] = ("industry,year", "firm,year", "year", "none")
+"""Fixed effects a specification can absorb."""
+ESTIMATORS: tuple[str, ...] = ("pooled", "fama-macbeth")
+FM_ERRORS: tuple[str, ...] = ("newey-west", "plain")
+RESERVED_COLUMNS: frozenset[str] = frozenset({
+    "firm_id", "firm_name", "fiscal_year", "industry", "currency", "fx_rate", "total_assets",
+    "total_debt", "market_equity", "book", "market", "effect_group", "peer_group",
+    "source_row", "flags", "has_prior_year",
+})
+"""Names an input driver cannot take: columns the analysis builds or keys the panel."""
 _MAX_TOML = 1 << 20
 FILE_KEYS: tuple[str, ...] = ("industry_names", "peers")
 """Keys of ``[input]`` that name files (relative to the run configuration's folder)."""
 
+
+
+DECIMAL_MARKS = (".", ",")
+"""The decimal marks levgap reads (``[input] decimal``)."""
+THOUSANDS_MARKS = (".", ",", " ", "\u00a0", "\u202f", "'")
+"""The thousands marks levgap reads (``[input] thousands``; a space also takes no-break
+spaces)."""
 
 @dataclass(frozen=True, slots=True)
 class InputOptions:
@@ -70,9 +92,9 @@ class InputOptions:
     delimiter : str or None, default=None
         Field separator of a CSV file; ``None`` detects it from the header line.
     decimal : str, default="."
-        Decimal mark of numbers.
+        Decimal mark of numbers: ``.`` or ``,`` (``DECIMAL_MARKS``).
     thousands : str or None, default=None
-        Thousands separator of numbers, if any.
+        Thousands separator of numbers, if any (``THOUSANDS_MARKS``).
     encoding : str or None, default=None
         Text encoding; ``None`` reads UTF-8 (with or without BOM) and falls back to
         Latin-1 with a warning.
@@ -120,10 +142,16 @@ class InputOptions:
                 f"[input] decimal, thousands and delimiter must differ; got decimal "
                 f"{self.decimal!r}, thousands {self.thousands!r}, delimiter {self.delimiter!r}."
             )
-        if self.decimal.isalnum() or (self.thousands or "").isalnum():
+        if self.decimal not in DECIMAL_MARKS:
             raise ConfigError(
-                f"[input] decimal and thousands must not be letters or digits; got "
-                f"{self.decimal!r} and {self.thousands!r}."
+                f"[input] decimal must be one of {', '.join(map(repr, DECIMAL_MARKS))}; got "
+                f"{self.decimal!r} (a delimiter or quote character would split or join cells)."
+            )
+        if self.thousands is not None and self.thousands not in THOUSANDS_MARKS:
+            raise ConfigError(
+                f"[input] thousands must be one of {', '.join(map(repr, THOUSANDS_MARKS))}; "
+                f"got {self.thousands!r} (a delimiter or quote character would split or join "
+                "cells)."
             )
         for name in ("encoding", "sheet", "industry_names", "peers"):
             v = getattr(self, name)
@@ -198,7 +226,26 @@ class ModelSpec:
     min_peers : int, default=5
         A firm-year whose peer median rests on fewer peers is flagged ``few_peers``.
     drivers : tuple of str
-        Drivers in the model.
+        Drivers in the model: the five defaults and any of ``rd_intensity``,
+        ``log_revenue``, ``industry_median_leverage``, ``dividend_payer``
+        (``levgap.definitions`` says how each is built).
+    input_drivers : tuple of str, default=()
+        Numeric columns of the input file used as further drivers, as given (money columns
+        after ``[units] scale`` and ``fx_rate``); a row without a value is left out (reason
+        ``driver_missing``).
+    effects : {"industry,year", "firm,year", "year", "none"}, default="industry,year"
+        Fixed effects absorbed. Firm effects serve the estimation table only (``levgap
+        estimate``): a firm's target would be its own average level, which a firm left out
+        of the cross-fit does not have. ``industry_median_leverage`` needs a specification
+        without industry effects.
+    estimator : {"pooled", "fama-macbeth"}, default="pooled"
+        ``pooled``: one fit on every firm-year (the target model). ``fama-macbeth``: one
+        least-squares cross-section a fiscal year, slopes averaged (``levgap estimate``).
+    fm_errors : {"newey-west", "plain"}, default="newey-west"
+        Which Fama-MacBeth standard error fills ``std_error`` (both are written).
+    nw_lags : int or None, default=None
+        Newey-West lags of the Fama-MacBeth slopes; None: floor(4 (T/100)^(2/9)), at most
+        T - 1, for T years.
     leases_as_debt : bool, default=False
         Add ``lease_liabilities`` to ``total_debt``.
     folds : int, default=5
@@ -236,6 +283,11 @@ class ModelSpec:
     peer_digits: int = 0
     min_peers: int = 5
     drivers: tuple[str, ...] = DRIVERS
+    input_drivers: tuple[str, ...] = ()
+    effects: str = "industry,year"
+    estimator: str = "pooled"
+    fm_errors: str = "newey-west"
+    nw_lags: int | None = None
     leases_as_debt: bool = False
     folds: int = 5
     seed: int = 0
@@ -248,6 +300,14 @@ class ModelSpec:
 
     def __post_init__(self) -> None:
         check_fields(self)
+        for key in ("measures", "drivers"):
+            names = list(getattr(self, key))
+            twice = [n for i, n in enumerate(names) if n in names[:i]]
+            if twice:
+                raise ConfigError(
+                    f"[model] {key} must name each entry once; got {twice[0]!r} more than once "
+                    f"in {names}."
+                )
         bad = [m for m in self.measures if m not in MEASURES]
         if bad or not self.measures:
             raise ConfigError(
@@ -264,10 +324,11 @@ class ModelSpec:
             )
         allowed = DRIVERS + OPTIONAL_DRIVERS
         bad = [d for d in self.drivers if d not in allowed]
-        if bad or not self.drivers:
+        if bad or not (self.drivers or self.input_drivers):
             raise ConfigError(
                 f"[model] drivers must be among {list(allowed)}; got {list(self.drivers)}."
             )
+        self._check_research()
         if self.min_industry_firms < 1:
             raise ConfigError(
                 f"[model] min_industry_firms must be at least 1; got {self.min_industry_firms}."
@@ -302,6 +363,58 @@ class ModelSpec:
             if self.model not in MODELS:
                 raise ConfigError(
                     f"[model] model must be one of {sorted(MODELS)}; got {self.model!r}.")
+
+
+    def _check_research(self) -> None:
+        """Effects, estimator and input drivers (the replication options)."""
+        effects = ",".join(p.strip() for p in str(self.effects).lower().split(","))
+        if effects not in EFFECTS:
+            raise ConfigError(f"[model] effects must be one of {list(EFFECTS)}; got "
+                              f"{self.effects!r}.")
+        object.__setattr__(self, "effects", effects)
+        if "industry_median_leverage" in self.drivers and "industry" in effects:
+            raise ConfigError(
+                "[model] drivers must not hold industry_median_leverage with industry effects; "
+                f"got effects = {effects!r}. The industry effects would absorb the industry "
+                "median: set effects = \"year\" (Frank and Goyal's specification).")
+        if self.estimator not in ESTIMATORS:
+            raise ConfigError(f"[model] estimator must be one of {list(ESTIMATORS)}; got "
+                              f"{self.estimator!r}.")
+        if self.estimator == "fama-macbeth" and "firm" in effects:
+            raise ConfigError(
+                "[model] effects must not include firm with the fama-macbeth estimator; got "
+                f"{effects!r}. A cross-section of one year cannot tell a firm's effect from "
+                "its residual: use effects = \"year\" or \"industry,year\".")
+        if self.fm_errors not in FM_ERRORS:
+            raise ConfigError(f"[model] fm_errors must be one of {list(FM_ERRORS)}; got "
+                              f"{self.fm_errors!r}.")
+        if self.nw_lags is not None and self.nw_lags < 0:
+            raise ConfigError(f"[model] nw_lags must be 0 or more; got {self.nw_lags}.")
+        import re
+
+        taken = set(DRIVERS + OPTIONAL_DRIVERS) | {"rd_missing"} | RESERVED_COLUMNS
+        for name in self.input_drivers:
+            if not re.fullmatch(r"[A-Za-z][A-Za-z0-9_]{0,63}", name) or name in taken or (
+                    name.endswith("_raw")):
+                raise ConfigError(
+                    f"[model] input_drivers must name numeric columns of the input (letters, "
+                    f"digits and _, not a driver levgap builds or a key column); got {name!r}.")
+        if len(set(self.input_drivers)) != len(self.input_drivers):
+            raise ConfigError(f"[model] input_drivers must not repeat a column; got "
+                              f"{list(self.input_drivers)}.")
+        if len(set(self.drivers)) != len(self.drivers):
+            raise ConfigError(f"[model] drivers must not repeat a driver; got "
+                              f"{list(self.drivers)}.")
+
+    @property
+    def absorbs(self) -> tuple[str, ...]:
+        """The effects absorbed, in order (``("industry", "year")``; ``()`` for none)."""
+        return () if self.effects == "none" else tuple(self.effects.split(","))
+
+    @property
+    def all_drivers(self) -> tuple[str, ...]:
+        """The drivers asked for: built ones, then input columns."""
+        return (*self.drivers, *self.input_drivers)
 
 
 @dataclass(frozen=True, slots=True)

@@ -14,9 +14,18 @@ Definitions (DESIGN.md, "Measures and drivers"):
 - ``market_to_book`` = (total_assets - book_equity + market_equity) / total_assets; where
   market equity is missing, the industry-year median, flagged ``mtb_imputed``
 - ``rd_intensity`` = rd_expense / total_assets, missing treated as zero with the indicator
-  driver ``rd_missing`` (common practice)
+  driver ``rd_missing`` (common practice); the indicator is left out when rd_expense is given
+  in every row or in none (it would be constant)
+- ``log_revenue`` = ln(revenue), missing where revenue is not above zero
+- ``dividend_payer`` = 1 where dividends_paid > 0, else 0 (blank: 0, flagged
+  ``dividends_missing``)
+- ``industry_median_leverage`` = leave-one-out median of the measure in the firm's industry
+  (``ModelSpec.industry_digits``) and fiscal year, one column per measure
+  (``industry_median_leverage_<measure>``; the driver column holds the book one)
+- input drivers (``ModelSpec.input_drivers``): numeric input columns as given
 
-Drivers are winsorised within fiscal year at the quantiles of ``ModelSpec.winsorize``.
+Drivers are winsorised within fiscal year at the quantiles of ``ModelSpec.winsorize``, except
+the indicators and the industry median (``levgap.definitions.NOT_WINSORISED``).
 """
 
 from __future__ import annotations
@@ -95,7 +104,9 @@ def build_features(
     f = _identity_columns(data, spec, n)
     _measures(f, data, spec, n)
     raw, drivers, notes = raw_drivers(data, f, spec, n, keep_all=transforms is not None)
-    group, years = f["effect_group"].to_numpy(dtype=object), f["fiscal_year"].to_numpy()
+    # imputation medians are by industry (at the effect's level) whatever the effects absorb
+    group = peer_group(f["industry"], spec.industry_digits).to_numpy(dtype=object)
+    years = f["fiscal_year"].to_numpy()
     learned = transforms is None
     if transforms is None:
         transforms = learn(raw, drivers, group, years, spec.winsorize)
@@ -107,8 +118,25 @@ def build_features(
         f[name + "_raw"] = raw[name]
     f["flags"] = add_flag(f["flags"], clipped, "winsorised" if learned
                           else "outside_fitted_range")
+    lagged = list(drivers)
+    if "industry_median_leverage" in drivers:
+        from levgap.derived import industry_median_columns
+
+        columns, imputed_any = industry_median_columns(f, spec)
+        for col, v in columns.items():
+            f[col] = v
+            if col not in lagged:
+                lagged.append(col)
+        f["industry_median_leverage_raw"] = f["industry_median_leverage"]
+        f["median_group"] = peer_group(f["industry"], spec.industry_digits)
+        f["flags"] = add_flag(f["flags"], imputed_any, "industry_median_imputed")
+    for name in ("dividend_payer",):
+        if name in drivers:
+            f["flags"] = add_flag(f["flags"], np.isnan(f[name + "_raw"].to_numpy()),
+                                  "dividends_missing")
+            f[name] = np.nan_to_num(f[name].to_numpy(), nan=0.0)
     if spec.lag_drivers:
-        lag_rows(f, drivers)
+        lag_rows(f, lagged)
     levels = industry_levels(f["effect_group"], f["firm_id"], spec.min_industry_firms,
                              parents)
     f["flags"] = add_flag(f["flags"], levels.small[levels.codes], "industry_effect_pooled")
@@ -128,7 +156,9 @@ def _identity_columns(data: pd.DataFrame, spec: ModelSpec, n: int) -> pd.DataFra
             "flags": _text(data, "flags", n),
         }
     )
-    f["effect_group"] = peer_group(f["industry"], spec.industry_digits)
+    # without industry effects every row shares one level: the fits absorb nothing for it
+    f["effect_group"] = (peer_group(f["industry"], spec.industry_digits)
+                         if "industry" in spec.absorbs else WHOLE_SAMPLE)
     f["peer_group"] = peer_group(f["industry"], spec.peer_digits)
     return f
 
@@ -183,11 +213,31 @@ def raw_drivers(
         missing = np.isnan(rd)
         raw["rd_intensity"] = np.where(missing, 0.0, rd) / assets
         raw["rd_missing"] = missing.astype(float)
-        drivers.append("rd_missing")
+        if keep_all or missing.any() and not missing.all():
+            # constant (rd_expense in every row or none): no use
+            drivers.insert(drivers.index("rd_intensity") + 1, "rd_missing")
+    if "log_revenue" in spec.drivers:
+        revenue = _num(data, "revenue", n)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            raw["log_revenue"] = np.where(revenue > 0, np.log(np.where(revenue > 0, revenue,
+                                                                       1.0)), np.nan)
+    if "dividend_payer" in spec.drivers:
+        paid = _num(data, "dividends_paid", n)
+        with np.errstate(invalid="ignore"):
+            raw["dividend_payer"] = np.where(np.isnan(paid), np.nan, (paid > 0).astype(float))
+    if "industry_median_leverage" in spec.drivers:
+        # a placeholder with the right missingness; the values, one column per measure, are
+        # set after the transforms (industry medians are not winsorised)
+        raw["industry_median_leverage"] = np.zeros(n)
+    for name in spec.input_drivers:
+        raw[name] = _num(data, name, n)
+        drivers.append(name)
     notes = []
     why = {
         "earnings_volatility": "no firm has the three fiscal years of history it needs",
         "market_to_book": "no row has market_equity (or shares_outstanding and share_price)",
+        "log_revenue": "no row has revenue above zero",
+        "dividend_payer": "no row has dividends_paid",
     }
     for name in list(drivers):
         if not keep_all and np.isnan(raw[name]).all():
@@ -199,12 +249,14 @@ def raw_drivers(
 
 
 def lag_rows(f: pd.DataFrame, drivers: list[str]) -> None:
-    """Replace each driver by the firm's value in the previous fiscal year (NaN if absent)."""
+    """Replace each driver by the firm's value in the previous fiscal year (NaN if absent);
+    ``has_prior_year`` says which rows found that year."""
     here = pd.MultiIndex.from_arrays([f["firm_id"], f["fiscal_year"]])
     prev = pd.MultiIndex.from_arrays([f["firm_id"], f["fiscal_year"] - 1])
     pos = here.get_indexer(prev)
     found = pos >= 0
-    for name in [*drivers, *(d + "_raw" for d in drivers if d + "_raw" in f)]:
+    f["has_prior_year"] = found
+    for name in dict.fromkeys([*drivers, *(d + "_raw" for d in drivers if d + "_raw" in f)]):
         values = f[name].to_numpy()
         f[name] = np.where(found, values[np.where(found, pos, 0)], np.nan)
 

@@ -18,12 +18,6 @@ from levgap.features import add_flag
 from levgap.panel import EXCLUSION_COLUMNS
 
 
-def measure_ledger(frame: pd.DataFrame, mask: np.ndarray, measure: str) -> pd.DataFrame:
-    return row_ledger(frame, mask, measure, "no_market_equity",
-                       "market leverage needs market_equity (or shares_outstanding and "
-                       "share_price); the row is used for book leverage only")
-
-
 def row_ledger(
     frame: pd.DataFrame, mask: np.ndarray, measure: str, reason: str, detail: str
 ) -> pd.DataFrame:
@@ -126,6 +120,24 @@ def coef_frame(fit: Any, measure: str, model: str) -> pd.DataFrame:
     df = df[df["term"] != "const"]
     df.insert(0, "model", model)
     df.insert(0, "measure", measure)
-    return df.reset_index(drop=True)[list(COEF_COLUMNS)]
+    return with_signs(df.reset_index(drop=True)[list(COEF_COLUMNS)])
+
+
+SIGN_COLUMNS = ("expected_sign", "agrees", "sign_source")
+"""The theory check of ``coefficients.csv`` (``levgap.definitions``)."""
+
+
+def with_signs(df: pd.DataFrame) -> pd.DataFrame:
+    """Add each term's expected sign, whether the estimate agrees, and the sign's source."""
+    from levgap.definitions import agrees, expected
+
+    df = df.copy()
+    signs = [expected(str(t), str(m)) for t, m in zip(df["term"], df["measure"], strict=True)]
+    df["expected_sign"] = pd.Series([s for s, _ in signs], index=df.index, dtype=object)
+    df["agrees"] = pd.Series([agrees(str(t), float(e)) for t, e in
+                              zip(df["term"], df["estimate"], strict=True)], index=df.index,
+                             dtype=object)
+    df["sign_source"] = pd.Series([src for _, src in signs], index=df.index, dtype=object)
+    return df
 
 

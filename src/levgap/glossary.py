@@ -112,6 +112,29 @@ TERMS: dict[str, Term] = {
     "std_error": Term("standard error", "", "cluster-robust standard error"),
     "ci": Term("95% interval", "", "95% confidence interval"),
     "p_value": Term("p", "", "two-sided p-value"),
+    "expected_sign": Term("expected sign", "", "the direction of the driver's effect on "
+                          "leverage that the literature reports"),
+    "agrees": Term("agrees", "", "yes when the estimate has the expected sign, no when not"),
+    "sign_source": Term("sign source", "", "where the expected sign comes from"),
+    # replication: the regression table, Fama-MacBeth, the speed of adjustment
+    "industry_effects": Term("industry effects", "", "industries whose effect was absorbed: "
+                             "with an effect of their own, and pooled toward a parent group"),
+    "year_effects": Term("year effects", "", "fiscal years whose effect was absorbed"),
+    "firm_effects": Term("firm effects", "", "firms whose own effect was absorbed (within "
+                         "transformation)"),
+    "drivers_dated": Term("drivers dated", "", "t: the drivers of the same fiscal year; t-1: "
+                          "of the previous one ([model] lag_drivers)"),
+    "estimator": Term("estimator", "", "how the coefficients were estimated"),
+    "errors": Term("standard errors", "", "how the standard errors were computed: the "
+                   "clustering, or the time series of Fama-MacBeth's yearly slopes"),
+    "n_years": Term("years averaged", "years", "Fama-MacBeth: the fiscal years whose "
+                    "cross-sections a slope averages"),
+    "speed": Term("speed of adjustment", "", "share of the gap to target a firm closes in a "
+                  "year"),
+    "half_life": Term("half-life", "years", "years until half of a gap is closed: "
+                      "ln(0.5) / ln(1 - speed)"),
+    "bias": Term("bias", "", "the direction the literature finds an estimator biased, or "
+                 "corrected"),
     # steps from the peer median to the actual ratio
     "step": Term("step", "", "a step of the bridge from peer median to actual"),
     "peers_offset": Term("peers' offset", "pp", "peer target minus peer median"),
@@ -126,8 +149,67 @@ TERMS: dict[str, Term] = {
     # ledger
     "excluded": Term("excluded", "", "rows left out of every measure, with their reason"),
     "excluded_measure": Term("excluded from one measure", "", "rows used for one measure only"),
+    # the deal check (proforma.csv, its page and the terminal)
+    "scenario": Term("scenario", "", "a deal scenario, or before: the firm as it is"),
+    "capacity_to_target_recap": Term(
+        "debt to target (recapitalisation)", "money", "change in debt that brings the "
+        "scenario to its target when debt replaces equity (book: assets fixed; market: debt "
+        "plus market equity fixed)"),
+    "capacity_to_band_top_recap": Term(
+        "debt to band top (recapitalisation)", "money", "the same, to the top of the band"),
+    "capacity_to_target_funded": Term(
+        "debt to target (debt funds new assets)", "money", "change in debt that brings the "
+        "scenario to its target when the new debt buys assets in the firm's mix"),
+    "capacity_to_band_top_funded": Term(
+        "debt to band top (debt funds new assets)", "money", "the same, to the top of the band"),
+    "net_debt_to_ebitda": Term("net debt / EBITDA", "", "debt less cash, over EBITDA"),
+    "debt_to_ebitda": Term("debt / EBITDA", "", "total debt over EBITDA"),
+    "ebitda_to_interest": Term("EBITDA / interest", "", "EBITDA over interest expense"),
+    "altman_score": Term("Altman score", "", "Altman Z (or Z'' without market equity), its "
+                         "model and zone"),
+    "asset_value": Term("asset value (Merton)", "money", "market value of the firm's assets "
+                        "in the Merton model"),
+    "asset_volatility": Term("asset volatility", "%", "annual volatility of the asset value, "
+                             "with its source"),
+    "distance_to_default": Term("distance to default", "", "standard deviations of asset "
+                                "value between the assets and the default point"),
+    "default_probability": Term("default probability, 1 year", "%", "the Merton model's "
+                                "probability of default within a year"),
+    "tax_shield_pv": Term("tax shield PV", "money", "present value of the tax saved by the "
+                          "debt (with personal taxes where the scenario gives them)"),
+    "expected_distress_cost": Term("expected distress cost", "money", "default probability "
+                                   "times the distress cost share times firm value"),
+    "tradeoff_best_debt": Term("trade-off best debt", "money", "the debt, on a grid to twice "
+                               "the band top, where tax shield less distress cost is largest"),
+    "total_debt": Term("total debt", "money"),
+    "total_assets": Term("total assets", "money"),
+    "debt_now": Term("debt now", "money"),
+    "debt_at_target": Term("debt at the target (recapitalisation)", "money"),
+    "debt_at_band_top": Term("debt at the band's top (recapitalisation)", "money"),
+    # models compared (levgap compare)
+    "model": Term("model", "", "the model fitted: linear, fractional logit or the "
+                  "gradient-boosting benchmark"),
+    "outside_unit_interval": Term("targets outside [0, 1]", "%", "share of targets below 0 or "
+                                  "above 1"),
+    "fit_seconds": Term("seconds", "", "seconds the fit took"),
 }
 """Every term users see, by key (output columns use their column name as key)."""
+
+def _cap(text: str) -> str:
+    return text[:1].upper() + text[1:]
+
+
+STATEMENT: dict[str, str] = {
+    "total_assets": _cap(TERMS["total_assets"].label),
+    "total_debt": _cap(TERMS["total_debt"].label), "book_equity": "Book equity",
+    "market_equity": "Market equity", "cash": "Cash", "ppe_net": "PP&E, net",
+    "ebitda": "EBITDA", "ebit": "EBIT", "revenue": "Revenue",
+    "interest_expense": "Interest expense", "current_assets": "Current assets",
+    "current_liabilities": "Current liabilities", "total_liabilities": "Total liabilities",
+    "retained_earnings": "Retained earnings", "rd_expense": "R&D expense",
+    "goodwill": "Goodwill added",
+}
+"""Statement lines of the deal check as its page names them."""
 
 CLUSTERS: dict[str, str] = {"firm": "firm", "firm-year": "firm and year (two-way)",
                             "industry": "industry"}
@@ -136,7 +218,28 @@ CLUSTERS: dict[str, str] = {"firm": "firm", "firm-year": "firm and year (two-way
 MEASURES: dict[str, str] = {"book": "book leverage", "market": "market leverage"}
 """Each measure's name."""
 
+ESTIMATORS: dict[str, str] = {
+    "pooled linear": "pooled OLS",
+    "pooled fractional": "fractional logit",
+    "within": "within (OLS)",
+    "fama-macbeth": "Fama-MacBeth",
+}
+"""What each estimator is called (``estimator`` and, for pooled fits, ``model``)."""
+
+ABSORBED: dict[str, str] = {
+    "industry,year": "industry and year effects are absorbed and not shown",
+    "firm,year": "firm and year effects are absorbed and not shown",
+    "year": "year effects are absorbed and not shown",
+    "none": "no fixed effects are absorbed",
+}
+"""What a specification's ``[model] effects`` absorbed, in words."""
+
 _PLURALS = {"industry": "industries"}  # the others take an "s"
+
+
+def capital(text: str) -> str:
+    """``text`` with its first letter capitalised, for a table's row label or a sentence."""
+    return text[:1].upper() + text[1:]
 
 
 def label(key: str) -> str:

@@ -8,6 +8,7 @@ before ``=``, ``+``, ``-`` or ``@``) matches as it was in the panel. What matche
 from __future__ import annotations
 
 import difflib
+import re
 from collections.abc import Iterable, Sequence
 
 
@@ -39,23 +40,39 @@ def resolve(wanted: str, candidates: Iterable[str]) -> str | None:
     return hits[0] if len(hits) == 1 else None
 
 
+def _numbers(text: str) -> str:
+    """``text`` with each run of digits written without leading zeros (``qx007`` and
+    ``qx0007`` are both ``qx7``)."""
+    return re.sub(r"\d+", lambda m: str(int(m.group())), text)
+
+
 def suggest(wanted: str, candidates: Sequence[str], n: int = 3) -> list[str]:
     """Up to ``n`` candidates close to ``wanted`` (ignoring case), closest first.
+
+    A candidate equal to ``wanted`` but for leading zeros of its numbers comes first; a
+    candidate of several words is also found by one of its words (``motr`` finds
+    ``Motor homes``).
 
     Examples
     --------
     >>> suggest("TR069", ["TR0069", "TR0169", "ZZ9"])
     ['TR0069', 'TR0169']
+    >>> suggest("qx007", ["Qx0207", "Qx0107", "Qx0007"])[0]
+    'Qx0007'
     """
     key = wanted.casefold()
     # only candidates of about the same length can be close: keeps this quick on 100k ids
-    pool = {}
+    near = max(2, len(key) // 3)
+    pool: dict[str, str] = {}
     for c in candidates:
         plain = unneutralise(c)
-        if abs(len(plain) - len(key)) <= max(2, len(key) // 3):
-            pool.setdefault(plain.casefold(), plain)
-    hits = difflib.get_close_matches(key, list(pool), n=n, cutoff=0.6)
-    return [pool[h] for h in hits]
+        folded = plain.casefold()
+        for part in (folded, *(folded.split() if " " in folded else ())):
+            if abs(len(part) - len(key)) <= near:
+                pool.setdefault(part, plain)
+    first = [v for k, v in pool.items() if _numbers(k) == _numbers(key)]
+    hits = difflib.get_close_matches(key, list(pool), n=n + len(first), cutoff=0.6)
+    return list(dict.fromkeys([*first, *(pool[h] for h in hits)]))[:n]
 
 
 def did_you_mean(wanted: str, candidates: Sequence[str]) -> str:

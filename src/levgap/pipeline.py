@@ -43,6 +43,13 @@ from levgap.panel import Panel
 from levgap.peers import LISTED, basis_flags, listed_profile, peer_list_notes
 from levgap.peers import partitions as peer_partitions
 from levgap.recap import RECAP_FLAGS, debt_to_target
+from levgap.specification import (
+    measure_context,
+    missing_drivers,
+    require_targets,
+    specification_record,
+    year_codes,
+)
 
 COVERAGE_MIN_ROWS = 100  # industries with at least this many firm-years in the coverage range
 
@@ -78,6 +85,7 @@ def analyze(
     config: RunConfig | None = None,
     spec: ModelSpec | None = None,
     progress: ProgressFn | None = None,
+    sample: bool = False,
 ) -> Analysis:
     """Estimate targets, gaps, bands and driver contributions for every firm-year.
 
@@ -91,6 +99,8 @@ def analyze(
         Overrides ``config.model``.
     progress : callable, optional
         ``progress(stage, done, total)``, called as the cross-fit proceeds.
+    sample : bool, default=False
+        Also return the estimation sample (``Analysis.sample``, ``levgap.sample``).
 
     Returns
     -------
@@ -98,16 +108,20 @@ def analyze(
     """
     config, panel = _inputs(panel, config, spec)
     spec = config.model
+    require_targets(spec)
     ledger = [panel.exclusions]
     parents = {k: v.parent for k, v in config.industries.items() if v.parent}
     ctx = context(build_features(panel.data, spec, parents=parents), spec, panel.source, ledger)
     fit_fn = MODELS[spec.model]
-    targets, drivers, coefs, folds, fits, records = [], [], [], [], [], {}
+    targets, drivers, coefs, folds, fits, records, used = [], [], [], [], [], {}, {}
     notes = [*panel.warnings, *ctx.feats.notes]
+    base = ctx
     for measure in spec.measures:
+        ctx = measure_context(base, measure)
         rows = measure_rows(ctx, measure, ledger, notes)
         if rows is None:
             continue
+        used[measure] = rows
         step = (lambda d, t, m=measure: progress(f"cross-fit {m}", d, t)) if progress else None
         est = estimate(fit_fn, ctx, rows, measure, spec, step)
         y = ctx.feats.frame[measure].to_numpy(dtype=float)[rows]
@@ -133,10 +147,16 @@ def analyze(
     notes += peer_list_notes(config.peers, ctx.feats.frame["firm_id"])
     manifest = build_manifest(panel, config, ctx.feats, ctx.feats.frame, exclusions, notes,
                               records)
+    manifest["specification"] = specification_record(base, spec, "pooled", used=used)
     manifest["industry_names"] = run_industry_names(ctx.feats, config)
     saved = saved_record(ctx, spec, records, manifest)
     saved["peer_lists"] = {k: list(v) for k, v in config.peers.items()}
-    return Analysis(
+    extra = {}
+    if sample:
+        from levgap.sample import sample_frame
+
+        extra["sample"] = sample_frame(base.feats, used)
+    return Analysis(**extra,
         targets=targets_frame(ctx.feats.frame, targets),
         drivers=drivers_frame(ctx.feats.frame, drivers, ctx.feats.drivers),
         coefficients=pd.concat(coefs, ignore_index=True),
@@ -180,15 +200,21 @@ def context(feats: Features, spec: ModelSpec, source: str, ledger: list) -> Cont
     """Drop rows without lagged drivers (ledgered), check drivers, factorise the codes."""
     frame = feats.frame
     X = frame[list(feats.drivers)].to_numpy(dtype=float)
+    drop = np.zeros(len(frame), dtype=bool)
     if spec.lag_drivers:
-        no_prior = np.isnan(X).any(axis=1)
-        ledger.append(row_ledger(frame, no_prior, "", "no_prior_year",
+        drop = ~frame["has_prior_year"].to_numpy(dtype=bool)
+        ledger.append(row_ledger(frame, drop, "", "no_prior_year",
                                  "lagged drivers need the firm's previous fiscal year"))
-        frame, X = frame.loc[~no_prior].reset_index(drop=True), X[~no_prior]
+    for _, mask, why in missing_drivers(frame, feats.drivers, spec):
+        mask &= ~drop
+        ledger.append(row_ledger(frame, mask, "", "driver_missing", why))
+        drop |= mask
+    if drop.any():
+        frame, X = frame.loc[~drop].reset_index(drop=True), X[~drop]
         if len(frame) == 0:
-            raise ModelError(f"{source}: lagged drivers need firms observed in two "
-                             "consecutive fiscal years; got none.")
-        levels = replace(feats.levels, codes=feats.levels.codes[~no_prior])
+            raise ModelError(f"{source}: every row lacks a driver it needs (lagged drivers "
+                             "need the firm's previous fiscal year; see the exclusions).")
+        levels = replace(feats.levels, codes=feats.levels.codes[~drop])
         feats = replace(feats, frame=frame, levels=levels)
     bad = ~np.isfinite(X)
     if bad.any():
@@ -249,7 +275,7 @@ def estimate(
     """Full-sample fit (with pooled small industries) and the grouped cross-fit."""
     y = ctx.feats.frame[measure].to_numpy(dtype=float)[rows]
     X, level, firm = ctx.X[rows], ctx.level[rows], ctx.firm[rows]
-    effects = [level, ctx.year[rows]]
+    effects = [level, year_codes(spec, ctx.year[rows])]
     n_levels = [len(ctx.feats.levels.labels), len(ctx.years)]
     names = ctx.feats.drivers
     clusters = {"firm": (firm,), "firm-year": (firm, ctx.year[rows]),
@@ -368,11 +394,15 @@ def frame_years(ctx: Context, rows: np.ndarray) -> np.ndarray:
 
 
 def raw_values(ctx: Context, rows: np.ndarray) -> np.ndarray:
-    """Each driver's value before winsorising, where winsorising changed it (else NaN)."""
+    """Each driver's value before winsorising, where winsorising changed it (else NaN); none
+    for drivers left as built (``NOT_WINSORISED``: the industry median leverage, whose column
+    differs by measure, and indicators)."""
+    from levgap.definitions import NOT_WINSORISED
+
     frame = ctx.feats.frame
     out = np.full((len(rows), len(ctx.feats.drivers)), np.nan)
     for j, name in enumerate(ctx.feats.drivers):
-        if name + "_raw" in frame:
+        if name + "_raw" in frame and name not in NOT_WINSORISED:
             raw = frame[name + "_raw"].to_numpy(dtype=float)[rows]
             used = ctx.X[rows, j]
             clipped = np.isfinite(raw) & (raw != used)
@@ -415,7 +445,7 @@ def out_of_time(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, meas
     if not train.any() or len(np.unique(ctx.firm[rows][train])) < 2:
         return float("nan"), None
     sub = rows[train]
-    effects = [ctx.level[sub], ctx.year[sub]]
+    effects = [ctx.level[sub], year_codes(spec, ctx.year[sub])]
     pooling = None
     if est.components is not None:
         structure = ctx.feats.levels.structure()
@@ -431,7 +461,7 @@ def out_of_time(fit_fn: Callable[..., Fit], ctx: Context, rows: np.ndarray, meas
     band = bands.calibrate(y[train] - est.cf.target[train], ctx.level[sub],
                            len(ctx.feats.levels.labels), spec.coverage, spec.band_prior_rows)
     test = rows[~train]
-    target = past.predict(ctx.X[test], [ctx.level[test], ctx.year[test]])
+    target = past.predict(ctx.X[test], [ctx.level[test], year_codes(spec, ctx.year[test])])
     low, high = band.limits(target, ctx.level[test])
     inside = (y[~train] >= low) & (y[~train] <= high)
     return float(inside.mean()), int(ctx.years[last])

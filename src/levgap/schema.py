@@ -121,4 +121,6 @@ DRIVERS: tuple[str, ...] = (
     "size",
     "market_to_book",
 )
-OPTIONAL_DRIVERS: tuple[str, ...] = ("rd_intensity",)
+OPTIONAL_DRIVERS: tuple[str, ...] = ("rd_intensity", "log_revenue", "industry_median_leverage",
+                                     "dividend_payer")
+"""Drivers a run adds on request; ``levgap.definitions`` says how each is built."""

@@ -17,6 +17,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from levgap.definitions import NOT_WINSORISED
+
 IMPUTED: dict[str, str] = {
     "earnings_volatility": "volatility_imputed",
     "market_to_book": "mtb_imputed",
@@ -157,7 +159,7 @@ def learn(
     limits: dict[str, np.ndarray] = {}
     if lo > 0.0 or hi < 1.0:
         for name in drivers:
-            if name == "rd_missing":
+            if name in NOT_WINSORISED:
                 continue
             values = raw[name]
             if name in medians:

@@ -16,7 +16,8 @@ from levgap.cli.common import err
 
 __all__ = ["app", "main"]
 
-COMMAND_MODULES = ("run", "screening", "explaining", "results", "models", "deal", "opendata")
+COMMAND_MODULES = ("run", "screening", "explaining", "results", "research", "models",
+                   "deal", "opendata")
 """Modules whose commands register on ``app`` when imported, in the order ``--help`` lists."""
 for _module in COMMAND_MODULES:
     import_module(f"levgap.cli.{_module}")

@@ -87,14 +87,11 @@ def explain_change(out_dir: Path, firm_id: str, year: int | None, measure: str, 
                   title_justify="left")
     for col in ("", "before", "after"):
         table.add_column(col, justify="left" if not col else "right")
-    for name, col, fmt in (("total debt", "total_debt", money), ("total assets",
-                           "total_assets", money), ("actual", "actual", pct),
-                           ("target", "target", pct), (g.label("band_low"), "band_low", pct),
-                           (g.label("band_high"), "band_high", pct), ("status", "status", str),
-                           (g.header("gap"), "gap", pp), (g.label("gap_z"), "gap_z", num),
-                           ("debt to band top (recap)", "capacity_to_band_top_recap", money),
-                           ("net debt / EBITDA", "net_debt_to_ebitda", num)):
-        table.add_row(name, fmt(before[col]), fmt(after[col]))
+    for col, fmt in (("total_debt", money), ("total_assets", money), ("actual", pct),
+                     ("target", pct), ("band_low", pct), ("band_high", pct), ("status", str),
+                     ("gap", pp), ("gap_z", num), ("capacity_to_band_top_recap", money),
+                     ("net_debt_to_ebitda", num)):
+        table.add_row(g.header(col), fmt(before[col]), fmt(after[col]))
     c = check.contributions[check.contributions["measure"] == measure]
     for d in dict.fromkeys(c["driver"]):
         b = c[(c["scenario"] == before["scenario"]) & (c["driver"] == d)].iloc[0]

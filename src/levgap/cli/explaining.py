@@ -84,7 +84,8 @@ def explain(
         title = f"{row['firm_id']} {int(row['fiscal_year'])}, {g.MEASURES[measure]}"
         con.print(render_steps(shown, title=plain(title)))
         con.print(render_history(view.history, title=plain(
-            f"{row['firm_id']}, {g.MEASURES[measure]} over {g.count(len(view.history), 'year')}")))
+            f"{row['firm_id']}, {g.MEASURES[measure]} over {g.count(len(view.history), 'year')}"),
+            max_width=con.width))
         if peers:
             _print_peers(con, res, row, measure)
         if plot is not None:
@@ -160,16 +161,28 @@ def _print_peers(con: Any, res: Any, row: Any, measure: str) -> None:
     table = Table(title=plain(f"{g.label('peer_count')} of {row['firm_id']} "
                               f"{int(row['fiscal_year'])} ({peers.basis}): "
                               f"{g.count(len(peers.table), 'firm')}"), title_justify="left")
-    table.add_column(g.label("firm_id"), no_wrap=True)
-    table.add_column(g.label("firm_name"), max_width=24, overflow="ellipsis", no_wrap=True)
-    table.add_column(g.label("actual"), justify="right")
-    for d in drivers:
-        table.add_column(plain(d), justify="right")
-    for r in peers.table.to_dict("records"):
-        table.add_row(plain(r["firm_id"]), plain(r["firm_name"] or ""), g.pct(r["actual"]),
-                      *(g.number(r[d], 3) for d in drivers))
-    table.add_row("median", "", g.pct(peers.median),
-                  *(g.number(peers.table[d].median(), 3) for d in drivers), style="bold")
+    records = peers.table.to_dict("records")
+    body = [[plain(r["firm_id"]), plain(r["firm_name"] or ""), g.pct(r["actual"]),
+             *(g.number(r[d], 3) for d in drivers)] for r in records]
+    body.append(["median", "", g.pct(peers.median),
+                 *(g.number(peers.table[d].median(), 3) for d in drivers)])
+    # ids and numbers are never cut: driver names break after "_" in the header, names
+    # shorten, then go when the terminal has no room for them
+    heads = [g.label("actual"), *(plain(d).replace("_", "_\n") for d in drivers)]
+    widths = [max([len(row[i]) for row in body] + [max(map(len, heads[i - 2].split("\n")))
+                                                    if i >= 2 else len(g.label("firm_id"))])
+              for i in (0, *range(2, len(body[0])))]
+    room = con.width - sum(w + 3 for w in widths) - 4
+    table.add_column(g.label("firm_id"), no_wrap=True, min_width=widths[0])
+    if room >= 8:
+        table.add_column(g.label("firm_name"), max_width=min(room, 24), overflow="ellipsis",
+                         no_wrap=True)
+    else:
+        body = [[row[0], *row[2:]] for row in body]
+    for head, w in zip(heads, widths[1:], strict=True):
+        table.add_column(head, justify="right", min_width=w, overflow="fold")
+    for i, row in enumerate(body):
+        table.add_row(*row, style="bold" if i == len(body) - 1 else None)
     con.print(table)
     con.print(f"{g.label('peer_median')} of the run: {g.pct(peers.peer_median, 2)}; median "
               f"of the peers listed: {g.pct(peers.median, 2)}.")

@@ -51,11 +51,11 @@ def _table(frame) -> object:  # noqa: ANN001 (a pandas frame; pandas is imported
 
     table = Table(title="Models compared on the same folds (out of sample)",
                   title_justify="left")
-    heads = (g.label("measure"), "model", g.label("r2_oos"), g.header("rmse_oos"),
-             g.label("coverage"), g.label("coverage_range"), "targets outside [0, 1]",
-             "seconds")
-    for h in heads:
-        table.add_column(h, justify="left" if h in (g.label("measure"), "model") else "right")
+    keys = ("measure", "model", "r2_oos", "rmse_oos", "coverage", "coverage_range",
+            "outside_unit_interval", "fit_seconds")
+    for key in keys:
+        table.add_column(g.header(key), justify="left" if key in ("measure", "model")
+                         else "right")
     for r in frame.itertuples():
         spread = ("" if r.coverage_industry_min != r.coverage_industry_min else
                   f"{r.coverage_industry_min:.0%}-{r.coverage_industry_max:.0%}")

@@ -1,5 +1,5 @@
-"""Commands that read a results folder: ``report`` and ``table`` (``screen`` and ``explain`` have
-their own modules)."""
+"""Commands that read a results folder: ``report`` (``screen`` and ``explain`` have their own
+modules; ``table`` is in ``levgap.cli.research``)."""
 
 from __future__ import annotations
 
@@ -14,54 +14,20 @@ from levgap.cli.common import echo, guard
 @app.command()
 def report(
     out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
+    accept_edits: bool = typer.Option(
+        False, "--accept-edits",
+        help="Accept tables edited since the run and record them as the run's files."),
 ) -> None:
-    """Rebuild report.html from the outputs in a folder (after editing or copying them).
+    """Rebuild report.html from the outputs in a folder (copied whole, or with tables edited
+    and --accept-edits).
 
     Example: levgap report results/
     """
     with guard():
         from levgap.report.html import build_report
 
-        path = build_report(out_dir)
+        path = build_report(out_dir, accept_edits=accept_edits)
         echo(f"Report written to {path}.")
-
-
-@app.command()
-def table(
-    out_dir: Path = typer.Argument(..., help="Folder written by levgap analyze."),
-    fmt: str = typer.Option("latex", "--format", help="latex, markdown or csv."),
-    digits: int = typer.Option(3, "--digits", min=0, max=8,
-                               help="Decimals of estimates and standard errors."),
-    output: Path = typer.Option(None, "--output", "-o",
-                                help="Write the table to this file instead of printing it."),
-) -> None:
-    """Print the regression table of a run: one column per measure, standard errors in
-    parentheses, significance marks, N, R², fixed effects and clustering.
-
-    Example: levgap table results/ --format latex -o table.tex
-    """
-    with guard():
-        from levgap.report.publication import FORMATS, regression_table
-        from levgap.report.tables import read_outputs
-
-        if fmt not in FORMATS:
-            raise typer.BadParameter(f"must be latex, markdown or csv; got {fmt!r}.",
-                                     param_hint="--format")
-        protected = _refuse_run_files(out_dir, output) if output is not None else []
-        tables, manifest = read_outputs(out_dir, names=["coefficients", "model_fit"])
-        missing = [n for n in ("coefficients", "model_fit") if n not in tables]
-        if missing:
-            raise typer.BadParameter(f"{out_dir} holds no {missing[0]} table.",
-                                     param_hint="DIR")
-        text = regression_table(tables["coefficients"], tables["model_fit"], manifest,
-                                fmt=fmt, digits=digits)
-        if output is None:
-            typer.echo(text, nl=False)
-        else:
-            from levgap.outputs import atomic_write_bytes
-
-            atomic_write_bytes(output, text.encode("utf-8"), inputs=protected)
-            echo(f"Table written to {output}.")
 
 
 def _refuse_run_files(out_dir: Path, target: Path) -> list[Path]:

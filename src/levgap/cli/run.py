@@ -40,6 +40,7 @@ def _run_analysis(
     report: bool,
     quiet: bool,
     year_from: str = "--year",
+    sample: bool = False,
 ) -> tuple[Any, Any]:
     from levgap.analysis import write_analysis
     from levgap.ingest import read_panel
@@ -62,7 +63,7 @@ def _run_analysis(
         )
     show = not quiet and len(panel.data) >= BIG_PANEL
     with progress_bar(show) as bar:
-        result = analyze(panel, config=config, progress=stepper(bar))
+        result = analyze(panel, config=config, progress=stepper(bar), sample=sample)
     inputs = (str(panel_path), *((config.source,) if config.source else ()),
               *(p for p in (config.input.peers, config.input.industry_names) if p))
     # The bar's refresh thread would compete with the writers for the interpreter: it is
@@ -141,7 +142,7 @@ def _print_run(result: Any, committed: Any, top: int) -> None:
         under = m.sort_values("gap").head(top).to_dict(orient="records")
         for title, rows in (("Most over-levered", over), ("Most under-levered", under)):
             con.print(render_table(rows, f"{title} ({g.MEASURES[measure]}, {year})",
-                                   con.width, money))
+                                   con.width, money, fit=over + under))
     if not money:
         con.print(g.money_note(units))
     con.print(_written_line(committed))
@@ -194,6 +195,17 @@ def analyze(
     cluster: str = typer.Option(
         None, "--cluster", help="Clustering of standard errors: firm, firm-year or industry."),
     year: int = typer.Option(None, "--year", help="Report only this fiscal year."),
+    effects: str = typer.Option(None, "--effects",
+                                help="Fixed effects: industry,year (default), year or none "
+                                "(firm effects: levgap estimate)."),
+    industry_digits: int = typer.Option(None, "--industry-digits", min=0,
+                                        help="Industry level: the code's first n characters."),
+    drivers: str = typer.Option(None, "--drivers", help="Drivers, comma-separated (replaces "
+                                "[model] drivers; see levgap estimate --help)."),
+    input_drivers: str = typer.Option(None, "--input-drivers",
+                                      help="Numeric input columns used as further drivers."),
+    sample: bool = typer.Option(False, "--sample",
+                                help="Also write sample.csv: the exact estimation sample."),
     config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
     fmt: str = typer.Option("csv", "--format", help="Table format: csv or parquet."),
     xlsx: bool = typer.Option(False, "--xlsx", help="Also write workbook.xlsx."),
@@ -227,8 +239,12 @@ def analyze(
             changes["model"] = model
         if year is not None:
             changes["year"] = year
+        from levgap.cli.research import spec_changes
+
+        changes.update(spec_changes(effects=effects, industry_digits=industry_digits,
+                                    drivers=drivers, input_drivers=input_drivers))
         if changes:
-            cfg = replace(cfg, model=replace(cfg.model, **changes))
+            cfg = replace(cfg, model=_with_options(cfg.model, changes))
         files = {k: str(v.resolve()) for k, v in (("peers", peers),
                                                   ("industry_names", industry_names)) if v}
         if files:
@@ -236,7 +252,8 @@ def analyze(
         year_from = "--year" if year is not None else f"{config}: [model] year"
         result, committed = _run_analysis(panel, out, config=cfg, fmt=fmt, force=force,
                                           xlsx=xlsx, report=not no_report,
-                                          quiet=quiet or as_json, year_from=year_from)
+                                          quiet=quiet or as_json, year_from=year_from,
+                                          sample=sample)
         if as_json:
             summary = {**_summary(result, out), "run_id": committed.run_id,
                        "written": [p.name for p in committed.written],
@@ -247,13 +264,37 @@ def analyze(
 
 
 
+_OPTION_OF = {"measures": "--measure", "cluster": "--cluster", "model": "--model",
+              "year": "--year"}
+
+
+def _with_options(spec: Any, changes: dict[str, Any]) -> Any:
+    """The model spec with the command line's values, each refusal naming its option (a value
+    from the command line is not said to come from ``[model]`` of a configuration file)."""
+    from dataclasses import replace
+
+    from levgap.errors import ConfigError
+
+    for key, value in changes.items():
+        try:
+            spec = replace(spec, **{key: value})
+        except ConfigError as exc:
+            text = str(exc)
+            head = f"[model] {key} "
+            if text.startswith(head):
+                text = f"{_OPTION_OF.get(key, key)} {text[len(head):]}"
+            raise ConfigError(text) from None
+    return spec
+
+
 @app.command()
 def check(
     panel: Path = typer.Argument(..., help="Panel file (CSV, Parquet or XLSX)."),
     config: Path = typer.Option(None, "--config", help="Run configuration (TOML)."),
     ledger: Path = typer.Option(None, "--ledger", help="Write the exclusion ledger to this CSV."),
 ) -> None:
-    """Validate a panel without fitting anything: what would be used, what excluded, and why.
+    """Validate a panel without fitting anything: what would be used, what excluded, and why
+    (whole rows; `analyze` also leaves rows out of one measure and lists them too).
 
     Example: levgap check panel.csv --ledger exclusions.csv
     """
@@ -287,7 +328,9 @@ def check(
             from levgap.report.tables import write_table
 
             write_table(whole, ledger, inputs=[panel, *([config] if config else [])])
-            con.print(f"Exclusion ledger written to {ledger}.")
+            con.print(f"Exclusion ledger written to {ledger} (whole rows; `analyze` also "
+                      "leaves rows out of one measure, e.g. no_market_equity, and lists them "
+                      "in its exclusions.csv).")
         if len(data) == 0:
             err(f"{panel}: the panel must keep at least one usable row; got none.")
             raise typer.Exit(2)

@@ -96,11 +96,13 @@ def layout(rows: Sequence[dict[str, Any]], width: int, money: str,
 
 
 def render_table(rows: Sequence[dict[str, Any]], title: str, width: int, money: str,
-                 sort: str | None = None) -> Any:
-    """The screen as a rich table no wider than ``width``."""
+                 sort: str | None = None,
+                 fit: Sequence[dict[str, Any]] | None = None) -> Any:
+    """The screen as a rich table no wider than ``width``; with ``fit``, the columns are
+    those that fit these rows (tables printed together then show the same columns)."""
     from rich.table import Table
 
-    cols = layout(rows, width, money, sort)
+    cols = layout(rows if fit is None else fit, width, money, sort)
     table = Table(title=plain(title), title_justify="left", width=None)
     for c, w in cols:
         if c.key == "firm_id":

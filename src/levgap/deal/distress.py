@@ -8,6 +8,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from levgap import glossary as g
 from levgap.deal.merton import (
     AssetValue,
     distance_to_default,
@@ -95,9 +96,9 @@ def distress_at(after: Statement, scenario: Scenario, assets: AssetValue | None,
     debt = after.total_debt
     dd = prob = cost = NAN
     if assets is None:
-        notes.append(f"distance to default: {asset_note}")
+        notes.append(f"{g.label('distance_to_default')}: {asset_note}")
     elif scenario.risk_free_rate is None:
-        notes.append("distance to default: not computable: needs risk_free_rate")
+        notes.append(f"{g.label('distance_to_default')}: not computable: needs risk_free_rate")
     else:
         d2, p = distance_to_default(assets.value, debt, assets.volatility,
                                     scenario.risk_free_rate)

@@ -7,7 +7,10 @@
 - Numbers: the decimal mark is ``[input] decimal``. A thousands mark (``[input] thousands``;
   with ``decimal = ","`` and none given, ``.``) must group digits by three (``1.234.567,8``);
   a cell where it does not (``1.5`` with ``decimal = ","``) is not a number, rather than a
-  guess. Exponents and accounting negatives (``(12.5)``) are read.
+  guess. With a decimal comma a dot is never a decimal point: with another thousands mark
+  (``thousands = " "``) a cell holding a dot (``147.782``, ``.782``) is not a number, and a
+  decimal comma needs a digit after it (``147.782,`` is not a number). Exponents and
+  accounting negatives (``(12.5)``) are read.
 """
 
 from __future__ import annotations
@@ -21,6 +24,8 @@ from levgap.codes import NA_TOKENS
 from levgap.config import InputOptions
 
 NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
+STRICT_NUMBER_RE = r"^[+-]?(\d+(\.\d+)?|\.\d+)([eE][+-]?\d+)?$"
+"""With a decimal comma (turned into ``.`` before this), the mark needs a digit after it."""
 SPACES = (" ", "\u00a0", "\u202f")
 CODE_COLUMNS = ("firm_id", "industry")
 """Text columns holding codes, whose ``3711.0`` is ``3711``."""
@@ -151,17 +156,22 @@ def _parse_text(
         arr = pc.replace_substring_regex(arr, r"^\(\s*(.*?)\s*\)$", r"-\1")
     grouped = pa.scalar(True)
     seps = thousands_marks(options)
+    if options.decimal != "." and "." not in seps:
+        # a decimal comma: a dot is never a decimal point (nor, here, a thousands mark)
+        grouped = pc.invert(pc.match_substring(arr, "."))
     if seps:
         sep, dec = _cls(seps), _cls(options.decimal)
         has_sep = pc.match_substring_regex(arr, sep)
+        frac = r"\d*" if options.decimal == "." else r"\d+"
         well = pc.match_substring_regex(
-            arr, rf"^[+-]?\d{{1,3}}(?:{sep}\d{{3}})+(?:{dec}\d*)?(?:[eE][+-]?\d+)?$")
-        grouped = pc.or_(pc.invert(has_sep), well)
+            arr, rf"^[+-]?\d{{1,3}}(?:{sep}\d{{3}})+(?:{dec}{frac})?(?:[eE][+-]?\d+)?$")
+        grouped = pc.and_(grouped, pc.or_(pc.invert(has_sep), well))
         for s in seps:
             arr = pc.replace_substring(arr, s, "")
     if options.decimal != ".":
         arr = pc.replace_substring(arr, options.decimal, ".")
-    ok = pc.and_(pc.match_substring_regex(arr, NUMBER_RE), grouped)
+    pattern = NUMBER_RE if options.decimal == "." else STRICT_NUMBER_RE
+    ok = pc.and_(pc.match_substring_regex(arr, pattern), grouped)
     nums = pc.cast(pc.if_else(ok, arr, pa.scalar(None, pa.string())), pa.float64())
     values = nums.to_numpy(zero_copy_only=False).astype(np.float64, copy=True)
     blank_np = _bool(blank)

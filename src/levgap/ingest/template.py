@@ -22,6 +22,7 @@ from levgap.codes import (
     SEC_REASONS,
     YEAR_RANGE,
 )
+from levgap.definitions import DRIVERS as DRIVER_INFO
 from levgap.glossary import glossary_markdown
 from levgap.ingest.deal_template import deal_template
 from levgap.schema import COLUMNS, SCHEMA_VERSION, Column
@@ -101,6 +102,8 @@ def template_readme() -> str:
     blanks = ", ".join(f"`{t}`" for t in NA_TOKENS if t) + " and an empty cell"
     sec_reasons = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_REASONS.items())
     sec_flags = "\n".join(f"| `{k}` | {v} |" for k, v in SEC_FLAGS.items())
+    drivers = "\n".join(f"| `{d.name}` | {d.built} | {d.sign or '-'} | {d.source or '-'} |"
+                        for d in DRIVER_INFO.values())
     return f"""# levgap input template (schema v{SCHEMA_VERSION})
 
 `panel_template.csv` shows the layout levgap reads: one row per firm and fiscal year,
@@ -113,7 +116,9 @@ Files may be CSV (comma, semicolon, tab or `|` separated; UTF-8 with or without 
 or XLSX (the first sheet, or `[input] sheet`; formulas are read as the values the spreadsheet
 program last computed and saved). Headers may differ from the column names below
 in case, spaces, `-` and `_` (`Total Assets` matches `total_assets`); other headers are mapped
-in `[columns]` of `run.toml`. Columns that are not in the schema are ignored (and listed in
+in `[columns]` of `run.toml` (a header named there matches exactly, else regardless of case
+and surrounding spaces: `total_debt = "total debt"` finds ` Total Debt `). Columns that are
+not in the schema are ignored (and listed in
 `run.json`).
 
 ## Columns
@@ -136,8 +141,12 @@ currency; outputs are in that unit.
   mark is read only where `[input] thousands` gives one (a space there also accepts no-break
   spaces) or, with `decimal = ","`, as `.` when none is given; it must group the digits by
   three: with `decimal = ","`, `147.782` is 147782 and `1.234.567,8` is 1234567.8, while
-  `1.5` is not a number (the row is excluded as `non_numeric`) rather than a guess. With
-  the default `decimal = "."`, `147.782` is 147.782 and `1,5` is not a number. Exponents
+  `1.5` is not a number (the row is excluded as `non_numeric`) rather than a guess. With a
+  decimal comma a dot is never a decimal point: with another thousands mark (`thousands =
+  " "`) a value holding a dot (`147.782`, `1.5`, `.782`) is not a number, and a decimal
+  comma needs a digit after it (`147.782,` is not a number). With the default `decimal =
+  "."`, `147.782` is 147.782 and `1,5` is not a number. `decimal` is `.` or `,`;
+  `thousands` is one of `.`, `,`, a space (or a no-break space) and `'`. Exponents
   (`1.5e3`) and accounting negatives (`(12.5)` is -12.5) are accepted; currency signs and
   `%` are not.
 - Blank values: {blanks} (case ignored) are read as a blank, not as text, in every column:
@@ -153,6 +162,17 @@ currency; outputs are in that unit.
   otherwise counts as 1.
 - Money after `[units] scale` and `fx_rate` must stay within +/-1e300 (ratios and sums of
   larger values overflow); a row beyond it is excluded (`money_overflow`).
+
+## Drivers
+
+The model's drivers (`[model] drivers`; the first five are the default), how each is built,
+and the sign the literature reports (written beside every estimate in `coefficients.csv` as
+`expected_sign`, `agrees` and `sign_source`). `[model] input_drivers` adds numeric columns of
+your file as further drivers, as given.
+
+| driver | built as | expected sign | source |
+|---|---|---|---|
+{drivers}
 
 ## What happens to each row
 
@@ -307,7 +327,13 @@ industry_digits = 0            # industry effect: 0 code as given; n: its first 
 peer_digits = 0                # peers (attribution): 0 code as given; n: first n characters
 min_peers = 5                  # a peer median on fewer peers is flagged few_peers
 drivers = ["tangibility", "profitability", "earnings_volatility", "size", "market_to_book"]
-                               # also available: "rd_intensity"
+                               # also: "rd_intensity", "log_revenue", "dividend_payer",
+                               # "industry_median_leverage" (needs effects = "year" or "none")
+input_drivers = []             # numeric columns of your file used as drivers, as given
+effects = "industry,year"      # "industry,year", "year", "none"; "firm,year": levgap estimate
+estimator = "pooled"           # "pooled"; "fama-macbeth": levgap estimate
+fm_errors = "newey-west"       # Fama-MacBeth standard error: "newey-west" or "plain"
+# nw_lags = 2                  # Newey-West lags; default floor(4 (T/100)^(2/9)), at most T - 1
 leases_as_debt = false         # add lease_liabilities to total_debt
 folds = 5                      # grouped cross-fit folds (by firm)
 seed = 0                       # seed of the fold assignment

@@ -118,7 +118,9 @@ def validate_panel(
     notes = list(notes)
     names = resolve_columns(headers, config.columns, source)
     derived = {"source_row", "flags"}
-    ignored = [h for h in headers if h not in set(names.values()) and h not in derived]
+    extra_heads = input_driver_headers(headers, names, config.model.input_drivers, source)
+    ignored = [h for h in headers if h not in set(names.values()) and h not in derived
+               and h not in extra_heads.values()]
     if ignored:
         notes.append(f"columns not in schema v1 were ignored: {_listing(ignored)}")
 
@@ -181,6 +183,8 @@ def validate_panel(
         warn_data(f"{source}: {msg}", stacklevel=3)
 
     data = _kept(text, values, flags, rows, ~excluded, config.units.scale)
+    if extra_heads:
+        data = _input_drivers(data, frame, extra_heads, opts, rows, ~excluded, notes, source)
     exclusions = _ledger(np.flatnonzero(excluded), rows, text, values, bad, reason, details)
     return Panel(
         data=data,
@@ -282,6 +286,62 @@ def resolve_columns(
             "in [columns] of run.toml (see `levgap template`)."
         )
     return found
+
+
+def input_driver_headers(headers: list[str], names: Mapping[str, str],
+                         wanted: Iterable[str], source: str) -> dict[str, str]:
+    """The header of each ``[model] input_drivers`` column that is not a schema column.
+
+    Matched exactly, else regardless of case, spaces, ``-`` and ``_``; a schema column must be
+    in the file. Raises SchemaError naming the column otherwise."""
+    out: dict[str, str] = {}
+    used = set(names.values())
+    for name in wanted:
+        if name in BY_NAME:
+            if name not in names:
+                raise SchemaError(
+                    f"{source}: [model] input_drivers names {name}, which must be a column of "
+                    f"the file; got none. Add it, or drop it from input_drivers.")
+            if BY_NAME[name].kind == "text":
+                raise SchemaError(f"{source}: [model] input_drivers must name numeric columns; "
+                                  f"got the text column {name}.")
+            continue
+        if name in headers:
+            out[name] = name
+            continue
+        cands = [h for h in headers if _norm(h) == _norm(name) and h not in used]
+        if len(cands) != 1:
+            raise SchemaError(
+                f"{source}: [model] input_drivers names {name!r}, which must match one header "
+                f"of the file; got {'several: ' + _listing(cands) if cands else 'none'}. "
+                f"Headers found: {_listing(headers)}.")
+        out[name] = cands[0]
+    return out
+
+
+def _input_drivers(data: pd.DataFrame, frame: pd.DataFrame, heads: Mapping[str, str],
+                   opts: object, rows: np.ndarray, keep: np.ndarray, notes: list[str],
+                   source: str) -> pd.DataFrame:
+    """Add the input-driver columns (as given) to the kept rows; cells that are not numbers
+    become missing, flagged ``invalid_input_driver`` (with a note)."""
+    from levgap.features import add_flag
+
+    idx = np.flatnonzero(keep)
+    data = data.copy()
+    for name, head in heads.items():
+        values, _, bad = parse_numbers(frame[head], opts)  # type: ignore[arg-type]
+        values = np.where(bad | ~np.isfinite(values), np.nan, values)[idx]
+        hit = bad[idx]
+        data[name] = values
+        if hit.any():
+            data["flags"] = add_flag(data["flags"], hit, "invalid_input_driver")
+            shown = ", ".join(str(r) for r in rows[idx][hit][:10])
+            msg = (f"input driver {name} must be a number; {int(hit.sum())} kept row(s) were "
+                   f"not and are treated as missing (rows {shown}); flagged "
+                   "invalid_input_driver")
+            notes.append(msg)
+            warn_data(f"{source}: {msg}", stacklevel=4)
+    return data
 
 
 def _listing(items: Iterable[str], limit: int = 40) -> str:

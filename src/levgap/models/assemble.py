@@ -5,18 +5,12 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
-import scipy.linalg
 
 from levgap.errors import ModelError
 from levgap.models.covariance import sandwich
-from levgap.models.design import (
-    Design,
-    Pooling,
-    check_identified,
-    cho_apply,
-    inverse_rows,
-    solve,
-)
+from levgap.models.design import Design, Pooling
+from levgap.models.identify import check_identified
+from levgap.models.linalg import cho_apply, inverse_rows, solve
 from levgap.models.result import Fit, PooledLevels
 
 
@@ -37,7 +31,7 @@ def prepare(
     n, k = X.shape
     if y.shape != (n,):
         raise ModelError(f"y must have {n} values to match X; got shape {y.shape}.")
-    if not (np.isfinite(y).all() and np.isfinite(X).all()):
+    if not np.isfinite(y).all():  # the drivers are checked as the design is built
         raise ModelError("the model's inputs must be finite; got NaN or infinite values.")
     names = tuple(names) if names is not None else tuple(f"x{j}" for j in range(k))
     if len(names) != k:
@@ -58,7 +52,7 @@ def factorise(design: Design, A: np.ndarray, names: Sequence[str], check: bool) 
     """Cholesky of the normal equations; a singular system gets a message naming drivers."""
     try:
         return solve(A)
-    except (np.linalg.LinAlgError, scipy.linalg.LinAlgError):
+    except np.linalg.LinAlgError:
         if check:
             check_identified(design, names)
         raise ModelError(
@@ -111,8 +105,12 @@ def make_fit(
             vcov = J @ (classical_scale * R[:, : k + 1]) @ J.T
             cov_type = "classical"
         else:
-            U = design.influence_rows(R) * scores[:, None]
-            sw = sandwich(U @ J.T, clusters, lay.n_params)
+            JR = J @ R  # influences on the reported terms
+
+            def sums(codes: Sequence[np.ndarray]) -> list[np.ndarray]:
+                return design.cluster_sums(JR, scores, codes)
+
+            sw = sandwich(sums, clusters, design.n, lay.n_params)
             vcov, n_cl, df_inf, cov_type, notes = (sw.vcov, sw.n_clusters, sw.df_inference,
                                                    sw.cov_type, sw.notes)
     tss = float(((y - y.mean()) ** 2).sum())

@@ -19,7 +19,7 @@ each row's influence on the reported terms is :math:`u_i = (A^{-1})_{r\cdot} z_i
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -47,42 +47,57 @@ def cluster_codes(c: np.ndarray) -> np.ndarray:
     return np.unique(c, return_inverse=True)[1]
 
 
-def meat(U: np.ndarray, codes: np.ndarray, n: int, p: int) -> tuple[np.ndarray, int]:
-    """Clustered outer product of the influences with Stata's small-sample factor."""
-    g = int(codes.max()) + 1
-    S = np.stack([np.bincount(codes, weights=U[:, c], minlength=g) for c in range(U.shape[1])],
-                 axis=1)
+Sums = Callable[[Sequence[np.ndarray]], list[np.ndarray]]
+"""``sums(codes)``: the influences summed within each cluster, one ``(G, m)`` array per code
+array; with no codes, ``[sum_i u_i u_i']`` (``levgap.models.design.Design.cluster_sums``)."""
+
+
+def meat(S: np.ndarray, n: int, p: int) -> tuple[np.ndarray, int]:
+    """Clustered outer product of the cluster sums ``S`` (G x m) with Stata's factor."""
+    g = S.shape[0]
     factor = g / (g - 1) * (n - 1) / (n - p) if g > 1 and n > p else np.nan
     return factor * (S.T @ S), g
 
 
-def sandwich(U: np.ndarray, clusters: Sequence[np.ndarray], n_params: int) -> Sandwich:
-    """Covariance of the reported terms from row influences ``U`` (n x m).
+def influence_meat(U: np.ndarray, codes: np.ndarray, n: int, p: int) -> tuple[np.ndarray, int]:
+    """:func:`meat` from row influences ``U`` (n x m): their sums within each cluster of
+    ``codes`` (for estimators that hold the influences, e.g. ``models.within``)."""
+    g = int(codes.max()) + 1
+    S = np.stack([np.bincount(codes, weights=U[:, c], minlength=g) for c in range(U.shape[1])],
+                 axis=1)
+    return meat(S, n, p)
+
+
+def sandwich(sums: Sums, clusters: Sequence[np.ndarray], n: int, n_params: int) -> Sandwich:
+    r"""Covariance of the reported terms from the rows' influences.
 
     Parameters
     ----------
-    U : numpy.ndarray, shape (n, m)
-        :math:`(A^{-1})_{r\\cdot} z_i e_i` for each row.
+    sums : callable
+        ``sums(codes)`` sums the influences :math:`(A^{-1})_{r\cdot} z_i e_i` within each
+        cluster of each code array (see :data:`Sums`).
     clusters : sequence of arrays
         ``()`` (HC0), one array (one-way) or two arrays (two-way).
+    n : int
+        Observations.
     n_params : int
         Parameters of the fit, for the factor :math:`(N-1)/(N-P)`.
     """
-    n = U.shape[0]
     if len(clusters) > 2:
         raise ModelError(f"clusters must have at most two dimensions; got {len(clusters)}.")
     if not clusters:
-        return Sandwich(U.T @ U, (), n - n_params, "robust")
+        return Sandwich(sums(())[0], (), n - n_params, "robust")
     codes = [cluster_codes(c) for c in clusters]
     if len(codes) == 1:
-        v, g = meat(U, codes[0], n, n_params)
+        v, g = meat(sums(codes)[0], n, n_params)
         n_cl: tuple[int, ...] = (g,)
         cov_type, notes = "cluster", ()
     else:
-        v1, g1 = meat(U, codes[0], n, n_params)
-        v2, g2 = meat(U, codes[1], n, n_params)
         both = cluster_codes(codes[0].astype(np.int64) * (int(codes[1].max()) + 1) + codes[1])
-        v12, _ = meat(U, both, n, n_params)
+        s1, s2, s12 = sums([*codes, both])
+        v1, g1 = meat(s1, n, n_params)
+        v2, g2 = meat(s2, n, n_params)
+        v12, _ = meat(s12, n, n_params)
         v, notes = psd_repair(v1 + v2 - v12)
         n_cl, cov_type = (g1, g2), "cluster2"
     df = min(n_cl) - 1

@@ -12,29 +12,37 @@ rows carry, instead of a dummy, the observation-weighted mix of the parent's mem
 shrinks toward zero with a ridge penalty :math:`\lambda_s u_s^2 / 2` (empirical Bayes, see
 ``levgap.models.pooling``).
 
-:class:`Design` gives the three products every fit needs, each in :math:`O(nK)` per factor:
-``gram(w)`` (:math:`Z'WZ + \Lambda`), ``rmatvec(v)`` (:math:`Z'v`) and ``matvec(theta)``
-(:math:`Z\theta`). Drivers are centred inside the design (reported coefficients are not), which
-keeps the equilibrated normal equations well conditioned. :func:`solve_refined` solves them by
-Cholesky and corrects the solution with residuals computed from the data (iterative
-refinement), so that accuracy follows the condition number of :math:`Z`, not its square: the
-fit matches a singular-value least-squares solve for condition numbers up to about 1e7.
+:class:`Design` gives the products every fit needs: ``gram(w)`` (:math:`Z'WZ + \Lambda`),
+``rmatvec(v)`` (:math:`Z'v`), both at once in one pass over the rows
+(``normal_equations``), ``matvec(theta)`` (:math:`Z\theta`) and the clustered sums of the
+rows' influences (``cluster_sums``, for sandwich covariances). Drivers are centred inside the
+design (reported coefficients are not), which keeps the equilibrated normal equations well
+conditioned (solved in ``levgap.models.linalg``).
+
+How the sums are taken (the speed of every fit rests on it): the drivers are held column by
+column (a ``(k, n)`` array, so each driver is one contiguous run of memory), and every row's
+levels of all factors are combined into one *cell* code (the combinations present, e.g.
+industry x year). Weighted sums per cell, one ``np.bincount`` per driver over a table that
+stays in cache, give every factor's sums and the factors' cross-tabulation by summing over
+cells. The rows are visited in blocks that stay in cache while the weights, the drivers' cross
+products and the cell sums are taken from them, so each pass reads the drivers from memory
+once, whatever the number of rows.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.linalg
 
 from levgap.errors import ModelError
 
-IDENTIFIED_TOL = 1e-10
-"""A driver whose variance left after the effects is below this share of its own is absorbed."""
-COLLINEAR_TOL = 1e-9
-"""Smallest singular value (columns scaled to unit length) below which drivers are collinear."""
+BLOCK = 1 << 15
+"""Rows per block of a pass (about 1 MB of five drivers: stays in the processor's cache)."""
+FLAT_TOL = 1e-10
+"""A driver whose standard deviation is below this share of its largest absolute value is
+constant (up to rounding)."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -86,21 +94,68 @@ def compress(codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     the same factor is compressed for every cross-fit fold.
     """
     codes = np.asarray(codes)
-    own = codes >= 0
-    if not own.any():
-        return np.empty(0, dtype=np.int64), np.full(len(codes), -1, dtype=np.intp)
+    if not len(codes):
+        return np.empty(0, dtype=np.int64), np.empty(0, dtype=np.intp)
+    low = int(codes.min())
+    if low < 0:
+        own = codes >= 0
+        if not own.any():
+            return np.empty(0, dtype=np.int64), np.full(len(codes), -1, dtype=np.intp)
+        levels, inv = compress(codes[own])
+        out = np.full(len(codes), -1, dtype=np.intp)
+        out[own] = inv
+        return levels, out
     top = int(codes.max()) + 1
     if top > 4 * len(codes) + 1024:  # sparse, huge codes: sorting is cheaper than a table
-        levels, inverse = np.unique(codes[own], return_inverse=True)
-        inv = np.full(len(codes), -1, dtype=np.intp)
-        inv[own] = inverse
-        return levels, inv
-    counts = np.bincount(codes[own], minlength=top)
+        levels, inverse = np.unique(codes, return_inverse=True)
+        return levels, inverse.astype(np.intp, copy=False)
+    counts = np.bincount(codes, minlength=top)
     levels = np.flatnonzero(counts)
+    if len(levels) == top:  # already dense: 0 .. top - 1
+        return levels, codes.astype(np.intp, copy=False)
     lookup = np.full(top, -1, dtype=np.intp)
     lookup[levels] = np.arange(len(levels))
-    inv = np.where(own, lookup[np.where(own, codes, 0)], -1)
-    return levels, inv
+    return levels, lookup[codes]
+
+
+def _cells(n: int, local: Sequence[np.ndarray], sizes: Sequence[int]
+           ) -> tuple[np.ndarray, list[np.ndarray], np.ndarray]:
+    """One code per row for its combination of levels (combinations present only), the level
+    of each factor in each cell, and the rows in each cell."""
+    cell = np.zeros(n, dtype=np.intp)
+    n_cells, renumbered = 1, False
+    for inv, size in zip(local, sizes, strict=True):
+        cell *= size
+        cell += inv
+        n_cells *= size
+        if n_cells > 4 * n + 1024:  # keep the codes small: renumber the combinations present
+            levels, cell = compress(cell)
+            n_cells, renumbered = len(levels), True
+    counts = np.bincount(cell, minlength=n_cells)
+    present = np.flatnonzero(counts)
+    lookup = np.full(n_cells, -1, dtype=np.intp)
+    lookup[present] = np.arange(len(present))
+    cell = lookup[cell]
+    if renumbered:  # read each cell's levels back from any of its rows
+        row = np.zeros(len(present), dtype=np.intp)
+        row[cell] = np.arange(n)
+        return cell, [inv[row].astype(np.intp) for inv in local], counts[present]
+    out, rest = [], present
+    for size in reversed(sizes):  # the code is a mixed-radix number of the levels
+        rest, level = np.divmod(rest, size)
+        out.append(level.astype(np.intp))
+    return cell, out[::-1], counts[present]
+
+
+def _count(out: np.ndarray, U: np.ndarray, codes: np.ndarray, ordered: bool) -> None:
+    """Add each row of ``U`` (m x rows) into ``out`` (m x G) at the rows' cluster codes."""
+    lo, g = 0, out.shape[1]
+    if ordered:  # sorted codes: only the clusters between the block's first and last row
+        lo = int(codes[0])
+        g = int(codes[-1]) - lo + 1
+        codes = codes - lo
+    for j in range(U.shape[0]):
+        out[j, lo : lo + g] += np.bincount(codes, weights=U[j], minlength=g)
 
 
 class Design:
@@ -122,12 +177,15 @@ class Design:
         X = np.asarray(X, dtype=float)
         n, k = X.shape
         self.n, self.k = n, k
-        self.center = X.mean(axis=0) if n else np.zeros(k)
-        self.magnitude = np.abs(X).max(axis=0) if n else np.zeros(k)
-        W = np.empty((n, k + 1))
-        W[:, 0] = 1.0
-        W[:, 1:] = X - self.center
-        self.W = W
+        # centred drivers, one contiguous row per driver
+        XT = np.array(X.T, order="C")  # a copy: centred in place below
+        self.center = XT.mean(axis=1) if n else np.zeros(k)
+        high, low = (XT.max(axis=1), XT.min(axis=1)) if n else (np.zeros(k), np.zeros(k))
+        if not (np.isfinite(high).all() and np.isfinite(low).all()):  # NaN shows here too
+            raise ModelError("the model's inputs must be finite; got NaN or infinite values.")
+        self.magnitude = np.maximum(high, -low)
+        XT -= self.center[:, None]
+        self.XT = XT
         codes = [np.asarray(c) for c in effects]
         for c in codes:
             if c.shape != (n,) or (c.size and c.min() < 0):
@@ -165,31 +223,48 @@ class Design:
         self.dev_codes = dev_codes
         self.dev_local = dev_local
         self.codes = codes
-        self.sparse = ~dense
-        self._sl = [inv[self.sparse] if self.any_dense else inv for inv in self.local]
-        self._pairs = self._pair_codes()
-        self.counts = [np.bincount(inv[inv >= 0], minlength=s).astype(float)
-                       for inv, s in zip(self.local, sizes, strict=True)]
+        # rows with levels of their own (all rows without pooled levels) and their cells
+        self._rows = np.flatnonzero(~dense) if self.any_dense else None
+        sub = (lambda a: a[..., self._rows]) if self.any_dense else (lambda a: a)
+        self._XT = sub(XT)
+        self._cell, self._cell_levels, cell_rows = _cells(
+            self._XT.shape[1], [sub(inv) for inv in self.local], sizes)
+        self.n_cells = len(cell_rows)
+        self.counts = [np.bincount(lv, weights=cell_rows, minlength=s).astype(float)
+                       for lv, s in zip(self._cell_levels, sizes, strict=True)]
+        if self.any_dense:  # the pooled rows' own levels of the other factors
+            for j in range(1, len(sizes)):
+                inv = self.local[j][dense]
+                self.counts[j] += np.bincount(inv, minlength=sizes[j])
+        self._block = max(BLOCK, 8 * self.n_cells)
+        self._unweighted: tuple[np.ndarray, ...] | None = None
         self.Zd = self._dense_rows() if self.any_dense else None
         penalty = np.zeros(self.layout.n_params)
         if len(dev_codes):
             penalty[offset:] = pooling.penalty[dev_codes]  # type: ignore[union-attr]
         self.penalty = penalty
 
-    def flat(self) -> np.ndarray:
-        """Drivers constant across rows up to rounding (spread below 1e-10 of their size)."""
-        spread = np.sqrt(np.einsum("ij,ij->j", self.W[:, 1:], self.W[:, 1:]) / max(self.n, 1))
+    @property
+    def W(self) -> np.ndarray:
+        """The constant and the centred drivers as an ``(n, k + 1)`` array (a copy)."""
+        W = np.empty((self.n, self.k + 1))
+        W[:, 0] = 1.0
+        W[:, 1:] = self.XT.T
+        return W
+
+    def flat(self, gram: np.ndarray | None = None) -> np.ndarray:
+        """Drivers constant across rows up to rounding (spread below 1e-10 of their size).
+
+        ``gram``: the unweighted :meth:`gram`, whose diagonal holds the drivers' sums of
+        squares (saves a pass over the rows)."""
+        if gram is None:
+            squares = np.einsum("ij,ij->i", self.XT, self.XT)
+        else:
+            squares = np.diag(gram)[1 : self.k + 1]
+        spread = np.sqrt(squares / max(self.n, 1))
         return np.flatnonzero(spread <= FLAT_TOL * np.maximum(self.magnitude, 1e-300))
 
     # -- structure ------------------------------------------------------------------------
-
-    def _pair_codes(self) -> list[tuple[int, int, np.ndarray]]:
-        pairs = []
-        sizes = self.layout.sizes
-        for a in range(len(self._sl)):
-            for c in range(a + 1, len(self._sl)):
-                pairs.append((a, c, self._sl[a] * sizes[c] + self._sl[c]))
-        return pairs
 
     def parent_mix(self, counts: np.ndarray | None = None) -> np.ndarray:
         """Weights over the present own levels of factor 0 that make up each parent's effect.
@@ -211,7 +286,10 @@ class Design:
         p = self.pooling
         assert p is not None
         rows = np.flatnonzero(self.dense)
-        blocks = [self.W[rows]]
+        lead = np.empty((len(rows), self.k + 1))
+        lead[:, 0] = 1.0
+        lead[:, 1:] = self.XT[:, rows].T
+        blocks = [lead]
         for j, (inv, size) in enumerate(zip(self.local, self.layout.sizes, strict=True)):
             block = np.zeros((len(rows), size))
             own = inv[rows] >= 0
@@ -226,79 +304,196 @@ class Design:
         blocks.append(dev)
         return np.hstack(blocks)
 
+    def _blocks(self, length: int, size: int | None = None) -> Iterator[slice]:
+        size = size or self._block
+        for start in range(0, length, size):
+            yield slice(start, min(length, start + size))
+
+    def _own(self, v: np.ndarray) -> np.ndarray:
+        return v[self._rows] if self._rows is not None else v
+
     # -- products -------------------------------------------------------------------------
 
-    def gram(self, w: np.ndarray | None = None) -> np.ndarray:
-        """``Z' diag(w) Z + diag(penalty)`` (``w`` of ones when absent)."""
+    def _sums(self, w: np.ndarray | None, v: np.ndarray | None) -> tuple[np.ndarray, ...]:
+        """Cell sums of the weights and weighted drivers, the drivers' weighted cross
+        products, and (with ``v``) the drivers' and cells' sums of ``v``: one pass in blocks."""
+        XT, cell, C, k = self._XT, self._cell, self.n_cells, self.k
+        sw, sx = np.zeros(C), np.zeros((k, C))
+        xx = np.zeros((k, k))
+        sv, xv = np.zeros(C), np.zeros(k)
+        for b in self._blocks(XT.shape[1]):
+            xb, cb = XT[:, b], cell[b]
+            if w is None:
+                V = xb
+                sw += np.bincount(cb, minlength=C)
+            else:
+                wb = w[b]
+                V = xb * wb
+                sw += np.bincount(cb, weights=wb, minlength=C)
+            xx += V @ xb.T
+            for j in range(k):
+                sx[j] += np.bincount(cb, weights=V[j], minlength=C)
+            if v is not None:
+                vb = v[b]
+                xv += xb @ vb
+                sv += np.bincount(cb, weights=vb, minlength=C)
+        return sw, sx, xx, sv, xv
+
+    def _assemble(self, sw: np.ndarray, sx: np.ndarray, xx: np.ndarray) -> np.ndarray:
         lay = self.layout
         P, kw = lay.n_params, self.k + 1
         A = np.zeros((P, P))
-        ws = None if w is None else (w[self.sparse] if self.any_dense else w)
-        Ws = self.W[self.sparse] if self.any_dense else self.W
-        WsW = Ws if ws is None else Ws * ws[:, None]
-        A[:kw, :kw] = WsW.T @ Ws
-        for inv, size, start in zip(self._sl, lay.sizes, lay.starts, strict=True):
+        A[0, 0] = sw.sum()
+        A[0, 1:kw] = A[1:kw, 0] = sx.sum(axis=1)
+        A[1:kw, 1:kw] = xx
+        stacked = np.vstack([sw[None, :], sx])
+        for lv, size, start in zip(self._cell_levels, lay.sizes, lay.starts, strict=True):
             sl = slice(start, start + size - 1)
-            cnt = np.bincount(inv, weights=ws, minlength=size)
-            A[sl, sl] = np.diag(cnt[1:])
-            sums = np.stack([np.bincount(inv, weights=WsW[:, c], minlength=size)
-                             for c in range(kw)])
+            sums = np.stack([np.bincount(lv, weights=row, minlength=size) for row in stacked])
+            A[sl, sl] = np.diag(sums[0, 1:])
             A[:kw, sl] = sums[:, 1:]
             A[sl, :kw] = sums[:, 1:].T
-        for a, c, code in self._pairs:
-            sa, sc = lay.sizes[a], lay.sizes[c]
-            cross = np.bincount(code, weights=ws, minlength=sa * sc).reshape(sa, sc)[1:, 1:]
-            ra = slice(lay.starts[a], lay.starts[a] + sa - 1)
-            rc = slice(lay.starts[c], lay.starts[c] + sc - 1)
-            A[ra, rc] = cross
-            A[rc, ra] = cross.T
+        for a in range(len(lay.sizes)):
+            for c in range(a + 1, len(lay.sizes)):
+                sa, sc = lay.sizes[a], lay.sizes[c]
+                code = self._cell_levels[a] * sc + self._cell_levels[c]
+                cross = np.bincount(code, weights=sw, minlength=sa * sc).reshape(sa, sc)[1:, 1:]
+                ra = slice(lay.starts[a], lay.starts[a] + sa - 1)
+                rc = slice(lay.starts[c], lay.starts[c] + sc - 1)
+                A[ra, rc] = cross
+                A[rc, ra] = cross.T
+        return A
+
+    def _gradient(self, sv: np.ndarray, xv: np.ndarray) -> np.ndarray:
+        lay = self.layout
+        out = np.zeros(lay.n_params)
+        out[0] = sv.sum()
+        out[1 : self.k + 1] = xv
+        for lv, size, start in zip(self._cell_levels, lay.sizes, lay.starts, strict=True):
+            out[start : start + size - 1] = np.bincount(lv, weights=sv, minlength=size)[1:]
+        return out
+
+    def normal_equations(
+        self, w: np.ndarray | None, v: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """``(Z' diag(w) Z + diag(penalty), Z' v)`` in one pass over the rows."""
+        sw, sx, xx, sv, xv = self._sums(None if w is None else self._own(w), self._own(v))
+        A = self._assemble(sw, sx, xx)
+        g = self._gradient(sv, xv)
+        if self.Zd is not None:
+            d = self.dense
+            A += (self.Zd if w is None else self.Zd * w[d][:, None]).T @ self.Zd
+            g += self.Zd.T @ v[d]
+        A[np.diag_indices(len(A))] += self.penalty
+        return A, g
+
+    def gram(self, w: np.ndarray | None = None) -> np.ndarray:
+        """``Z' diag(w) Z + diag(penalty)`` (``w`` of ones when absent)."""
+        if w is None:
+            if self._unweighted is None:  # the drivers do not change: keep the sums
+                self._unweighted = self._sums(None, None)[:3]
+            A = self._assemble(*self._unweighted)
+        else:
+            A = self._assemble(*self._sums(self._own(w), None)[:3])
         if self.Zd is not None:
             wd = None if w is None else w[self.dense]
             A += (self.Zd if wd is None else self.Zd * wd[:, None]).T @ self.Zd
-        A[np.diag_indices(P)] += self.penalty
+        A[np.diag_indices(len(A))] += self.penalty
         return A
 
     def rmatvec(self, v: np.ndarray) -> np.ndarray:
         """``Z' v``."""
-        lay = self.layout
-        out = np.zeros(lay.n_params)
-        vs = v[self.sparse] if self.any_dense else v
-        Ws = self.W[self.sparse] if self.any_dense else self.W
-        out[: self.k + 1] = Ws.T @ vs
-        for inv, size, start in zip(self._sl, lay.sizes, lay.starts, strict=True):
-            out[start : start + size - 1] = np.bincount(inv, weights=vs, minlength=size)[1:]
+        vs = self._own(v)
+        out = self._gradient(np.bincount(self._cell, weights=vs, minlength=self.n_cells),
+                             self._XT @ vs)
         if self.Zd is not None:
             out += self.Zd.T @ v[self.dense]
         return out
 
+    def _cell_table(self, theta: np.ndarray) -> np.ndarray:
+        """Sum of the factors' effects in each cell (``theta`` rows: parameters)."""
+        lay = self.layout
+        shape = (self.n_cells, *theta.shape[1:])
+        out = np.zeros(shape)
+        for lv, size, start in zip(self._cell_levels, lay.sizes, lay.starts, strict=True):
+            alpha = np.zeros((size, *theta.shape[1:]))
+            alpha[1:] = theta[start : start + size - 1]
+            out += alpha[lv]
+        return out
+
     def matvec(self, theta: np.ndarray) -> np.ndarray:
         """``Z theta`` (the linear predictor of every row)."""
-        lay = self.layout
-        eta = self.W @ theta[: self.k + 1]
-        for inv, size, start in zip(self.local, lay.sizes, lay.starts, strict=True):
-            alpha = np.concatenate([[0.0], theta[start : start + size - 1]])
-            if self.any_dense:
-                eta[self.sparse] += alpha[inv[self.sparse]]
-            else:
-                eta += alpha[inv]
-        if self.Zd is not None:
-            eta[self.dense] = self.Zd @ theta
+        own = theta[1 : self.k + 1] @ self._XT
+        own += theta[0]
+        own += self._cell_table(theta)[self._cell]
+        if self._rows is None:
+            return own
+        eta = np.empty(self.n)
+        eta[self._rows] = own
+        eta[self.dense] = self.Zd @ theta  # type: ignore[operator]
         return eta
 
-    def influence_rows(self, R: np.ndarray) -> np.ndarray:
-        """``Z R'`` for a few rows ``R`` of the inverse (shape (m, P)): each row's ``R z_i``."""
-        lay = self.layout
-        U = self.W @ R[:, : self.k + 1].T
-        for inv, size, start in zip(self.local, lay.sizes, lay.starts, strict=True):
-            block = np.zeros((size, R.shape[0]))
-            block[1:] = R[:, start : start + size - 1].T
-            if self.any_dense:
-                U[self.sparse] += block[inv[self.sparse]]
-            else:
-                U += block[inv]
+    def cluster_sums(
+        self, R: np.ndarray, scores: np.ndarray, codes: Sequence[np.ndarray]
+    ) -> list[np.ndarray]:
+        """Sums of the rows' influences ``R z_i e_i`` over each cluster code array.
+
+        Parameters
+        ----------
+        R : numpy.ndarray, shape (m, P)
+            Rows of the inverse Hessian (or a linear map of them).
+        scores : numpy.ndarray, shape (n,)
+            Each row's multiplier ``e_i`` (residual on the response scale).
+        codes : sequence of integer arrays, shape (n,)
+            Dense cluster codes ``0 .. G-1``; an empty sequence gives the sum of outer
+            products ``sum_i u_i u_i'`` (each row its own cluster) instead.
+
+        Returns
+        -------
+        list of numpy.ndarray
+            One ``(G, m)`` array per code array; or ``[U'U]`` (``(m, m)``) without codes.
+        """
+        m = R.shape[0]
+        kw = self.k + 1
+        Rx, R0 = np.ascontiguousarray(R[:, 1:kw]), R[:, 0]
+        table = np.ascontiguousarray(self._cell_table(R.T).T)  # (m, cells)
+        codes = [np.asarray(c, dtype=np.intp) for c in codes]
+        sizes = [int(c.max()) + 1 if len(c) else 0 for c in codes]
+        acc = [np.zeros((m, g)) for g in sizes] if codes else [np.zeros((m, m))]
+        own_scores = self._own(scores)
+        own_codes = [self._own(c) for c in codes]
+        n_own = self._XT.shape[1]
+        # Counting into G clusters costs O(G) per block: a block takes the range of cluster
+        # codes its rows hold when the codes are sorted (rows in firm order), else it is at
+        # least twice the largest cluster count. One buffer serves every block.
+        ordered = [g > self._block and bool(np.all(c[1:] >= c[:-1]))
+                   for c, g in zip(own_codes, sizes, strict=True)]
+        wide = max((g for g, o in zip(sizes, ordered, strict=True) if not o), default=0)
+        step = min(max(n_own, 1), max(self._block, 2 * wide))
+        buffer, gathered = np.empty((m, step)), np.empty(step)
+        for b in self._blocks(n_own, step):
+            length = b.stop - b.start
+            U = buffer[:, :length]
+            # a thin product: einsum's own loop (a threaded BLAS call is slower at this shape)
+            np.einsum("ij,jn->in", Rx, self._XT[:, b], out=U)
+            U += R0[:, None]
+            cb, g = self._cell[b], gathered[:length]
+            for j in range(m):
+                np.take(table[j], cb, out=g, mode="clip")
+                U[j] += g
+            U *= own_scores[b]
+            if not codes:
+                acc[0] += U @ U.T
+            for out, c, o in zip(acc, own_codes, ordered, strict=False):
+                _count(out, U, c[b], o)
         if self.Zd is not None:
-            U[self.dense] = self.Zd @ R.T
-        return U
+            d = self.dense
+            U = (self.Zd @ R.T).T * scores[d]
+            if not codes:
+                acc[0] += U @ U.T
+            for out, c in zip(acc, codes, strict=False):
+                _count(out, U, c[d], False)
+        return [a if not codes else a.T for a in acc]
 
     # -- parameters -----------------------------------------------------------------------
 
@@ -331,123 +526,3 @@ class Design:
         dev = np.full(n_level0, np.nan)
         dev[self.dev_codes] = theta[self.layout.dev_start :]
         return dev
-
-
-def solve(A: np.ndarray) -> tuple[tuple[np.ndarray, bool], np.ndarray]:
-    """Cholesky factor of the equilibrated ``A`` and the scaling; raises on a singular ``A``."""
-    d = np.sqrt(np.diag(A))
-    if np.any(~np.isfinite(d)) or np.any(d == 0):
-        raise np.linalg.LinAlgError("zero or non-finite diagonal")
-    factor = scipy.linalg.cho_factor(A / np.outer(d, d), lower=False, check_finite=False)
-    return factor, d
-
-
-def cho_apply(factor: tuple[np.ndarray, bool], d: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """``A^{-1} b`` from :func:`solve`'s factor and scaling (``b`` a vector or columns)."""
-    if b.ndim == 1:
-        return scipy.linalg.cho_solve(factor, b / d, check_finite=False) / d
-    return scipy.linalg.cho_solve(factor, b / d[:, None], check_finite=False) / d[:, None]
-
-
-def inverse_rows(factor: tuple[np.ndarray, bool], d: np.ndarray, m: int) -> np.ndarray:
-    """The first ``m`` rows of ``A^{-1}``."""
-    eye = np.zeros((len(d), m))
-    eye[np.arange(m), np.arange(m)] = 1.0
-    return cho_apply(factor, d, eye).T
-
-
-FLAT_TOL = 1e-10
-"""A driver whose standard deviation is below this share of its largest absolute value is
-constant (up to rounding)."""
-SUSPECT_TOL = 1e-8
-"""A driver's variance share after the effects (or a correlation eigenvalue) below this, in the
-normal equations, sends the fit to the exact data-space test."""
-
-
-def suspicious(A: np.ndarray, k: int) -> bool:
-    """A cheap screen in the normal equations: could a driver be absorbed or collinear?
-
-    The Schur complement of the drivers after the constant and the effects
-    (:math:`A_{xx} - A_{xe} A_{ee}^{-1} A_{ex}`) loses precision with the condition of the
-    effects block, so it only screens; :func:`check_identified` decides in data space."""
-    kw = k + 1
-    if k == 0:
-        return False
-    D = A[1:kw, 1:kw]
-    E = np.delete(np.delete(A, np.s_[1:kw], axis=0), np.s_[1:kw], axis=1)
-    C = np.delete(A[1:kw], np.s_[1:kw], axis=1)
-    try:
-        factor, d = solve(E)
-    except (np.linalg.LinAlgError, scipy.linalg.LinAlgError):
-        return True
-    S = D - C @ cho_apply(factor, d, C.T)
-    diag = np.diag(S)
-    if np.any(diag <= SUSPECT_TOL * np.diag(D)):
-        return True
-    corr = S / np.sqrt(np.outer(diag, diag))
-    return bool(np.linalg.eigvalsh(corr)[0] < SUSPECT_TOL)
-
-
-def check_identified(design: Design, names: Sequence[str]) -> None:
-    """Refuse drivers that the effects absorb or that are collinear with each other.
-
-    Each driver is residualised on the effects (the constant, every factor's levels and the
-    small levels' penalised deviations) in data space, so the test does not lose precision
-    with the number of parameters: a driver left with less than ``IDENTIFIED_TOL`` of its
-    variance is absorbed (constant, or constant within every industry and year); the
-    residualised drivers, scaled to unit length, with a singular value below
-    ``COLLINEAR_TOL`` are collinear.
-
-    Raises
-    ------
-    ModelError
-        Naming the driver(s).
-    """
-    k = design.k
-    if k == 0:
-        return
-    X = design.W[:, 1:]
-    spread = np.einsum("ij,ij->j", X, X)
-    flat = [names[j] for j in design.flat()]
-    if flat:
-        raise ModelError(
-            f"every driver must vary across rows; got {', '.join(flat)} constant. Drop it "
-            "from [model] drivers in the run configuration."
-        )
-    # Effects-only design: the same structure without the drivers.
-    eff = Design(np.empty((design.n, 0)), design.codes, design.pooling)
-    A = eff.gram()
-    try:
-        factor, d = solve(A)
-    except (np.linalg.LinAlgError, scipy.linalg.LinAlgError):
-        raise ModelError(
-            "the industry and year effects must be identifiable; got levels that are confounded "
-            "with each other (for example an industry observed in one year only, alone in "
-            "that year). Widen the panel or merge small industries."
-        ) from None
-    G = np.column_stack([eff.rmatvec(X[:, j]) for j in range(k)])
-    gamma = cho_apply(factor, d, G)
-    resid = X - np.column_stack([eff.matvec(gamma[:, j]) for j in range(k)])
-    for _ in range(2):  # refine in data space
-        G = np.column_stack([eff.rmatvec(resid[:, j]) for j in range(k)])
-        G -= eff.penalty[:, None] * gamma
-        step = cho_apply(factor, d, G)
-        gamma += step
-        resid -= np.column_stack([eff.matvec(step[:, j]) for j in range(k)])
-    left = np.einsum("ij,ij->j", resid, resid) / spread
-    absorbed = [names[j] for j in range(k) if left[j] < IDENTIFIED_TOL]
-    if absorbed:
-        raise ModelError(
-            f"every driver must vary within industries and years; got {', '.join(absorbed)} "
-            "explained entirely by the industry and year effects (constant within every "
-            "industry, for example). Drop it from [model] drivers, or group industries more "
-            "coarsely ([model] industry_digits)."
-        )
-    scaled = resid / np.sqrt(np.einsum("ij,ij->j", resid, resid))
-    _, s, vt = np.linalg.svd(scaled, full_matrices=False)
-    if s[-1] < COLLINEAR_TOL * s[0]:
-        involved = [names[j] for j in np.flatnonzero(np.abs(vt[-1]) > 0.1)]
-        raise ModelError(
-            f"the drivers must not be collinear once the effects are absorbed; got "
-            f"{', '.join(involved)} linearly dependent. Drop one of them from [model] drivers."
-        )

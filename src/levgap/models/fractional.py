@@ -30,12 +30,13 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
-from scipy import special
 
 from levgap.errors import ModelError
 from levgap.models.assemble import factorise, make_fit, prepare
-from levgap.models.design import Design, Pooling, check_identified, cho_apply, suspicious
-from levgap.models.result import Fit
+from levgap.models.design import Design, Pooling
+from levgap.models.identify import check_identified, suspicious
+from levgap.models.linalg import cho_apply
+from levgap.models.result import INVERSE_LINKS, Fit
 
 MAX_ITER = 100
 TOL_MU = 1e-12
@@ -43,14 +44,30 @@ TOL_MU = 1e-12
 
 def quasi_deviance(y: np.ndarray, mu: np.ndarray) -> float:
     """Twice the Bernoulli quasi-log-likelihood ratio of the saturated model."""
-    return float(2.0 * (special.xlogy(y, y / mu) + special.xlogy(1 - y, (1 - y) / (1 - mu))).sum())
+    with np.errstate(divide="ignore", invalid="ignore"):
+        own = np.where(y > 0, y * np.log(y / mu), 0.0)
+        other = np.where(y < 1, (1 - y) * np.log((1 - y) / (1 - mu)), 0.0)
+    return float(2.0 * (own + other).sum())
 
 
-def _objective(design: Design, theta: np.ndarray, y: np.ndarray) -> tuple[float, np.ndarray]:
+def _objective(design: Design, theta: np.ndarray, y: np.ndarray
+               ) -> tuple[float, np.ndarray, np.ndarray]:
+    """Penalised negative quasi-log-likelihood, linear predictor and mean at ``theta``.
+
+    ``log(1 + e^eta)`` and the logistic mean share one exponential, ``exp(-|eta|)``, so that
+    neither overflows."""
     eta = design.matvec(theta)
-    # log(1 + e^eta) without overflow
-    nll = float((np.logaddexp(0.0, eta) - y * eta).sum())
-    return nll + 0.5 * float(design.penalty @ (theta * theta)), eta
+    e = np.abs(eta)
+    total_abs = float(e.sum())
+    np.negative(e, out=e)
+    np.exp(e, out=e)
+    softplus = float(np.log1p(e).sum()) + 0.5 * (float(eta.sum()) + total_abs)
+    nll = softplus - float(y @ eta)
+    r = e + 1.0
+    np.reciprocal(r, out=r)
+    np.multiply(e, r, out=e)
+    mu = np.where(eta >= 0.0, r, e)
+    return nll + 0.5 * float(design.penalty @ (theta * theta)), eta, mu
 
 
 def fit_fractional(
@@ -100,31 +117,31 @@ def fit_fractional(
             f"{ybar:g}."
         )
     check = cov if check is None else check
-    if check and (len(design.flat()) or suspicious(design.gram(), design.k)):
+    if check and (len(design.flat(A0 := design.gram())) or suspicious(A0, design.k)):
         check_identified(design, names)
     theta = np.zeros(design.layout.n_params)
     if start is not None:
         # One weighted least-squares step on the working response from the given predictor.
         eta = np.asarray(start, dtype=float)
-        mu = special.expit(eta)
+        mu = INVERSE_LINKS["logit"](eta)
         w = np.maximum(mu * (1.0 - mu), 1e-300)
-        factor, d = factorise(design, design.gram(w), names, check)
-        theta = cho_apply(factor, d, design.rmatvec(w * eta + (y - mu)))
+        A, g = design.normal_equations(w, w * eta + (y - mu))
+        factor, d = factorise(design, A, names, check)
+        theta = cho_apply(factor, d, g)
     else:
         theta[0] = np.log(ybar / (1.0 - ybar))
-    value, eta = _objective(design, theta, y)
-    mu = special.expit(eta)
+    value, eta, mu = _objective(design, theta, y)
     for iteration in range(1, MAX_ITER + 1):  # noqa: B007 (the count is reported)
         w = mu * (1.0 - mu)
-        factor, d = factorise(design, design.gram(w), names, check)
-        step = cho_apply(factor, d, design.rmatvec(y - mu) - design.penalty * theta)
+        A, g = design.normal_equations(w, y - mu)
+        factor, d = factorise(design, A, names, check)
+        step = cho_apply(factor, d, g - design.penalty * theta)
         for _ in range(40):  # step halving keeps every iteration an improvement
-            new_value, new_eta = _objective(design, theta + step, y)
+            new_value, new_eta, new_mu = _objective(design, theta + step, y)
             if new_value <= value + 1e-12 * abs(value):
                 break
             step = 0.5 * step
         theta, value, eta = theta + step, new_value, new_eta
-        new_mu = special.expit(eta)
         moved = float(np.abs(new_mu - mu).max()) if len(mu) else 0.0
         mu = new_mu
         if moved < TOL_MU:
@@ -135,8 +152,8 @@ def fit_fractional(
             "steps. Check for industries in which every firm has the same ratio, or use "
             "--model linear."
         )
-    w = mu * (1.0 - mu)
-    factor, d = factorise(design, design.gram(w), names, check)
+    if cov:  # the Hessian at the solution, for the sandwich
+        factor, d = factorise(design, design.gram(mu * (1.0 - mu)), names, check)
     return make_fit(
         model="fractional", link="logit", design=design, theta=theta, factor=factor, d=d,
         scores=y - mu, fitted=mu, y=y, names=names, totals=totals, clusters=clusters,

@@ -35,7 +35,9 @@ from collections.abc import Sequence
 import numpy as np
 
 from levgap.models.assemble import factorise, make_fit, prepare, refine
-from levgap.models.design import Pooling, check_identified, cho_apply, suspicious
+from levgap.models.design import Pooling
+from levgap.models.identify import check_identified, suspicious
+from levgap.models.linalg import cho_apply
 from levgap.models.result import Fit
 
 
@@ -91,11 +93,11 @@ def fit_linear(
     """
     y, design, names, totals = prepare(y, X, effects, names, n_levels, pooling)
     check = cov if check is None else check
-    A = design.gram()
-    if check and (suspicious(A, design.k) or len(design.flat())):
+    A, zy = design.normal_equations(None, y)
+    if check and (suspicious(A, design.k) or len(design.flat(A))):
         check_identified(design, names)
     factor, d = factorise(design, A, names, check)
-    theta = cho_apply(factor, d, design.rmatvec(y))
+    theta = cho_apply(factor, d, zy)
     theta = refine(design, factor, d, theta, y)
     fitted = design.matvec(theta)
     resid = y - fitted

@@ -7,7 +7,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import special
 
 from levgap.errors import ModelError
 from levgap.models.shapley import shapley
@@ -17,9 +16,21 @@ def _identity(eta: np.ndarray) -> np.ndarray:
     return eta
 
 
+def expit(eta: np.ndarray) -> np.ndarray:
+    """The logistic function ``1 / (1 + exp(-eta))``, elementwise (0 and 1 at the extremes,
+    where ``exp`` overflows)."""
+    eta = np.asarray(eta, dtype=float)
+    with np.errstate(over="ignore"):
+        if eta.ndim == 0:
+            return 1.0 / (1.0 + np.exp(-eta))
+        out = np.exp(-eta)
+    out += 1.0
+    return np.reciprocal(out, out=out)
+
+
 INVERSE_LINKS: dict[str, Callable[[np.ndarray], np.ndarray]] = {
     "identity": _identity,
-    "logit": special.expit,
+    "logit": expit,
 }
 
 
@@ -223,6 +234,8 @@ class Fit:
         t = self.coef / se
         # Student's t through scipy.special (what scipy.stats.t calls: the same numbers),
         # sparing every run the import of scipy.stats.
+        from scipy import special
+
         p = 2.0 * special.stdtr(self.df_inference, -np.abs(t))
         q = special.stdtrit(self.df_inference, 0.5 + coverage / 2.0)
         return {

@@ -12,7 +12,6 @@ panel (the same code computes both) and, with ``fold``, its cross-fitted ``targe
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -22,10 +21,12 @@ import pandas as pd
 
 from levgap.band import STATUS, Band, gap_z, status_codes
 from levgap.config import ModelSpec
+from levgap.definitions import MEASURE_SPECIFIC
 from levgap.errors import ModelError, OutputError
 from levgap.groups import WHOLE_SAMPLE
 from levgap.models.result import Fit
 from levgap.outputs import saved_model_file
+from levgap.outputs.files import load_json
 from levgap.transforms import DriverTransforms
 
 if TYPE_CHECKING:
@@ -57,7 +58,13 @@ def measure_record(
                 "parent": levels.parent_labels[levels.parent[i]],
                 "weight": None if i >= len(w) or np.isnan(w[i]) else float(w[i]),
             })
+    extra: dict[str, Any] = {}
+    if "industry_median_leverage" in ctx.feats.drivers:
+        from levgap.derived import saved_medians
+
+        extra["industry_median"] = saved_medians(ctx.feats.frame, rows, y)
     return {
+        **extra,
         "full": est.full.to_dict(),
         "folds": [{"fold": f, "fit": fit.to_dict()}
                   for f, fit in zip(est.cf.fold_ids, est.cf.fits, strict=True)],
@@ -241,7 +248,7 @@ class SavedModel:
             a finite number > 0, say) is returned blank with status ``""``, the flag
             ``not_scorable`` and the rule it breaks in ``note``.
         """
-        from levgap.features import build_features, peer_group
+        from levgap.features import build_features
 
         data = _schema_frame(rows)
         bad, notes = _unscorable(data)
@@ -255,17 +262,20 @@ class SavedModel:
         with np.errstate(all="ignore"):
             feats = build_features(data, spec, transforms=transforms)
         f = feats.frame
+        given = (pd.to_numeric(data["industry_median_leverage"], errors="coerce").to_numpy(
+            dtype=float) if "industry_median_leverage" in data else None)
         drivers = list(self.drivers)
         missing = [d for d in drivers if d not in f]
         if missing:
             raise ModelError(f"rows must give what the drivers need; got no {missing[0]}.")
         X = f[drivers].to_numpy(dtype=float)
-        industry = peer_group(f["industry"], spec.industry_digits).to_numpy(dtype=object)
+        industry = f["effect_group"].to_numpy(dtype=object)
         level, year, new_ind, new_year = self.codes(industry, f["fiscal_year"].to_numpy())
         out = []
         with np.errstate(all="ignore"):
             for measure in self.measures:
-                part = self._score_measure(measure, f, X, industry, level, year, new_ind,
+                Xm = self._measure_drivers(measure, f, X, given)
+                part = self._score_measure(measure, f, Xm, industry, level, year, new_ind,
                                            new_year, fold, peer_profile)
                 part["note"] = notes
                 if bad.any():
@@ -307,24 +317,45 @@ class SavedModel:
         extra = {"industry_not_in_model": new_ind, "year_not_in_model": new_year}
         for code, mask in extra.items():
             flags = np.where(mask, np.where(flags == "", code, flags + ";" + code), flags)
-        out = pd.DataFrame({
+        status = np.array(STATUS, dtype=object)[status_codes(actual, low, high)]
+        cols: dict[str, Any] = {
             "firm_id": f["firm_id"].to_numpy(), "fiscal_year": f["fiscal_year"].to_numpy(),
-            "industry": f["industry"].to_numpy(), "measure": measure, "actual": actual,
-            "target": target, "band_low": low, "band_high": high,
-            "status": np.array(STATUS, dtype=object)[status_codes(actual, low, high)],
+            "industry": f["industry"].to_numpy(), "measure": np.full(n, measure, dtype=object),
+            "actual": actual, "target": target, "band_low": low, "band_high": high,
+            "status": np.where(np.isnan(actual), "", status).astype(object),
             "gap": actual - target,
             "gap_z": gap_z(actual - target, band.scale_of(np.where(level >= 0, level,
                                                                    len(band.scale)))),
             "peer_target": peer_target, "peer_median": peer_med, "peer_count": peer_n,
             "fold": folds, "flags": flags,
-        })
-        out.loc[np.isnan(actual), "status"] = ""
-        for j, d in enumerate(self.drivers):
-            out[d] = X[:, j]
-            out[d + "_raw"] = f[d + "_raw"].to_numpy() if d + "_raw" in f else X[:, j]
-            out[d + "_peer"] = X_peer[:, j]
-            out[d + "_contribution"] = contrib[:, j]
-        return out
+        }
+        for j, d in enumerate(self.drivers):  # every column at once: one frame, no inserts
+            cols[d] = X[:, j]
+            # a driver that differs by measure is used as built: its raw value is this one's
+            cols[d + "_raw"] = (f[d + "_raw"].to_numpy() if d + "_raw" in f
+                                and d not in MEASURE_SPECIFIC else X[:, j])
+            cols[d + "_peer"] = X_peer[:, j]
+            cols[d + "_contribution"] = contrib[:, j]
+        return pd.DataFrame(cols)
+
+    def _measure_drivers(self, measure: str, f: pd.DataFrame, X: np.ndarray,
+                         given: np.ndarray | None) -> np.ndarray:
+        """The industry median leverage of a scored row: the rows' own column
+        ``industry_median_leverage`` where given, else the saved median of its industry
+        and year (a new firm is not part of it, as with the leave-one-out median)."""
+        from levgap.derived import PREFIX, lookup_medians
+        from levgap.features import peer_group
+
+        saved = self._measure(measure).get("industry_median")
+        if PREFIX not in self.drivers or saved is None:
+            return X
+        industry = peer_group(f["industry"], self.spec.industry_digits).to_numpy(dtype=object)
+        value = lookup_medians(saved, industry, f["fiscal_year"].to_numpy())
+        if given is not None:
+            value = np.where(np.isnan(given), value, given)
+        X = X.copy()
+        X[:, self.drivers.index(PREFIX)] = value
+        return X
 
     def _folds(self, measure: str, firm: np.ndarray, fold: int | str | None) -> np.ndarray:
         if fold is None:
@@ -366,11 +397,11 @@ def load_model(results_dir: str | Path) -> SavedModel:
     """
     path = saved_model_file(results_dir, MODEL_FILE)  # the run verified first (levgap.outputs)
     try:
-        record = json.loads(path.read_text(encoding="utf-8"))
+        record = load_json(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
         raise OutputError(f"{path}: the results folder must hold model.json; got none. "
                           "Re-run `levgap analyze` with this version.") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
         raise OutputError(f"{path}: model.json must be valid JSON; got {exc}.") from None
     if not isinstance(record, dict) or record.get("format") != FORMAT:
         raise OutputError(f"{path}: must be a levgap saved model; got another file.")
@@ -417,15 +448,14 @@ def _schema_frame(rows: pd.DataFrame) -> pd.DataFrame:
     missing = [c for c in REQUIRED if c not in rows.columns]
     if missing:
         raise ModelError(f"rows must have the schema-v1 columns; got no {missing[0]}.")
-    data = rows.copy()
-    for c in data.columns:
-        if c not in ("firm_id", "industry", "firm_name", "currency", "flags"):
-            data[c] = pd.to_numeric(data[c], errors="coerce")
-    data["firm_id"] = data["firm_id"].astype(str)
-    data["industry"] = data["industry"].astype(str)
-    if "flags" not in data:
-        data["flags"] = ""
-    return data.reset_index(drop=True)
+    text = ("firm_id", "industry", "firm_name", "currency", "flags")
+    cols = {c: (rows[c] if c in text else pd.to_numeric(rows[c], errors="coerce"))
+            for c in rows.columns}
+    cols["firm_id"] = rows["firm_id"].astype(str)
+    cols["industry"] = rows["industry"].astype(str)
+    if "flags" not in cols:
+        cols["flags"] = pd.Series("", index=rows.index, dtype=object)
+    return pd.DataFrame(cols).reset_index(drop=True)  # one frame built once, not column inserts
 
 
 __all__ = ["MODEL_FILE", "SavedModel", "WHOLE_SAMPLE", "load_model"]

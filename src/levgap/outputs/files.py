@@ -221,6 +221,18 @@ def _jsonable(obj: Any) -> Any:
     return obj
 
 
+def load_json(data: bytes | str) -> Any:
+    """Parse JSON text; nesting too deep for Python's parser is a ``ValueError`` like bad JSON.
+
+    Every JSON file levgap reads back (markers, ``run.json``, ``model.json``) goes through
+    this, so a hostile file nested 100,000 levels deep is refused with one line.
+    """
+    try:
+        return json.loads(data)
+    except RecursionError:
+        raise ValueError("the JSON is nested too deeply") from None
+
+
 def json_bytes(obj: Any) -> bytes:
     """JSON text of ``obj`` as levgap writes it (NaN as null, numpy scalars as numbers)."""
     return (json.dumps(_jsonable(obj), default=str, indent=2, allow_nan=False) + "\n").encode(

@@ -8,7 +8,9 @@ keeps: an input kept in the folder, or a file of an earlier run that is not veri
 levgap's; known, so not foreign, and replaced only if levgap wrote it). A file counts as levgap's
 only when its name is a plain file name of a kind levgap writes, the marker records it as
 written by levgap, it is a regular file (not a link) and it still has the recorded size and
-content: the same inode and modification time, else the same SHA-256.
+content: the same inode and modification time, else the same SHA-256. A run's writer asks
+more: a second witness, a run record (``run.json``) of the marker's run that lists the file
+with the same SHA-256 (``outputs.digests``), so that a planted marker alone proves nothing.
 
 A 0.1 marker is a plain list of names with nothing to verify; see ``outputs.legacy``.
 """
@@ -26,10 +28,12 @@ from pathlib import Path
 from typing import Any
 
 from levgap.errors import OutputError
+from levgap.outputs.digests import RUN_FILE, RunRecord
 from levgap.outputs.files import (
     Digest,
     file_digest,
     is_own_name,
+    load_json,
     refuse_inputs,
     replacing,
 )
@@ -101,12 +105,16 @@ class Marker:
     records : mapping of str to Record
     legacy : tuple of str
         Names listed by a levgap 0.1 marker (no digests; see ``outputs.legacy``).
+    previous : str or None, default=None
+        In a journal (``committing``): the run whose files the folder held before, so that
+        its records stay witnessed by its ``run.json`` until the swap ends.
     """
 
     run_id: str | None = None
     state: str = "complete"
     records: Mapping[str, Record] = field(default_factory=dict)
     legacy: tuple[str, ...] = ()
+    previous: str | None = None
 
     def knows(self, name: str) -> bool:
         """Whether the marker lists ``name`` (levgap's, a kept input, or a 0.1 name)."""
@@ -134,7 +142,7 @@ def read_marker(folder: str | Path, name: str = MARKER) -> Marker:
         names = tuple(dict.fromkeys(ln.strip() for ln in text.splitlines() if ln.strip()))
         return Marker(legacy=names)
     try:
-        raw = json.loads(text)
+        raw = load_json(text)
     except ValueError:
         return Marker()
     if not isinstance(raw, dict) or raw.get("levgap_output") != MARKER_FORMAT:
@@ -147,13 +155,14 @@ def read_marker(folder: str | Path, name: str = MARKER) -> Marker:
             if rec is not None and is_own_name(k):
                 records[k] = rec
     legacy = raw.get("legacy")
-    run_id = raw.get("run_id")
+    run_id, previous = raw.get("run_id"), raw.get("previous_run_id")
     return Marker(
         run_id=run_id if isinstance(run_id, str) else None,
         state="committing" if raw.get("state") == "committing" else "complete",
         records=records,
         legacy=tuple(n for n in legacy if isinstance(n, str)) if isinstance(legacy, list)
         else (),
+        previous=previous if isinstance(previous, str) else None,
     )
 
 
@@ -173,6 +182,8 @@ def marker_bytes(marker: Marker) -> bytes:
     }
     if marker.legacy:
         body["legacy"] = list(marker.legacy)
+    if marker.previous:
+        body["previous_run_id"] = marker.previous
     return (json.dumps(body, indent=1) + "\n").encode("utf-8")
 
 
@@ -205,14 +216,51 @@ def verifies(path: Path, rec: Record) -> bool:
         return False
 
 
-def is_ours(folder: Path, name: str, markers: Iterable[Marker]) -> bool:
-    """Whether ``folder/name`` is verifiably a file levgap wrote (see the module docstring)."""
+def witnessed(name: str, rec: Record, marker: Marker, runs: Iterable[RunRecord]) -> bool:
+    """Whether a run record of the marker's run lists ``name`` with the marker's SHA-256.
+
+    ``run.json`` itself is witnessed by its own digest; a journal's records also by the run
+    the folder held before (``Marker.previous``).
+    """
+    ids = {marker.run_id, marker.previous} - {None}
+    for run in runs:
+        if run.run_id not in ids:
+            continue
+        if name == RUN_FILE:
+            if run.sha256 == rec.sha256:
+                return True
+        elif run.files.get(name) == (rec.size, rec.sha256) or name in run.undigested:
+            return True
+    return False
+
+
+def is_ours(folder: Path, name: str, markers: Iterable[Marker],
+            runs: Iterable[RunRecord] | None = None) -> bool:
+    """Whether ``folder/name`` is verifiably a file levgap wrote (see the module docstring).
+
+    Parameters
+    ----------
+    folder : pathlib.Path
+    name : str
+    markers : iterable of Marker
+        The folder's marker (and those of stage folders inside it).
+    runs : iterable of RunRecord, optional
+        The run records found beside those markers. Given (by a run's writer), a record of a
+        marker counts only when one of them witnesses it (:func:`witnessed`); omitted (a
+        single file written on request, which no run lists), the marker and the file's
+        content decide.
+    """
     if not is_own_name(name):
         return False
     path = folder / name
+    runs = None if runs is None else list(runs)
     for m in markers:
         rec = m.records.get(name)
-        if rec is not None and rec.written and verifies(path, rec):
+        if rec is None or not rec.written:
+            continue
+        if runs is not None and not witnessed(name, rec, m, runs):
+            continue
+        if verifies(path, rec):
             return True
     from levgap.outputs.legacy import legacy_output
 

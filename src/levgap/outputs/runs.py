@@ -4,12 +4,13 @@ Writing (:class:`RunWriter`)
     1. The run gets an id (:func:`new_run_id`). Every file is written into a staging folder
        ``OUT/.levgap-stage-<random>/`` (hashing while writing) and recorded in that folder's own
        marker; ``OUT`` itself is untouched, so readers keep reading the previous run.
-    2. ``run.json`` is written last into the stage, with the run id and the run's file names.
+    2. ``run.json`` is written last into the stage, with the run id, the run's file names and
+       each file's size and SHA-256 (``digests``).
     3. The swap: ``OUT/.levgap-output`` is replaced by a journal (state ``committing``); each file
-       is renamed into ``OUT`` (``os.replace``, atomic per file), ``run.json`` last; files of the
-       previous run that this run does not replace are removed (only when verifiably levgap's,
-       never an input); the marker is replaced by the final one (state ``complete``); the stage
-       folder is removed.
+       is renamed into ``OUT`` (``os.replace``, atomic per file); files of the previous run that
+       this run does not replace are removed (only when verifiably levgap's, never an input);
+       ``run.json`` is renamed in last; the marker is replaced by the final one (state
+       ``complete``); the stage folder is removed.
 
     A run killed before the swap leaves the previous run complete and readable; killed during
     the swap, the journal says so and every reader refuses the folder; killed after it, the new
@@ -20,7 +21,13 @@ Writing (:class:`RunWriter`)
 Reading (``outputs.verify.verify_run``)
     The one check every reader makes before reading a table: the folder's journal is complete,
     ``run.json`` is a JSON object from this levgap or an older one, every file it lists is
-    present, and the marker (when the folder still has it) names the same run.
+    present, and the marker (when the folder still has it) names the same run. Each file a
+    reader then reads is checked against ``run.json``'s digests (``RunFolder.check``).
+
+What counts as levgap's
+    A file is replaced or removed only when the marker and a run record of the same run
+    (``run.json`` in the folder, or in a stage folder during an interrupted swap) both list it
+    with the same SHA-256, and the file still has it (``outputs.marker.is_ours``).
 """
 
 from __future__ import annotations
@@ -37,6 +44,7 @@ from pathlib import Path
 from typing import Any, BinaryIO
 
 from levgap.errors import OutputError
+from levgap.outputs.digests import RUN_FILE, RUN_ID, RunRecord, read_run_record
 from levgap.outputs.files import (
     _jsonable,
     is_own_name,
@@ -54,13 +62,13 @@ from levgap.outputs.marker import (
     read_marker,
     record_file,
     verifies,
+    witnessed,
     write_marker,
 )
 
-RUN_FILE = "run.json"
 STAGE_PREFIX = ".levgap-stage-"
 _STAGE = re.compile(r"^\.levgap-stage-[0-9a-f]{16}$")
-_RUN_ID = re.compile(r"^[A-Za-z0-9_-]{1,64}$")
+_RUN_ID = RUN_ID
 
 
 def new_run_id() -> str:
@@ -153,6 +161,10 @@ class RunWriter:
         stages = [out / n for n in _names(out) if is_stage_name(n) and _real_dir(out / n)]
         self._old_stages = stages
         self._markers = [self._marker, *(read_marker(s) for s in stages)]
+        here = read_run_record(out / RUN_FILE)
+        self._previous = here.run_id if here is not None else None
+        self._runs: list[RunRecord] = [r for r in (here, *(read_run_record(s / RUN_FILE)
+                                                           for s in stages)) if r is not None]
         if not self.force:
             refuse_foreign(out, self.inputs)
         self._check_target(RUN_FILE)
@@ -215,7 +227,7 @@ class RunWriter:
                               f"{name!r}.")
         target = self.out / name
         refuse_inputs([target], self.inputs)
-        if os.path.lexists(target) and not is_ours(self.out, name, self._markers):
+        if os.path.lexists(target) and not self._ours(name):
             raise OutputError(
                 f"{target}: the file exists and levgap did not write it (or it was changed "
                 "since); levgap never replaces such a file, even with --force. Move it or "
@@ -228,6 +240,9 @@ class RunWriter:
 
     def _is_input(self, p: Path) -> bool:
         return any(same_file(p, i) for i in self.inputs)
+
+    def _ours(self, name: str) -> bool:
+        return is_ours(self.out, name, self._markers, self._runs)
 
     # ------------------------------------------------------------------ the swap
 
@@ -243,21 +258,22 @@ class RunWriter:
             raise OutputError("RunWriter must be entered (with ...) before it commits.")
         members = [n for n in self.amend if n != RUN_FILE and n not in self._staged]
         members += [n for n in self._staged if n != RUN_FILE]
-        record = dict(_jsonable(manifest))
-        record["run_id"] = self.run_id
-        record["files"] = sorted(members)
-        body = json.dumps(record, default=str, indent=2, allow_nan=False) + "\n"
-        self.add(RUN_FILE, body.encode("utf-8"))
-
         final: dict[str, Record] = dict(self._staged)
         for name in members:
             if name not in final:  # a file of the run that stays (amend)
                 rec = self._marker.records.get(name)
                 path = out / name
                 final[name] = rec if rec is not None and verifies(path, rec) else _io(
-                    lambda p=path, n=name: record_file(p, "output", None,
-                                                       written=is_ours(out, n, self._markers)),
+                    lambda p=path, n=name: record_file(p, "output", None, written=self._ours(n)),
                     path, "the run's file must be readable")
+        record = dict(_jsonable(manifest))
+        record["run_id"] = self.run_id
+        record["files"] = sorted(members)
+        record["digests"] = {n: {"size": final[n].size, "sha256": final[n].sha256}
+                             for n in sorted(members)}
+        body = json.dumps(record, default=str, indent=2, allow_nan=False) + "\n"
+        self.add(RUN_FILE, body.encode("utf-8"))
+        final[RUN_FILE] = self._staged[RUN_FILE]
         stale = []
         known = {*(n for m in self._markers for n in m.records), *self._marker.legacy}
         known |= {n for n in _names(out) if is_own_name(n) and self._is_input(out / n)}
@@ -265,29 +281,38 @@ class RunWriter:
             path = out / name
             if not os.path.lexists(path) or not is_own_name(name):
                 continue
-            ours = is_ours(out, name, self._markers)
+            ours = self._ours(name)
             if self.amend and name in self._marker.records:
                 final[name] = self._marker.records[name]  # amending: nothing else changes
             elif self._is_input(path) or not ours or self._kept(name):
+                # kept, never replaced by a run; whether levgap wrote it (a single file such as
+                # the demo's panel, which no run record lists) is the marker's word, as for
+                # ``atomic_file``
+                written = ours or is_ours(out, name, self._markers)
                 with contextlib.suppress(OSError):
-                    final[name] = record_file(path, "kept", None, written=ours)
+                    final[name] = record_file(path, "kept", None, written=written)
             else:
                 stale.append(name)
 
         journal = {**{n: r for m in self._markers[::-1] for n, r in m.records.items()}}
         self._swapping = True
-        write_marker(out, Marker(self.run_id, "committing", journal, self._marker.legacy))
-        order = [n for n in self._staged if n != RUN_FILE] + [RUN_FILE]
+        write_marker(out, Marker(self.run_id, "committing", journal, self._marker.legacy,
+                                 previous=self._previous))
+        order = [n for n in self._staged if n != RUN_FILE]
         for name in order:
             _io(lambda n=name: os.replace(stage / n, out / n), out / name,
                 "the file must be writable")
         removed = []
+        # before run.json moves in: until then the previous run's record witnesses its files
         for name in stale:
-            if is_ours(out, name, self._markers) and not self._is_input(out / name):
+            if self._ours(name) and not self._is_input(out / name):
                 with contextlib.suppress(FileNotFoundError):
                     _io(lambda n=name: (out / n).unlink(), out / name,
                         "the previous run's file must be removable")
                 removed.append(name)
+        order.append(RUN_FILE)
+        _io(lambda: os.replace(stage / RUN_FILE, out / RUN_FILE), out / RUN_FILE,
+            "the file must be writable")
         write_marker(out, Marker(self.run_id, "complete", final))
         for s in [stage, *self._old_stages]:
             _clear_stage(s)
@@ -319,13 +344,14 @@ def refuse_foreign(out_dir: str | Path, inputs: Iterable[str | Path] = ()) -> No
     out = Path(out_dir)
     if not out.is_dir():
         return
-    markers = [read_marker(out), *(read_marker(out / n) for n in _names(out)
-                                   if is_stage_name(n) and _real_dir(out / n))]
+    stages = [out / n for n in _names(out) if is_stage_name(n) and _real_dir(out / n)]
+    markers = [read_marker(out), *(read_marker(s) for s in stages)]
+    runs = [r for r in (read_run_record(p / RUN_FILE) for p in (out, *stages)) if r is not None]
     inputs = [Path(i) for i in inputs]
     foreign = sorted(
         n for n in _names(out)
         if n != MARKER and not is_temp_name(n) and not is_stage_name(n)
-        and not any(m.knows(n) for m in markers)
+        and not any(_known(n, m, runs) for m in markers)
         and not any(same_file(out / n, i) for i in inputs)
     )
     if foreign:
@@ -336,6 +362,15 @@ def refuse_foreign(out_dir: str | Path, inputs: Iterable[str | Path] = ()) -> No
             f"levgap did not write ({shown}). Choose another --out or pass --force (they are "
             "left alone)."
         )
+
+
+def _known(name: str, marker: Marker, runs: list[RunRecord]) -> bool:
+    """A name the marker may vouch for: a kept or single file, a 0.1 name, or a run's file
+    that a run record of the marker's run lists with the same digest (not a planted entry)."""
+    if name in marker.legacy:
+        return True
+    rec = marker.records.get(name)
+    return rec is not None and (rec.kind != "output" or witnessed(name, rec, marker, runs))
 
 
 def _names(folder: Path) -> list[str]:

@@ -2,15 +2,16 @@
 
 from __future__ import annotations
 
-import json
 import re
+import stat
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from levgap.errors import OutputError
-from levgap.outputs.files import is_own_name, read_bounded
+from levgap.outputs.digests import parse_digests
+from levgap.outputs.files import file_digest, is_own_name, load_json, read_bounded
 from levgap.outputs.marker import Marker, read_marker
 from levgap.outputs.runs import _RUN_ID, RUN_FILE, _names
 
@@ -30,18 +31,67 @@ class RunFolder:
         None for a folder written by levgap 0.1 (no run id to check).
     files : dict of str to pathlib.Path
         Every file of the run by name, ``run.json`` included.
+    digests : mapping of str to (int, str), default={}
+        Size and SHA-256 of every file but ``run.json``, as ``run.json`` records them (empty
+        for a 0.1 folder).
+    marker : Marker, default=Marker()
+        The folder's marker as read (absent after ``cp results/*``: then only the digests
+        decide).
     """
 
     folder: Path
     manifest: dict[str, Any]
     run_id: str | None
     files: dict[str, Path]
+    digests: Mapping[str, tuple[int, str]] = field(default_factory=dict)
+    marker: Marker = field(default_factory=Marker)
 
     @property
     def tables(self) -> dict[str, Path]:
         """The run's tables (CSV or Parquet) by name (``targets``, ``drivers``, ...)."""
         return {p.stem: p for n, p in sorted(self.files.items())
                 if p.suffix in (".csv", ".parquet")}
+
+    def check(self, name: str) -> Path:
+        """The path of the run's file ``name``, after checking it is the file the run wrote.
+
+        Fast path: the marker records the file for this run, with the digest ``run.json``
+        gives, and the file still has the recorded inode, modification time and size.
+        Otherwise the size, then the SHA-256, must be those ``run.json`` records (a file is
+        hashed only when the fast path fails). A 0.1 folder has nothing to check.
+
+        Raises
+        ------
+        OutputError
+            One line naming the file: it was edited, or copied in from another run.
+        """
+        path = self.files[name]
+        if self.run_id is None or name == RUN_FILE:
+            return path
+        want = self.digests.get(name, (-1, ""))
+        try:
+            st = path.lstat()
+            same = stat.S_ISREG(st.st_mode) and st.st_size == want[0]
+            rec = self.marker.records.get(name)
+            if same and not (self.marker.run_id == self.run_id and rec is not None
+                             and (rec.size, rec.sha256) == want and rec.ino == st.st_ino
+                             and rec.mtime_ns == st.st_mtime_ns):
+                same = file_digest(path)[1] == want[1]
+        except OSError as exc:
+            raise OutputError(f"{path}: the run's file must be readable; got "
+                              f"{exc.strerror or exc}.") from None
+        if not same:
+            raise OutputError(
+                f"{path}: {name} is not the file run {self.run_id} wrote: edited, or copied "
+                "from another run. Re-run `levgap analyze` (or `levgap report --accept-edits` "
+                "to keep edited tables)."
+            )
+        return path
+
+    def table(self, stem: str) -> Path | None:
+        """The run's table ``stem`` (``targets``, ...) after :meth:`check`; None when absent."""
+        path = self.tables.get(stem)
+        return None if path is None else self.check(path.name)
 
     def inputs(self) -> list[tuple[Path, str | None]]:
         """The run's input files as recorded in ``run.json``: path and SHA-256."""
@@ -53,13 +103,17 @@ class RunFolder:
         return out
 
 
-def verify_run(out_dir: str | Path) -> RunFolder:
+def verify_run(out_dir: str | Path, *, digests: bool = True) -> RunFolder:
     """Check that a folder holds one complete levgap run, and say where its files are.
 
     Parameters
     ----------
     out_dir : str or pathlib.Path
         A folder written by ``levgap analyze`` (or ``Analysis.write``).
+    digests : bool, default=True
+        Require ``run.json`` to record each file's size and SHA-256 (``RunFolder.check``
+        compares them). False only to accept edited tables on request (``levgap report
+        --accept-edits``), which re-records them.
 
     Returns
     -------
@@ -108,6 +162,13 @@ def verify_run(out_dir: str | Path) -> RunFolder:
             f"{out}: run.json belongs to run {run_id} but the folder's marker records run "
             f"{marker.run_id}: the folder mixes two runs. Re-run `levgap analyze`."
         )
+    recorded = parse_digests(manifest.get("digests"), listed)
+    if recorded is None and digests:
+        raise OutputError(
+            f"{path}: digests must give the size and SHA-256 of every file the run lists; got "
+            f"{str(manifest.get('digests'))[:60]!r}. The file was edited or damaged; re-run "
+            "`levgap analyze`."
+        )
     files = {RUN_FILE: path}
     for name in listed:
         p = out / name
@@ -117,7 +178,7 @@ def verify_run(out_dir: str | Path) -> RunFolder:
                 "incomplete run. Re-run `levgap analyze`."
             )
         files[name] = p
-    return RunFolder(out, manifest, run_id, files)
+    return RunFolder(out, manifest, run_id, files, recorded or {}, marker)
 
 
 def _read_manifest(path: Path) -> dict[str, Any]:
@@ -127,7 +188,7 @@ def _read_manifest(path: Path) -> dict[str, Any]:
 
     data = read_bounded(path, _MAX_RUN_JSON)
     try:
-        raw = json.loads(data.decode("utf-8"))
+        raw = load_json(data.decode("utf-8"))
     except (UnicodeDecodeError, ValueError) as exc:
         raise OutputError(
             f"{path}: run.json must be valid JSON; got {' '.join(str(exc).split())[:120]}."
@@ -158,7 +219,43 @@ def _read_manifest(path: Path) -> dict[str, Any]:
             f"{path}: written by levgap {theirs}, newer than this levgap {ours}; upgrade "
             "levgap to read these outputs."
         )
+    _check_shape(path, raw)
     return raw
+
+
+def _is_text_list(v: Any) -> bool:
+    return isinstance(v, list) and all(isinstance(x, str) for x in v)
+
+
+_SHAPE: dict[tuple[str, ...], tuple[str, Any]] = {
+    ("options",): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "model"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "input"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "units"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "columns"): ("an object", lambda v: isinstance(v, dict)),
+    ("options", "model", "measures"): ("a list of names", _is_text_list),
+    ("options", "model", "drivers"): ("a list of names", _is_text_list),
+    ("counts",): ("an object", lambda v: isinstance(v, dict)),
+    ("counts", "by_reason"): ("an object", lambda v: isinstance(v, dict)),
+    ("inputs",): ("a list", lambda v: isinstance(v, list)),
+    ("pooled_industries",): ("a list of objects", lambda v: isinstance(v, list) and all(
+        isinstance(b, dict) and isinstance(b.get("weight", {}), dict | None) for b in v)),
+    ("warnings",): ("a list", lambda v: isinstance(v, list)),
+}
+"""What the readers use from ``run.json``, and the JSON type each must have when present."""
+
+
+def _check_shape(path: Path, raw: dict[str, Any]) -> None:
+    """Refuse a ``run.json`` whose parts the readers use have the wrong JSON type."""
+    for keys, (what, ok) in _SHAPE.items():
+        v: Any = raw
+        for k in keys:
+            v = v.get(k) if isinstance(v, dict) else None
+        if v is not None and not ok(v):
+            raise OutputError(
+                f"{path}: {'.'.join(keys)} must be {what}; got {str(v)[:60]!r}. The file was "
+                "edited or damaged; re-run `levgap analyze`."
+            )
 
 
 def _release(v: str) -> tuple[int, ...]:
@@ -204,6 +301,8 @@ def saved_model_file(out_dir: str | Path, name: str = "model.json") -> Path:
     """
     run = verify_run(out_dir)
     path = run.files.get(name)
+    if path is not None:
+        run.check(name)
     if path is None:
         raise OutputError(
             f"{Path(out_dir) / name}: the results folder must hold {name} of its run; got "
@@ -211,7 +310,7 @@ def saved_model_file(out_dir: str | Path, name: str = "model.json") -> Path:
         )
     if run.run_id is not None:
         try:
-            raw = json.loads(read_bounded(path, _MAX_RUN_JSON * 16).decode("utf-8"))
+            raw = load_json(read_bounded(path, _MAX_RUN_JSON * 16).decode("utf-8"))
         except (UnicodeDecodeError, ValueError) as exc:
             raise OutputError(f"{path}: {name} must be valid JSON; got "
                               f"{' '.join(str(exc).split())[:120]}.") from None

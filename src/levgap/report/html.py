@@ -99,7 +99,8 @@ def write_report(
     return atomic_write_bytes(Path(out_dir) / REPORT_NAME, html.encode("utf-8"))
 
 
-def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -> Path:
+def build_report(out_dir: str | Path, *, options: ReportOptions | None = None,
+                 accept_edits: bool = False) -> Path:
     """Rebuild ``report.html`` of the run in ``out_dir`` from the tables written there.
 
     The report joins the run: it is swapped in with the run's id, and ``run.json`` lists it.
@@ -109,6 +110,13 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -
     out_dir : str or pathlib.Path
         Folder written by ``levgap analyze`` (CSV or Parquet tables and ``run.json``).
     options : ReportOptions, optional
+    accept_edits : bool, default=False
+        By default every file of the run must be the one the run wrote (``RunFolder.check``:
+        an edited table, or one copied from another run, is refused). True accepts the files
+        as they are now (still checked against the table contract) and re-records their size
+        and SHA-256 in ``run.json``, so that later readers accept them too; a later
+        ``levgap analyze`` there will not replace the edited files (levgap did not write
+        them).
 
     Returns
     -------
@@ -124,7 +132,11 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -
     from levgap.outputs import RunWriter, new_run_id, verify_run
     from levgap.report.tables import read_table_file
 
-    run = verify_run(out_dir)
+    run = verify_run(out_dir, digests=not accept_edits)
+    if not accept_edits:  # the files the report joins are the run's, not only the tables
+        for name in run.files:
+            if name != REPORT_NAME:
+                run.check(name)
     tables = {name: read_table_file(p, name, legacy=run.run_id is None)
               for name, p in run.tables.items()}
     _check_tables(tables)
@@ -133,7 +145,8 @@ def build_report(out_dir: str | Path, *, options: ReportOptions | None = None) -
                    inputs=[p for p, _ in run.inputs()], force=True,
                    amend=[n for n in run.files if n != REPORT_NAME]) as writer:
         writer.add(REPORT_NAME, html.encode("utf-8"))
-        writer.commit({k: v for k, v in run.manifest.items() if k not in ("run_id", "files")})
+        writer.commit({k: v for k, v in run.manifest.items()
+                       if k not in ("run_id", "files", "digests")})
     return Path(out_dir) / REPORT_NAME
 
 
@@ -295,6 +308,8 @@ def _header(tables: Mapping[str, pd.DataFrame], manifest: Mapping[str, Any],
                                      str(model_opts.get("model", "not recorded"))),
         "cluster": CLUSTERS.get(model_opts.get("cluster"),
                                 model_opts.get("cluster", "not recorded")),
+        "absorbed": g.ABSORBED.get(str(model_opts.get("effects", "industry,year")),
+                                   g.ABSORBED["industry,year"]),
         "coverage": _num(model_opts.get("coverage")),
         "folds": model_opts.get("folds"),
         "fit": fit_rows,
@@ -412,9 +427,14 @@ def render_report(
     if progress is not None:
         progress("report", total, total)
     coef_rows = coefficients.to_dict("records")
+    sources: dict[str, str] = {}
+    for c in coef_rows:
+        if str(c.get("sign_source") or "") and str(c.get("term")) not in sources:
+            sources[str(c["term"])] = str(c["sign_source"])
     n_charts = len(charts) + sum(len(s["steps"]) for s in sections)
     return _environment().get_template("report.html.j2").render(
         h=header, year=year, sections=sections, charts=charts, coefficients=coef_rows,
+        sign_sources=list(sources.items()),
         caution=CAUTION, n_charts=n_charts, options=opts, g=g, universe=universe,
         u_labels=universe_labels(), money=g.money_unit(units),
         money_known=g.money_unit(units) != g.money_unit({}), money_note=g.money_note(units),

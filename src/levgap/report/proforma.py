@@ -182,19 +182,25 @@ def terminal_tables(check: DealCheck) -> list[Any]:
                              "to the band's top in the results' money unit"),
                   title_justify="left")
         width = min(max(len(str(x)) for x in rows["scenario"]), 24)
-        t.add_column("scenario", min_width=width, no_wrap=True, overflow="ellipsis")
-        for col in ("actual", "target", "band", "status", g.header("gap"), "to top (recap)",
-                    "to top (funded)", "ND/EBITDA", "EBITDA/int", "Altman", "PD 1y"):
-            t.add_column(col, justify="left" if col in ("status", "Altman") else "right",
-                         no_wrap=True)
+        keys = ("actual", "target", "band", "status", "gap", "capacity_to_band_top_recap",
+                "capacity_to_band_top_funded", "net_debt_to_ebitda", "ebitda_to_interest",
+                "altman_score", "default_probability")
+        body = []
         for r in rows.to_dict("records"):
             z = "" if not math.isfinite(r["altman_score"]) else \
                 f"{r['altman_model']} {r['altman_score']:.2f} {r['altman_zone']}"
-            t.add_row(Text(str(r["scenario"])), pct(r["actual"]), pct(r["target"]),
-                      f"{pct(r['band_low'])}-{pct(r['band_high'])}", str(r["status"]),
-                      pp(r["gap"]), money(r["capacity_to_band_top_recap"]),
-                      money(r["capacity_to_band_top_funded"]), ratio(r["net_debt_to_ebitda"]),
-                      ratio(r["ebitda_to_interest"]), z or "-",
-                      pct(r["default_probability"], 2))
+            body.append([pct(r["actual"]), pct(r["target"]),
+                         f"{pct(r['band_low'])}-{pct(r['band_high'])}", str(r["status"]),
+                         pp(r["gap"]), money(r["capacity_to_band_top_recap"]),
+                         money(r["capacity_to_band_top_funded"]),
+                         ratio(r["net_debt_to_ebitda"]), ratio(r["ebitda_to_interest"]),
+                         z or "-", pct(r["default_probability"], 2)])
+        t.add_column(g.label("scenario"), min_width=width, no_wrap=True, overflow="ellipsis")
+        for i, key in enumerate(keys):  # figures whole; the glossary's labels wrap above them
+            cells = max(len(row[i]) for row in body)
+            t.add_column(g.header(key), justify="left" if key in ("status", "altman_score")
+                         else "right", min_width=cells, overflow="fold")
+        for r, row in zip(rows.to_dict("records"), body, strict=True):
+            t.add_row(Text(str(r["scenario"])), *row)
         tables.append(t)
     return tables

@@ -13,16 +13,7 @@ from levgap.report.svg import PALETTE, Canvas
 if TYPE_CHECKING:
     from levgap.deal.result import DealCheck
 
-LINE_LABELS = {
-    "total_assets": "Total assets", "total_debt": "Total debt", "book_equity": "Book equity",
-    "market_equity": "Market equity", "cash": "Cash", "ppe_net": "PP&E, net",
-    "ebitda": "EBITDA", "ebit": "EBIT", "revenue": "Revenue",
-    "interest_expense": "Interest expense", "current_assets": "Current assets",
-    "current_liabilities": "Current liabilities", "total_liabilities": "Total liabilities",
-    "retained_earnings": "Retained earnings", "rd_expense": "R&D expense",
-    "goodwill": "Goodwill added",
-}
-CONVENTION_LABELS = {"funded": "debt funds new assets", "recap": "recapitalisation"}
+LINE_LABELS = g.STATEMENT  # the statement lines, named in levgap.glossary
 
 
 def _cap(text: str) -> str:
@@ -116,29 +107,30 @@ def _measure_block(check: DealCheck, measure: str) -> dict[str, Any]:
     rows = check.table[check.table["measure"] == measure].set_index("scenario")
     labels = list(rows.index)
     side = [
-        ("Actual leverage", _cells(rows, labels, "actual", pct)),
-        ("Target (saved model, full sample)", _cells(rows, labels, "target", pct)),
-        ("Band", [f"{pct(rows.at[x, 'band_low'])} to {pct(rows.at[x, 'band_high'])}"
+        (_cap(g.label("actual")), _cells(rows, labels, "actual", pct)),
+        (_cap(g.label("target_full")) + " (saved model)", _cells(rows, labels, "target", pct)),
+        (_cap(g.label("band")), [f"{pct(rows.at[x, 'band_low'])} to {pct(rows.at[x, 'band_high'])}"
                   for x in labels]),
-        ("Status", _cells(rows, labels, "status", str)),
+        (_cap(g.label("status")), _cells(rows, labels, "status", str)),
         (_cap(g.header("gap")), _cells(rows, labels, "gap", pp)),
         (_cap(g.header("gap_z")), _cells(rows, labels, "gap_z", lambda v: num(v))),
     ]
     for conv in ("recap", "funded"):
-        for goal, name in (("target", "target"), ("band_top", "band top")):
-            side.append((f"Debt to {name} ({CONVENTION_LABELS[conv]})",
-                         _cells(rows, labels, f"capacity_to_{goal}_{conv}", money)))
+        for goal in ("target", "band_top"):
+            key = f"capacity_to_{goal}_{conv}"
+            side.append((_cap(g.label(key)), _cells(rows, labels, key, money)))
     side += [
-        ("Debt now", _cells(rows, labels, "total_debt", amount)),
-        ("Debt at the target (recapitalisation)",
+        (_cap(g.label("debt_now")), _cells(rows, labels, "total_debt", amount)),
+        (_cap(g.label("debt_at_target")),
          [amount(rows.at[x, "total_debt"] + rows.at[x, "capacity_to_target_recap"])
           for x in labels]),
-        ("Debt at the band's top (recapitalisation)",
+        (_cap(g.label("debt_at_band_top")),
          [amount(rows.at[x, "total_debt"] + rows.at[x, "capacity_to_band_top_recap"])
           for x in labels]),
-        ("Tax shield PV", _cells(rows, labels, "tax_shield_pv", amount)),
-        ("Expected distress cost", _cells(rows, labels, "expected_distress_cost", amount)),
-        ("Trade-off: best debt (grid to 2x band top)",
+        (_cap(g.label("tax_shield_pv")), _cells(rows, labels, "tax_shield_pv", amount)),
+        (_cap(g.label("expected_distress_cost")),
+         _cells(rows, labels, "expected_distress_cost", amount)),
+        (_cap(g.label("tradeoff_best_debt")) + " (grid to 2x band top)",
          _cells(rows, labels, "tradeoff_best_debt", amount)),
     ]
     return {
@@ -153,21 +145,22 @@ def _measure_block(check: DealCheck, measure: str) -> dict[str, Any]:
 
 def _credit_rows(first: pd.DataFrame, labels: list[str]) -> list[tuple[str, list[str]]]:
     return [
-        ("Net debt / EBITDA", _cells(first, labels, "net_debt_to_ebitda", ratio)),
-        ("Debt / EBITDA", _cells(first, labels, "debt_to_ebitda", ratio)),
-        ("EBITDA / interest", _cells(first, labels, "ebitda_to_interest", ratio)),
-        ("Altman score", [
+        (_cap(g.label("net_debt_to_ebitda")), _cells(first, labels, "net_debt_to_ebitda", ratio)),
+        (_cap(g.label("debt_to_ebitda")), _cells(first, labels, "debt_to_ebitda", ratio)),
+        (_cap(g.label("ebitda_to_interest")), _cells(first, labels, "ebitda_to_interest", ratio)),
+        (_cap(g.label("altman_score")), [
             "–" if _f(first.at[x, "altman_score"]) is None else
             f"{first.at[x, 'altman_model']} {first.at[x, 'altman_score']:.2f} "
             f"({first.at[x, 'altman_zone']})" for x in labels]),
-        ("Asset value (Merton)", _cells(first, labels, "asset_value", amount)),
-        ("Asset volatility", [
+        (_cap(g.label("asset_value")), _cells(first, labels, "asset_value", amount)),
+        (_cap(g.label("asset_volatility")), [
             "–" if _f(first.at[x, "asset_volatility"]) is None else
             f"{first.at[x, 'asset_volatility']:.1%} ({first.at[x, 'asset_volatility_source']})"
             for x in labels]),
-        ("Distance to default", _cells(first, labels, "distance_to_default", num)),
-        ("Default probability, 1 year", _cells(first, labels, "default_probability",
-                                               lambda v: pct(v, 2))),
+        (_cap(g.label("distance_to_default")),
+         _cells(first, labels, "distance_to_default", num)),
+        (_cap(g.label("default_probability")), _cells(first, labels, "default_probability",
+                                                      lambda v: pct(v, 2))),
     ]
 
 
@@ -260,9 +253,9 @@ def _waterfall(label: str, steps: pd.DataFrame, measure: str) -> str:
 
 def _tradeoff_svgs(check: DealCheck, measure: str, rows: pd.DataFrame) -> list[dict[str, Any]]:
     out = []
-    g = check.tradeoff[check.tradeoff["measure"] == measure]
+    trade = check.tradeoff[check.tradeoff["measure"] == measure]
     for label, r in rows.iterrows():
-        grid = g[g["scenario"] == label]
+        grid = trade[trade["scenario"] == label]
         if grid.empty or not grid["net"].notna().any():
             out.append({"label": label, "svg": "", "why": _why_no_tradeoff(r)})
             continue
@@ -275,9 +268,9 @@ def _tradeoff_svgs(check: DealCheck, measure: str, rows: pd.DataFrame) -> list[d
         c.vspan(r["band_low"] * base, r["band_high"] * base, colour=PALETTE[0],
                 label=f"{measure} band")
         c.line(list(grid["debt"]), list(grid["tax_shield"]), colour=PALETTE[2],
-               label="tax shield PV")
+               label=g.label("tax_shield_pv"))
         c.line(list(grid["debt"]), list(grid["distress_cost"]), colour=PALETTE[1],
-               label="expected distress cost")
+               label=g.label("expected_distress_cost"))
         c.line(list(grid["debt"]), list(grid["net"]), colour=PALETTE[3], label="net",
                dash="6 3")
         c.vline(float(r["total_debt"]), colour="#1f2733", label="debt")

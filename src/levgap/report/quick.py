@@ -40,7 +40,7 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
 
     out = Path(out_dir)
     run = verify_run(out)
-    path = run.tables.get("targets")
+    path = run.table("targets")  # the file the run wrote (size, else SHA-256, per run.json)
     if path is None:
         raise OutputError(f"{out}: the folder must hold a targets table; got none.")
     try:
@@ -64,7 +64,8 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
             "Re-run `levgap analyze`."
         ) from None
     check_table_columns(path, "targets", {n: _kind(table[n]) for n in table.column_names},
-                        lambda c: _example(table[c]), legacy=run.run_id is None)
+                        lambda c: _example(table[c]), legacy=run.run_id is None,
+                        blanks=lambda c: _blanks(table[c]))
     for c in TEXT:
         if c in table.column_names and not pa.types.is_string(table[c].type):
             i = table.column_names.index(c)
@@ -130,6 +131,20 @@ def _kind(col: Any) -> str:
     if pa.types.is_string(t) or pa.types.is_large_string(t):
         return "text"
     return "other"
+
+
+def _blanks(col: Any) -> int:
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    n = col.null_count
+    if pa.types.is_floating(col.type):
+        n += pc.sum(pc.is_nan(col)).as_py() or 0
+    elif pa.types.is_string(col.type) or pa.types.is_large_string(col.type):
+        # no Python scalar in a comparison: making an Arrow scalar would import pandas
+        filled = pc.utf8_length(pc.utf8_trim_whitespace(col)).cast(pa.bool_())
+        n += pc.sum(pc.invert(filled)).as_py() or 0
+    return int(n)
 
 
 def _example(col: Any) -> str:
@@ -256,6 +271,8 @@ def screen_rows(table: Any, query: ScreenQuery,
         want = query.industry.strip().casefold()
         hit = [c for c in codes if unneutralise(c).casefold() == want
                or want in names.get(unneutralise(c), "").casefold()]
+        if not hit and not want.isdigit():  # a text label: part of it, as part of a name
+            hit = [c for c in codes if want in unneutralise(c).casefold()]
         if not hit:
             shown = [unneutralise(c) for c in codes] + [names[c] for c in map(unneutralise, codes)
                                                          if c in names]

@@ -6,8 +6,8 @@ Safety rules, each tested (the mechanisms live in ``levgap.outputs``):
   ``@`` or their fullwidth forms, possibly after spaces, or with a tab or a carriage return)
   get a leading apostrophe (the usual guidance against spreadsheet formula injection);
   numeric columns are untouched;
-- CSV lines end in CRLF (RFC 4180), so that the csv writer quotes any cell holding a
-  carriage return or a line feed;
+- CSV is written by pyarrow's columnar writer (``levgap.report.columnar`` states the format:
+  shortest round-trip numbers, every text cell quoted, lines ending in CRLF as RFC 4180);
 - a run's files are staged and swapped in as one unit with one run id; readers refuse a
   folder holding an interrupted run, a damaged or newer ``run.json``, a missing file, or a
   table without a contract column or with a wrong type;
@@ -44,7 +44,8 @@ FORMATS: dict[str, str] = {"csv": ".csv", "parquet": ".parquet"}
 
 TEXT_COLUMNS: tuple[str, ...] = (
     "firm_id", "firm_name", "industry", "measure", "driver", "status", "reason", "detail",
-    "flags", "model", "term", "currency", "peer_group",
+    "flags", "model", "term", "currency", "peer_group", "expected_sign", "agrees",
+    "sign_source", "effect_group",
 )
 """Output columns read back as text (so that codes such as ``0100`` keep their zeros)."""
 
@@ -114,8 +115,7 @@ def stage_tables(run: RunWriter, tables: Mapping[str, pd.DataFrame], *, fmt: str
     for name, frame in tables.items():
         if frame.shape[1] == 0 and name in TABLE_COLUMNS:  # an empty table keeps its header
             frame = pd.DataFrame(columns=list(TABLE_COLUMNS[name]))
-        out.append(run.add(f"{name}{FORMATS[fmt]}",
-                           _table_writer(neutralise(frame), fmt, run.run_id)))
+        out.append(run.add(f"{name}{FORMATS[fmt]}", _table_writer(frame, fmt, run.run_id)))
     return out
 
 
@@ -138,7 +138,8 @@ def read_outputs(
     ----------
     out_dir : str or pathlib.Path
         A folder written by :func:`write_tables` or ``levgap analyze``; checked first with
-        ``levgap.outputs.verify_run`` (one complete run, readable ``run.json``).
+        ``levgap.outputs.verify_run`` (one complete run, readable ``run.json``); each table
+        read is checked against the size and SHA-256 ``run.json`` records for it.
     names : iterable of str, optional
         Only these tables (e.g. ``["targets"]``); default every table of the run.
 
@@ -153,8 +154,9 @@ def read_outputs(
     Raises
     ------
     OutputError
-        The folder does not hold one complete run, or a table cannot be read, lacks a
-        contract column or holds a wrong type (the message names the file and column).
+        The folder does not hold one complete run, a table is not the file the run wrote
+        (edited, or copied from another run), or a table cannot be read, lacks a contract
+        column or holds a wrong type (the message names the file and column).
     """
     run = verify_run(out_dir)
     wanted = None if names is None else set(names)
@@ -162,7 +164,7 @@ def read_outputs(
     for name, p in run.tables.items():
         if wanted is not None and name not in wanted:
             continue
-        tables[name] = read_table_file(p, name, legacy=run.run_id is None)
+        tables[name] = read_table_file(run.check(p.name), name, legacy=run.run_id is None)
     return tables, run.manifest
 
 
@@ -185,7 +187,8 @@ def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFr
             "Re-run `levgap analyze`."
         ) from None
     kinds = {str(c): _kind(frame[c]) for c in frame.columns}
-    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy)
+    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy,
+                        blanks=lambda c: _blanks(frame[c]))
     for c in TEXT_COLUMNS:
         if c in frame.columns:
             frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
@@ -205,6 +208,13 @@ def _kind(col: pd.Series) -> str:
     if pd.api.types.is_string_dtype(col.dtype) or col.dtype == object:
         return "text"
     return "other"
+
+
+def _blanks(col: pd.Series) -> int:
+    n = int(col.isna().sum())
+    if not pd.api.types.is_numeric_dtype(col.dtype):
+        n += int((col.dropna().astype("str").str.strip() == "").sum())
+    return n
 
 
 def _example(col: pd.Series) -> str:
@@ -247,29 +257,15 @@ def write_table(
     if fmt is None:
         raise OutputError(f"{target}: a table file must end in .csv or .parquet; got "
                           f"{target.suffix or 'no suffix'}.")
-    write = _table_writer(neutralise(frame), fmt, None)
+    write = _table_writer(frame, fmt, None)
     with atomic_file(target, inputs=inputs) as tmp, open(tmp, "wb") as fh:
         write(fh)
     return target
 
 
 def _table_writer(frame: pd.DataFrame, fmt: str, run_id: str | None) -> Any:
-    """A function writing ``frame`` as CSV or Parquet to a binary handle."""
-    if fmt == "parquet":
-        def parquet(fh: Any) -> None:
-            import pyarrow as pa
-            import pyarrow.parquet as pq
+    """A function writing ``frame`` as CSV or Parquet to a binary handle (text cells
+    neutralised; the CSV format is ``levgap.report.columnar``'s)."""
+    from levgap.report.columnar import csv_writer, parquet_writer
 
-            table = pa.Table.from_pandas(frame, preserve_index=False)
-            if run_id is not None:
-                meta = dict(table.schema.metadata or {})
-                meta[b"levgap_run_id"] = run_id.encode("ascii")
-                table = table.replace_schema_metadata(meta)
-            pq.write_table(table, fh)
-
-        return parquet
-
-    def csv(fh: Any) -> None:
-        frame.to_csv(fh, index=False, encoding="utf-8", lineterminator="\r\n")
-
-    return csv
+    return parquet_writer(frame, run_id) if fmt == "parquet" else csv_writer(frame)

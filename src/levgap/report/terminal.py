@@ -144,7 +144,8 @@ def render_steps(steps: pd.DataFrame, *, width: int = 40, title: str | None = No
     return table
 
 
-def render_history(history: pd.DataFrame, *, width: int = 24, title: str | None = None) -> Any:
+def render_history(history: pd.DataFrame, *, width: int = 24, title: str | None = None,
+                   max_width: int | None = None) -> Any:
     """The firm's gap over its years as a terminal chart.
 
     Parameters
@@ -156,6 +157,10 @@ def render_history(history: pd.DataFrame, *, width: int = 24, title: str | None 
         Characters of the bar column; bars start at its middle (zero gap) and run left for
         gaps under the target, right for gaps over it, to an eighth of a character.
     title : str, optional
+    max_width : int, optional
+        The terminal's width: the band, then the target, then the actual column are left out
+        and the bars shortened (to 10 characters at least) until the chart fits; years,
+        status, gap and years outside are never cut.
 
     Returns
     -------
@@ -164,18 +169,48 @@ def render_history(history: pd.DataFrame, *, width: int = 24, title: str | None 
     from rich.table import Table
     from rich.text import Text
 
+    def years_out(v: Any) -> str:
+        return str(int(v)) if v == v else ""
+
+    rows = list(history.itertuples(index=False))
+    cols = [("fiscal_year", g.header("fiscal_year"), [str(int(r.fiscal_year)) for r in rows]),
+            ("status", g.header("status"), [str(r.status) for r in rows]),
+            ("actual", g.header("actual"), [g.pct(r.actual) for r in rows]),
+            ("target", g.header("target"), [g.pct(r.target) for r in rows]),
+            ("band", g.header("band"),
+             [f"{g.pct(r.band_low)}-{g.pct(r.band_high)}" for r in rows])]
+    tail = [("gap", g.header("gap"), [g.pp(r.gap) for r in rows]),
+            ("years_outside", g.label("years_outside"), [years_out(r.years_outside)
+                                                         for r in rows])]
+
+    def natural(col: tuple[str, str, list[str]]) -> int:
+        return max([len(col[1]), *(len(c) for c in col[2])])
+
+    if max_width is not None:
+        for drop in ("band", "target", "actual"):
+            fixed = sum(natural(c) + 3 for c in cols + tail)  # each column and its separator
+            if fixed + width + 1 <= max_width:
+                break
+            if fixed + 11 <= max_width:  # shorter bars are enough
+                width = max_width - fixed - 1
+                break
+            cols = [c for c in cols if c[0] != drop]
+        else:
+            fixed = sum(natural(c) + 3 for c in cols + tail)
+            width = max(10, min(width, max_width - fixed - 1))
     gaps = history["gap"].astype(float).to_numpy()
     top = float(np.nanmax(np.abs(gaps))) if np.isfinite(gaps).any() else 0.0
     half = width // 2
     scale = half / top if top > 0 else 0.0
     table = Table(title=Text(title) if title else None, show_edge=False, pad_edge=False)
-    for key, right in (("fiscal_year", False), ("status", False), ("actual", True),
-                       ("target", True), ("band", True)):
-        table.add_column(g.header(key), justify="right" if right else "left", no_wrap=True)
+    for key, head, cells in cols:
+        table.add_column(head, justify="left" if key in ("fiscal_year", "status") else "right",
+                         no_wrap=True, min_width=max(len(c) for c in cells) if cells else None)
     table.add_column("", no_wrap=True, min_width=width + 1)
-    table.add_column(g.header("gap"), justify="right", no_wrap=True)
-    table.add_column(g.label("years_outside"), justify="right", no_wrap=True)
-    for r in history.itertuples(index=False):
+    for _key, head, cells in tail:
+        table.add_column(head, justify="right", no_wrap=True,
+                         min_width=max(len(c) for c in cells) if cells else None)
+    for i, r in enumerate(rows):
         size = abs(float(r.gap)) * scale if math.isfinite(float(r.gap)) else 0.0
         full, eighths = divmod(int(round(size * 8)), 8)
         body = "█" * full + (_EIGHTHS[eighths] if eighths else "")
@@ -184,7 +219,5 @@ def render_history(history: pd.DataFrame, *, width: int = 24, title: str | None 
             bar.append("│", style="dim")
         else:
             bar = Text(" " * half + "│", style="dim").append(body, style="red")
-        table.add_row(str(int(r.fiscal_year)), str(r.status), g.pct(r.actual), g.pct(r.target),
-                      f"{g.pct(r.band_low)}-{g.pct(r.band_high)}", bar, g.pp(r.gap),
-                      str(int(r.years_outside)) if r.years_outside == r.years_outside else "")
+        table.add_row(*(c[2][i] for c in cols), bar, *(c[2][i] for c in tail))
     return table

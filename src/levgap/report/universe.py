@@ -133,7 +133,8 @@ def firm_payload(targets: pd.DataFrame, drivers: pd.DataFrame, manifest: Mapping
     names = [str(d) for d in pd.unique(drivers["driver"])]
     k = len(names)
     dnow = drivers[drivers["fiscal_year"] == year]
-    # firm values are the same in every measure: one per firm and driver
+    # one firm value per firm and driver; a driver whose value depends on the measure
+    # (industry_median_leverage) is overridden in that measure's part ("fo")
     fv = np.full((len(ids), k), np.nan)
     raw = np.full((len(ids), k), np.nan)
     d_firm = dnow["firm_id"].astype(str).map(firm_pos).to_numpy()
@@ -156,6 +157,8 @@ def firm_payload(targets: pd.DataFrame, drivers: pd.DataFrame, manifest: Mapping
     for measure in dict.fromkeys(now["measure"].astype(str)):
         measures[measure] = _measure_part(targets, drivers, measure, year, firm_pos, names,
                                           decimals, flag_pos, year_pos)
+        measures[measure]["fo"] = _own_values(dnow[dnow["measure"] == measure], firm_pos,
+                                              names, decimals, fv)
     return {
         "v": FORMAT_VERSION, "year": int(year), "years": years, "drivers": names,
         "dec": decimals, "status": list(STATUS),
@@ -165,6 +168,22 @@ def firm_payload(targets: pd.DataFrame, drivers: pd.DataFrame, manifest: Mapping
         "firmInd": pack([ind_pos[c] for c in _text(firms["industry"])]),
         "fv": flat_fv, "raw": raw_list, "m": measures,
     }
+
+
+def _own_values(d: pd.DataFrame, firm_pos: Mapping[str, int], names: list[str],
+                decimals: list[int], fv: np.ndarray) -> list[int]:
+    """A measure's firm values where they differ, at the precision shown, from the values
+    of every measure (``fv``): flat index and value, pairs in one list."""
+    own = np.full_like(fv, np.nan)
+    f = d["firm_id"].astype(str).map(firm_pos).to_numpy()
+    j = d["driver"].astype(str).map({n: q for q, n in enumerate(names)}).to_numpy()
+    ok = ~pd.isna(f) & ~pd.isna(j)
+    own[f[ok].astype(np.int64), j[ok].astype(np.int64)] = d["firm_value"].to_numpy(
+        dtype=float)[ok]
+    scale = np.array([10.0 ** x for x in decimals])
+    q_own, q_all = np.round(own * scale).ravel(), np.round(fv * scale).ravel()
+    at = np.flatnonzero(np.isfinite(q_own) & ~(q_own == q_all))
+    return [int(x) for i in at for x in (i, q_own[i])]
 
 
 def _measure_part(targets: pd.DataFrame, drivers: pd.DataFrame, measure: str, year: int,
@@ -212,6 +231,10 @@ def _measure_part(targets: pd.DataFrame, drivers: pd.DataFrame, measure: str, ye
         "lo": _ints(target - np.round(now["band_low"].to_numpy(dtype=float) * LEVEL), 1),
         "hi": _ints(np.round(now["band_high"].to_numpy(dtype=float) * LEVEL) - target, 1),
         "z": _ints(now["gap_z"], 100), "debt": _ints(now["debt_to_target"], 10),
+        # the gap and the peers' offset packed themselves, not as differences of rounded
+        # levels, so the page shows the figures explain and screen show
+        "g": _ints(now["gap"], LEVEL),
+        "po": _ints(now["peer_target"] - now["peer_median"], LEVEL),
         "pm": _ints(now["peer_median"], LEVEL), "pt": _ints(now["peer_target"], LEVEL),
         "pc": _ints(now["peer_count"], 1), "yo": _ints(now["years_outside"], 1),
         "gp": _ints(now["gap_prev"], LEVEL),

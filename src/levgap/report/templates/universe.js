@@ -84,7 +84,7 @@
     for (var i = 0; i < D.raw.length; i += 2) { D.rawAt[D.raw[i]] = D.raw[i + 1]; }
     D.lower = D.names.map(function (n, i) { return (D.ids[i] + " " + n).toLowerCase(); });
     Object.keys(D.m).forEach(function (name) {
-      var m = D.m[name], keys = ["a", "t", "lo", "hi", "z", "debt", "pm", "pt", "pc", "yo", "gp",
+      var m = D.m[name], keys = ["a", "t", "g", "po", "lo", "hi", "z", "debt", "pm", "pt", "pc", "yo", "gp",
         "st", "fl", "c", "pv", "hn", "hy", "ha", "ht", "hl", "hh", "hs"];
       keys.forEach(function (k) { m[k] = unpack(m[k]); });
       var deltas = unpack(m.row), at = -1;
@@ -96,6 +96,8 @@
       var s = 0;
       for (var r = 0; r < m.hn.length; r++) { m.hstart.push(s); s += m.hn[r]; }
       m.n = m.row.length;
+      m.fvOver = {};
+      for (var o = 0; o < (m.fo || []).length; o += 2) { m.fvOver[m.fo[o]] = m.fo[o + 1]; }
     });
     return D;
   }
@@ -111,7 +113,7 @@
       case "firm": return D.ids[f].toLowerCase();
       case "name": return D.names[f].toLowerCase();
       case "industry": return D.ind[D.firmIndex[f]].toLowerCase();
-      case "gap": return m.a[r] - m.t[r];
+      case "gap": return m.g[r];
       default: return m[key][r];
     }
   }
@@ -163,7 +165,7 @@
       cell(tr, D.ind[ind] + (D.indName[ind] ? " " + D.indName[ind] : ""), "ind");
       cell(tr, pct(m.a[r]), "n");
       cell(tr, pct(m.t[r]), "n");
-      cell(tr, pp(m.a[r] - m.t[r]), "n");
+      cell(tr, pp(m.g[r]), "n");
       cell(tr, signed(m.z[r], 100, 2), "n");
       cell(tr, D.status[m.st[r]] || "", D.status[m.st[r]] || "");
       cell(tr, money(m.debt[r]), "n");
@@ -205,7 +207,8 @@
     table.appendChild(el("thead")).appendChild(head);
     var tb = el("tbody");
     for (var j = 0; j < k; j++) {
-      var row = el("tr"), dec = D.dec[j], fv = D.fvals[f * k + j], pv = m.pv[r * k + j];
+      var at = f * k + j, row = el("tr"), dec = D.dec[j], pv = m.pv[r * k + j];
+      var fv = m.fvOver[at] !== undefined ? m.fvOver[at] : D.fvals[at];
       row.appendChild(el("td", null, D.drivers[j]));
       var own = fv === null ? "–" : fixed(fv / Math.pow(10, dec), dec);
       var raw = D.rawAt[f * k + j];
@@ -256,14 +259,14 @@
   function bridge(m, r) {
     var k = D.drivers.length, steps = [], level = m.pt[r];
     steps.push([L.peer_median, 0, m.pm[r], "level"]);
-    steps.push([L.peers_offset, m.pm[r], m.pt[r], "change"]);
+    steps.push([L.peers_offset, m.pm[r], m.pt[r], "change", m.po[r]]);
     for (var j = 0; j < k; j++) {
       var c = m.c[r * k + j] || 0;
-      steps.push([D.drivers[j], level, level + c, "change"]);
+      steps.push([D.drivers[j], level, level + c, "change", c]);
       level += c;
     }
     steps.push([L.target, 0, m.t[r], "level"]);
-    steps.push([L.unexplained, m.t[r], m.a[r], "change"]);
+    steps.push([L.unexplained, m.t[r], m.a[r], "change", m.g[r]]);
     steps.push([L.actual, 0, m.a[r], "level"]);
     var lo = 0, hi = 1;
     steps.forEach(function (s) { lo = Math.min(lo, s[1], s[2]); hi = Math.max(hi, s[1], s[2]); });
@@ -279,7 +282,7 @@
       g.appendChild(t);
       g.appendChild(svg("rect", { x: x0, y: y + 2, width: w, height: rowH - 6, fill: colour }));
       var v = svg("text", { x: W - 4, y: y + 12, "text-anchor": "end", "font-size": 11 });
-      v.textContent = s[3] === "level" ? pct(s[2]) : pp(s[2] - s[1]);
+      v.textContent = s[3] === "level" ? pct(s[2]) : pp(s[4]);  // the step's own figure
       g.appendChild(v);
     });
     g.appendChild(svg("line", { x1: left + (0 - lo) * sc, x2: left + (0 - lo) * sc, y1: 2,
