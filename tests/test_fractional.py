@@ -172,9 +172,9 @@ def test_a_poor_start_halves_steps_and_never_lowers_the_quasi_likelihood(monkeyp
     objective, factorise = fractional._objective, fractional.factorise
 
     def record_objective(*args):
-        value, eta = objective(*args)
-        events.append(("value", value))
-        return value, eta
+        out = objective(*args)  # the value first
+        events.append(("value", out[0]))
+        return out
 
     def record_factorise(*args):
         events.append(("step", 0.0))
@@ -187,10 +187,12 @@ def test_a_poor_start_halves_steps_and_never_lowers_the_quasi_likelihood(monkeyp
     np.testing.assert_allclose(warm.coef, cold.coef, atol=1e-10)
     values = sum(1 for kind, _ in events if kind == "value")
     assert values > warm.iterations + 1  # some steps were halved
-    # the value each iteration starts from and the final one: the last computed before a
-    # factorisation (the first factorisation is the warm start's, the last the covariance's)
+    # the value each iteration starts from: the last computed before a factorisation (the
+    # first factorisation is the warm start's); and the final one, computed last
     accepted = [events[i - 1][1] for i in range(2, len(events))
                 if events[i][0] == "step" and events[i - 1][0] == "value"]
+    assert events[-1][0] == "value"
+    accepted.append(events[-1][1])
     assert len(accepted) == warm.iterations + 1
     assert all(b <= a + 1e-12 * abs(a) for a, b in zip(accepted[:-1], accepted[1:], strict=True))
 
@@ -227,7 +229,7 @@ def test_the_objective_is_the_penalised_quasi_likelihood() -> None:
                       np.array([np.inf, np.inf, np.inf, 3.0]), np.full(4, np.nan))
     design = Design(X, [level], pooling)
     theta = rng.normal(size=design.layout.n_params)
-    value, eta = _objective(design, theta, y)
+    value, eta, *_ = _objective(design, theta, y)
     np.testing.assert_allclose(eta, design.matvec(theta))
     nll = float(np.sum(np.log1p(np.exp(eta)) - y * eta))  # minus the Bernoulli log-likelihood
     assert design.penalty.max() == 3.0
