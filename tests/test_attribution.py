@@ -177,3 +177,15 @@ def test_many_drivers_report_the_path_integral() -> None:
     assert attribute_gap(X[:, :3], Xp[:, :3], beta[:, :3], offset,
                          1 / (1 + np.exp(-(offset + (X[:, :3] * beta[:, :3]).sum(axis=1)))),
                          link="logit").method == "shapley"
+
+
+@pytest.mark.parametrize("k", [3, 12])
+def test_identity_link_gives_exactly_beta_times_the_driver_gap(k: int) -> None:
+    # the documented identity case, bit for bit: beta_j x_j - beta_j x_peer_j, not a
+    # coalition average (exact in theory, rounded differently) nor the path integral
+    rng = np.random.default_rng(11)
+    X, Xp, beta = rng.normal(size=(40, k)), rng.normal(size=(40, k)), rng.normal(size=(40, k))
+    offset = rng.normal(size=40)
+    a = attribute_gap(X, Xp, beta, offset, offset + np.einsum("ij,ij->i", X, beta))
+    np.testing.assert_array_equal(a.contributions, X * beta - Xp * beta)
+    assert a.method == "shapley"

@@ -111,6 +111,8 @@ def test_scale_of_unknown_levels_is_the_pooled_scale() -> None:
                      0.8, prior_rows=10.0)
     got = band.scale_of(np.array([0, 1, -1, 7]))
     np.testing.assert_array_equal(got, [band.scale[0]] + [band.pooled_scale] * 3)
+    # level codes read back as floats (a pandas column with a gap, say) index the same way
+    np.testing.assert_array_equal(band.scale_of(np.array([0.0, 1.0, -1.0, 7.0])), got)
 
 
 def test_limits_are_clipped_on_both_sides_for_targets_outside_zero_one() -> None:

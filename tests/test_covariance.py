@@ -129,3 +129,12 @@ def test_psd_repair_zeroes_negative_eigenvalues_only_when_needed() -> None:
     assert notes == () and np.allclose(fixed, tiny, atol=1e-14)
     zero, notes = psd_repair(np.zeros((2, 2)))
     assert notes == () and (zero == 0).all()
+
+
+def test_psd_repair_tolerance_is_inclusive() -> None:
+    # an eigenvalue of exactly -1e-12 times the largest is rounding, kept as it is;
+    # just beyond it the repair happens and says so
+    kept, notes = psd_repair(np.diag([1.0, -1e-12]))
+    assert notes == () and kept[1, 1] == -1e-12
+    fixed, notes = psd_repair(np.diag([1.0, -1.0000001e-12]))
+    assert len(notes) == 1 and fixed[1, 1] == 0.0

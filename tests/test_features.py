@@ -359,3 +359,29 @@ def test_lag_takes_the_first_row_as_a_previous_year_and_one_row_alone() -> None:
                                                 drivers=("tangibility", "size"),
                                                 winsorize=(0.0, 1.0))).frame
     assert np.isnan(one[["tangibility", "size"]].to_numpy()).all()
+
+
+def test_lagged_drivers_lag_their_unwinsorised_values_too() -> None:
+    p = _panel()
+    now = build_features(p, ModelSpec(winsorize=(0.05, 0.95))).frame.set_index(
+        ["firm_id", "fiscal_year"])
+    lag = build_features(p, ModelSpec(lag_drivers=True, winsorize=(0.05, 0.95))).frame
+    assert "profitability_raw" in lag
+    for row in lag.itertuples():
+        if row.fiscal_year == 2015:
+            assert np.isnan(row.profitability_raw) and np.isnan(row.size_raw)
+        else:
+            prev = now.loc[(row.firm_id, row.fiscal_year - 1)]
+            assert row.profitability_raw == prev["profitability_raw"]
+            assert row.size_raw == prev["size_raw"]
+
+
+def test_parent_groups_named_in_the_configuration_reach_the_levels() -> None:
+    # C (2834) is small; by code prefix it has no parent and takes the whole sample; named
+    # in [industries] with 3711 it takes 3711's group
+    p = _panel()
+    spec = ModelSpec(min_industry_firms=2, winsorize=(0.0, 1.0))
+    plain = build_features(p, spec).levels
+    named = build_features(p, spec, parents={"2834": "health", "3711": "health"}).levels
+    assert plain.parent_labels == (WHOLE_SAMPLE,)
+    assert named.parent_labels == ("health",)

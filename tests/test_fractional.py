@@ -150,3 +150,95 @@ def test_the_warm_start_is_one_weighted_least_squares_step() -> None:
     warm = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False, start=eta)
     assert warm.iterations <= 2 < cold.iterations
     np.testing.assert_allclose(warm.coef, cold.coef, atol=1e-10)
+
+
+def test_the_warm_start_from_the_solution_takes_one_newton_step() -> None:
+    d = _panel(8)
+    cold = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False)
+    eta = cold.offset([d["ind"], d["yr"]]) + d["X"] @ cold.coef[1:]
+    warm = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False, start=eta)
+    assert warm.iterations == 1  # the count of Newton steps taken, from 1
+
+
+def test_a_poor_start_halves_steps_and_never_lowers_the_quasi_likelihood(monkeypatch) -> None:
+    # From a predictor of 3 on every row the full Newton steps overshoot: they are halved
+    # until the penalised quasi-likelihood improves (module docstring), and the fit is the
+    # cold one.
+    import levgap.models.fractional as fractional
+
+    d = _panel(8)
+    cold = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False)
+    events: list[tuple[str, float]] = []
+    objective, factorise = fractional._objective, fractional.factorise
+
+    def record_objective(*args):
+        out = objective(*args)  # the value first
+        events.append(("value", out[0]))
+        return out
+
+    def record_factorise(*args):
+        events.append(("step", 0.0))
+        return factorise(*args)
+
+    monkeypatch.setattr(fractional, "_objective", record_objective)
+    monkeypatch.setattr(fractional, "factorise", record_factorise)
+    warm = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], cov=False,
+                          start=np.full(len(d["y"]), 3.0))
+    np.testing.assert_allclose(warm.coef, cold.coef, atol=1e-10)
+    values = sum(1 for kind, _ in events if kind == "value")
+    assert values > warm.iterations + 1  # some steps were halved
+    # the value each iteration starts from: the last computed before a factorisation (the
+    # first factorisation is the warm start's); and the final one, computed last
+    accepted = [events[i - 1][1] for i in range(2, len(events))
+                if events[i][0] == "step" and events[i - 1][0] == "value"]
+    assert events[-1][0] == "value"
+    accepted.append(events[-1][1])
+    assert len(accepted) == warm.iterations + 1
+    assert all(b <= a + 1e-12 * abs(a) for a, b in zip(accepted[:-1], accepted[1:], strict=True))
+
+
+def test_the_newton_steps_stop_at_the_limit(monkeypatch) -> None:
+    import levgap.models.fractional as fractional
+
+    d = _panel(9, n_firms=40)
+    calls = []
+    factorise = fractional.factorise
+
+    def count(*args):
+        calls.append(1)
+        return factorise(*args)
+
+    monkeypatch.setattr(fractional, "MAX_ITER", 3)
+    monkeypatch.setattr(fractional, "TOL_MU", -1.0)  # never converged
+    monkeypatch.setattr(fractional, "factorise", count)
+    with pytest.raises(ModelError, match="no convergence in 3 Newton steps"):
+        fit_fractional(d["y"], d["X"], cov=False)
+    assert len(calls) == 3  # one factorisation per Newton step
+
+
+def test_the_objective_is_the_penalised_quasi_likelihood() -> None:
+    from levgap.models.design import Design, Pooling
+    from levgap.models.fractional import _objective
+
+    rng = np.random.default_rng(10)
+    level = np.repeat(np.arange(4), 5)
+    X = rng.normal(size=(20, 1))
+    y = rng.uniform(0.05, 0.95, 20)
+    small = np.array([False, False, False, True])
+    pooling = Pooling(small, np.array([-1, -1, -1, 0]), np.array([[True, True, True, False]]),
+                      np.array([np.inf, np.inf, np.inf, 3.0]), np.full(4, np.nan))
+    design = Design(X, [level], pooling)
+    theta = rng.normal(size=design.layout.n_params)
+    value, eta, *_ = _objective(design, theta, y)
+    np.testing.assert_allclose(eta, design.matvec(theta))
+    nll = float(np.sum(np.log1p(np.exp(eta)) - y * eta))  # minus the Bernoulli log-likelihood
+    assert design.penalty.max() == 3.0
+    assert value == pytest.approx(nll + 0.5 * float(design.penalty @ theta**2), rel=1e-13)
+    assert value != pytest.approx(nll, rel=1e-6)
+
+
+def test_effects_keep_the_number_of_levels_given() -> None:
+    d = _panel(11, n_firms=60)
+    fit = fit_fractional(d["y"], d["X"], effects=[d["ind"], d["yr"]], n_levels=[12, 6],
+                         cov=False)
+    assert len(fit.effects[0]) == 12 and np.isnan(fit.effects[0][9:]).all()

@@ -51,6 +51,7 @@ def test_parent_is_the_longest_shared_prefix_then_the_whole_sample() -> None:
     assert (lv.parent[~lv.small] == -1).all()
     assert lv.members.shape == (len(lv.parent_labels), len(labels))
     assert not lv.members[:, lv.small].any()
+    assert lv.parent.dtype == np.int64  # documented: integer codes, usable as an index
 
 
 def test_without_a_large_industry_every_industry_keeps_its_own_effect() -> None:

@@ -247,3 +247,111 @@ def test_pooled_levels_are_recorded_for_every_level_code() -> None:
     assert np.isnan(p.weight[15:]).all() and not p.members[:, 15:].any()
     assert np.isfinite(p.deviation[[13, 14]]).all() and np.isnan(p.deviation[:13]).all()
     assert np.isnan(fit.effects[0][[13, 14, 15, 16]]).all()
+
+
+@pytest.mark.parametrize("model", ["linear", "fractional"])
+def test_the_identification_test_follows_check_not_cov(model: str) -> None:
+    # check (default: cov) decides whether the data-space test names the driver; a fit
+    # without it still refuses the singular system, with the generic message
+    from levgap.models.fractional import fit_fractional
+
+    fit = {"linear": fit_linear, "fractional": fit_fractional}[model]
+    rng = np.random.default_rng(0)
+    n = 200
+    ind, yr = rng.integers(0, 5, n), rng.integers(0, 4, n)
+    X = np.column_stack([rng.normal(size=n), ind * 1.0])  # the second: industry's own
+    y = rng.uniform(0.1, 0.9, n)
+    kw = {"effects": [ind, yr], "names": ["free", "absorbed"]}
+    with pytest.raises(ModelError, match="got absorbed explained entirely"):
+        fit(y, X, cov=False, check=True, **kw)
+    with pytest.raises(ModelError, match="got absorbed explained entirely"):
+        fit(y, X, cov=True, **kw)
+    for cov, check in ((True, False), (False, None)):
+        with pytest.raises(ModelError, match="drivers are collinear with each other"):
+            fit(y, X, cov=cov, check=check, **kw)
+
+
+def test_r2_of_a_small_outcome_and_integer_inputs() -> None:
+    # R^2 does not depend on the outcome's units: a ratio whose total sum of squares is
+    # below 1 has the R^2 of the same outcome in percent. Integer inputs fit as floats.
+    rng = np.random.default_rng(12)
+    g = np.repeat(np.arange(5), 8)
+    Xi = rng.integers(0, 10, size=(40, 2))
+    yi = Xi @ np.array([2, -1]) + g + rng.integers(-3, 4, 40)
+    whole = fit_linear(yi, Xi, effects=[g], cov=False)
+    floats = fit_linear(yi.astype(float), Xi.astype(float), effects=[g], cov=False)
+    np.testing.assert_allclose(whole.coef, floats.coef, rtol=1e-12)
+    small = fit_linear(yi / 1000.0, Xi, effects=[g], cov=False)
+    assert float(((yi / 1000.0 - (yi / 1000.0).mean()) ** 2).sum()) < 1
+    assert small.r2 == pytest.approx(floats.r2, rel=1e-10) and 0 < small.r2 < 1
+
+
+def test_pooled_levels_keep_their_types() -> None:
+    # PooledLevels: members a bool matrix, parents integers (saved to model.json as such).
+    rng = np.random.default_rng(13)
+    g = np.repeat(np.arange(4), 10)
+    X = rng.normal(size=(40, 1))
+    y = X[:, 0] + g * 0.5 + rng.normal(0, 0.1, 40)
+    small = np.array([False, False, False, True])
+    pooling = Pooling(small, np.array([-1, -1, -1, 0]), np.array([[True, True, True, False]]),
+                      np.array([np.inf, np.inf, np.inf, 2.0]), np.array([np.nan] * 3 + [0.5]))
+    fit = fit_linear(y, X, effects=[g], pooling=pooling, n_levels=[6], cov=False)
+    p = fit.pooled
+    assert p.members.dtype == bool and p.members.shape == (1, 6)
+    assert p.parent.dtype == np.int64 and list(p.parent) == [-1, -1, -1, 0, -1, -1]
+    assert p.small.dtype == bool and list(p.small) == [False] * 3 + [True, False, False]
+    members = fit.to_dict()["pooled"]["members"][0]
+    assert members == [1, 1, 1, 0, 0, 0] and all(type(v) is int for v in members)
+
+
+def test_a_small_first_level_and_a_parent_of_one_row() -> None:
+    # Level 0 is small (its own deviation from one row), level 4 small without rows; the
+    # parent group of both is level 2 alone, which has a single row: the parent's effect is
+    # level 2's, not the mean effect.
+    rng = np.random.default_rng(14)
+    g = np.array([0] + [1] * 12 + [2] + [3] * 12)
+    X = rng.normal(size=(len(g), 1))
+    y = 0.5 * X[:, 0] + np.array([0.3, 0.0, 1.0, -0.5, 0.0])[g] + rng.normal(0, 0.05, len(g))
+    small = np.array([True, False, False, False, True])
+    pooling = Pooling(small, np.array([0, -1, -1, -1, 0]),
+                      np.array([[False, False, True, False, False]]),
+                      np.array([2.0, np.inf, np.inf, np.inf, np.inf]),
+                      np.array([0.5, np.nan, np.nan, np.nan, np.nan]))
+    fit = fit_linear(y, X, effects=[g], pooling=pooling, n_levels=[5], cov=False)
+    alpha = fit.effects[0]
+    assert fit.parent_effects()[0] == pytest.approx(alpha[2], rel=1e-12)
+    dev = fit.pooled.deviation
+    assert np.isfinite(dev[0]) and np.isnan(dev[4])
+    codes = np.array([0, 4, 2, 7, -1])
+    got = fit.effect_of(0, codes)
+    mean = float(np.nansum(alpha * fit.effect_weights[0]) / fit.effect_weights[0].sum())
+    np.testing.assert_allclose(got, [alpha[2] + dev[0], alpha[2], alpha[2], mean, mean],
+                               rtol=1e-12)
+    # level 0 has its own deviation; 4 (no rows), 7 and -1 (never seen) do not
+    assert fit.unseen(0, codes).tolist() == [False, True, False, True, True]
+    assert fit.unseen(0, np.array([5])).tolist() == [True]  # just past the last level
+
+
+def test_contributions_of_the_identity_link_are_beta_times_the_driver_gap() -> None:
+    rng = np.random.default_rng(15)
+    g = np.repeat(np.arange(3), 10)
+    X = rng.normal(size=(30, 2))
+    y = X @ np.array([2.0, -3.0]) + g + rng.normal(0, 0.1, 30)
+    fit = fit_linear(y, X, effects=[g], cov=False)
+    X_peer = rng.normal(size=(30, 2))
+    offset = fit.offset([g])
+    contrib, peer, _ = fit.contributions(X, X_peer, offset)
+    np.testing.assert_allclose(contrib, (X - X_peer) * fit.coef[1:], rtol=1e-10, atol=1e-12)
+    np.testing.assert_allclose(peer, offset + X_peer @ fit.coef[1:], rtol=1e-12)
+
+
+def test_a_loaded_fit_carries_no_statistics() -> None:
+    from levgap.models.result import Fit
+
+    rng = np.random.default_rng(16)
+    X = rng.normal(size=(30, 1))
+    fit = fit_linear(X[:, 0] + rng.normal(size=30), X, clusters=[np.arange(30) % 6])
+    loaded = Fit.from_dict(fit.to_dict())
+    assert loaded.vcov is None and loaded.cov_type == "none" and loaded.n_clusters == ()
+    assert np.isnan(loaded.r2) and np.isnan(loaded.deviance)
+    np.testing.assert_array_equal(loaded.coef, fit.coef)

@@ -165,10 +165,13 @@ LABELS = ["2834", "2836", "3711", "3712", "3714", "3715", "3720", "3790", "8062"
 SMALL_CODES = [4, 5, 9]  # 3714 (one row), 3715 and 9999 (no rows) borrow
 
 
-def _hand_built(seed: int, link: str):
+def _hand_built(seed: int, link: str, spread: float = 0.3, firm_sd: float = 0.2,
+                noise: float = 0.3, penalty: float = np.inf):
     """Rows over LABELS: 3712 has one firm with one row (an own effect: the parent of 3711
     by prefix then has one row), 3790 and 9999 have no rows, firm codes have gaps and
-    some firms one row."""
+    some firms one row. ``spread``, ``firm_sd`` and ``noise`` are the standard deviations of
+    industry effects, firm effects and the rest; ``penalty`` is the small levels' (inf: they
+    borrow outright)."""
     rng = np.random.default_rng(seed)
     level, firm, year = [], [], []
     f = 0
@@ -181,9 +184,9 @@ def _hand_built(seed: int, link: str):
             f += 1
     level, firm, year = (np.array(a) for a in (level, firm, year))
     X = rng.normal(size=(len(level), 2))
-    effect = rng.normal(0, 0.3, 10)
-    firm_fx = rng.normal(0, 0.2, firm.max() + 1)
-    eta = X @ np.array([0.4, -0.3]) + effect[level] + firm_fx[firm] + rng.normal(0, 0.3,
+    effect = rng.normal(0, spread, 10)
+    firm_fx = rng.normal(0, firm_sd, firm.max() + 1)
+    eta = X @ np.array([0.4, -0.3]) + effect[level] + firm_fx[firm] + rng.normal(0, noise,
                                                                                  len(level))
     y = eta if link == "identity" else 1 / (1 + np.exp(-eta))
     small = np.isin(np.arange(10), SMALL_CODES)
@@ -192,7 +195,8 @@ def _hand_built(seed: int, link: str):
     members[1] = ~small & (np.arange(10) != 7)
     parent = np.where(small, 0, -1)
     parent[9] = 1
-    pooling = Pooling(small, parent, members, np.full(10, np.inf), np.full(10, np.nan))
+    pooling = Pooling(small, parent, members, np.where(small, penalty, np.inf),
+                      np.full(10, np.nan))
     model = "linear" if link == "identity" else "fractional"
     fit = MODELS[model](y, X, effects=[level, year], pooling=pooling, n_levels=[10, 5],
                         cov=False)
@@ -275,3 +279,70 @@ def test_penalised_counts_rows_and_firms_of_each_level() -> None:
     no_firm_spread = Components(tau2=0.002, firm2=0.0, resid2=0.004, info=1.0)
     np.testing.assert_array_equal(no_firm_spread.weight(np.array([0.0]), np.array([0.0])),
                                   [0.0])
+
+
+@pytest.mark.parametrize("link", ["identity", "logit"])
+def test_components_are_moments_not_the_floor_with_prefix_parents(link: str) -> None:
+    # Industries far apart and firms spread within them: tau2 and firm2 are moments, so the
+    # parent groups by prefix (3711's is 3712 alone, one row), the firm counts and the
+    # levels without rows (3790, 9999) all enter the result.
+    fit, y, fitted, level, firm = _hand_built(4, link, spread=1.0, firm_sd=0.5, noise=0.1)
+    got = estimate_components(fit, y, fitted, level, firm, LABELS)
+    ref = _components_by_hand(fit, y, fitted, level, firm, LABELS)
+    assert got.tau2 > 0.01 * (got.firm2 + got.resid2) and got.firm2 > 0
+    for name, value in ref.items():
+        assert getattr(got, name) == pytest.approx(value, rel=1e-10), name
+    # firm codes are labels: numbered the other way round (codes below their level's now),
+    # the components are the same
+    again = estimate_components(fit, y, fitted, level, firm.max() - firm, LABELS)
+    for name, value in ref.items():
+        assert getattr(again, name) == pytest.approx(value, rel=1e-10), name
+    # the parent groups matter: the same fit labelled without a shared prefix differs
+    flat = estimate_components(fit, y, fitted, level, firm, [str(i) for i in range(10)])
+    assert flat.tau2 != pytest.approx(got.tau2, rel=1e-6)
+
+
+def test_firm_spread_with_one_between_firm_degree_of_freedom() -> None:
+    # Three firms in two levels: one degree of freedom for firm means around their level's.
+    level = np.array([0, 0, 0, 0, 1, 1, 1])
+    firm = np.array([0, 0, 1, 1, 2, 2, 2])
+    r = np.array([1.1, 0.9, -0.8, -1.2, 0.1, -0.1, 0.0])
+    X = np.array([[0.3], [-0.2], [0.5], [0.1], [-0.4], [0.2], [0.6]])
+    fit = fit_linear(r, X, effects=[level], cov=False)
+    got = estimate_components(fit, r, np.zeros(7), level, firm, ["1", "2"])
+    within = r - np.array([1.0, 1.0, -1.0, -1.0, 0.0, 0.0, 0.0])
+    resid2 = float(within @ within) / (7 - 3)
+    firm2 = (1.0**2 + 1.0**2 + 0.0) / 1 - np.mean(resid2 / np.array([2, 2, 3]))
+    assert got.resid2 == pytest.approx(resid2, rel=1e-12)
+    assert got.firm2 == pytest.approx(firm2, rel=1e-12) and firm2 > 0
+
+
+@pytest.mark.parametrize("link", ["identity", "logit"])
+def test_a_penalised_fit_solves_each_small_levels_score_equation(link: str) -> None:
+    # The penalised (quasi-)likelihood's first-order condition for a small level's own
+    # deviation u_s: the sum of its rows' residuals y - mu equals lambda_s u_s (the module
+    # docstrings of pooling.py and fractional.py).
+    fit, y, fitted, level, firm = _hand_built(7, link, spread=1.0, penalty=4.0)
+    p = fit.pooled
+    assert p is not None
+    for s in (4, 5):  # 3714 (one row) and 3715: deviations of their own, shrunk
+        u = p.deviation[s]
+        assert np.isfinite(u) and u != 0
+        assert float((y - fitted)[level == s].sum()) == pytest.approx(4.0 * u, rel=1e-8)
+    assert np.isnan(p.deviation[9])  # 9999 has no rows: no deviation
+
+
+def test_parent_members_are_those_sharing_the_longest_leading_part() -> None:
+    from levgap.models.pooling import _parent_members
+
+    names = ["2011", "20110", "2012", "2099", "2511", "3011", "x1"]
+    # "201" is the longest part shared (not the code itself, though "20110" starts with it)
+    np.testing.assert_array_equal(_parent_members("2011", names, exclude=0), [1, 2])
+    # only "20" is shared: the two-digit group, not "2511" of the one-digit group
+    np.testing.assert_array_equal(_parent_members("2099", names, exclude=3), [0, 1, 2])
+    # only "2" is shared
+    np.testing.assert_array_equal(_parent_members("2511", names, exclude=4), [0, 1, 2, 3])
+    # nothing shared, or a code that is not numeric: every other level
+    np.testing.assert_array_equal(_parent_members("3011", names, exclude=5), [0, 1, 2, 3, 4, 6])
+    np.testing.assert_array_equal(_parent_members("x1", names, exclude=6), [0, 1, 2, 3, 4, 5])
+    assert _parent_members("2011", names, exclude=0).dtype.kind == "i"

@@ -173,3 +173,34 @@ def test_path_integral_puts_the_rounding_on_the_largest_term() -> None:
     step = (a - b).sum(axis=1)
     np.testing.assert_allclose(got, (a - b) * (change / step)[:, None], rtol=1e-9,
                                atol=1e-15)
+
+
+def _kinked(e: np.ndarray) -> np.ndarray:
+    """A link whose slope jumps at 0 (1 below, 2 above): path ratio and slope differ there."""
+    return np.where(e < 0, e, 2.0 * e)
+
+
+def _two_opposite_moves(s: float) -> np.ndarray:
+    delta = np.zeros((1, MAX_EXACT + 1))
+    delta[0, 0], delta[0, 1] = 2.0 * s, -s  # beta' dx = s exactly
+    return delta
+
+
+def test_path_integral_guard_is_strict_at_its_limit() -> None:
+    # |beta' dx| = 1e-12 is not "does not move": the path ratio (f(x) - f(peer)) / beta' dx
+    # is used (2 for this link), not the central slope at the peer (1.5)
+    s = 1e-12
+    delta = _two_opposite_moves(s)
+    got, _, method = shapley(np.zeros(1), delta, np.zeros_like(delta), _kinked)
+    assert method == "aumann-shapley"
+    np.testing.assert_allclose(got[0, :2], [4.0 * s, -2.0 * s], rtol=1e-9)
+
+
+def test_below_the_guard_the_remainder_keeps_the_sum_exact() -> None:
+    # below the guard each term is beta_j dx_j times the central slope (1.5 here); the sum
+    # then misses f(x) - f(peer) = 2 s by 0.5 s, which goes onto the largest term
+    s = 1e-13
+    delta = _two_opposite_moves(s)
+    got, _, _ = shapley(np.zeros(1), delta, np.zeros_like(delta), _kinked)
+    np.testing.assert_allclose(got[0, :2], [3.5 * s, -1.5 * s], rtol=1e-6)
+    assert got.sum() == pytest.approx(2.0 * s, rel=1e-9)

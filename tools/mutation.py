@@ -3,14 +3,18 @@
     .venv/bin/python tools/mutation.py                 # every module, then the report
     .venv/bin/python tools/mutation.py band attribution
     .venv/bin/python tools/mutation.py --report        # the table and unexplained survivors
+    .venv/bin/python tools/mutation.py --all band      # re-test every mutant, killed ones too
 
 ``[tool.mutmut]`` in pyproject.toml names the files mutated and the test files mutmut may
 use. Each module here runs with two workers and only the test files relevant to it (passed to
 pytest as a ``-k`` filter on the file names through ``PYTEST_ADDOPTS``); within them mutmut
 runs, for each mutant, only the tests that call the mutated function, fastest first.
-Results accumulate in ``mutants/`` (git-ignored). The report counts, per module, the
-mutants killed, the survivors listed as equivalent in DEVELOPERS.md ("Equivalent mutants"),
-and any other survivor, which it names: the check passes when there is none.
+Results accumulate in ``mutants/`` (git-ignored); a later run re-tests only the module's
+mutants not yet caught nor listed as equivalent (survivors, and those never checked), so it
+resumes where a bounded run stopped and checks survivors again after a sharper test (``--all``
+re-tests every one). The report counts, per module, the mutants killed, the survivors listed
+as equivalent in DEVELOPERS.md ("Equivalent mutants"), and any other survivor, which it
+names: the check passes when there is none.
 """
 
 from __future__ import annotations
@@ -41,8 +45,8 @@ MODULES: dict[str, tuple[str, ...]] = {
     "models.design": MODEL_CORE,
     "models.identify": MODEL_CORE,
     "models.linalg": MODEL_CORE,
-    "models.linear": MODEL_CORE,
-    "models.fractional": MODEL_CORE,
+    "models.linear": (*MODEL_CORE, "test_pooling.py"),
+    "models.fractional": (*MODEL_CORE, "test_pooling.py"),
     "models.assemble": MODEL_CORE,
     "models.covariance": MODEL_CORE,
     "models.result": (*MODEL_CORE, "test_result.py", "test_saved.py"),
@@ -59,12 +63,25 @@ far longer than their recorded time)."""
 STATUS = {0: "survived", 5: "no tests", 33: "no tests", None: "not checked"}
 
 
-def run(module: str) -> int:
-    """Run mutmut on one module's mutants with that module's tests."""
+def run(module: str, everyone: bool = False) -> int:
+    """Run mutmut on one module's mutants with that module's tests.
+
+    Only the mutants not yet caught nor listed as equivalent are named, unless ``everyone``
+    (or the module was never run, when mutmut has not listed its mutants yet).
+    """
     tests = MODULES[module]
     env = dict(os.environ, PYTEST_ADDOPTS="-k '" + " or ".join(tests) + "'")
-    print(f"== levgap.{module}: tests {', '.join(tests)}", flush=True)
-    cmd = [str(MUTMUT), "run", "--max-children", str(WORKERS), f"levgap.{module}.*"]
+    codes = results().get(module)
+    if everyone or not codes:
+        names = [f"levgap.{module}.*"]
+    else:
+        equivalent = equivalent_names()
+        names = sorted(k for k, c in codes.items() if c not in KILLED and k not in equivalent)
+        if not names:
+            print(f"== levgap.{module}: every mutant caught already", flush=True)
+            return 0
+    print(f"== levgap.{module}: {len(names)} name(s); tests {', '.join(tests)}", flush=True)
+    cmd = [str(MUTMUT), "run", "--max-children", str(WORKERS), *names]
     (ROOT / "mutants").mkdir(exist_ok=True)
     log = ROOT / "mutants" / f"run-{module}.log"
     try:
@@ -120,13 +137,15 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("modules", nargs="*", help=f"default: all of {', '.join(MODULES)}")
     parser.add_argument("--report", action="store_true", help="only print the report")
+    parser.add_argument("--all", action="store_true",
+                        help="re-test every mutant of the modules, not only those not caught")
     args = parser.parse_args(argv)
     if not args.report:
         unknown = [m for m in args.modules if m not in MODULES]
         if unknown:
             parser.error(f"unknown module {unknown[0]!r}; choose from {', '.join(MODULES)}")
         for module in args.modules or list(MODULES):
-            run(module)
+            run(module, everyone=args.all)
     return report()
 
 
