@@ -12,7 +12,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy import special
 
 
 @dataclass(frozen=True, slots=True)
@@ -57,20 +56,7 @@ class Estimates:
     def tidy(self, coverage: float = 0.95) -> dict[str, np.ndarray]:
         """Terms, estimates, standard errors, t statistics, p-values, intervals and the
         estimator's own columns, as arrays (the same keys as ``Fit.tidy`` first)."""
-        se = self.std_error
-        with np.errstate(invalid="ignore", divide="ignore"):
-            t = self.coef / se
-        df = np.asarray(self.df, dtype=float)
-        ok = df >= 1
-        p = np.where(ok, 2.0 * special.stdtr(np.where(ok, df, 1), -np.abs(t)), np.nan)
-        q = np.where(ok, special.stdtrit(np.where(ok, df, 1), 0.5 + coverage / 2.0), np.nan)
-        return {
-            "term": np.array(self.names, dtype=object),
-            "estimate": self.coef,
-            "std_error": se,
-            "t_stat": t,
-            "p_value": p,
-            "ci_low": self.coef - q * se,
-            "ci_high": self.coef + q * se,
-            **self.columns,
-        }
+        from levgap.models.result import inference_table
+
+        return {**inference_table(self.names, self.coef, self.std_error, self.df, coverage),
+                **self.columns}

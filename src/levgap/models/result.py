@@ -230,23 +230,8 @@ class Fit:
 
     def tidy(self, coverage: float = 0.95) -> dict[str, np.ndarray]:
         """Estimates, standard errors, t statistics, p-values and intervals as arrays."""
-        se = self.std_error
-        t = self.coef / se
-        # Student's t through scipy.special (what scipy.stats.t calls: the same numbers),
-        # sparing every run the import of scipy.stats.
-        from scipy import special
-
-        p = 2.0 * special.stdtr(self.df_inference, -np.abs(t))
-        q = special.stdtrit(self.df_inference, 0.5 + coverage / 2.0)
-        return {
-            "term": np.array(self.names, dtype=object),
-            "estimate": self.coef,
-            "std_error": se,
-            "t_stat": t,
-            "p_value": p,
-            "ci_low": self.coef - q * se,
-            "ci_high": self.coef + q * se,
-        }
+        return inference_table(self.names, self.coef, self.std_error, self.df_inference,
+                               coverage)
 
     # -- serialisation --------------------------------------------------------------------
 
@@ -293,3 +278,31 @@ class Fit:
             n_obs=int(d["n_obs"]), n_params=0, n_clusters=(), df_inference=0,
             r2=float("nan"), deviance=float("nan"), cov_type="none",
         )
+
+
+def inference_table(names: Sequence[str], coef: np.ndarray, se: np.ndarray, df: Any,
+                    coverage: float = 0.95) -> dict[str, np.ndarray]:
+    """Terms, estimates, standard errors, t statistics, two-sided p-values and intervals from
+    Student's t with ``df`` degrees of freedom (a number, or one per term); blank where
+    ``df`` is below 1. Shared by ``Fit.tidy`` and ``Estimates.tidy``.
+
+    Student's t comes through scipy.special (what scipy.stats.t calls: the same numbers),
+    sparing every run the import of scipy.stats.
+    """
+    from scipy import special
+
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = coef / se
+    df = np.asarray(df, dtype=float)
+    ok = df >= 1
+    p = np.where(ok, 2.0 * special.stdtr(np.where(ok, df, 1), -np.abs(t)), np.nan)
+    q = np.where(ok, special.stdtrit(np.where(ok, df, 1), 0.5 + coverage / 2.0), np.nan)
+    return {
+        "term": np.array(names, dtype=object),
+        "estimate": coef,
+        "std_error": se,
+        "t_stat": t,
+        "p_value": p,
+        "ci_low": coef - q * se,
+        "ci_high": coef + q * se,
+    }
