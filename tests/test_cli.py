@@ -41,8 +41,23 @@ def out_dir(panel_csv: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 
 def test_version() -> None:
+    import levgap
+
     result = runner.invoke(app, ["--version"])
-    assert result.exit_code == 0 and result.output.startswith("levgap ")
+    assert result.exit_code == 0 and result.output == f"levgap {levgap.__version__}\n"
+
+
+def test_version_is_pyprojects() -> None:
+    """``levgap.__version__`` is written as text (no metadata scan at start-up); it must be
+    the release pyproject.toml declares, and the installed one."""
+    import tomllib
+    from importlib.metadata import version
+
+    import levgap
+
+    pyproject = Path(__file__).resolve().parents[1] / "pyproject.toml"
+    declared = tomllib.loads(pyproject.read_text(encoding="utf-8"))["project"]["version"]
+    assert levgap.__version__ == declared == version("levgap")
 
 
 @pytest.mark.parametrize("command", COMMANDS)
@@ -280,13 +295,15 @@ def test_quick_commands_do_not_import_heavy_libraries(args: list[str], out_dir: 
     import sys
 
     fill = {"out": str(out_dir), "tmp": str(tmp_path / "t")}
+    heavy = ("pandas", "statsmodels", "scipy", "matplotlib", "sklearn")
+    if args[0].startswith("--"):  # the version is text, not read from the packages' metadata
+        heavy += ("importlib.metadata",)
     code = (
         "import sys\n"
         "from levgap.cli import main\n"
         f"sys.argv = ['levgap', *{[a.format(**fill) for a in args]!r}]\n"
         "try:\n    main()\nexcept SystemExit as e:\n    assert not e.code, e.code\n"
-        "heavy = [m for m in ('pandas', 'statsmodels', 'scipy', 'matplotlib', 'sklearn')"
-        " if m in sys.modules]\n"
+        f"heavy = [m for m in {heavy!r} if m in sys.modules]\n"
         "print('HEAVY', heavy)\n"
     )
     run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
