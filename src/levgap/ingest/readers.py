@@ -471,7 +471,8 @@ def _read_parquet(p: Path, data: bytes, options: InputOptions) -> RawTable:
 
     sha = hashlib.sha256(data).hexdigest()
     try:
-        table = pq.read_table(pa.BufferReader(pa.py_buffer(data)))
+        # ParquetFile, not read_table: read_table loads pyarrow.dataset, which imports pandas
+        table = pq.ParquetFile(pa.BufferReader(pa.py_buffer(data))).read()
         # an index that pandas wrote beside the columns is not panel data
         keep = [j for j, n in enumerate(table.column_names)
                 if not n.startswith("__index_level_")]

@@ -47,7 +47,8 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
         if path.suffix == ".parquet":
             import pyarrow.parquet as pq
 
-            table = pq.read_table(path)
+            # ParquetFile, not read_table: read_table loads pyarrow.dataset, which imports pandas
+            table = pq.ParquetFile(path).read()
         else:
             import pyarrow.csv as pv
 
