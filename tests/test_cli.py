@@ -332,7 +332,7 @@ def test_check_reads_and_validates_without_pandas(tmp_path: Path, kind: str) -> 
         pacsv.write_csv(table, path)
     else:
         pq.write_table(table, path)
-    out = _no_pandas_run(["check", str(path)])
+    out = _no_pandas_run(["check", str(path)], (*HEAVY, "rich"))  # plain lines: no rich
     with pytest.warns(DataWarning, match="revenue must be a number"):
         ledger = read_panel(path).exclusions
     assert f"6 rows; 2 usable, {len(ledger)} excluded." in out
