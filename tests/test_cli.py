@@ -273,6 +273,9 @@ def test_check_without_usable_rows_and_demo_into_a_file(tmp_path: Path) -> None:
                                   ["screen", "{out}", "--new", "--industry", "3711",
                                    "--sort", "change", "--format", "json"],
                                   ["screen", "{out}", "--persistent", "--format", "csv"],
+                                  ["explain", "{out}", "TR0001"],
+                                  ["explain", "{out}", "tr0001", "--measure", "market",
+                                   "--year", "2022"],
                                   ["--version"], ["--help"]])
 def test_quick_commands_do_not_import_heavy_libraries(args: list[str], out_dir: Path,
                                                       tmp_path: Path) -> None:

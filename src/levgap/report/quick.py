@@ -102,8 +102,8 @@ class Screen:
     absent: tuple[tuple[str, str], ...] = ()
 
 
-def _keep(t: Any, column: str, wanted: Sequence[Any]) -> Any:
-    """Rows whose ``column`` holds one of ``wanted``.
+def keep_rows(t: Any, column: str, wanted: Sequence[Any]) -> Any:
+    """Rows whose ``column`` holds one of ``wanted`` (in the table's order).
 
     Compared with Arrow values taken from the column itself: turning a Python value into an
     Arrow scalar or array makes pyarrow import pandas, which costs more than the whole screen.
@@ -136,12 +136,12 @@ def screen_rows(table: Any, query: ScreenQuery,
     from levgap.matching import did_you_mean, unneutralise
 
     names = names or {}
-    t = _keep(table, "measure", [query.measure])
+    t = keep_rows(table, "measure", [query.measure])
     if t.num_rows == 0:
         return Screen([], 0, None)
     yr = int(pc.max(t["fiscal_year"]).as_py()) if query.year is None else int(query.year)
     held = t
-    t = _keep(t, "fiscal_year", [yr])
+    t = keep_rows(t, "fiscal_year", [yr])
     if t.num_rows == 0:  # a year the results do not hold is not an empty filter
         lo, hi = (int(pc.min(held["fiscal_year"]).as_py()),
                   int(pc.max(held["fiscal_year"]).as_py()))
@@ -160,7 +160,7 @@ def screen_rows(table: Any, query: ScreenQuery,
             raise ConfigError(f"--industry must name an industry of {query.measure} leverage "
                               f"in {yr} (a code, or part of a name); got {query.industry!r}."
                               + did_you_mean(query.industry, shown))
-        t = _keep(t, "industry", hit)
+        t = keep_rows(t, "industry", hit)
     if query.firm is not None:
         t = _filter_firm(t, query.firm, query.measure, yr)
     absent: list[tuple[str, str]] = []
@@ -177,9 +177,9 @@ def screen_rows(table: Any, query: ScreenQuery,
                 keep += found
             else:
                 absent.append((wanted, did_you_mean(wanted, ids)))
-        t = _keep(t, "firm_id", keep)
+        t = keep_rows(t, "firm_id", keep)
     if query.status is not None:
-        t = _keep(t, "status", [query.status])
+        t = keep_rows(t, "status", [query.status])
     for flag, on in (("newly_outside", query.new), ("persistent", query.persistent)):
         if on:
             t = t.filter(pc.match_substring_regex(t["flags"], f"(^|;){flag}(;|$)"))
@@ -202,7 +202,7 @@ def _filter_firm(t: Any, firm: str, measure: str, year: int) -> Any:
     ids = [c for c in pc.unique(t["firm_id"]).to_pylist() if c is not None]
     exact = resolve(firm, ids)
     if exact is not None:
-        return _keep(t, "firm_id", [exact])
+        return keep_rows(t, "firm_id", [exact])
     named = t.filter(pc.match_substring(t["firm_name"], firm.strip(), ignore_case=True))
     if named.num_rows:
         return named
