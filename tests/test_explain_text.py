@@ -70,6 +70,32 @@ def test_explain_prints_what_it_printed_before(run: Path, case: str) -> None:
     assert explain_text(run, width, args) == want
 
 
+def test_a_blank_peer_count_reads_as_no_peers(tmp_path: Path) -> None:
+    """A whole-number column with a blank cell is read (as a blank number), not refused: the
+    pandas-based reader failed on it with "cannot convert NA to integer"."""
+    import json
+
+    from levgap.outputs import file_digest
+
+    out = tmp_path / "run"
+    shutil.copytree(HERE / "run", out)
+    lines = (out / "targets.csv").read_bytes().decode("utf-8").split("\r\n")
+    head = lines[0].split(",")
+    at = next(i for i, ln in enumerate(lines) if ln.startswith('"TR0001",')
+              and ',2023,"1311","book",' in ln)
+    cells = lines[at].split(",")
+    cells[head.index("peer_count")] = ""
+    lines[at] = ",".join(cells)
+    (out / "targets.csv").write_bytes("\r\n".join(lines).encode("utf-8"))
+    run = json.loads((out / "run.json").read_text(encoding="utf-8"))
+    size, sha = file_digest(out / "targets.csv")
+    run["digests"]["targets.csv"] = {"size": size, "sha256": sha}
+    (out / "run.json").write_text(json.dumps(run), encoding="utf-8")
+    text = explain_text(out, 100, ["TR0001"])
+    assert text.startswith("exit 0\n"), text
+    assert "(no peers)" in text and "peers: none." in text
+
+
 if __name__ == "__main__":  # write the expected files from the code on the path
     import tempfile
 
