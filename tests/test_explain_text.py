@@ -70,30 +70,47 @@ def test_explain_prints_what_it_printed_before(run: Path, case: str) -> None:
     assert explain_text(run, width, args) == want
 
 
-def test_a_blank_peer_count_reads_as_no_peers(tmp_path: Path) -> None:
-    """A whole-number column with a blank cell is read (as a blank number), not refused: the
-    pandas-based reader failed on it with "cannot convert NA to integer"."""
+def _edited_run(tmp_path: Path, table: str, firm_row: str, column: str, edit) -> Path:
+    """A copy of the stored run with one cell of the row starting ``firm_row`` edited, and
+    ``run.json`` restamped as a tamperer who knows the format would."""
     import json
 
     from levgap.outputs import file_digest
 
     out = tmp_path / "run"
     shutil.copytree(HERE / "run", out)
-    lines = (out / "targets.csv").read_bytes().decode("utf-8").split("\r\n")
-    head = lines[0].split(",")
-    at = next(i for i, ln in enumerate(lines) if ln.startswith('"TR0001",')
-              and ',2023,"1311","book",' in ln)
+    path = out / f"{table}.csv"
+    lines = path.read_bytes().decode("utf-8").split("\r\n")
+    at = next(i for i, ln in enumerate(lines) if ln.startswith(firm_row))
     cells = lines[at].split(",")
-    cells[head.index("peer_count")] = ""
+    i = lines[0].split(",").index(column)
+    cells[i] = edit(cells[i])
     lines[at] = ",".join(cells)
-    (out / "targets.csv").write_bytes("\r\n".join(lines).encode("utf-8"))
+    path.write_bytes("\r\n".join(lines).encode("utf-8"))
     run = json.loads((out / "run.json").read_text(encoding="utf-8"))
-    size, sha = file_digest(out / "targets.csv")
-    run["digests"]["targets.csv"] = {"size": size, "sha256": sha}
+    size, sha = file_digest(path)
+    run["digests"][path.name] = {"size": size, "sha256": sha}
     (out / "run.json").write_text(json.dumps(run), encoding="utf-8")
+    return out
+
+
+def test_a_blank_peer_count_reads_as_no_peers(tmp_path: Path) -> None:
+    """A whole-number column with a blank cell is read (as a blank number), not refused: the
+    pandas-based reader failed on it with "cannot convert NA to integer"."""
+    out = _edited_run(tmp_path, "targets", '"TR0001","Belbrook Gasfields",2023,"1311","book",',
+                      "peer_count", lambda v: "")
     text = explain_text(out, 100, ["TR0001"])
     assert text.startswith("exit 0\n"), text
     assert "(no peers)" in text and "peers: none." in text
+
+
+def test_drivers_that_do_not_add_up_are_one_line(tmp_path: Path) -> None:
+    """Refused before anything is printed (the pandas-based explain printed half the view)."""
+    out = _edited_run(tmp_path, "drivers", '"TR0001",2023,"book","size",', "contribution",
+                      lambda v: repr(float(v) + 0.5))
+    text = explain_text(out, 100, ["TR0001"])
+    assert text.count("\n") == 2 and text.startswith("exit 2\nlevgap: error: driver "
+                                                      "contributions of firm TR0001"), text
 
 
 if __name__ == "__main__":  # write the expected files from the code on the path

@@ -64,6 +64,7 @@ def explain(
         view = firm_rows(res.tables["targets"], res.tables["drivers"], firm_id, year=year,
                          measure=measure, names=res.industry_names, folder=res.folder)
         row = view.row
+        steps = view.steps()  # drivers that do not add up are refused before anything is shown
         units = (res.manifest.get("options") or {}).get("units")
         con = console()
         who = f"{row['firm_id']}" + (f" ({row['firm_name']})" if row.get("firm_name") else "")
@@ -85,7 +86,6 @@ def explain(
             con.print(f"{g.label('flags')}:")
             for code, words in view.flags:
                 con.print(f"  {code}: {words}")
-        steps = view.steps()
         shown = {**steps, "label": [plain(label) for label in steps["label"]]}
         title = f"{row['firm_id']} {int(row['fiscal_year'])}, {g.MEASURES[measure]}"
         con.print(render_steps(shown, title=plain(title)))
