@@ -78,7 +78,8 @@ def read_table(path: Path, name: str, *, legacy: bool = False) -> Any:
         if path.suffix == ".parquet":
             import pyarrow.parquet as pq
 
-            table = pq.read_table(path)
+            with pq.ParquetFile(path) as fh:  # pq.read_table would import pandas
+                table = fh.read()
         else:
             import pyarrow.csv as pv
 
