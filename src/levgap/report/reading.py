@@ -42,7 +42,7 @@ def read_run_tables(out_dir: str | Path, names: Iterable[str] | None = None
     out_dir : str or pathlib.Path
         A folder written by ``levgap analyze``; checked first with
         ``levgap.outputs.verify_run``; each table read is checked against the size and
-        SHA-256 ``run.json`` records for it (in the order ``run.json`` lists them).
+        SHA-256 ``run.json`` records for it (by file name, as ``RunFolder.tables`` orders them).
     names : iterable of str, optional
         Only these tables (e.g. ``["targets"]``); default every table of the run.
 
