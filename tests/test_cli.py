@@ -358,6 +358,9 @@ def parquet_out(panel_csv: Path, tmp_path_factory: pytest.TempPathFactory) -> Pa
                                   ["screen", "{out}", "--new", "--industry", "3711",
                                    "--sort", "change", "--format", "json"],
                                   ["screen", "{out}", "--persistent", "--format", "csv"],
+                                  ["explain", "{out}", "TR0001"],
+                                  ["explain", "{out}", "tr0001", "--measure", "market",
+                                   "--year", "2022"],
                                   ["--version"], ["--help"]])
 def test_quick_commands_do_not_import_heavy_libraries(args: list[str], out_dir: Path,
                                                       parquet_out: Path, tmp_path: Path) -> None:
