@@ -41,8 +41,23 @@ def out_dir(panel_csv: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 
 def test_version() -> None:
+    import levgap
+
     result = runner.invoke(app, ["--version"])
-    assert result.exit_code == 0 and result.output.startswith("levgap ")
+    assert result.exit_code == 0 and result.output == f"levgap {levgap.__version__}\n"
+
+
+def test_version_is_pyprojects() -> None:
+    """``levgap.__version__`` is written as text (no metadata scan at start-up); it must be
+    the release pyproject.toml declares, and the installed one."""
+    import tomllib
+    from importlib.metadata import version
+
+    import levgap
+
+    pyproject = Path(__file__).resolve().parents[1] / "pyproject.toml"
+    declared = tomllib.loads(pyproject.read_text(encoding="utf-8"))["project"]["version"]
+    assert levgap.__version__ == declared == version("levgap")
 
 
 @pytest.mark.parametrize("command", COMMANDS)
@@ -269,26 +284,88 @@ def test_check_without_usable_rows_and_demo_into_a_file(tmp_path: Path) -> None:
     _one_line_error(runner.invoke(app, ["demo", "--out", str(blocker)]), "must be a folder")
 
 
-@pytest.mark.parametrize("args", [["screen", "{out}", "--top", "2"], ["template", "--out", "{tmp}"],
-                                  ["screen", "{out}", "--new", "--industry", "3711",
-                                   "--sort", "change", "--format", "json"],
-                                  ["screen", "{out}", "--persistent", "--format", "csv"],
-                                  ["--version"], ["--help"]])
-def test_quick_commands_do_not_import_heavy_libraries(args: list[str], out_dir: Path,
-                                                      tmp_path: Path) -> None:
+HEAVY = ("pandas", "statsmodels", "scipy", "matplotlib", "sklearn")
+
+
+def _no_pandas_run(args: list[str], heavy: tuple[str, ...] = HEAVY) -> str:
+    """Run ``levgap ARGS`` in a fresh interpreter; its output, after checking that pandas
+    and the other ``heavy`` modules were never imported."""
     import subprocess
     import sys
 
-    fill = {"out": str(out_dir), "tmp": str(tmp_path / "t")}
     code = (
         "import sys\n"
         "from levgap.cli import main\n"
-        f"sys.argv = ['levgap', *{[a.format(**fill) for a in args]!r}]\n"
+        f"sys.argv = ['levgap', *{args!r}]\n"
         "try:\n    main()\nexcept SystemExit as e:\n    assert not e.code, e.code\n"
-        "heavy = [m for m in ('pandas', 'statsmodels', 'scipy', 'matplotlib', 'sklearn')"
-        " if m in sys.modules]\n"
+        f"heavy = [m for m in {heavy!r} if m in sys.modules]\n"
         "print('HEAVY', heavy)\n"
     )
     run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)
     assert "HEAVY []" in run.stdout, run.stdout + run.stderr
+    return run.stdout
+
+
+@pytest.mark.parametrize("kind", ["csv", "parquet"])
+def test_check_reads_and_validates_without_pandas(tmp_path: Path, kind: str) -> None:
+    """Issue 15: `check` reads, validates and reports a panel (exclusions, copies, notes)
+    without importing pandas; the counts are those of the ledger `read_panel` builds."""
+    import pyarrow as pa
+    import pyarrow.csv as pacsv
+    import pyarrow.parquet as pq
+
+    from levgap.errors import DataWarning
+    from levgap.ingest import read_panel
+
+    header = ["firm_id", "fiscal_year", "industry", "total_assets", "total_debt", "ppe_net",
+              "ebitda", "book_equity", "market_equity", "revenue", "extra"]
+    rows = [["A1", "2020", "10", "100", "10", "20", "5", "40", "50", "9", "x"],
+            ["A1", "2020", "10", "100", "10", "20", "5", "40", "50", "9", "x"],   # copy
+            ["B1", "2020", "10", "100", "10", "20", "5", "40", "", "-3", "x"],    # note
+            ["B1", "2021", "10", "100", "lots", "20", "5", "40", "", "1", "x"],   # text debt
+            ["C1", "2021", "20", "100", "10", "20", "5", "40", "", "1", "x"],
+            ["C1", "2021", "20", "100", "11", "20", "5", "40", "", "1", "x"]]  # conflict
+    table = pa.table({h: [r[j] for r in rows] for j, h in enumerate(header)})
+    path = tmp_path / f"p.{kind}"
+    if kind == "csv":
+        pacsv.write_csv(table, path)
+    else:
+        pq.write_table(table, path)
+    out = _no_pandas_run(["check", str(path)], (*HEAVY, "rich"))  # plain lines: no rich
+    with pytest.warns(DataWarning, match="revenue must be a number"):
+        ledger = read_panel(path).exclusions
+    assert f"6 rows; 2 usable, {len(ledger)} excluded." in out
+    for reason, n in ledger["reason"].value_counts().items():
+        assert f"excluded, {reason}: {n}" in out
+    assert {"duplicate_row", "conflicting_duplicate", "non_numeric"} == set(ledger["reason"])
+    assert "2 firms, 1 industry, fiscal years 2020-2020" in out
+    assert "note: columns not in schema v1 were ignored: extra" in out
+    assert out.count("revenue must be a number >= 0") == 1  # the warning is the note
+
+
+@pytest.fixture(scope="module")
+def parquet_out(panel_csv: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
+    out = tmp_path_factory.mktemp("out") / "run"
+    result = runner.invoke(app, ["analyze", str(panel_csv), "--out", str(out), "--quiet",
+                                 "--format", "parquet", "--no-report"])
+    assert result.exit_code == 0, result.output
+    return out
+
+
+@pytest.mark.parametrize("args", [["screen", "{out}", "--top", "2"], ["template", "--out", "{tmp}"],
+                                  ["screen", "{parquet}", "--top", "2"],
+                                  ["screen", "{out}", "--new", "--industry", "3711",
+                                   "--sort", "change", "--format", "json"],
+                                  ["screen", "{out}", "--persistent", "--format", "csv"],
+                                  ["explain", "{out}", "TR0001"],
+                                  ["explain", "{out}", "tr0001", "--measure", "market",
+                                   "--year", "2022"],
+                                  ["--version"], ["--help"]])
+def test_quick_commands_do_not_import_heavy_libraries(args: list[str], out_dir: Path,
+                                                      parquet_out: Path, tmp_path: Path) -> None:
+    fill = {"out": str(out_dir), "tmp": str(tmp_path / "t"), "parquet": str(parquet_out)}
+    heavy = HEAVY
+    if args[0].startswith("--"):  # the version is text, not read from the packages' metadata
+        heavy += ("importlib.metadata",)
+    _no_pandas_run([a.format(**fill) for a in args], heavy)

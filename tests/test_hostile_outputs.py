@@ -128,6 +128,18 @@ def test_parquet_tables_are_checked_too(runs, tmp_path):
         read_outputs(out)
 
 
+@pytest.mark.parametrize("args", [["screen", "{out}"], ["explain", "{out}", "TR0002"]])
+def test_parquet_runs_are_read_without_pandas(runs, args):
+    """``pyarrow.parquet.read_table`` imports pandas; the reader must not use it."""
+    code = ("import sys\nfrom levgap.cli import main\n"
+            f"sys.argv = ['levgap', *{[a.format(out=runs['parquet']) for a in args]!r}]\n"
+            "try:\n    main()\nexcept SystemExit as e:\n    assert not e.code, e.code\n"
+            "print('PANDAS', 'pandas' in sys.modules)\n")
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert "PANDAS False" in run.stdout, run.stdout + run.stderr
+
+
 @pytest.mark.parametrize(
     ("body", "pattern"),
     [

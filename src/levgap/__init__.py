@@ -15,13 +15,11 @@ Heavy modules (pandas, statsmodels, ...) are imported on first use, so that
 from __future__ import annotations
 
 from importlib import import_module
-from importlib.metadata import PackageNotFoundError, version
 from typing import Any
 
-try:
-    __version__ = version("levgap")
-except PackageNotFoundError:  # running from a source tree without installation
-    __version__ = "0.0.0"
+__version__ = "0.1.0"
+"""The release, written here as text (equal to pyproject.toml's ``version``, which
+``tests/test_cli.py`` checks) so that no command scans the installed packages' metadata."""
 
 _EXPORTS = {
     "read_panel": "levgap.ingest",

@@ -42,7 +42,7 @@ ADDED_COLUMNS: dict[str, tuple[str, ...]] = {
 }
 """Columns a run writes since the analyst's screen (issue 13). A folder written before lacks
 them and stays readable: the readers compute the history from the targets' own rows and leave
-``raw_value`` blank (``fill_added_columns``)."""
+``raw_value`` blank (``levgap.report.reading``)."""
 
 TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "targets": TARGET_COLUMNS,
@@ -144,24 +144,6 @@ def check_table_columns(path: str | Path, name: str, found: Mapping[str, str],
                 f"{path}: column {col} must have a value in every row; got {n:,} blank. The "
                 "file was edited or damaged; re-run `levgap analyze`."
             )
-
-
-def fill_added_columns(name: str, frame: pd.DataFrame) -> pd.DataFrame:
-    """A table of a run written before ``ADDED_COLUMNS`` existed, with them: the history from
-    the targets' own rows (``levgap.history.with_history``), ``raw_value`` blank."""
-    missing = [c for c in ADDED_COLUMNS.get(name, ()) if c not in frame.columns]
-    if not missing:
-        return frame
-    if name == "targets":
-        from levgap.history import with_history
-
-        return with_history(frame)
-    import numpy as np
-
-    out = frame.copy()
-    at = list(out.columns).index("firm_value") + 1 if "firm_value" in out else len(out.columns)
-    out.insert(at, "raw_value", np.nan)
-    return out
 
 
 @dataclass(frozen=True, slots=True)

@@ -36,8 +36,10 @@ def build_manifest(
     by_reason = whole["reason"].value_counts().sort_index()
     by_measure = exclusions[exclusions["measure"] != ""].groupby(
         ["measure", "reason"]).size()
-    versions = {}
-    for pkg in ("levgap", "numpy", "pandas", "scipy", "statsmodels", "pyarrow"):
+    from levgap import __version__
+
+    versions: dict[str, str | None] = {"levgap": __version__}
+    for pkg in ("numpy", "pandas", "scipy", "statsmodels", "pyarrow"):
         try:
             versions[pkg] = version(pkg)
         except PackageNotFoundError:

@@ -70,7 +70,7 @@ def guard() -> Iterator[None]:
 def merge_notes(recorded: tuple[str, ...] | list[str], caught: list[str]) -> list[str]:
     """The panel's recorded notes, plus caught warnings that do not repeat one of them."""
     out = [" ".join(str(w).split()) for w in recorded]
-    out += [c for c in caught if not any(c in r or r.endswith(c) for r in out)]
+    out += [c for c in caught if not any(c in r or c.endswith(f": {r}") for r in out)]
     return list(dict.fromkeys(out))
 
 

@@ -51,7 +51,8 @@ def explain(
             return explain_change(out_dir, firm_id, year, measure, add_debt, fund_assets,
                                   panel=panel)
         from levgap.cli.results import _refuse_run_files
-        from levgap.report.terminal import render_history, render_steps
+        from levgap.firmview import firm_rows
+        from levgap.report.terminal import nansum, render_history, render_steps
         from levgap.results import open_results
 
         if plot is not None and plot.suffix.lower() not in (".png", ".svg"):
@@ -59,9 +60,11 @@ def explain(
                                      param_hint="--plot")
         if plot is not None:  # refused before anything is explained
             _refuse_run_files(out_dir, plot)
-        res = open_results(out_dir)
-        view = res.firm(firm_id, year=year, measure=measure)
+        res = open_results(out_dir)  # pandas-free: the firm's rows only, as plain values
+        view = firm_rows(res.tables["targets"], res.tables["drivers"], firm_id, year=year,
+                         measure=measure, names=res.industry_names, folder=res.folder)
         row = view.row
+        steps = view.steps()  # drivers that do not add up are refused before anything is shown
         units = (res.manifest.get("options") or {}).get("units")
         con = console()
         who = f"{row['firm_id']}" + (f" ({row['firm_name']})" if row.get("firm_name") else "")
@@ -70,7 +73,7 @@ def explain(
         con.print(
             f"actual - peer median = {g.pp(row['actual'] - row['peer_median'])} pp = "
             f"{g.label('peers_offset')} {g.pp(offset)} pp + drivers "
-            f"{g.pp(view.drivers['contribution'].sum())} pp + {g.label('unexplained')} "
+            f"{g.pp(nansum(view.drivers['contribution']))} pp + {g.label('unexplained')} "
             f"{g.pp(row['gap'])} pp")
         money = g.money_unit(units)
         con.print(
@@ -83,19 +86,22 @@ def explain(
             con.print(f"{g.label('flags')}:")
             for code, words in view.flags:
                 con.print(f"  {code}: {words}")
-        steps = view.steps()
-        shown = steps.assign(label=steps["label"].map(plain))
+        shown = {**steps, "label": [plain(label) for label in steps["label"]]}
         title = f"{row['firm_id']} {int(row['fiscal_year'])}, {g.MEASURES[measure]}"
         con.print(render_steps(shown, title=plain(title)))
+        years = len(view.history["fiscal_year"])
         con.print(render_history(view.history, title=plain(
-            f"{row['firm_id']}, {g.MEASURES[measure]} over {g.count(len(view.history), 'year')}"),
+            f"{row['firm_id']}, {g.MEASURES[measure]} over {g.count(years, 'year')}"),
             max_width=con.width))
         if peers:
             _print_peers(con, res, row, measure)
         if plot is not None:
+            import pandas as pd
+
             from levgap.report.plots import plot_steps
 
-            plot_steps(steps, plot, title=title, inputs=_refuse_run_files(out_dir, plot))
+            plot_steps(pd.DataFrame(steps), plot, title=title,
+                       inputs=_refuse_run_files(out_dir, plot))
             con.print(f"Chart written to {plot}.")
 
 
@@ -112,11 +118,14 @@ def _drivers_table(view: Any, who: str) -> Any:
         f"{g.label('peer_median')} {g.pct(row['peer_median'])} ({peers})"), title_justify="left")
     for key in ("driver", "firm_value", "peer_value", "contribution"):
         table.add_column(g.header(key), justify="left" if key == "driver" else "right")
-    for r in view.drivers.itertuples():
-        value = g.number(r.firm_value, 4)
-        if r.raw_value == r.raw_value:  # winsorised: the raw value beside it
-            value += f" (winsorised; {g.label('raw_value')} {g.number(r.raw_value, 4)})"
-        table.add_row(plain(r.driver), value, g.number(r.peer_value, 4), g.pp(r.contribution, 2))
+    d = view.drivers
+    for driver, firm_value, raw_value, peer_value, contribution in zip(
+            d["driver"], d["firm_value"], d["raw_value"], d["peer_value"], d["contribution"],
+            strict=True):
+        value = g.number(firm_value, 4)
+        if raw_value == raw_value:  # winsorised: the raw value beside it
+            value += f" (winsorised; {g.label('raw_value')} {g.number(raw_value, 4)})"
+        table.add_row(plain(driver), value, g.number(peer_value, 4), g.pp(contribution, 2))
     return table
 
 

@@ -309,32 +309,30 @@ def check(
             check_replaceable(ledger, [panel, *([config] if config else [])])
         with collect_notes(notes):
             p = read_panel(panel, config=cfg)
-        con = console()
-        data = p.data
-        whole = p.exclusions
-        con.print(f"{panel}: {g.count(p.n_input_rows, 'row')}; {len(data)} usable, "
-                  f"{len(whole)} excluded.")
-        if len(data):
-            years = data["fiscal_year"]
-            con.print(f"  {g.count(data['firm_id'].nunique(), 'firm')}, "
-                      f"{g.count(data['industry'].nunique(), 'industry')}, fiscal years "
-                      f"{int(years.min())}-{int(years.max())}")
-            no_mkt = int(data["market_equity"].isna().sum()) if "market_equity" in data else 0
-            if no_mkt:
-                con.print(f"  {g.count(no_mkt, 'row')} {'has' if no_mkt == 1 else 'have'} no "
-                          "market equity (book leverage only)")
-        for reason, n in whole["reason"].value_counts().sort_index().items():
-            con.print(f"  {g.label('excluded')}, {reason}: {n}")
+        # from the columns: no pandas unless a ledger is written; plain lines, so echo (rich
+        # is not loaded either)
+        s = p.summary()
+        echo(f"{panel}: {g.count(s.input_rows, 'row')}; {s.kept} usable, "
+             f"{sum(s.excluded.values())} excluded.")
+        if s.years is not None:
+            echo(f"  {g.count(s.firms, 'firm')}, {g.count(s.industries, 'industry')}, "
+                 f"fiscal years {s.years[0]}-{s.years[1]}")
+            if s.no_market_equity:
+                echo(f"  {g.count(s.no_market_equity, 'row')} "
+                     f"{'has' if s.no_market_equity == 1 else 'have'} no "
+                     "market equity (book leverage only)")
+        for reason, n in s.excluded.items():
+            echo(f"  {g.label('excluded')}, {reason}: {n}")
         for w in merge_notes(p.warnings, notes):
-            con.print(f"  note: {w}")
+            echo(f"  note: {w}")
         if ledger is not None:
             from levgap.report.tables import write_table
 
-            write_table(whole, ledger, inputs=[panel, *([config] if config else [])])
-            con.print(f"Exclusion ledger written to {ledger} (whole rows; `analyze` also "
-                      "leaves rows out of one measure, e.g. no_market_equity, and lists them "
-                      "in its exclusions.csv).")
-        if len(data) == 0:
+            write_table(p.exclusions, ledger, inputs=[panel, *([config] if config else [])])
+            echo(f"Exclusion ledger written to {ledger} (whole rows; `analyze` also "
+                 "leaves rows out of one measure, e.g. no_market_equity, and lists them "
+                 "in its exclusions.csv).")
+        if s.kept == 0:
             err(f"{panel}: the panel must keep at least one usable row; got none.")
             raise typer.Exit(2)
 

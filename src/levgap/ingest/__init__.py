@@ -1,7 +1,8 @@
 """Reading panels: files in, a validated :class:`~levgap.panel.Panel` out.
 
-``read_panel`` = ``readers.read_table`` (bytes -> cells under the user's headers) followed by
-``validate.validate_panel`` (cells -> schema-v1 columns, row rules, exclusion ledger).
+``read_panel`` = ``readers.read_table`` (bytes -> columns of cells under the user's headers)
+followed by ``validate.validate_columns`` (cells -> schema-v1 columns, row rules, exclusion
+ledger), neither of which loads pandas; ``validate_panel`` takes a pandas DataFrame instead.
 """
 
 from __future__ import annotations
@@ -18,8 +19,8 @@ if TYPE_CHECKING:
     from levgap.ingest.validate import resolve_columns, validate_panel
     from levgap.panel import Panel
 
-# Readers and validation need pandas; they load on first use so that importing a pandas-free
-# module of this package (the template) stays quick.
+# Readers and validation need pyarrow (not pandas); they load on first use so that importing
+# a module of this package that needs neither (the template) stays quick.
 _LAZY = {
     "RawTable": "levgap.ingest.readers",
     "read_table": "levgap.ingest.readers",
@@ -84,12 +85,14 @@ def read_panel(path: str | Path, *, config: RunConfig | None = None) -> Panel:
     """
     from levgap.config import RunConfig
     from levgap.ingest.readers import read_table
-    from levgap.ingest.validate import validate_panel
+    from levgap.ingest.validate import validate_columns
 
     config = config or RunConfig()
     raw = read_table(path, config.input)
-    return validate_panel(
-        raw.frame,
+    return validate_columns(
+        raw.names,
+        raw.columns,
+        raw.n_input_rows,
         source=raw.source,
         config=config,
         n_input_rows=raw.n_input_rows,

@@ -15,13 +15,27 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
-import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
 
 from levgap.codes import NA_TOKENS
 from levgap.config import InputOptions
+from levgap.ingest.columns import (
+    Column,
+    arrow_numbers,
+    arrow_strings,
+    as_column,
+    bool_scalar,
+    is_number,
+    is_text,
+    null_text,
+    text_scalar,
+    to_numpy_bool,
+    to_numpy_number,
+)
 
 NUMBER_RE = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
 STRICT_NUMBER_RE = r"^[+-]?(\d+(\.\d+)?|\.\d+)([eE][+-]?\d+)?$"
@@ -32,38 +46,39 @@ CODE_COLUMNS = ("firm_id", "industry")
 _WHOLE_CODE = r"^([0-9]+)\.0+$"
 
 
-def text_cells(series: pd.Series, *, code: bool = False) -> pd.Series:
+def text_cells(column: Column | Any, *, code: bool = False) -> pa.Array | pa.ChunkedArray:
     """Text cells stripped, without NUL bytes, blank tokens as ``""``.
 
     Parameters
     ----------
-    series : pandas.Series
+    column : pyarrow or numpy array, or pandas.Series
         Text, or numbers (a workbook's or Parquet file's cells): whole-number floats lose
-        their ``.0``.
+        their ``.0``. See ``levgap.ingest.columns``.
     code : bool, default=False
         Also read text ``3711.0`` as ``3711`` (``firm_id`` and ``industry``).
 
     Returns
     -------
-    pandas.Series
-        Text (``str`` dtype), a fresh 0..n-1 index.
+    pyarrow.Array or pyarrow.ChunkedArray
+        Text, no missing values.
     """
-    if isinstance(series.dtype, pd.StringDtype):
-        out = series.fillna("").str.replace("\x00", "", regex=False).str.strip()
-    elif pd.api.types.is_integer_dtype(series.dtype):
-        out = series.astype("str").mask(series.isna(), "")
+    column = as_column(column)
+    if is_text(column):
+        out = pc.utf8_trim_whitespace(
+            pc.replace_substring(pc.fill_null(column, text_scalar("")), "\x00", ""))
+    elif is_number(column) and column.dtype.kind in "iu":
+        out = arrow_numbers(column).cast(pa.string())
     else:
-        obj = series.to_numpy(dtype=object)
-        out = pd.Series([_cell_text(v) for v in obj], dtype="str")
-    out = out.astype("str").reset_index(drop=True)
-    out = out.mask(out.str.lower().isin(NA_TOKENS), "")
+        out = arrow_strings([_cell_text(v) for v in column])
+    out = pc.if_else(pc.is_in(pc.utf8_lower(out), value_set=arrow_strings(NA_TOKENS)),
+                     text_scalar(""), out)
     if code:
-        out = out.str.replace(_WHOLE_CODE, r"\1", regex=True)
+        out = pc.replace_substring_regex(out, _WHOLE_CODE, r"\1")
     return out
 
 
 def _cell_text(v: object) -> str:
-    if v is None or v is pd.NA or v is pd.NaT:
+    if v is None:
         return ""
     if isinstance(v, float | np.floating):
         if v != v:
@@ -74,14 +89,14 @@ def _cell_text(v: object) -> str:
 
 
 def parse_numbers(
-    series: pd.Series, options: InputOptions | None = None
+    column: Column | Any, options: InputOptions | None = None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Parse a column of cells as numbers, vectorised.
 
     Parameters
     ----------
-    series : pandas.Series
-        Numbers, text, or a mix (from a workbook).
+    column : pyarrow or numpy array, or pandas.Series
+        Numbers, text, or a mix (from a workbook). See ``levgap.ingest.columns``.
     options : InputOptions, optional
         ``decimal`` and ``thousands`` marks of text numbers (see the module docstring). A
         thousands mark that is a space also takes no-break spaces.
@@ -96,19 +111,16 @@ def parse_numbers(
         bool, the cell holds something that is not a finite number.
     """
     options = options or InputOptions()
-    dtype = series.dtype
-    if pd.api.types.is_bool_dtype(dtype):
-        series = series.astype(object)
-        dtype = series.dtype
-    if pd.api.types.is_numeric_dtype(dtype):
-        values = series.to_numpy(dtype=np.float64, na_value=np.nan)
+    column = as_column(column)
+    if is_number(column):
+        values = column.astype(np.float64)
         blank = np.isnan(values)
         bad = np.isinf(values)
         values = np.where(bad, np.nan, values)
         return values, blank, bad
-    if isinstance(dtype, pd.StringDtype):
-        return _parse_text(pa.array(series, from_pandas=True), options)
-    obj = series.to_numpy(dtype=object)
+    if is_text(column):
+        return _parse_text(column, options)
+    obj = column
     isnum = np.fromiter(
         (
             isinstance(v, int | float | np.integer | np.floating)
@@ -118,11 +130,7 @@ def parse_numbers(
         dtype=bool,
         count=len(obj),
     )
-    strs = pa.array(
-        ["" if (isnum[i] or v is None or v is pd.NA or v is pd.NaT) else str(v)
-         for i, v in enumerate(obj)],
-        type=pa.string(),
-    )
+    strs = arrow_strings(["" if (isnum[i] or v is None) else str(v) for i, v in enumerate(obj)])
     values, blank, bad = _parse_text(strs, options)
     if isnum.any():
         nums = obj[isnum].astype(np.float64)
@@ -149,12 +157,12 @@ def _parse_text(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     if not pa.types.is_string(arr.type) and not pa.types.is_large_string(arr.type):
         arr = pc.cast(arr, pa.string())
-    arr = pc.utf8_trim_whitespace(pc.fill_null(arr, ""))
-    blank = pc.is_in(pc.utf8_lower(arr), value_set=pa.array(NA_TOKENS))
+    arr = pc.utf8_trim_whitespace(pc.fill_null(arr, text_scalar("")))
+    blank = pc.is_in(pc.utf8_lower(arr), value_set=arrow_strings(NA_TOKENS))
     # accounting negatives: (12.5) is -12.5
     if pc.any(pc.starts_with(arr, "(")).as_py():
         arr = pc.replace_substring_regex(arr, r"^\(\s*(.*?)\s*\)$", r"-\1")
-    grouped = pa.scalar(True)
+    grouped = bool_scalar(True)
     seps = thousands_marks(options)
     if options.decimal != "." and "." not in seps:
         # a decimal comma: a dot is never a decimal point (nor, here, a thousands mark)
@@ -172,8 +180,8 @@ def _parse_text(
         arr = pc.replace_substring(arr, options.decimal, ".")
     pattern = NUMBER_RE if options.decimal == "." else STRICT_NUMBER_RE
     ok = pc.and_(pc.match_substring_regex(arr, pattern), grouped)
-    nums = pc.cast(pc.if_else(ok, arr, pa.scalar(None, pa.string())), pa.float64())
-    values = nums.to_numpy(zero_copy_only=False).astype(np.float64, copy=True)
+    nums = pc.cast(pc.if_else(ok, arr, null_text()), pa.float64())
+    values = to_numpy_number(nums).astype(np.float64, copy=True)
     blank_np = _bool(blank)
     ok_np = _bool(ok)
     finite = np.isfinite(values)
@@ -184,4 +192,4 @@ def _parse_text(
 
 
 def _bool(arr: pa.Array | pa.ChunkedArray) -> np.ndarray:
-    return np.asarray(pc.fill_null(arr, False).to_numpy(zero_copy_only=False), dtype=bool)
+    return to_numpy_bool(arr)

@@ -1,13 +1,15 @@
-"""Readers for panel files: CSV, Parquet and XLSX, into a frame of raw cells.
+"""Readers for panel files: CSV, Parquet and XLSX, into columns of raw cells.
 
 The readers only turn bytes into a table of cells under the user's own headers; they do not
-interpret values (``levgap.ingest.validate`` does). CSV cells are read as text, so that a
+interpret values (``levgap.ingest.validate`` does). The cells are columns (pyarrow and numpy
+arrays, ``levgap.ingest.columns``), not a pandas frame, so that reading and validating a
+panel (``levgap check``) does not load pandas. CSV cells are read as text, so that a
 stray word in a numeric column becomes an exclusion with its row number rather than a
 failed read, and so that ``firm_id`` and ``industry`` keep their leading zeros.
 
 Row numbering
 -------------
-``source_rows`` holds, for every row of the frame, its 1-based data row as a spreadsheet shows
+``source_rows`` holds, for every row of the table, its 1-based data row as a spreadsheet shows
 it: the first record below the header is row 1, and blank records (empty lines, or records
 whose every cell is empty) count as rows but are not data. A quoted field that spans several
 lines is one record. Lines skipped with ``[input] skip_rows`` and blank lines above the header
@@ -28,16 +30,19 @@ import zlib
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 from xml.etree.ElementTree import ParseError
 
 import numpy as np
-import pandas as pd
 import pyarrow as pa
 import pyarrow.csv as pacsv
-import pyarrow.parquet as pq
 
 from levgap.config import InputOptions
 from levgap.errors import ConfigError, SchemaError, warn_data
+from levgap.ingest.columns import Column, as_column, blank_rows, take, to_frame
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 DELIMITERS: tuple[str, ...] = (",", ";", "\t", "|")
 """Candidates tried, in this order of preference, when no delimiter is configured."""
@@ -52,11 +57,14 @@ class RawTable:
 
     Parameters
     ----------
-    frame : pandas.DataFrame
-        One row per non-blank data record, columns named by the file's headers. CSV cells
-        are text; Parquet and XLSX cells keep the type the file gave them.
+    names : tuple of str
+        The file's headers, one per column (a header may repeat; validation refuses that).
+    columns : tuple of arrays
+        One column of cells per header, one cell per non-blank data record
+        (``levgap.ingest.columns``). CSV cells are text; Parquet and XLSX cells keep the type
+        the file gave them.
     source_rows : numpy.ndarray
-        1-based data row of each frame row (int64), see the module docstring.
+        1-based data row of each record (int64), see the module docstring.
     source : str
         Path of the file.
     sha256 : str
@@ -65,7 +73,8 @@ class RawTable:
         Things the reader did that the user should know (encoding fallback, ...).
     """
 
-    frame: pd.DataFrame
+    names: tuple[str, ...]
+    columns: tuple[Column, ...]
     source_rows: np.ndarray
     source: str
     sha256: str
@@ -74,7 +83,23 @@ class RawTable:
     @property
     def n_input_rows(self) -> int:
         """Number of non-blank data records."""
-        return len(self.frame)
+        return len(self.source_rows)
+
+    @property
+    def frame(self) -> pd.DataFrame:
+        """The cells as a pandas DataFrame under the file's headers (built on each call)."""
+        return to_frame(self.names, self.columns)
+
+
+def _table(names: list[str], columns: list[Column], rows: np.ndarray, p: Path, sha: str,
+           notes: tuple[str, ...]) -> RawTable:
+    """A RawTable without the records whose every cell is blank."""
+    keep = ~blank_rows(columns, len(rows))
+    if not keep.all():
+        idx = np.flatnonzero(keep)
+        columns = [take(c, idx) for c in columns]
+        rows = rows[keep]
+    return RawTable(tuple(names), tuple(columns), rows, str(p), sha, notes)
 
 
 def read_table(path: str | Path, options: InputOptions | None = None) -> RawTable:
@@ -190,8 +215,9 @@ def _read_csv(p: Path, data: bytes, options: InputOptions) -> RawTable:
     body = memoryview(data)[body_start:]
 
     if re.search(rb"[^ \t\r\n]", body) is None:
-        frame = pd.DataFrame({n: pd.Series([], dtype="str") for n in names})
-        return RawTable(frame, np.zeros(0, dtype=np.int64), str(p), sha, tuple(notes))
+        empty = tuple(pa.nulls(0, pa.string()) for _ in names)
+        return RawTable(tuple(names), empty, np.zeros(0, dtype=np.int64), str(p), sha,
+                        tuple(notes))
 
     column_names = _unique(names)
     has_quotes = data.find(b'"', body_start) >= 0  # bytes.find is memchr; `in` on a view is not
@@ -216,25 +242,21 @@ def _read_csv(p: Path, data: bytes, options: InputOptions) -> RawTable:
     except pa.ArrowException as exc:
         raise _locate_csv_problem(p, bytes(body), delimiter, len(names), exc) from None
 
-    frame = table.to_pandas()
-    del table
     # the file's own headers, duplicates included: validation refuses a repeated header
-    frame.columns = names
+    columns = [table.column(j) for j in range(table.num_columns)]
+    n = table.num_rows
+    del table
     if _has_empty_lines(body):
         rows = _record_numbers(bytes(body), delimiter)
-        if len(rows) != len(frame):
-            rows = np.arange(1, len(frame) + 1, dtype=np.int64)
+        if len(rows) != n:
+            rows = np.arange(1, n + 1, dtype=np.int64)
             notes.append(
                 "blank lines and multi-line quoted cells both occur; row numbers count "
                 "records without the blank lines"
             )
     else:
-        rows = np.arange(1, len(frame) + 1, dtype=np.int64)
-    keep = ~_all_blank(frame)
-    if not keep.all():
-        frame = frame.loc[keep].reset_index(drop=True)
-        rows = rows[keep]
-    return RawTable(frame, rows, str(p), sha, tuple(notes))
+        rows = np.arange(1, n + 1, dtype=np.int64)
+    return _table(names, columns, rows, p, sha, tuple(notes))
 
 
 def _to_utf8(p: Path, data: bytes, encoding: str | None) -> tuple[bytes, list[str]]:
@@ -411,19 +433,6 @@ def _record_numbers(body: bytes, delimiter: str) -> np.ndarray:
     return np.asarray(rows, dtype=np.int64)
 
 
-def _all_blank(frame: pd.DataFrame) -> np.ndarray:
-    blank = np.ones(len(frame), dtype=bool)
-    for j in range(frame.shape[1]):  # by position: a repeated header names several columns
-        s = frame.iloc[:, j]
-        if s.dtype == object or isinstance(s.dtype, pd.StringDtype):
-            blank &= (s.astype("str").str.strip().fillna("") == "").to_numpy(dtype=bool)
-        else:
-            blank &= s.isna().to_numpy(dtype=bool)
-        if not blank.any():
-            break
-    return blank
-
-
 def _locate_csv_problem(
     p: Path, body: bytes, delimiter: str, n_fields: int, exc: Exception
 ) -> SchemaError:
@@ -458,27 +467,24 @@ def _locate_csv_problem(
 
 
 def _read_parquet(p: Path, data: bytes, options: InputOptions) -> RawTable:
+    import pyarrow.parquet as pq
+
     sha = hashlib.sha256(data).hexdigest()
     try:
-        table = pq.read_table(pa.BufferReader(pa.py_buffer(data)))
-        # without pandas' metadata: a damaged copy of it would fail the conversion, and an
-        # index written beside the columns is not panel data
-        table = table.replace_schema_metadata(None)
-        keep = [n for n in table.column_names if not n.startswith("__index_level_")]
-        frame = table.select(keep).to_pandas()
+        # ParquetFile, not read_table: read_table loads pyarrow.dataset, which imports pandas
+        table = pq.ParquetFile(pa.BufferReader(pa.py_buffer(data))).read()
+        # an index that pandas wrote beside the columns is not panel data
+        keep = [j for j, n in enumerate(table.column_names)
+                if not n.startswith("__index_level_")]
+        names = [str(table.column_names[j]) for j in keep]
+        columns = [as_column(table.column(j)) for j in keep]
     except (pa.ArrowException, OSError, ValueError, KeyError, TypeError) as exc:
         detail = _one_line(exc)
         raise SchemaError(
             f"{p}: the file must be a readable Parquet table; got {detail}. Re-export it."
         ) from None
-    frame = frame.reset_index(drop=True)
-    frame.columns = [str(c) for c in frame.columns]
-    rows = np.arange(1, len(frame) + 1, dtype=np.int64)
-    keep = ~_all_blank(frame)
-    if not keep.all():
-        frame = frame.loc[keep].reset_index(drop=True)
-        rows = rows[keep]
-    return RawTable(frame, rows, str(p), sha, ())
+    rows = np.arange(1, table.num_rows + 1, dtype=np.int64)
+    return _table(names, columns, rows, p, sha, ())
 
 
 # ---------------------------------------------------------------------------------------------
@@ -574,13 +580,8 @@ def _xlsx_table(
             continue
         rows.append(i)
         records.append(tuple(r[:width]) + (None,) * (width - min(len(r), width)))
-    column_names = _unique(names)
-    frame = pd.DataFrame.from_records(records, columns=column_names) if records else (
-        pd.DataFrame({n: pd.Series([], dtype=object) for n in column_names})
-    )
-    frame = frame.astype(object)
-    frame.columns = names
-    return RawTable(frame, np.asarray(rows, dtype=np.int64), str(p), sha, notes)
+    columns = tuple(as_column([r[j] for r in records]) for j in range(width))
+    return RawTable(tuple(names), columns, np.asarray(rows, dtype=np.int64), str(p), sha, notes)
 
 
 def _blank_record(r: tuple) -> bool:

@@ -13,25 +13,44 @@ the reference currency) comes without an ``fx_rate`` column.
 from __future__ import annotations
 
 import re
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from levgap.codes import FLAGS, MONEY_LIMIT, YEAR_RANGE
 from levgap.config import RunConfig
 from levgap.currencies import CURRENCIES
 from levgap.errors import SchemaError, warn_data
 from levgap.ingest.cells import CODE_COLUMNS, parse_numbers, text_cells
-from levgap.panel import EXCLUSION_COLUMNS, Panel
-from levgap.schema import BY_NAME, COLUMNS, KEY, MONEY, NUMERIC, REQUIRED
+from levgap.ingest.columns import (
+    Column,
+    arrow_ints,
+    arrow_strings,
+    cell,
+    empty_text,
+    is_empty_text,
+    is_number,
+    take,
+    text_scalar,
+    to_numpy_bool,
+)
+from levgap.ingest.copies import duplicates
+from levgap.panel import Panel
+from levgap.schema import BY_NAME, COLUMNS, MONEY, NUMERIC, REQUIRED
 
-__all__ = ["parse_numbers", "resolve_columns", "validate_panel"]
+if TYPE_CHECKING:
+    import pandas as pd
+
+__all__ = ["parse_numbers", "resolve_columns", "validate_columns", "validate_panel"]
 
 _TEXT = tuple(c.name for c in COLUMNS if c.kind == "text")
 _EXCLUDE_ON_BAD = frozenset(REQUIRED) | {"fx_rate"}
 
-Texts = dict[str, pd.Series]
+Texts = dict[str, pa.Array | pa.ChunkedArray]
+Raw = dict[str, Column]
 Arrays = dict[str, np.ndarray]
 Describe = Callable[[np.ndarray], list[str]]
 
@@ -87,22 +106,48 @@ def validate_panel(
     DataWarning
         Optional values that are not numbers or below their minimum were set missing.
     """
+    from levgap.ingest.columns import frame_columns
+
+    return validate_columns(
+        [str(c) for c in frame.columns], frame_columns(frame), len(frame), source=source,
+        config=config, n_input_rows=n_input_rows, sha256=sha256, source_rows=source_rows,
+        notes=notes)
+
+
+def validate_columns(
+    headers: Sequence[str],
+    columns: Sequence[Column],
+    n: int,
+    *,
+    source: str = "<memory>",
+    config: RunConfig | None = None,
+    n_input_rows: int | None = None,
+    sha256: str | None = None,
+    source_rows: Iterable[int] | None = None,
+    notes: Iterable[str] = (),
+) -> Panel:
+    """:func:`validate_panel` on columns of cells (``levgap.ingest.columns``), pandas-free.
+
+    ``headers[j]`` names ``columns[j]``, of ``n`` rows each; the other parameters, the
+    result and the errors are ``validate_panel``'s. ``read_panel`` calls this with a reader's
+    columns.
+    """
     config = config or RunConfig()
     opts = config.input
-    n = len(frame)
-    headers = [str(c) for c in frame.columns]
+    headers = [str(h) for h in headers]
     dupes = sorted({h for h in headers if headers.count(h) > 1})
     if dupes:
         raise SchemaError(
             f"{source}: column headers must be unique; got {_listing(dupes)} more than once. "
             "Rename or drop the copies."
         )
-    frame = frame.set_axis(headers, axis=1)
-    if source_rows is None and "source_row" in headers:
+    by_header = dict(zip(headers, columns, strict=True))
+    if source_rows is None and "source_row" in by_header:
         # a frame that came out of a Panel keeps its row numbers
-        given = frame["source_row"]
-        if pd.api.types.is_integer_dtype(given.dtype) and given.notna().all() and given.is_unique:
-            source_rows = given.to_numpy(dtype=np.int64)
+        given = by_header["source_row"]
+        if (is_number(given) and given.dtype.kind in "iu"
+                and len(np.unique(given)) == len(given)):
+            source_rows = given.astype(np.int64)
     rows = (
         np.arange(1, n + 1, dtype=np.int64)
         if source_rows is None
@@ -124,27 +169,28 @@ def validate_panel(
     if ignored:
         notes.append(f"columns not in schema v1 were ignored: {_listing(ignored)}")
 
-    text: dict[str, pd.Series] = {}
-    raw: dict[str, pd.Series] = {}
+    text: Texts = {}
+    raw: Raw = {}
     for col in _TEXT:
         if col in names:
-            text[col] = text_cells(frame[names[col]], code=col in CODE_COLUMNS)
-            raw[col] = frame[names[col]]
+            text[col] = text_cells(by_header[names[col]], code=col in CODE_COLUMNS)
+            raw[col] = by_header[names[col]]
         else:
-            text[col] = pd.Series(np.full(n, "", dtype=object), dtype="str")
+            text[col] = empty_text(n)
     values: dict[str, np.ndarray] = {}
     blank: dict[str, np.ndarray] = {}
     bad: dict[str, np.ndarray] = {}
     for col in NUMERIC:
         if col in names:
-            values[col], blank[col], bad[col] = parse_numbers(frame[names[col]], opts)
-            raw[col] = frame[names[col]]
+            values[col], blank[col], bad[col] = parse_numbers(by_header[names[col]], opts)
+            raw[col] = by_header[names[col]]
         else:
             values[col] = np.full(n, np.nan)
             blank[col] = np.ones(n, dtype=bool)
             bad[col] = np.zeros(n, dtype=bool)
 
-    currencies = sorted(c for c in text["currency"].str.upper().unique() if c in CURRENCIES)
+    upper = pc.utf8_upper(text["currency"])
+    currencies = sorted(c for c in pc.unique(upper).to_pylist() if c in CURRENCIES)
     reference = (config.units.currency or "").strip().upper()
     foreign = [c for c in currencies if reference and c != reference]
     needs_fx = len(currencies) > 1 or bool(foreign)
@@ -170,11 +216,11 @@ def validate_panel(
         for i, msg in zip(hit, describe(hit), strict=True):
             details.setdefault(int(i), []).append(msg)
 
-    dup_code, dup_detail = _duplicates(text, values, bad, rows)
-    for i, (code, msg) in enumerate(zip(dup_code, dup_detail, strict=True)):
-        if code and reason[i] == "":
-            reason[i] = code
-            details.setdefault(i, []).append(msg)
+    dup_code, dup_detail = duplicates(text, values, bad, rows)
+    for i in np.flatnonzero(dup_code != ""):
+        if reason[i] == "":
+            reason[i] = dup_code[i]
+            details.setdefault(int(i), []).append(dup_detail[i])
 
     excluded = reason != ""
     values, flags, opt_notes = _optional_values(values, bad, names, rows, excluded)
@@ -184,11 +230,11 @@ def validate_panel(
 
     data = _kept(text, values, flags, rows, ~excluded, config.units.scale)
     if extra_heads:
-        data = _input_drivers(data, frame, extra_heads, opts, rows, ~excluded, notes, source)
-    exclusions = _ledger(np.flatnonzero(excluded), rows, text, values, bad, reason, details)
+        _input_drivers(data, by_header, extra_heads, opts, rows, ~excluded, notes, source)
+    ledger = _ledger(np.flatnonzero(excluded), rows, text, values, bad, reason, details)
     return Panel(
-        data=data,
-        exclusions=exclusions,
+        columns=data,
+        excluded=ledger,
         source=str(source),
         sha256=sha256,
         n_input_rows=n if n_input_rows is None else int(n_input_rows),
@@ -319,29 +365,28 @@ def input_driver_headers(headers: list[str], names: Mapping[str, str],
     return out
 
 
-def _input_drivers(data: pd.DataFrame, frame: pd.DataFrame, heads: Mapping[str, str],
-                   opts: object, rows: np.ndarray, keep: np.ndarray, notes: list[str],
-                   source: str) -> pd.DataFrame:
-    """Add the input-driver columns (as given) to the kept rows; cells that are not numbers
-    become missing, flagged ``invalid_input_driver`` (with a note)."""
-    from levgap.features import add_flag
-
+def _input_drivers(data: dict[str, Any], columns: Mapping[str, Column],
+                   heads: Mapping[str, str], opts: object, rows: np.ndarray, keep: np.ndarray,
+                   notes: list[str], source: str) -> None:
+    """Add the input-driver columns (as given) to the kept rows' columns; cells that are not
+    numbers become missing, flagged ``invalid_input_driver`` (with a note)."""
     idx = np.flatnonzero(keep)
-    data = data.copy()
     for name, head in heads.items():
-        values, _, bad = parse_numbers(frame[head], opts)  # type: ignore[arg-type]
+        values, _, bad = parse_numbers(columns[head], opts)  # type: ignore[arg-type]
         values = np.where(bad | ~np.isfinite(values), np.nan, values)[idx]
         hit = bad[idx]
         data[name] = values
         if hit.any():
-            data["flags"] = add_flag(data["flags"], hit, "invalid_input_driver")
+            flags = np.array(data["flags"].to_pylist(), dtype=object)
+            flags[hit] = np.where(flags[hit] == "", "invalid_input_driver",
+                                  flags[hit] + ";invalid_input_driver")
+            data["flags"] = arrow_strings(flags.tolist())
             shown = ", ".join(str(r) for r in rows[idx][hit][:10])
             msg = (f"input driver {name} must be a number; {int(hit.sum())} kept row(s) were "
                    f"not and are treated as missing (rows {shown}); flagged "
                    "invalid_input_driver")
             notes.append(msg)
             warn_data(f"{source}: {msg}", stacklevel=4)
-    return data
 
 
 def _listing(items: Iterable[str], limit: int = 40) -> str:
@@ -353,10 +398,15 @@ def _listing(items: Iterable[str], limit: int = 40) -> str:
     return shown + (f", ... ({len(items) - limit} more)" if len(items) > limit else "")
 
 
-def _show(raw: pd.Series, i: int) -> str:
-    v = raw.iloc[i]
-    s = str(v).replace("\x00", "\\0")
+def _show(raw: Column, i: int) -> str:
+    return _shown(str(cell(raw, i)))
+
+
+def _shown(s: str) -> str:
+    s = s.replace("\x00", "\\0")
     return repr(s if len(s) <= 40 else s[:37] + "...")
+
+
 
 
 # ---------------------------------------------------------------------------------------------
@@ -368,7 +418,7 @@ def _row_checks(
     values: Arrays,
     blank: Arrays,
     bad: Arrays,
-    raw: Texts,
+    raw: Raw,
     reference: str,
     needs_fx: bool,
     scale: float,
@@ -387,35 +437,37 @@ def _row_checks(
         return ["; ".join(out[int(i)]) for i in hit]
 
     miss_cols = list(REQUIRED)
-    currency = text["currency"].str.upper()
+    currency = pc.utf8_upper(text["currency"])
+    no_currency = is_empty_text(currency)
     # With several currencies (or one other than the reference), a row's money reaches the
     # reference currency only through its fx_rate: a blank currency is not assumed to be the
     # reference one.
     fx_needed = (
-        ((currency == "") | (currency != reference)).to_numpy(dtype=bool)
+        no_currency | to_numpy_bool(pc.not_equal(currency, text_scalar(reference)))
         if needs_fx else np.zeros(n, dtype=bool)
     )
+    empty = {c: is_empty_text(text[c]) if c in text else blank[c] for c in miss_cols}
 
     def missing_mask() -> np.ndarray:
         m = np.zeros(n, dtype=bool)
         for c in miss_cols:
-            m |= (text[c] == "").to_numpy(dtype=bool) if c in text else blank[c]
+            m |= empty[c]
         return m | (fx_needed & blank["fx_rate"])
 
     def missing(hit: np.ndarray) -> list[str]:
         out = []
         for i in hit:
-            cols = [f"{c}{_token(raw, c, int(i))}" for c in miss_cols
-                    if (text[c].iloc[i] == "" if c in text else blank[c][i])]
+            cols = [f"{c}{_token(raw, c, int(i))}" for c in miss_cols if empty[c][i]]
             if fx_needed[i] and blank["fx_rate"][i]:
-                why = ("currency is blank" if currency.iloc[i] == "" else
-                       f"currency is {currency.iloc[i]}")
+                why = ("currency is blank" if no_currency[i] else
+                       f"currency is {cell(currency, int(i))}")
                 cols.append(f"fx_rate{_token(raw, 'fx_rate', int(i))} ({why} in a file with "
                             "several currencies)")
             out.append(f"{', '.join(cols)} must have a value; got a blank")
         return out
 
-    unknown = ((currency != "") & ~currency.isin(CURRENCIES)).to_numpy(dtype=bool)
+    unknown = ~no_currency & ~to_numpy_bool(
+        pc.is_in(currency, value_set=arrow_strings(sorted(CURRENCIES))))
 
     def unknown_currency(hit: np.ndarray) -> list[str]:
         return [f"currency must be an ISO 4217 code such as EUR; got "
@@ -474,15 +526,15 @@ def _row_checks(
         ]
 
 
-def _token(raw: Texts, col: str, i: int) -> str:
+def _token(raw: Raw, col: str, i: int) -> str:
     """`` ('NA' counts as blank)`` when the cell held a blank token rather than nothing."""
     if col not in raw:
         return ""
-    v = raw[col].iloc[i]
-    if v is None or (isinstance(v, float) and v != v) or v is pd.NA:
+    v = cell(raw[col], i)
+    if v is None or (isinstance(v, float) and v != v):
         return ""
     t = str(v).replace("\x00", "").strip()
-    return f" ({_show(pd.Series([t]), 0)} counts as blank)" if t else ""
+    return f" ({_shown(t)} counts as blank)" if t else ""
 
 
 def _numeric_checked() -> list[str]:
@@ -500,55 +552,6 @@ def _num(x: float) -> str:
     if x != x:
         return "blank"
     return f"{int(x)}" if float(x).is_integer() and abs(x) < 1e15 else f"{x:.6g}"
-
-
-def _duplicates(
-    text: Texts, values: Arrays, bad: Arrays, rows: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """Codes and details for exact copies and conflicting copies of a firm-year."""
-    n = len(rows)
-    code = np.full(n, "", dtype=object)
-    detail = np.full(n, "", dtype=object)
-    year = values["fiscal_year"]
-    has_key = (text["firm_id"] != "").to_numpy(dtype=bool) & ~np.isnan(year)
-    if not has_key.any():
-        return code, detail
-    keys = pd.DataFrame({"firm_id": text["firm_id"], "fiscal_year": year})
-    dup = has_key & keys.duplicated(keep=False).to_numpy()
-    idx = np.flatnonzero(dup)
-    if not len(idx):
-        return code, detail
-    cols = {c: text[c].iloc[idx].to_numpy(dtype=object) for c in text}
-    for c in NUMERIC:
-        if c != "fiscal_year":
-            cols[c] = np.where(bad[c][idx], np.inf, values[c][idx])
-    sub = pd.DataFrame(cols)
-    sub["fiscal_year"] = year[idx]
-    sub["_row"] = rows[idx]
-    sub["_pos"] = idx
-    compare = [c for c in sub.columns if not c.startswith("_")]
-    distinct = sub.drop_duplicates(subset=compare)
-    n_versions = distinct.groupby(list(KEY), sort=False)["_row"].transform("size")
-    conflicted_keys = distinct.loc[n_versions.to_numpy() > 1, list(KEY)].drop_duplicates()
-    conflicted = sub.merge(conflicted_keys, on=list(KEY), how="inner")
-    for _, grp in conflicted.groupby(list(KEY), sort=False):
-        diff = [c for c in compare if grp[c].nunique(dropna=False) > 1]
-        for pos, row in zip(grp["_pos"], grp["_row"], strict=True):
-            others = ", ".join(str(r) for r in grp["_row"] if r != row)
-            code[pos] = "conflicting_duplicate"
-            detail[pos] = (
-                f"firm_id {grp['firm_id'].iloc[0]} and fiscal_year "
-                f"{int(grp['fiscal_year'].iloc[0])} must be unique; also in row(s) {others}, "
-                f"which differ in {', '.join(diff)}"
-            )
-    plain = sub.loc[~sub["_pos"].isin(conflicted["_pos"])]
-    if len(plain):
-        first = plain.groupby(list(KEY), sort=False)["_row"].transform("min")
-        for pos, row, orig in zip(plain["_pos"], plain["_row"], first, strict=True):
-            if row != orig:
-                code[pos] = "duplicate_row"
-                detail[pos] = f"exact copy of row {orig}, which is kept"
-    return code, detail
 
 
 def _optional_values(
@@ -592,16 +595,17 @@ def _kept(
     rows: np.ndarray,
     keep: np.ndarray,
     scale: float,
-) -> pd.DataFrame:
-    """The data frame of kept rows: scaled money, filled market equity, flags."""
+) -> dict[str, Any]:
+    """The columns of the kept rows: scaled money, filled market equity, flags."""
     idx = np.flatnonzero(keep)
+    everything = len(idx) == len(keep)
     fx = values["fx_rate"][idx]
     fx = np.where(np.isnan(fx), 1.0, fx)
     factor = scale * fx
-    out: dict[str, pd.Series | np.ndarray] = {}
+    out: dict[str, Any] = {}
     for c in COLUMNS:
         if c.kind == "text":
-            out[c.name] = text[c.name].iloc[idx].reset_index(drop=True)
+            out[c.name] = text[c.name] if everything else take(text[c.name], idx)
         elif c.name == "fiscal_year":
             out[c.name] = values[c.name][idx].astype(np.int64)
         elif c.money:
@@ -615,26 +619,22 @@ def _kept(
     all_flags = {code: mask[idx] for code, mask in flags}
     all_flags["market_equity_from_shares"] = derived
     all_flags["no_market_equity"] = np.isnan(me)
-    data = pd.DataFrame(out)
-    data["source_row"] = rows[idx].astype(np.int64)
-    data["flags"] = _join_flags(all_flags, len(idx))
-    return data
+    out["source_row"] = rows[idx].astype(np.int64)
+    out["flags"] = _join_flags(all_flags, len(idx))
+    return out
 
 
-def _join_flags(masks: dict[str, np.ndarray], n: int) -> pd.Series:
+def _join_flags(masks: dict[str, np.ndarray], n: int) -> pa.Array:
     """``;``-joined flag codes per row in the order of ``FLAGS``, one string per combination."""
     codes = [c for c in FLAGS if c in masks and masks[c].any()]
     if not codes:
-        return pd.Series(np.full(n, "", dtype=object), dtype="str")
+        return empty_text(n)
     bits = np.zeros(n, dtype=np.int64)
     for k, c in enumerate(codes):
         bits |= masks[c].astype(np.int64) << k
     combos, inverse = np.unique(bits, return_inverse=True)
-    words = np.array(
-        [";".join(c for k, c in enumerate(codes) if combo >> k & 1) for combo in combos],
-        dtype=object,
-    )
-    return pd.Series(words[inverse], dtype="str")
+    words = [";".join(c for k, c in enumerate(codes) if combo >> k & 1) for combo in combos]
+    return arrow_strings(words).take(arrow_ints(inverse.ravel()))
 
 
 def _ledger(
@@ -645,22 +645,18 @@ def _ledger(
     bad: Arrays,
     reason: np.ndarray,
     details: Mapping[int, list[str]],
-) -> pd.DataFrame:
+) -> dict[str, Any]:
+    """The ledger's columns (``Panel.excluded``), ordered by source row."""
+    idx = idx[np.argsort(rows[idx], kind="stable")]
     year = values["fiscal_year"][idx]
     good_year = ~np.isnan(year) & ~bad["fiscal_year"][idx]
     with np.errstate(invalid="ignore"):
         good_year &= (year == np.round(year)) & (np.abs(year) < 1e9)
-    fy = pd.array(np.where(good_year, year, 0).astype(np.int64), dtype="Int64")
-    fy[~good_year] = pd.NA
-    ledger = pd.DataFrame(
-        {
-            "source_row": rows[idx].astype(np.int64),
-            "firm_id": text["firm_id"].iloc[idx].reset_index(drop=True),
-            "fiscal_year": fy,
-            "measure": pd.Series([""] * len(idx), dtype="str"),
-            "reason": pd.Series(reason[idx], dtype="str"),
-            "detail": pd.Series(["; ".join(details.get(int(i), [])) for i in idx], dtype="str"),
-        },
-        columns=list(EXCLUSION_COLUMNS),
-    )
-    return ledger.sort_values("source_row", kind="stable").reset_index(drop=True)
+    return {
+        "source_row": rows[idx].astype(np.int64),
+        "firm_id": take(text["firm_id"], idx),
+        "fiscal_year": np.where(good_year, year, np.nan),
+        "measure": np.full(len(idx), "", dtype=object),
+        "reason": reason[idx],
+        "detail": np.array(["; ".join(details.get(int(i), [])) for i in idx], dtype=object),
+    }

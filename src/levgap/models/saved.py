@@ -22,19 +22,15 @@ import pandas as pd
 from levgap.band import STATUS, Band, gap_z, status_codes
 from levgap.config import ModelSpec
 from levgap.definitions import MEASURE_SPECIFIC
-from levgap.errors import ModelError, OutputError
+from levgap.errors import ModelError
 from levgap.groups import WHOLE_SAMPLE
+from levgap.models.record import FORMAT, FORMAT_VERSION, MODEL_FILE, read_model_record
 from levgap.models.result import Fit
-from levgap.outputs import saved_model_file
-from levgap.outputs.files import load_json
 from levgap.transforms import DriverTransforms
 
 if TYPE_CHECKING:
     from levgap.pipeline import Context, Estimate
 
-FORMAT = "levgap-model"
-FORMAT_VERSION = 1
-MODEL_FILE = "model.json"
 
 
 # -- writing (called by the pipeline) ------------------------------------------------------
@@ -395,23 +391,7 @@ def load_model(results_dir: str | Path) -> SavedModel:
     OutputError
         The folder has no readable ``model.json`` of a format this levgap knows.
     """
-    path = saved_model_file(results_dir, MODEL_FILE)  # the run verified first (levgap.outputs)
-    try:
-        record = load_json(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise OutputError(f"{path}: the results folder must hold model.json; got none. "
-                          "Re-run `levgap analyze` with this version.") from None
-    except (OSError, UnicodeDecodeError, ValueError) as exc:
-        raise OutputError(f"{path}: model.json must be valid JSON; got {exc}.") from None
-    if not isinstance(record, dict) or record.get("format") != FORMAT:
-        raise OutputError(f"{path}: must be a levgap saved model; got another file.")
-    version = record.get("format_version", 0)
-    if isinstance(version, bool) or not isinstance(version, int):
-        raise OutputError(f"{path}: format_version must be a whole number; got {version!r}.")
-    if version > FORMAT_VERSION:
-        raise OutputError(f"{path}: saved-model format {record.get('format_version')} is "
-                          f"newer than this levgap reads ({FORMAT_VERSION}); upgrade levgap.")
-    return SavedModel(record)
+    return SavedModel(read_model_record(results_dir))
 
 
 def _unscorable(data: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:

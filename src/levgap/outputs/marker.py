@@ -167,15 +167,11 @@ def read_marker(folder: str | Path, name: str = MARKER) -> Marker:
 
 
 def marker_bytes(marker: Marker) -> bytes:
-    from importlib.metadata import PackageNotFoundError, version
+    from levgap import __version__ as ours
 
-    try:
-        ours = version("levgap")
-    except PackageNotFoundError:  # running from a source tree without installing
-        ours = None
     body = {
         "levgap_output": MARKER_FORMAT,
-        "written_by": f"levgap {ours}" if ours else "levgap",
+        "written_by": f"levgap {ours}",
         "run_id": marker.run_id,
         "state": marker.state,
         "files": {k: marker.records[k].to_json() for k in sorted(marker.records)},

@@ -190,8 +190,7 @@ def verify_run(out_dir: str | Path, *, digests: bool = True) -> RunFolder:
 
 
 def _read_manifest(path: Path) -> dict[str, Any]:
-    from importlib.metadata import PackageNotFoundError, version
-
+    from levgap import __version__ as ours
     from levgap.schema import SCHEMA_VERSION
 
     data = read_bounded(path, _MAX_RUN_JSON)
@@ -218,11 +217,7 @@ def _read_manifest(path: Path) -> dict[str, Any]:
     theirs = raw.get("levgap_version")
     if theirs is not None and not isinstance(theirs, str):
         raise OutputError(f"{path}: levgap_version must be text; got {theirs!r}.")
-    try:
-        ours = version("levgap")
-    except PackageNotFoundError:
-        ours = None
-    if theirs and ours and _release(theirs) > _release(ours):
+    if theirs and _release(theirs) > _release(ours):
         raise OutputError(
             f"{path}: written by levgap {theirs}, newer than this levgap {ours}; upgrade "
             "levgap to read these outputs."

@@ -13,11 +13,10 @@ from typing import Any
 
 from levgap.errors import ConfigError, OutputError
 
-TEXT = ("firm_id", "firm_name", "industry", "measure", "status", "flags")
-
 
 def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> Any:
-    """The ``targets`` table a run wrote, as a ``pyarrow.Table``.
+    """The ``targets`` table a run wrote, as a ``pyarrow.Table``
+    (``levgap.report.reading.read_run_tables``).
 
     Parameters
     ----------
@@ -33,132 +32,8 @@ def read_targets(out_dir: str | Path, columns: Sequence[str] | None = None) -> A
         The folder does not hold one complete run, or the table cannot be read, lacks a
         contract column or holds a wrong type (the message names the file and column).
     """
-    import pyarrow as pa
-
-    from levgap.analysis import check_table_columns
-    from levgap.outputs import verify_run
-
-    out = Path(out_dir)
-    run = verify_run(out)
-    path = run.table("targets")  # the file the run wrote (size, else SHA-256, per run.json)
-    if path is None:
-        raise OutputError(f"{out}: the folder must hold a targets table; got none.")
-    try:
-        if path.suffix == ".parquet":
-            import pyarrow.parquet as pq
-
-            table = pq.read_table(path)
-        else:
-            import pyarrow.csv as pv
-
-            table = pv.read_csv(
-                path,
-                convert_options=pv.ConvertOptions(
-                    column_types={c: pa.string() for c in TEXT},
-                    strings_can_be_null=False,
-                ),
-            )
-    except (OSError, pa.ArrowException) as exc:
-        raise OutputError(
-            f"{path}: a levgap table must be readable; got {' '.join(str(exc).split())[:200]}. "
-            "Re-run `levgap analyze`."
-        ) from None
-    check_table_columns(path, "targets", {n: _kind(table[n]) for n in table.column_names},
-                        lambda c: _example(table[c]), legacy=run.run_id is None,
-                        blanks=lambda c: _blanks(table[c]))
-    for c in TEXT:
-        if c in table.column_names and not pa.types.is_string(table[c].type):
-            i = table.column_names.index(c)
-            table = table.set_column(i, c, table[c].cast(pa.string()))
-    if "gap_prev" not in table.column_names and run.run_id is not None:
-        table = _with_history(table)
+    table, _ = read_run_targets(out_dir)
     return table.select(list(columns)) if columns else table
-
-
-def _with_history(table: Any) -> Any:
-    """A targets table written before the history columns existed, with them
-    (``levgap.history``). Only for such folders: building the new columns lets pyarrow load
-    pandas."""
-    import numpy as np
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    from levgap.history import HISTORY_COLUMNS, SIDES, history_arrays
-
-    def codes(column: str) -> Any:
-        enc = pc.dictionary_encode(table[column]).combine_chunks()
-        return np.asarray(enc.indices.to_numpy(zero_copy_only=False)), enc.dictionary
-
-    firm, _ = codes("firm_id")
-    measure, _ = codes("measure")
-    status, labels = codes("status")
-    side = np.array([SIDES.get(v, 0) for v in labels.to_pylist()], dtype=np.int64)[status]
-    gap = np.asarray(table["gap"].to_numpy(), dtype=float)
-    hist = history_arrays(measure.astype(np.int64) * (int(firm.max()) + 1) + firm,
-                          np.asarray(table["fiscal_year"].to_numpy()), gap, side)
-    flags = table["flags"].to_pylist()
-    for code, mask in hist.pop("flags").items():
-        for i in np.flatnonzero(mask):
-            flags[i] = f"{flags[i]};{code}" if flags[i] else code
-    at = table.column_names.index("flags")
-    for name in HISTORY_COLUMNS:
-        values = hist[name]
-        arr = pa.array(values, mask=np.isnan(values)) if values.dtype.kind == "f" \
-            else pa.array(values)
-        table = table.add_column(at, name, arr)
-        at += 1
-    return table.set_column(table.column_names.index("flags"), "flags",
-                            pa.array(flags, type=pa.string()))
-
-
-def _kind(col: Any) -> str:
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    t = col.type
-    if pa.types.is_integer(t):
-        return "integer"
-    if pa.types.is_floating(t):
-        vals = pc.drop_null(col)
-        vals = pc.filter(vals, pc.invert(pc.is_nan(vals)))
-        if len(vals) == 0:
-            return "integer"
-        if pc.any(pc.is_inf(vals)).as_py():
-            return "number"
-        return "integer" if pc.all(pc.equal(vals, pc.round(vals))).as_py() else "number"
-    if pa.types.is_null(t):
-        return "integer"  # an empty column: nothing of the wrong type in it
-    if pa.types.is_string(t) or pa.types.is_large_string(t):
-        return "text"
-    return "other"
-
-
-def _blanks(col: Any) -> int:
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    n = col.null_count
-    if pa.types.is_floating(col.type):
-        n += pc.sum(pc.is_nan(col)).as_py() or 0
-    elif pa.types.is_string(col.type) or pa.types.is_large_string(col.type):
-        # no Python scalar in a comparison: making an Arrow scalar would import pandas
-        filled = pc.utf8_length(pc.utf8_trim_whitespace(col)).cast(pa.bool_())
-        n += pc.sum(pc.invert(filled)).as_py() or 0
-    return int(n)
-
-
-def _example(col: Any) -> str:
-    import pyarrow as pa
-
-    if not (pa.types.is_string(col.type) or pa.types.is_large_string(col.type)):
-        return ""
-    for v in col.to_pylist()[:1000]:
-        if v and v.strip():
-            try:
-                float(v)
-            except ValueError:
-                return repr(v if len(v) <= 30 else v[:27] + "...")
-    return ""
 
 
 SORTS: dict[str, str] = {"gap": "gap", "gap_z": "gap_z", "debt": "debt_to_target",
@@ -227,8 +102,8 @@ class Screen:
     absent: tuple[tuple[str, str], ...] = ()
 
 
-def _keep(t: Any, column: str, wanted: Sequence[Any]) -> Any:
-    """Rows whose ``column`` holds one of ``wanted``.
+def keep_rows(t: Any, column: str, wanted: Sequence[Any]) -> Any:
+    """Rows whose ``column`` holds one of ``wanted`` (in the table's order).
 
     Compared with Arrow values taken from the column itself: turning a Python value into an
     Arrow scalar or array makes pyarrow import pandas, which costs more than the whole screen.
@@ -261,12 +136,12 @@ def screen_rows(table: Any, query: ScreenQuery,
     from levgap.matching import did_you_mean, unneutralise
 
     names = names or {}
-    t = _keep(table, "measure", [query.measure])
+    t = keep_rows(table, "measure", [query.measure])
     if t.num_rows == 0:
         return Screen([], 0, None)
     yr = int(pc.max(t["fiscal_year"]).as_py()) if query.year is None else int(query.year)
     held = t
-    t = _keep(t, "fiscal_year", [yr])
+    t = keep_rows(t, "fiscal_year", [yr])
     if t.num_rows == 0:  # a year the results do not hold is not an empty filter
         lo, hi = (int(pc.min(held["fiscal_year"]).as_py()),
                   int(pc.max(held["fiscal_year"]).as_py()))
@@ -285,7 +160,7 @@ def screen_rows(table: Any, query: ScreenQuery,
             raise ConfigError(f"--industry must name an industry of {query.measure} leverage "
                               f"in {yr} (a code, or part of a name); got {query.industry!r}."
                               + did_you_mean(query.industry, shown))
-        t = _keep(t, "industry", hit)
+        t = keep_rows(t, "industry", hit)
     if query.firm is not None:
         t = _filter_firm(t, query.firm, query.measure, yr)
     absent: list[tuple[str, str]] = []
@@ -302,9 +177,9 @@ def screen_rows(table: Any, query: ScreenQuery,
                 keep += found
             else:
                 absent.append((wanted, did_you_mean(wanted, ids)))
-        t = _keep(t, "firm_id", keep)
+        t = keep_rows(t, "firm_id", keep)
     if query.status is not None:
-        t = _keep(t, "status", [query.status])
+        t = keep_rows(t, "status", [query.status])
     for flag, on in (("newly_outside", query.new), ("persistent", query.persistent)):
         if on:
             t = t.filter(pc.match_substring_regex(t["flags"], f"(^|;){flag}(;|$)"))
@@ -327,7 +202,7 @@ def _filter_firm(t: Any, firm: str, measure: str, year: int) -> Any:
     ids = [c for c in pc.unique(t["firm_id"]).to_pylist() if c is not None]
     exact = resolve(firm, ids)
     if exact is not None:
-        return _keep(t, "firm_id", [exact])
+        return keep_rows(t, "firm_id", [exact])
     named = t.filter(pc.match_substring(t["firm_name"], firm.strip(), ignore_case=True))
     if named.num_rows:
         return named
@@ -337,7 +212,9 @@ def _filter_firm(t: Any, firm: str, measure: str, year: int) -> Any:
 
 def read_run_targets(out_dir: str | Path) -> tuple[Any, dict[str, Any]]:
     """The targets table (as :func:`read_targets`) and the run's ``run.json``."""
-    from levgap.outputs import verify_run
+    from levgap.report.reading import read_run_tables
 
-    table = read_targets(out_dir)
-    return table, verify_run(out_dir).manifest
+    tables, run = read_run_tables(out_dir, ["targets"])
+    if "targets" not in tables:
+        raise OutputError(f"{Path(out_dir)}: the folder must hold a targets table; got none.")
+    return tables["targets"], run.manifest

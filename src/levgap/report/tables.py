@@ -22,7 +22,6 @@ from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from levgap.errors import OutputError
@@ -33,8 +32,8 @@ from levgap.outputs import (  # one layer under every file levgap writes
     atomic_file,
     neutralise,
     new_run_id,
-    verify_run,
 )
+from levgap.report.reading import TEXT_COLUMNS, read_run_tables, read_table, to_frame
 
 __all__ = ["FORMULA_PREFIXES", "FORMATS", "MANIFEST", "TEXT_COLUMNS", "neutralise",
            "read_outputs", "stage_tables", "write_table", "write_tables"]
@@ -42,12 +41,6 @@ __all__ = ["FORMULA_PREFIXES", "FORMATS", "MANIFEST", "TEXT_COLUMNS", "neutralis
 MANIFEST = RUN_FILE
 FORMATS: dict[str, str] = {"csv": ".csv", "parquet": ".parquet"}
 
-TEXT_COLUMNS: tuple[str, ...] = (
-    "firm_id", "firm_name", "industry", "measure", "driver", "status", "reason", "detail",
-    "flags", "model", "term", "currency", "peer_group", "expected_sign", "agrees",
-    "sign_source", "effect_group",
-)
-"""Output columns read back as text (so that codes such as ``0100`` keep their zeros)."""
 
 _NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
 
@@ -132,7 +125,7 @@ def _check_tables(tables: Mapping[str, Any], fmt: str) -> None:
 def read_outputs(
     out_dir: str | Path, names: Iterable[str] | None = None
 ) -> tuple[dict[str, pd.DataFrame], dict[str, Any]]:
-    """Read the tables and manifest of one run (for ``explain``, ``table`` and reports).
+    """Read the tables and manifest of one run (for ``table``, reports and the Python API).
 
     Parameters
     ----------
@@ -146,7 +139,8 @@ def read_outputs(
     Returns
     -------
     tables : dict of str to pandas.DataFrame
-        Table name -> frame, from ``<name>.csv`` or ``<name>.parquet``. Text columns
+        Table name -> frame, from ``<name>.csv`` or ``<name>.parquet``
+        (``levgap.report.reading``, the reader of every command). Text columns
         (``TEXT_COLUMNS``) are text with blanks as ``""``; neutralising apostrophes are kept.
     manifest : dict
         The parsed ``run.json``.
@@ -158,75 +152,14 @@ def read_outputs(
         (edited, or copied from another run), or a table cannot be read, lacks a contract
         column or holds a wrong type (the message names the file and column).
     """
-    run = verify_run(out_dir)
-    wanted = None if names is None else set(names)
-    tables = {}
-    for name, p in run.tables.items():
-        if wanted is not None and name not in wanted:
-            continue
-        tables[name] = read_table_file(run.check(p.name), name, legacy=run.run_id is None)
-    return tables, run.manifest
+    tables, run = read_run_tables(out_dir, names)
+    return {name: to_frame(t) for name, t in tables.items()}, run.manifest
 
 
 def read_table_file(path: Path, name: str, *, legacy: bool = False) -> pd.DataFrame:
     """One output table, read back and checked against the contract (columns and types);
     ``legacy``: a table levgap 0.1 wrote, checked against the 0.1 columns."""
-    from levgap.analysis import check_table_columns, fill_added_columns
-
-    try:
-        if path.suffix == ".parquet":
-            frame = pd.read_parquet(path)
-        else:
-            frame = pd.read_csv(
-                path, dtype={c: "str" for c in TEXT_COLUMNS}, keep_default_na=False,
-                na_values=[""], encoding="utf-8", engine="pyarrow",
-            )
-    except (OSError, ValueError, TypeError, pd.errors.ParserError) as exc:
-        raise OutputError(
-            f"{path}: a levgap table must be readable; got {' '.join(str(exc).split())[:200]}. "
-            "Re-run `levgap analyze`."
-        ) from None
-    kinds = {str(c): _kind(frame[c]) for c in frame.columns}
-    check_table_columns(path, name, kinds, lambda c: _example(frame[c]), legacy=legacy,
-                        blanks=lambda c: _blanks(frame[c]))
-    for c in TEXT_COLUMNS:
-        if c in frame.columns:
-            frame[c] = frame[c].astype("str").fillna("") if frame[c].dtype != object else (
-                frame[c].fillna("").astype("str"))
-    return frame if legacy else fill_added_columns(name, frame)
-
-
-def _kind(col: pd.Series) -> str:
-    if pd.api.types.is_bool_dtype(col.dtype):
-        return "other"
-    if pd.api.types.is_integer_dtype(col.dtype):
-        return "integer"
-    if pd.api.types.is_float_dtype(col.dtype):
-        x = col.to_numpy(dtype=float, na_value=np.nan)
-        x = x[~np.isnan(x)]
-        return "integer" if np.isfinite(x).all() and np.array_equal(x, np.round(x)) else "number"
-    if pd.api.types.is_string_dtype(col.dtype) or col.dtype == object:
-        return "text"
-    return "other"
-
-
-def _blanks(col: pd.Series) -> int:
-    n = int(col.isna().sum())
-    if not pd.api.types.is_numeric_dtype(col.dtype):
-        n += int((col.dropna().astype("str").str.strip() == "").sum())
-    return n
-
-
-def _example(col: pd.Series) -> str:
-    if pd.api.types.is_numeric_dtype(col.dtype):
-        return ""
-    for v in col:
-        if isinstance(v, str) and v.strip():
-            try:
-                float(v)
-            except ValueError:
-                return repr(v if len(v) <= 30 else v[:27] + "...")
-    return ""
+    return to_frame(read_table(path, name, legacy=legacy))
 
 
 # ---------------------------------------------------------------------------------------------
