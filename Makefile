@@ -17,8 +17,11 @@ $(STAMP): pyproject.toml constraints.txt
 demo: $(STAMP)
 	$(BIN)/levgap demo --out demo-out
 
+# The suite runs on every core (pytest-xdist); a module's tests stay on one worker, so a
+# fixture a module shares is built once.
+WORKERS ?= auto
 test: $(STAMP)
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n $(WORKERS) --dist loadfile
 
 bench: $(STAMP)
 	$(BIN)/python benchmark/run.py

@@ -2,11 +2,19 @@
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 import pytest
+
+# The command line's tables are 160 columns wide when captured, unless COLUMNS says otherwise;
+# a test that wants another width sets COLUMNS itself. An inherited COLUMNS must not decide:
+# importing readline exports COLUMNS=80 into the process environment, which pytest-xdist's
+# workers (`make test`) then start with.
+for _name in ("COLUMNS", "LINES"):
+    os.environ.pop(_name, None)
 
 HOSTILE_NAME = "<script>document.title='pwned'</script> & =SUM(A1) Forge"
 
