@@ -93,8 +93,20 @@ def _child(out: Path, scenario: Path) -> tuple[float, float]:
     return wall, (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
 
 
-def run(repeat: int = 5, quick: bool = False) -> dict[str, Any]:
+def run(repeat: int = 5, quick: bool = False, data_dir: Path = DATA,
+        demo: Path | None = None) -> dict[str, Any]:
     """Median wall times of the merger and the recapitalisation, child process and in process.
+
+    Parameters
+    ----------
+    repeat : int, default=5
+        Timed runs of each scenario (1 with ``quick``, and no warm-up).
+    quick : bool, default=False
+        One run each, no warm-up (the smoke test).
+    data_dir : pathlib.Path, default=benchmark/data
+        Where the scenario files and, unless ``demo`` is given, the demo's results go.
+    demo : pathlib.Path, optional
+        A results folder written by ``levgap demo``, used instead of writing one.
 
     Returns
     -------
@@ -105,11 +117,11 @@ def run(repeat: int = 5, quick: bool = False) -> dict[str, Any]:
     """
     import levgap
 
-    DATA.mkdir(exist_ok=True)
-    out = demo_results(DATA)
+    data_dir.mkdir(parents=True, exist_ok=True)
+    out = demo if demo is not None else demo_results(data_dir)
     files = {}
     for name, text in SCENARIOS.items():
-        files[name] = DATA / f"deal-{name}.toml"
+        files[name] = data_dir / f"deal-{name}.toml"
         files[name].write_text(text, encoding="utf-8")
     repeat = 1 if quick else repeat
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")

@@ -136,7 +136,8 @@ def make_csv(n_rows: int, path: Path, *, seed: int = SEED) -> Path:
     return path
 
 
-def run(n_rows: int = 1_000_000, *, rebuild: bool = False) -> dict[str, Any]:
+def run(n_rows: int = 1_000_000, *, rebuild: bool = False, data_dir: Path = DATA
+        ) -> dict[str, Any]:
     """Build (or reuse) the panel and time ``read_panel`` on it in a fresh process.
 
     Parameters
@@ -145,6 +146,8 @@ def run(n_rows: int = 1_000_000, *, rebuild: bool = False) -> dict[str, Any]:
         Rows of the benchmark panel.
     rebuild : bool, default=False
         Write the panel again even if it exists.
+    data_dir : pathlib.Path, default=benchmark/data
+        Where the panel is written (and found again).
 
     Returns
     -------
@@ -153,12 +156,13 @@ def run(n_rows: int = 1_000_000, *, rebuild: bool = False) -> dict[str, Any]:
         reading process, ``rss_after_import_mb``, row counts, exclusion reasons,
         ``goal_rss_mb`` and ``meets_goal``.
     """
-    path = DATA / f"read_{n_rows}.csv"
+    path = data_dir / f"read_{n_rows}.csv"
     if rebuild or not path.exists():
         # built in its own process, so that the caller's memory stays small
         t0 = time.perf_counter()
         subprocess.run(
-            [sys.executable, str(Path(__file__).resolve()), "--rows", str(n_rows), "--build-only"],
+            [sys.executable, str(Path(__file__).resolve()), "--rows", str(n_rows), "--build-only",
+             "--data-dir", str(data_dir)],
             check=True,
         )
         build = time.perf_counter() - t0
@@ -187,11 +191,12 @@ def main() -> None:
     ap.add_argument("--rows", type=int, default=1_000_000)
     ap.add_argument("--rebuild", action="store_true")
     ap.add_argument("--build-only", action="store_true", help=argparse.SUPPRESS)
+    ap.add_argument("--data-dir", type=Path, default=DATA, help="where the panel is written")
     args = ap.parse_args()
     if args.build_only:
-        make_csv(args.rows, DATA / f"read_{args.rows}.csv")
+        make_csv(args.rows, args.data_dir / f"read_{args.rows}.csv")
         return
-    print(json.dumps(run(args.rows, rebuild=args.rebuild), indent=2))
+    print(json.dumps(run(args.rows, rebuild=args.rebuild, data_dir=args.data_dir), indent=2))
 
 
 if __name__ == "__main__":

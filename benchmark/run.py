@@ -583,8 +583,13 @@ def import_check(cmds: dict[str, list[str]], work: Path) -> dict:
     return out
 
 
-def bench_extra(name: str, csv_1m: Path | None, rows: int, repeat: int, quick: bool) -> dict:
-    """Run benchmark/<name>.py's ``run(...)`` when the file exists."""
+def bench_extra(name: str, csv_1m: Path | None, rows: int, repeat: int, quick: bool,
+                data_dir: Path, demo: Path | None = None) -> dict:
+    """Run benchmark/<name>.py's ``run(...)`` when the file exists.
+
+    Its data go to ``data_dir`` (the suite's ``--data-dir``); a benchmark that needs the demo's
+    results gets ``demo`` (the folder ``levgap demo`` wrote for the start-up figures) when
+    there is one, instead of running the demo again."""
     path = HERE / f"{name}.py"
     if not path.exists():
         return {"status": "absent", "note": f"benchmark/{name}.py not present; skipped"}
@@ -606,6 +611,12 @@ def bench_extra(name: str, csv_1m: Path | None, rows: int, repeat: int, quick: b
                 kwargs[p] = rows
             elif p == "facts" and quick:
                 kwargs[p] = 50_000  # a small quarter for the smoke test
+            elif p == "quarters" and quick:
+                kwargs[p] = 2  # still several quarters read in parallel
+            elif p == "data_dir":
+                kwargs[p] = data_dir
+            elif p == "demo" and demo is not None:
+                kwargs[p] = demo
         t0 = time.perf_counter()
         result = mod.run(**kwargs)
         return {"status": "ok", "seconds_total": time.perf_counter() - t0, "kwargs":
@@ -1060,7 +1071,8 @@ def main(argv: list[str] | None = None) -> int:
                 args.results_dir / f"profile-{largest}.txt", flags)}
     say("other benchmarks")
     csv_big = panels[label(sizes[-1])]["csv"]
-    res["extra"] = {n: bench_extra(n, csv_big, sizes[-1], repeat, args.quick)
+    res["extra"] = {n: bench_extra(n, csv_big, sizes[-1], repeat, args.quick, args.data_dir,
+                                   demo if flags is not None else None)
                     for n in ("bench_read", "bench_sec", "bench_deal")}
     res["goals"] = goals(res)
     res["suite_seconds"] = time.perf_counter() - t_suite

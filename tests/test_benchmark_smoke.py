@@ -17,8 +17,13 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 @pytest.mark.slow
+def _files(folder: Path) -> dict[Path, int]:
+    return {p: p.stat().st_mtime_ns for p in folder.rglob("*")} if folder.is_dir() else {}
+
+
 def test_benchmark_suite_runs_at_10k(tmp_path: Path) -> None:
     results = tmp_path / "results"
+    shared = _files(ROOT / "benchmark" / "data")
     proc = subprocess.run(
         [sys.executable, str(ROOT / "benchmark" / "run.py"), "--sizes", "10k", "--repeat", "1",
          "--quick", "--data-dir", str(tmp_path / "data"), "--work-dir", str(tmp_path / "work"),
@@ -63,8 +68,13 @@ def test_benchmark_suite_runs_at_10k(tmp_path: Path) -> None:
         assert "error" not in res["startup"][cmd], (cmd, res["startup"][cmd])
         assert res["startup"][cmd]["seconds"] > 0
     assert set(res["extra"]) == {"bench_read", "bench_sec", "bench_deal"}
+    for name, extra in res["extra"].items():
+        assert extra["status"] == "ok", (name, extra)
+        assert extra["kwargs"]["data_dir"] == str(tmp_path / "data"), name
     deal = res["extra"]["bench_deal"]
-    assert deal["status"] == "ok", deal
+    assert deal["kwargs"]["demo"] == str(tmp_path / "work" / "startup" / "demo")
+    # Nothing written to the repository's benchmark/data (tests run in parallel).
+    assert _files(ROOT / "benchmark" / "data") == shared
     for key in ("merger_command_s", "recap_command_s", "merger_in_process_s",
                 "recap_in_process_s"):
         assert deal["result"][key] > 0, key
