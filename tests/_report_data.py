@@ -56,7 +56,7 @@ def make_outputs(
         "market_to_book": rng.lognormal(0.3, 0.3, n),
     })
     ind_effect = dict(zip(industries, rng.normal(0, 0.05, len(industries)), strict=True))
-    target_rows, driver_rows = [], []
+    target_rows, contributions = [], {}
     for measure in measures:
         beta = pd.Series(TRUE[measure])
         base = 0.15 + fy["industry"].map(ind_effect).to_numpy()
@@ -95,17 +95,11 @@ def make_outputs(
         frame["fold"] = np.repeat(np.arange(n_firms) % 5, n_years)
         frame["flags"] = np.where(rng.random(n) < 0.1, "volatility_imputed", "")
         target_rows.append(frame)
-        for d in DRIVERS:
-            driver_rows.append(pd.DataFrame({
-                "firm_id": fy["firm_id"], "fiscal_year": fy["fiscal_year"], "measure": measure,
-                "driver": d, "firm_value": x[d], "raw_value": np.nan, "peer_value": peer[d],
-                "contribution": contrib[d],
-            }))
+        contributions[measure] = contrib[list(DRIVERS)].to_numpy()
     from levgap.history import with_history
 
     targets = with_history(pd.concat(target_rows, ignore_index=True))
-    drivers = pd.concat(driver_rows, ignore_index=True).sort_values(
-        ["firm_id", "fiscal_year", "measure"], kind="stable", ignore_index=True)
+    drivers = _driver_rows(fy, x, peer, contributions)
     coef_rows, fit_rows = [], []
     for measure in measures:
         for d in DRIVERS:
@@ -149,6 +143,33 @@ def make_outputs(
     tables = {"targets": targets, "drivers": drivers, "coefficients": pd.DataFrame(coef_rows),
               "model_fit": pd.DataFrame(fit_rows), "exclusions": exclusions}
     return tables, manifest
+
+
+def _driver_rows(fy: pd.DataFrame, x: pd.DataFrame, peer: pd.DataFrame,
+                 contributions: dict[str, np.ndarray]) -> pd.DataFrame:
+    """One row per firm-year, measure (in sorted order) and driver (in ``DRIVERS`` order):
+    the order of the firm-years (``fy`` is sorted by firm and year) built directly, as a
+    stable sort by firm, year and measure would leave it."""
+    n, k = len(fy), len(DRIVERS)
+    names = sorted(contributions)
+    m = len(names)
+
+    def spread(values: np.ndarray) -> np.ndarray:  # (n, k) -> each measure's copy per row
+        return np.broadcast_to(values[:, None, :], (n, m, k)).reshape(-1)
+
+    def text(values, codes: np.ndarray) -> pd.Series:  # strings taken by code, not rebuilt
+        return pd.Series(pd.array(values, dtype=fy["firm_id"].dtype).take(codes))
+
+    return pd.DataFrame({
+        "firm_id": text(fy["firm_id"], np.repeat(np.arange(n), m * k)),
+        "fiscal_year": np.repeat(fy["fiscal_year"].to_numpy(), m * k),
+        "measure": text(names, np.tile(np.repeat(np.arange(m), k), n)),
+        "driver": text(list(DRIVERS), np.tile(np.arange(k), n * m)),
+        "firm_value": spread(x[list(DRIVERS)].to_numpy()),
+        "raw_value": np.nan,
+        "peer_value": spread(peer[list(DRIVERS)].to_numpy()),
+        "contribution": np.stack([contributions[c] for c in names], axis=1).reshape(-1),
+    })
 
 
 def _norm_cdf(z: float) -> float:
