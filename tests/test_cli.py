@@ -220,6 +220,7 @@ def test_template_writes_files(tmp_path: Path) -> None:
     assert (tmp_path / "panel_template.csv").is_file()
 
 
+@pytest.mark.slow  # two reports (about 5 s of CPU)
 def test_demo_runs_and_names_extremes(tmp_path: Path) -> None:
     result = runner.invoke(app, ["demo", "--out", str(tmp_path / "d")])
     assert result.exit_code == 0, result.output

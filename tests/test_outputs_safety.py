@@ -207,7 +207,7 @@ def test_levgap_files_of_the_previous_run_are_removed_and_said(tmp_path, panel):
     kept = [n for n in named if n not in ("report.html", "workbook.xlsx")]
     assert sorted(os.listdir(out)) == sorted([MARKER, *kept])
     summary = runner.invoke(app, ["analyze", str(panel), "--out", str(out), "--json",
-                                  "--format", "parquet"])
+                                  "--format", "parquet", "--no-report"])
     data = json.loads(summary.output)
     assert data["written"][-1] == "run.json" and "targets.parquet" in data["written"]
     assert "targets.csv" in data["removed"] and data["run_id"] == verify_run(out).run_id

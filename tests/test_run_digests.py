@@ -144,6 +144,7 @@ def test_a_folder_written_before_digests_is_replaced_by_a_new_run(tmp_path, pane
     assert (out2 / "report.html").read_bytes() == b"<p>mine</p>"
 
 
+@pytest.mark.slow  # two reports (about 5 s of CPU)
 def test_report_rebuilds_a_removed_report_and_refuses_a_copy_without_marker(tmp_path, panel):
     out = tmp_path / "out"
     assert runner.invoke(app, ["analyze", str(panel), "--out", str(out), "--top", "1"]
