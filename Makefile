@@ -18,10 +18,13 @@ demo: $(STAMP)
 	$(BIN)/levgap demo --out demo-out
 
 # The suite runs on every core (pytest-xdist); a module's tests stay on one worker, so a
-# fixture a module shares is built once.
+# fixture a module shares is built once. The workers fill the cores, so each keeps one BLAS
+# thread (OpenBLAS threads waiting beside another worker cost about 15% more CPU, measured).
 WORKERS ?= auto
+TEST_THREADS ?= 1
 test: $(STAMP)
-	$(BIN)/python -m pytest -q -n $(WORKERS) --dist loadfile
+	OPENBLAS_NUM_THREADS=$(TEST_THREADS) OMP_NUM_THREADS=$(TEST_THREADS) \
+	  $(BIN)/python -m pytest -q -n $(WORKERS) --dist loadfile
 
 bench: $(STAMP)
 	$(BIN)/python benchmark/run.py
