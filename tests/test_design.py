@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 
 from levgap.errors import ModelError
+from levgap.models import design as design_module
 from levgap.models.design import Design, Pooling, compress
 from levgap.models.fractional import fit_fractional
 from levgap.models.identify import check_identified, suspicious
@@ -137,6 +138,14 @@ def test_parent_mix_weights_member_levels_by_rows() -> None:
     np.testing.assert_allclose(mix[1], cnt / cnt.sum())
     given = np.arange(1.0, len(own0) + 1)
     np.testing.assert_allclose(design.parent_mix(given)[1], given / given.sum())
+    shares = given / 100  # weights below one in total are still normalised
+    np.testing.assert_allclose(design.parent_mix(shares)[1], given / given.sum())
+    # a parent whose present members hold one row between them takes that level outright
+    one = d["ind"].copy()
+    one[one == 1] = 2
+    one[np.flatnonzero(one == 0)[1:]] = 3
+    mix = Design(d["X"], [one, d["yr"]], _pooling(np.inf)).parent_mix()
+    np.testing.assert_array_equal(mix[0], np.eye(len(mix[0]))[0])
     # a parent whose members have no rows in the fit: every own level, by rows
     p = _pooling(np.inf)
     members = p.members.copy()
@@ -155,6 +164,10 @@ def test_parent_mix_ignores_levels_beyond_the_pooling_arrays() -> None:
     mix = design.parent_mix()
     own0 = design.present[0]
     assert own0[-1] == 11 and mix[1][-1] == 0.0 and mix[1].sum() == pytest.approx(1.0)
+    # level 10, one past the arrays' last level, as well
+    d["ind"] = np.where(d["ind"] == 11, 10, d["ind"])
+    mix = Design(d["X"], [d["ind"], d["yr"]], _pooling(np.inf)).parent_mix()
+    assert mix[1][-1] == 0.0 and mix[1].sum() == pytest.approx(1.0)
 
 
 def test_compress_gives_present_levels_and_positions() -> None:
@@ -271,3 +284,96 @@ def test_a_driver_constant_within_a_pooled_level_is_identified() -> None:
     check_identified(Design(X, effects, _pooling(25.0)), ["a", "b", "c"])
     with pytest.raises(ModelError, match="got b explained entirely"):
         check_identified(Design(X, effects), ["a", "b", "c"])
+
+
+def _explicit_plain(X: np.ndarray, factors: list[np.ndarray]) -> np.ndarray:
+    """The design matrix without pooling: constant, centred drivers, dummies of every level
+    present but the first, factor by factor."""
+    cols = [np.ones(len(X)), *(X - X.mean(axis=0)).T]
+    for f in factors:
+        cols += list((f[:, None] == np.unique(f)[None, 1:]).astype(float).T)
+    return np.column_stack(cols)
+
+
+def _check_products(design: Design, Z: np.ndarray, pen: np.ndarray, rng, clusters) -> None:
+    """Every product of ``design`` against the explicit ``Z`` (and penalty)."""
+    n = len(Z)
+    w = rng.uniform(0.1, 2.0, n)
+    v = rng.normal(size=n)
+    for _ in range(2):  # the second from the kept sums
+        np.testing.assert_allclose(design.gram(), Z.T @ Z + np.diag(pen), rtol=0, atol=1e-9)
+    for weights in (w, None):
+        A, g = design.normal_equations(weights, v)
+        Zw = Z if weights is None else Z * weights[:, None]
+        np.testing.assert_allclose(A, Z.T @ Zw + np.diag(pen), rtol=0, atol=1e-9)
+        np.testing.assert_allclose(g, Z.T @ v, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(design.gram(w), Z.T @ (Z * w[:, None]) + np.diag(pen),
+                               rtol=0, atol=1e-9)
+    np.testing.assert_allclose(design.rmatvec(v), Z.T @ v, rtol=0, atol=1e-9)
+    theta = rng.normal(size=Z.shape[1])
+    np.testing.assert_allclose(design.matvec(theta), Z @ theta, rtol=0, atol=1e-12)
+    R = rng.normal(size=(3, Z.shape[1]))
+    e = rng.normal(size=n)
+    U = (Z @ R.T) * e[:, None]
+    got = design.cluster_sums(R, e, clusters)
+    assert len(got) == len(clusters)
+    for codes, sums in zip(clusters, got, strict=True):
+        want = np.zeros((int(codes.max()) + 1, 3))
+        np.add.at(want, codes, U)
+        np.testing.assert_allclose(sums, want, rtol=0, atol=1e-10)
+    np.testing.assert_allclose(design.cluster_sums(R, e, [])[0], U.T @ U, rtol=0, atol=1e-9)
+
+
+@pytest.mark.parametrize("penalty", [None, 25.0])
+def test_products_taken_in_blocks_equal_the_explicit_design_matrix(monkeypatch, penalty
+                                                                   ) -> None:
+    # Small blocks (8 rows per cell): the rows are summed over several blocks, and sorted
+    # cluster codes, more than a block's rows, are counted over each block's range only.
+    monkeypatch.setattr(design_module, "BLOCK", 1)
+    d = _data(11)
+    pooling = None if penalty is None else _pooling(penalty)
+    design = Design(d["X"], [d["ind"], d["yr"]], pooling)
+    n_own = design._XT.shape[1]
+    assert design._block == 8 * design.n_cells and n_own > 1.5 * design._block
+    Z, pen = _explicit(d, pooling)
+    rng = d["rng"]
+    firms = np.sort(rng.integers(0, 3 * design._block, len(Z)))
+    scattered = rng.permutation(firms)
+    scattered[[0, np.argmin(scattered)]] = scattered[[np.argmin(scattered), 0]]
+    assert scattered[0] == firms[0]  # unsorted, though no code is below the first
+    _check_products(design, Z, pen, rng, [firms, d["yr"], scattered, firms])
+    _check_products(design, Z, pen, rng, [firms])
+    _check_products(design, Z, pen, rng, [d["ind"]])
+
+
+def test_many_level_combinations_are_renumbered_with_the_same_products() -> None:
+    # 60 x 60 combinations on 300 rows: the cell codes are renumbered to those present
+    rng = np.random.default_rng(12)
+    n = 300
+    a, b, c = rng.integers(0, 60, n) + 3, rng.integers(0, 60, n), rng.integers(0, 3, n)
+    X = rng.normal(size=(n, 2)) + [4.0, -2.0]
+    design = Design(X, [a, b, c])
+    assert design.n_cells == len({(i, j, t) for i, j, t in zip(a, b, c, strict=True)})
+    for f, counts in zip((a, b, c), design.counts, strict=True):
+        np.testing.assert_array_equal(counts, np.unique(f, return_counts=True)[1])
+    Z = _explicit_plain(X, [a, b, c])
+    _check_products(design, Z, np.zeros(Z.shape[1]), rng, [rng.integers(0, 50, n), b])
+
+
+def test_level_counts_include_the_pooled_rows_of_the_other_factors() -> None:
+    d = _data(13)
+    design = Design(d["X"], [d["ind"], d["yr"]], _pooling(25.0))
+    own = d["ind"] < 7
+    np.testing.assert_array_equal(design.counts[0],
+                                  np.unique(d["ind"][own], return_counts=True)[1])
+    np.testing.assert_array_equal(design.counts[1], np.unique(d["yr"], return_counts=True)[1])
+    assert all(c.dtype == float for c in design.counts)
+
+
+def test_compress_keeps_dense_codes_and_handles_empty_input() -> None:
+    levels, inv = compress(np.array([1, 0, 2, 1]))
+    np.testing.assert_array_equal(levels, [0, 1, 2])
+    np.testing.assert_array_equal(inv, [1, 0, 2, 1])
+    assert inv.dtype == np.intp
+    levels, inv = compress(np.array([], dtype=np.int64))
+    assert len(levels) == 0 and len(inv) == 0 and inv.dtype == np.intp
