@@ -200,9 +200,10 @@ def test_near_constant_drivers_are_flat_whatever_their_units() -> None:
     n = 1000
     base = rng.normal(size=(n, 1))
     for size in (1.0, 1e4, 1e-6):
-        X = np.column_stack([base[:, 0] * size,
-                             size * (5.0 + 1e-12 * rng.normal(size=n))])  # rounding only
-        np.testing.assert_array_equal(Design(X, []).flat(), [1])
+        for level in (5.0, -5.0):  # the size of a negative driver is its absolute value
+            X = np.column_stack([base[:, 0] * size,
+                                 size * (level + 1e-12 * rng.normal(size=n))])  # rounding
+            np.testing.assert_array_equal(Design(X, []).flat(), [1])
     # a driver in tiny units that does vary is not flat, and fits
     y = base[:, 0] + rng.normal(size=n)
     tiny = base * 1e-12
@@ -331,6 +332,11 @@ def test_products_taken_in_blocks_equal_the_explicit_design_matrix(monkeypatch, 
     # cluster codes, more than a block's rows, are counted over each block's range only.
     monkeypatch.setattr(design_module, "BLOCK", 1)
     d = _data(11)
+    # rows in industry-year order, so a block misses the last cells; and the last industry
+    # never meets the last year
+    d["yr"][(d["ind"] == 8) & (d["yr"] == 6)] = 5
+    order = np.lexsort((d["yr"], d["ind"]))
+    d.update(ind=d["ind"][order], yr=d["yr"][order], X=d["X"][order])
     pooling = None if penalty is None else _pooling(penalty)
     design = Design(d["X"], [d["ind"], d["yr"]], pooling)
     n_own = design._XT.shape[1]
@@ -376,4 +382,50 @@ def test_compress_keeps_dense_codes_and_handles_empty_input() -> None:
     np.testing.assert_array_equal(inv, [1, 0, 2, 1])
     assert inv.dtype == np.intp
     levels, inv = compress(np.array([], dtype=np.int64))
-    assert len(levels) == 0 and len(inv) == 0 and inv.dtype == np.intp
+    assert len(levels) == 0 and len(inv) == 0
+    assert levels.dtype == np.int64 and inv.dtype == np.intp  # usable as indices
+    levels, inv = compress(np.array([10**9, 3, 10**9]))  # the sorting branch
+    np.testing.assert_array_equal(inv, [1, 0, 1])
+    assert inv.dtype == np.intp
+
+
+def test_a_level_seen_only_on_pooled_rows_is_counted_and_fitted() -> None:
+    # year 7 appears only on rows of the small industry 8: it has no own-level rows
+    d = _data(14)
+    d["yr"][np.flatnonzero(d["ind"] == 8)[:5]] = 7
+    pooling = _pooling(25.0)
+    design = Design(d["X"], [d["ind"], d["yr"]], pooling)
+    assert design.counts[1][-1] == 5
+    Z, pen = _explicit(d, pooling)
+    _check_products(design, Z, pen, d["rng"], [d["yr"]])
+
+
+def test_pooling_without_a_small_level_changes_nothing() -> None:
+    rng = np.random.default_rng(15)
+    X = rng.normal(size=(50, 2))
+    one = np.zeros(50, dtype=np.int64)
+    none_small = Pooling(np.array([False]), np.array([-1]), np.zeros((0, 1), dtype=bool),
+                         np.array([np.inf]), np.array([np.nan]))
+    design = Design(X, [one], none_small)
+    assert not design.any_dense and design.layout.n_dev == 0
+    np.testing.assert_allclose(design.gram(), Design(X, [one]).gram(), rtol=0, atol=1e-12)
+
+
+def test_designs_without_rows_integer_drivers_and_no_pooling() -> None:
+    empty = Design(np.empty((0, 2)), [])
+    np.testing.assert_array_equal(empty.center, [0.0, 0.0])
+    np.testing.assert_array_equal(empty.magnitude, [0.0, 0.0])
+    with pytest.raises(ModelError, match="at least one level of its own"):
+        Design(np.empty((0, 1)), [np.empty(0, dtype=np.int64)], _pooling(np.inf))
+    d = _data(16)
+    whole = np.round(d["X"] * 10).astype(np.int64)  # integer drivers fit as floats
+    Z, pen = _explicit({**d, "X": whole.astype(float)}, None)
+    _check_products(Design(whole, [d["ind"], d["yr"]]), Z, pen, d["rng"], [d["ind"]])
+    plain = Design(d["X"], [d["ind"]])
+    assert np.isnan(plain.deviations(np.ones(plain.layout.n_params), 10)).all()
+
+
+def test_the_flat_bound_is_inclusive(monkeypatch) -> None:
+    # spread sqrt(((0 - 1)^2 + (2 - 1)^2) / 2) = 1, exactly 0.5 of the largest value 2
+    monkeypatch.setattr(design_module, "FLAT_TOL", 0.5)
+    np.testing.assert_array_equal(Design(np.array([[0.0], [2.0]]), []).flat(), [0])
