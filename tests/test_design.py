@@ -8,6 +8,8 @@ deviation), so that the group sums are tested against plain matrix algebra.
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pytest
 
@@ -235,9 +237,11 @@ def test_solve_and_inverse_rows() -> None:
     np.testing.assert_allclose(cho_apply(factor, d, B), np.linalg.solve(A, B), rtol=1e-10)
     np.testing.assert_allclose(inverse_rows(factor, d, 3), np.linalg.inv(A)[:3], rtol=1e-9,
                                atol=1e-12)
-    for bad in (np.diag([1.0, 0.0]), np.diag([1.0, np.inf]), np.diag([1.0, np.nan])):
+    for bad in (np.diag([4.0, 0.0]), np.diag([4.0, np.inf]), np.diag([4.0, np.nan])):
         with pytest.raises(np.linalg.LinAlgError):
             solve(bad)
+    factor, d = solve(np.diag([1.0, 4.0]))  # a diagonal of exactly 1 is fine
+    np.testing.assert_allclose(cho_apply(factor, d, np.ones(2)), [1.0, 0.25])
 
 
 def test_suspicious_screens_absorbed_and_collinear_drivers() -> None:
@@ -255,6 +259,72 @@ def test_suspicious_screens_absorbed_and_collinear_drivers() -> None:
     nearly = d["X"].copy()
     nearly[:, 2] = nearly[:, 0] + 1e-3 * d["rng"].normal(size=len(ind))
     assert not suspicious(Design(nearly, [ind, yr]).gram(), 3)
+    # absorbed in large units: the share left is judged against the driver's own size
+    large = d["X"].copy()
+    large[:, 1] = 700.0 * ind + 1000.0 * yr
+    assert suspicious(Design(large, [ind, yr]).gram(), 3)
+    # industry 9 seen only in year 7, alone there: the effects themselves are confounded
+    ind9, yr9 = np.append(ind, [9, 9]), np.append(yr, [7, 7])
+    X9 = np.vstack([d["X"], d["rng"].normal(size=(2, 3))])
+    assert suspicious(Design(X9, [ind9, yr9]).gram(), 3)
+
+
+def test_an_exactly_constant_driver_is_named_without_warnings() -> None:
+    rng = np.random.default_rng(17)
+    n = 300
+    X = np.column_stack([rng.normal(size=n), np.full(n, 3.0)])
+    with pytest.raises(ModelError, match="got b constant"):
+        fit_linear(X[:, 0] + rng.normal(size=n), X, effects=[rng.integers(0, 4, n)],
+                   names=["a", "b"])
+
+
+def test_messages_name_the_rd_driver_the_user_set() -> None:
+    d = _data(18)
+    X = np.column_stack([d["X"][:, 0], np.full(len(d["ind"]), 1.0)])
+    design = Design(X, [d["ind"], d["yr"]])
+    added = "got rd_intensity (its indicator rd_missing of a blank rd_expense) constant"
+    with pytest.raises(ModelError, match=re.escape(added)):
+        check_identified(design, ["a", "rd_missing"])
+    both = Design(np.column_stack([X[:, 1], X]), [d["ind"], d["yr"]])
+    with pytest.raises(ModelError, match="got rd_intensity constant. Drop it"):
+        check_identified(both, ["rd_intensity", "a", "rd_missing"])
+
+
+def test_check_identified_judges_the_residuals_after_penalised_effects(monkeypatch) -> None:
+    # The share of each driver left after the effects, and the smallest singular value of
+    # the unit-scaled residuals relative to the largest, equal those of an explicit ridge
+    # fit on the effects (penalised deviations of small levels included): bracket each
+    # bound just above and just below the explicit value.
+    from levgap.models import identify
+
+    d = _data(19, n=800)
+    pooling = _pooling(25.0)
+    X = d["X"][:, :2].copy()
+    X[:, 1] = 0.6 * X[:, 0] + 0.4 * d["rng"].normal(size=len(X)) + 2.0 * (d["ind"] == 8)
+    design = Design(X, [d["ind"], d["yr"]], pooling)
+    Z, pen = _explicit({**d, "X": X}, pooling)
+    E = np.delete(Z, [1, 2], axis=1)
+    Xc = X - X.mean(axis=0)
+    gamma = np.linalg.solve(E.T @ E + np.diag(np.delete(pen, [1, 2])), E.T @ Xc)
+    resid = Xc - E @ gamma
+    share = (resid**2).sum(axis=0) / (Xc**2).sum(axis=0)
+    s = np.linalg.svd(resid / np.linalg.norm(resid, axis=0), compute_uv=False)
+    monkeypatch.setattr(identify, "IDENTIFIED_TOL", share.min() * (1 + 1e-6))
+    with pytest.raises(ModelError, match="explained entirely"):
+        check_identified(design, ["a", "b"])
+    monkeypatch.setattr(identify, "IDENTIFIED_TOL", share.min() * (1 - 1e-6))
+    monkeypatch.setattr(identify, "COLLINEAR_TOL", s[-1] / s[0] * (1 + 1e-6))
+    with pytest.raises(ModelError, match="got a, b linearly dependent"):
+        check_identified(design, ["a", "b"])
+    monkeypatch.setattr(identify, "COLLINEAR_TOL", s[-1] / s[0] * (1 - 1e-6))
+    check_identified(design, ["a", "b"])
+
+
+def test_drivers_in_very_different_units_and_a_single_driver_are_identified() -> None:
+    d = _data(20)
+    X = d["X"][:, :2] * [1.0, 1e6]
+    check_identified(Design(X, [d["ind"], d["yr"]]), ["a", "b"])
+    check_identified(Design(d["X"][:, :1], [d["ind"], d["yr"]]), ["a"])
 
 
 def test_check_identified_names_the_driver_and_passes_good_designs() -> None:
@@ -368,6 +438,7 @@ def test_many_level_combinations_are_renumbered_with_the_same_products() -> None
 
 def test_level_counts_include_the_pooled_rows_of_the_other_factors() -> None:
     d = _data(13)
+    d["yr"][d["ind"] >= 7] = 3  # the pooled rows miss the last years
     design = Design(d["X"], [d["ind"], d["yr"]], _pooling(25.0))
     own = d["ind"] < 7
     np.testing.assert_array_equal(design.counts[0],
