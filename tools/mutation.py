@@ -68,8 +68,8 @@ STATUS = {0: "survived", 5: "no tests", 33: "no tests", None: "not checked"}
 def run(module: str, everyone: bool = False) -> int:
     """Run mutmut on one module's mutants with that module's tests.
 
-    Only the mutants not yet caught nor listed as equivalent are named, unless ``everyone``
-    (or the module was never run, when mutmut has not listed its mutants yet).
+    Only the mutants never run, and those run but neither caught nor listed as equivalent,
+    are named, unless ``everyone`` (or mutmut has not listed the module's mutants yet).
     """
     tests = MODULES[module]
     env = dict(os.environ, PYTEST_ADDOPTS="-k '" + " or ".join(tests) + "'")
@@ -78,7 +78,8 @@ def run(module: str, everyone: bool = False) -> int:
         names = [f"levgap.{module}.*"]
     else:
         equivalent = equivalent_names()
-        names = sorted(k for k, c in codes.items() if c not in KILLED and k not in equivalent)
+        names = sorted(k for k, c in codes.items()
+                       if c is None or (c not in KILLED and k not in equivalent))
         if not names:
             print(f"== levgap.{module}: every mutant caught already", flush=True)
             return 0
