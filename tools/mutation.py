@@ -39,7 +39,8 @@ MODEL_CORE = ("test_models.py", "test_fractional.py", "test_numerics.py", "test_
 MODULES: dict[str, tuple[str, ...]] = {
     "band": ("test_band.py", "test_pipeline_brute.py", "test_saved.py"),
     "attribution": ("test_attribution.py", "test_pipeline_brute.py"),
-    "features": ("test_features.py", "test_pipeline_brute.py", "test_pipeline_edges.py"),
+    "features": ("test_features.py", "test_pipeline_brute.py", "test_pipeline_edges.py",
+                 "test_specifications.py"),
     "transforms": ("test_transforms.py", "test_features.py", "test_pipeline_brute.py",
                    "test_saved.py"),
     "groups": ("test_groups.py", "test_features.py", "test_pooling.py",
