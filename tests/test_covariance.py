@@ -11,7 +11,13 @@ import numpy as np
 import pytest
 
 from levgap.errors import ModelError
-from levgap.models.covariance import cluster_codes, meat, psd_repair, sandwich
+from levgap.models.covariance import (
+    cluster_codes,
+    influence_meat,
+    meat,
+    psd_repair,
+    sandwich,
+)
 
 
 def _outer_by_cluster(U: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -63,6 +69,19 @@ def test_meat_has_stata_s_factor() -> None:
     assert g == 1 and np.isnan(v).all()  # one cluster: no factor
     v, _ = meat(_by_cluster(U)([codes])[0], 4, 4)
     assert np.isnan(v).all()  # no degrees of freedom
+
+
+def test_influence_meat_sums_row_influences_within_clusters() -> None:
+    rng = np.random.default_rng(3)
+    n, m = 40, 3
+    U = rng.normal(size=(n, m))
+    codes = rng.integers(0, 7, n)
+    codes[0] = 6  # the last cluster is present: seven clusters
+    S = np.zeros((7, m))
+    np.add.at(S, codes, U)
+    V, g = influence_meat(U, codes, n, 4)
+    assert g == 7
+    np.testing.assert_allclose(V, 7 / 6 * (n - 1) / (n - 4) * S.T @ S, rtol=1e-12)
 
 
 def test_one_way_two_way_and_hc0() -> None:

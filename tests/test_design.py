@@ -8,10 +8,13 @@ deviation), so that the group sums are tested against plain matrix algebra.
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pytest
 
 from levgap.errors import ModelError
+from levgap.models import design as design_module
 from levgap.models.design import Design, Pooling, compress
 from levgap.models.fractional import fit_fractional
 from levgap.models.identify import check_identified, suspicious
@@ -137,6 +140,14 @@ def test_parent_mix_weights_member_levels_by_rows() -> None:
     np.testing.assert_allclose(mix[1], cnt / cnt.sum())
     given = np.arange(1.0, len(own0) + 1)
     np.testing.assert_allclose(design.parent_mix(given)[1], given / given.sum())
+    shares = given / 100  # weights below one in total are still normalised
+    np.testing.assert_allclose(design.parent_mix(shares)[1], given / given.sum())
+    # a parent whose present members hold one row between them takes that level outright
+    one = d["ind"].copy()
+    one[one == 1] = 2
+    one[np.flatnonzero(one == 0)[1:]] = 3
+    mix = Design(d["X"], [one, d["yr"]], _pooling(np.inf)).parent_mix()
+    np.testing.assert_array_equal(mix[0], np.eye(len(mix[0]))[0])
     # a parent whose members have no rows in the fit: every own level, by rows
     p = _pooling(np.inf)
     members = p.members.copy()
@@ -155,6 +166,10 @@ def test_parent_mix_ignores_levels_beyond_the_pooling_arrays() -> None:
     mix = design.parent_mix()
     own0 = design.present[0]
     assert own0[-1] == 11 and mix[1][-1] == 0.0 and mix[1].sum() == pytest.approx(1.0)
+    # level 10, one past the arrays' last level, as well
+    d["ind"] = np.where(d["ind"] == 11, 10, d["ind"])
+    mix = Design(d["X"], [d["ind"], d["yr"]], _pooling(np.inf)).parent_mix()
+    assert mix[1][-1] == 0.0 and mix[1].sum() == pytest.approx(1.0)
 
 
 def test_compress_gives_present_levels_and_positions() -> None:
@@ -187,9 +202,10 @@ def test_near_constant_drivers_are_flat_whatever_their_units() -> None:
     n = 1000
     base = rng.normal(size=(n, 1))
     for size in (1.0, 1e4, 1e-6):
-        X = np.column_stack([base[:, 0] * size,
-                             size * (5.0 + 1e-12 * rng.normal(size=n))])  # rounding only
-        np.testing.assert_array_equal(Design(X, []).flat(), [1])
+        for level in (5.0, -5.0):  # the size of a negative driver is its absolute value
+            X = np.column_stack([base[:, 0] * size,
+                                 size * (level + 1e-12 * rng.normal(size=n))])  # rounding
+            np.testing.assert_array_equal(Design(X, []).flat(), [1])
     # a driver in tiny units that does vary is not flat, and fits
     y = base[:, 0] + rng.normal(size=n)
     tiny = base * 1e-12
@@ -221,9 +237,11 @@ def test_solve_and_inverse_rows() -> None:
     np.testing.assert_allclose(cho_apply(factor, d, B), np.linalg.solve(A, B), rtol=1e-10)
     np.testing.assert_allclose(inverse_rows(factor, d, 3), np.linalg.inv(A)[:3], rtol=1e-9,
                                atol=1e-12)
-    for bad in (np.diag([1.0, 0.0]), np.diag([1.0, np.inf]), np.diag([1.0, np.nan])):
+    for bad in (np.diag([4.0, 0.0]), np.diag([4.0, np.inf]), np.diag([4.0, np.nan])):
         with pytest.raises(np.linalg.LinAlgError):
             solve(bad)
+    factor, d = solve(np.diag([1.0, 4.0]))  # a diagonal of exactly 1 is fine
+    np.testing.assert_allclose(cho_apply(factor, d, np.ones(2)), [1.0, 0.25])
 
 
 def test_suspicious_screens_absorbed_and_collinear_drivers() -> None:
@@ -241,6 +259,72 @@ def test_suspicious_screens_absorbed_and_collinear_drivers() -> None:
     nearly = d["X"].copy()
     nearly[:, 2] = nearly[:, 0] + 1e-3 * d["rng"].normal(size=len(ind))
     assert not suspicious(Design(nearly, [ind, yr]).gram(), 3)
+    # absorbed in large units: the share left is judged against the driver's own size
+    large = d["X"].copy()
+    large[:, 1] = 700.0 * ind + 1000.0 * yr
+    assert suspicious(Design(large, [ind, yr]).gram(), 3)
+    # industry 9 seen only in year 7, alone there: the effects themselves are confounded
+    ind9, yr9 = np.append(ind, [9, 9]), np.append(yr, [7, 7])
+    X9 = np.vstack([d["X"], d["rng"].normal(size=(2, 3))])
+    assert suspicious(Design(X9, [ind9, yr9]).gram(), 3)
+
+
+def test_an_exactly_constant_driver_is_named_without_warnings() -> None:
+    rng = np.random.default_rng(17)
+    n = 300
+    X = np.column_stack([rng.normal(size=n), np.full(n, 3.0)])
+    with pytest.raises(ModelError, match="got b constant"):
+        fit_linear(X[:, 0] + rng.normal(size=n), X, effects=[rng.integers(0, 4, n)],
+                   names=["a", "b"])
+
+
+def test_messages_name_the_rd_driver_the_user_set() -> None:
+    d = _data(18)
+    X = np.column_stack([d["X"][:, 0], np.full(len(d["ind"]), 1.0)])
+    design = Design(X, [d["ind"], d["yr"]])
+    added = "got rd_intensity (its indicator rd_missing of a blank rd_expense) constant"
+    with pytest.raises(ModelError, match=re.escape(added)):
+        check_identified(design, ["a", "rd_missing"])
+    both = Design(np.column_stack([X[:, 1], X]), [d["ind"], d["yr"]])
+    with pytest.raises(ModelError, match="got rd_intensity constant. Drop it"):
+        check_identified(both, ["rd_intensity", "a", "rd_missing"])
+
+
+def test_check_identified_judges_the_residuals_after_penalised_effects(monkeypatch) -> None:
+    # The share of each driver left after the effects, and the smallest singular value of
+    # the unit-scaled residuals relative to the largest, equal those of an explicit ridge
+    # fit on the effects (penalised deviations of small levels included): bracket each
+    # bound just above and just below the explicit value.
+    from levgap.models import identify
+
+    d = _data(19, n=800)
+    pooling = _pooling(25.0)
+    X = d["X"][:, :2].copy()
+    X[:, 1] = 0.6 * X[:, 0] + 0.4 * d["rng"].normal(size=len(X)) + 2.0 * (d["ind"] == 8)
+    design = Design(X, [d["ind"], d["yr"]], pooling)
+    Z, pen = _explicit({**d, "X": X}, pooling)
+    E = np.delete(Z, [1, 2], axis=1)
+    Xc = X - X.mean(axis=0)
+    gamma = np.linalg.solve(E.T @ E + np.diag(np.delete(pen, [1, 2])), E.T @ Xc)
+    resid = Xc - E @ gamma
+    share = (resid**2).sum(axis=0) / (Xc**2).sum(axis=0)
+    s = np.linalg.svd(resid / np.linalg.norm(resid, axis=0), compute_uv=False)
+    monkeypatch.setattr(identify, "IDENTIFIED_TOL", share.min() * (1 + 1e-6))
+    with pytest.raises(ModelError, match="explained entirely"):
+        check_identified(design, ["a", "b"])
+    monkeypatch.setattr(identify, "IDENTIFIED_TOL", share.min() * (1 - 1e-6))
+    monkeypatch.setattr(identify, "COLLINEAR_TOL", s[-1] / s[0] * (1 + 1e-6))
+    with pytest.raises(ModelError, match="got a, b linearly dependent"):
+        check_identified(design, ["a", "b"])
+    monkeypatch.setattr(identify, "COLLINEAR_TOL", s[-1] / s[0] * (1 - 1e-6))
+    check_identified(design, ["a", "b"])
+
+
+def test_drivers_in_very_different_units_and_a_single_driver_are_identified() -> None:
+    d = _data(20)
+    X = d["X"][:, :2] * [1.0, 1e6]
+    check_identified(Design(X, [d["ind"], d["yr"]]), ["a", "b"])
+    check_identified(Design(d["X"][:, :1], [d["ind"], d["yr"]]), ["a"])
 
 
 def test_check_identified_names_the_driver_and_passes_good_designs() -> None:
@@ -271,3 +355,148 @@ def test_a_driver_constant_within_a_pooled_level_is_identified() -> None:
     check_identified(Design(X, effects, _pooling(25.0)), ["a", "b", "c"])
     with pytest.raises(ModelError, match="got b explained entirely"):
         check_identified(Design(X, effects), ["a", "b", "c"])
+
+
+def _explicit_plain(X: np.ndarray, factors: list[np.ndarray]) -> np.ndarray:
+    """The design matrix without pooling: constant, centred drivers, dummies of every level
+    present but the first, factor by factor."""
+    cols = [np.ones(len(X)), *(X - X.mean(axis=0)).T]
+    for f in factors:
+        cols += list((f[:, None] == np.unique(f)[None, 1:]).astype(float).T)
+    return np.column_stack(cols)
+
+
+def _check_products(design: Design, Z: np.ndarray, pen: np.ndarray, rng, clusters) -> None:
+    """Every product of ``design`` against the explicit ``Z`` (and penalty)."""
+    n = len(Z)
+    w = rng.uniform(0.1, 2.0, n)
+    v = rng.normal(size=n)
+    for _ in range(2):  # the second from the kept sums
+        np.testing.assert_allclose(design.gram(), Z.T @ Z + np.diag(pen), rtol=0, atol=1e-9)
+    for weights in (w, None):
+        A, g = design.normal_equations(weights, v)
+        Zw = Z if weights is None else Z * weights[:, None]
+        np.testing.assert_allclose(A, Z.T @ Zw + np.diag(pen), rtol=0, atol=1e-9)
+        np.testing.assert_allclose(g, Z.T @ v, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(design.gram(w), Z.T @ (Z * w[:, None]) + np.diag(pen),
+                               rtol=0, atol=1e-9)
+    np.testing.assert_allclose(design.rmatvec(v), Z.T @ v, rtol=0, atol=1e-9)
+    theta = rng.normal(size=Z.shape[1])
+    np.testing.assert_allclose(design.matvec(theta), Z @ theta, rtol=0, atol=1e-12)
+    R = rng.normal(size=(3, Z.shape[1]))
+    e = rng.normal(size=n)
+    U = (Z @ R.T) * e[:, None]
+    got = design.cluster_sums(R, e, clusters)
+    assert len(got) == len(clusters)
+    for codes, sums in zip(clusters, got, strict=True):
+        want = np.zeros((int(codes.max()) + 1, 3))
+        np.add.at(want, codes, U)
+        np.testing.assert_allclose(sums, want, rtol=0, atol=1e-10)
+    np.testing.assert_allclose(design.cluster_sums(R, e, [])[0], U.T @ U, rtol=0, atol=1e-9)
+
+
+@pytest.mark.parametrize("penalty", [None, 25.0])
+def test_products_taken_in_blocks_equal_the_explicit_design_matrix(monkeypatch, penalty
+                                                                   ) -> None:
+    # Small blocks (8 rows per cell): the rows are summed over several blocks, and sorted
+    # cluster codes, more than a block's rows, are counted over each block's range only.
+    monkeypatch.setattr(design_module, "BLOCK", 1)
+    d = _data(11)
+    # rows in industry-year order, so a block misses the last cells; and the last industry
+    # never meets the last year
+    d["yr"][(d["ind"] == 8) & (d["yr"] == 6)] = 5
+    order = np.lexsort((d["yr"], d["ind"]))
+    d.update(ind=d["ind"][order], yr=d["yr"][order], X=d["X"][order])
+    pooling = None if penalty is None else _pooling(penalty)
+    design = Design(d["X"], [d["ind"], d["yr"]], pooling)
+    n_own = design._XT.shape[1]
+    assert design._block == 8 * design.n_cells and n_own > 1.5 * design._block
+    Z, pen = _explicit(d, pooling)
+    rng = d["rng"]
+    firms = np.sort(rng.integers(0, 3 * design._block, len(Z)))
+    scattered = rng.permutation(firms)
+    scattered[[0, np.argmin(scattered)]] = scattered[[np.argmin(scattered), 0]]
+    assert scattered[0] == firms[0]  # unsorted, though no code is below the first
+    _check_products(design, Z, pen, rng, [firms, d["yr"], scattered, firms])
+    _check_products(design, Z, pen, rng, [firms])
+    _check_products(design, Z, pen, rng, [d["ind"]])
+
+
+def test_many_level_combinations_are_renumbered_with_the_same_products() -> None:
+    # 60 x 60 combinations on 300 rows: the cell codes are renumbered to those present
+    rng = np.random.default_rng(12)
+    n = 300
+    a, b, c = rng.integers(0, 60, n) + 3, rng.integers(0, 60, n), rng.integers(0, 3, n)
+    X = rng.normal(size=(n, 2)) + [4.0, -2.0]
+    design = Design(X, [a, b, c])
+    assert design.n_cells == len({(i, j, t) for i, j, t in zip(a, b, c, strict=True)})
+    for f, counts in zip((a, b, c), design.counts, strict=True):
+        np.testing.assert_array_equal(counts, np.unique(f, return_counts=True)[1])
+    Z = _explicit_plain(X, [a, b, c])
+    _check_products(design, Z, np.zeros(Z.shape[1]), rng, [rng.integers(0, 50, n), b])
+
+
+def test_level_counts_include_the_pooled_rows_of_the_other_factors() -> None:
+    d = _data(13)
+    d["yr"][d["ind"] >= 7] = 3  # the pooled rows miss the last years
+    design = Design(d["X"], [d["ind"], d["yr"]], _pooling(25.0))
+    own = d["ind"] < 7
+    np.testing.assert_array_equal(design.counts[0],
+                                  np.unique(d["ind"][own], return_counts=True)[1])
+    np.testing.assert_array_equal(design.counts[1], np.unique(d["yr"], return_counts=True)[1])
+    assert all(c.dtype == float for c in design.counts)
+
+
+def test_compress_keeps_dense_codes_and_handles_empty_input() -> None:
+    levels, inv = compress(np.array([1, 0, 2, 1]))
+    np.testing.assert_array_equal(levels, [0, 1, 2])
+    np.testing.assert_array_equal(inv, [1, 0, 2, 1])
+    assert inv.dtype == np.intp
+    levels, inv = compress(np.array([], dtype=np.int64))
+    assert len(levels) == 0 and len(inv) == 0
+    assert levels.dtype == np.int64 and inv.dtype == np.intp  # usable as indices
+    levels, inv = compress(np.array([10**9, 3, 10**9]))  # the sorting branch
+    np.testing.assert_array_equal(inv, [1, 0, 1])
+    assert inv.dtype == np.intp
+
+
+def test_a_level_seen_only_on_pooled_rows_is_counted_and_fitted() -> None:
+    # year 7 appears only on rows of the small industry 8: it has no own-level rows
+    d = _data(14)
+    d["yr"][np.flatnonzero(d["ind"] == 8)[:5]] = 7
+    pooling = _pooling(25.0)
+    design = Design(d["X"], [d["ind"], d["yr"]], pooling)
+    assert design.counts[1][-1] == 5
+    Z, pen = _explicit(d, pooling)
+    _check_products(design, Z, pen, d["rng"], [d["yr"]])
+
+
+def test_pooling_without_a_small_level_changes_nothing() -> None:
+    rng = np.random.default_rng(15)
+    X = rng.normal(size=(50, 2))
+    one = np.zeros(50, dtype=np.int64)
+    none_small = Pooling(np.array([False]), np.array([-1]), np.zeros((0, 1), dtype=bool),
+                         np.array([np.inf]), np.array([np.nan]))
+    design = Design(X, [one], none_small)
+    assert not design.any_dense and design.layout.n_dev == 0
+    np.testing.assert_allclose(design.gram(), Design(X, [one]).gram(), rtol=0, atol=1e-12)
+
+
+def test_designs_without_rows_integer_drivers_and_no_pooling() -> None:
+    empty = Design(np.empty((0, 2)), [])
+    np.testing.assert_array_equal(empty.center, [0.0, 0.0])
+    np.testing.assert_array_equal(empty.magnitude, [0.0, 0.0])
+    with pytest.raises(ModelError, match="at least one level of its own"):
+        Design(np.empty((0, 1)), [np.empty(0, dtype=np.int64)], _pooling(np.inf))
+    d = _data(16)
+    whole = np.round(d["X"] * 10).astype(np.int64)  # integer drivers fit as floats
+    Z, pen = _explicit({**d, "X": whole.astype(float)}, None)
+    _check_products(Design(whole, [d["ind"], d["yr"]]), Z, pen, d["rng"], [d["ind"]])
+    plain = Design(d["X"], [d["ind"]])
+    assert np.isnan(plain.deviations(np.ones(plain.layout.n_params), 10)).all()
+
+
+def test_the_flat_bound_is_inclusive(monkeypatch) -> None:
+    # spread sqrt(((0 - 1)^2 + (2 - 1)^2) / 2) = 1, exactly 0.5 of the largest value 2
+    monkeypatch.setattr(design_module, "FLAT_TOL", 0.5)
+    np.testing.assert_array_equal(Design(np.array([[0.0], [2.0]]), []).flat(), [0])

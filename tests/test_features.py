@@ -8,7 +8,7 @@ import pytest
 
 from levgap.config import ModelSpec
 from levgap.errors import ModelError
-from levgap.features import build_features, trailing_volatility
+from levgap.features import build_features, lag_rows, trailing_volatility
 from levgap.groups import WHOLE_SAMPLE, industry_levels
 from levgap.transforms import clip_to_limits, year_limits
 
@@ -385,3 +385,13 @@ def test_parent_groups_named_in_the_configuration_reach_the_levels() -> None:
     named = build_features(p, spec, parents={"2834": "health", "3711": "health"}).levels
     assert plain.parent_labels == (WHOLE_SAMPLE,)
     assert named.parent_labels == ("health",)
+
+
+def test_lag_rows_takes_the_firms_previous_fiscal_year() -> None:
+    f = pd.DataFrame({"firm_id": ["a", "a", "b", "a", "b"],
+                      "fiscal_year": [2020, 2021, 2021, 2023, 2019],
+                      "x": [1.0, 2.0, 3.0, 4.0, 5.0], "x_raw": [10.0, 20.0, 30.0, 40.0, 50.0]})
+    lag_rows(f, ["x"])
+    np.testing.assert_array_equal(f["has_prior_year"], [False, True, False, False, False])
+    np.testing.assert_array_equal(f["x"], [np.nan, 1.0, np.nan, np.nan, np.nan])
+    np.testing.assert_array_equal(f["x_raw"], [np.nan, 10.0, np.nan, np.nan, np.nan])

@@ -12,7 +12,7 @@ import pytest
 from scipy import special
 
 from levgap.errors import ModelError
-from levgap.models.result import Fit, PooledLevels
+from levgap.models.result import Fit, PooledLevels, expit, inference_table
 
 NAN = np.nan
 
@@ -133,3 +133,38 @@ def test_fit_survives_its_json_form() -> None:
     assert plain.pooled is None and "pooled" not in _fit(pooled=False).to_dict()
     ints = Fit.from_dict({**d, "coef": [1, 2, 3]})
     assert ints.coef.dtype == float
+
+
+def test_expit_of_scalars_and_arrays_without_overflow_warnings() -> None:
+    assert expit(0.0) == 0.5 and np.ndim(expit(0.0)) == 0
+    assert expit(2.0) == pytest.approx(1 / (1 + np.exp(-2.0)), rel=1e-15)
+    assert expit(-3) == pytest.approx(1 / (1 + np.exp(3.0)), rel=1e-15)
+    assert expit(-800.0) == 0.0 and expit(800.0) == 1.0  # exp overflows quietly
+    eta = np.array([-800.0, -2.0, 0.0, 2.0, 800.0])
+    np.testing.assert_allclose(expit(eta), special.expit(eta), rtol=1e-15, atol=0)
+    np.testing.assert_allclose(expit([[1, -1]]), special.expit([[1.0, -1.0]]), rtol=1e-15)
+
+
+def test_inference_table_uses_student_t_down_to_one_degree_of_freedom() -> None:
+    # scipy.special.stdtr/stdtrit are Student's t distribution function and its inverse
+    coef, se = np.array([1.0, -2.0, 0.5]), np.array([0.5, 1.0, 0.25])
+    for df in (1, 3, [1.0, 2.0, 40.0]):
+        out = inference_table(["a", "b", "c"], coef, se, df)  # default: 95% intervals
+        t = coef / se
+        dfs = np.broadcast_to(np.asarray(df, dtype=float), t.shape)
+        np.testing.assert_allclose(out["p_value"], 2 * special.stdtr(dfs, -np.abs(t)),
+                                   rtol=1e-14)
+        q = special.stdtrit(dfs, 0.975)
+        np.testing.assert_allclose(out["ci_low"], coef - q * se, rtol=1e-14)
+        np.testing.assert_allclose(out["ci_high"], coef + q * se, rtol=1e-14)
+        assert list(out["term"]) == ["a", "b", "c"]
+    # one degree of freedom is Cauchy: P(|t| > 2) = 1 - 2 atan(2) / pi
+    one = inference_table(["a"], np.array([1.0]), np.array([0.5]), 1)
+    assert one["p_value"][0] == pytest.approx(1 - 2 * np.arctan(2.0) / np.pi, rel=1e-12)
+    blank = inference_table(["a"], np.array([1.0]), np.array([0.5]), 0.5)
+    assert np.isnan(blank["p_value"][0]) and np.isnan(blank["ci_low"][0])
+
+
+def test_a_zero_standard_error_gives_t_without_warnings() -> None:
+    out = inference_table(["a", "b"], np.array([1.0, 0.0]), np.array([0.0, 0.0]), 10)
+    assert out["t_stat"][0] == np.inf and np.isnan(out["t_stat"][1])

@@ -3,6 +3,7 @@
     .venv/bin/python tools/mutation.py                 # every module, then the report
     .venv/bin/python tools/mutation.py band attribution
     .venv/bin/python tools/mutation.py --report        # the table and unexplained survivors
+    .venv/bin/python tools/mutation.py --report band   # the same for some modules only
     .venv/bin/python tools/mutation.py --all band      # re-test every mutant, killed ones too
 
 ``[tool.mutmut]`` in pyproject.toml names the files mutated and the test files mutmut may
@@ -14,7 +15,8 @@ mutants not yet caught nor listed as equivalent (survivors, and those never chec
 resumes where a bounded run stopped and checks survivors again after a sharper test (``--all``
 re-tests every one). The report counts, per module, the mutants killed, the survivors listed
 as equivalent in DEVELOPERS.md ("Equivalent mutants"), and any other survivor, which it
-names: the check passes when there is none.
+names: the check passes when there is none, every mutant was run, and no name listed as
+equivalent is one the tests kill (a stale name).
 """
 
 from __future__ import annotations
@@ -37,7 +39,8 @@ MODEL_CORE = ("test_models.py", "test_fractional.py", "test_numerics.py", "test_
 MODULES: dict[str, tuple[str, ...]] = {
     "band": ("test_band.py", "test_pipeline_brute.py", "test_saved.py"),
     "attribution": ("test_attribution.py", "test_pipeline_brute.py"),
-    "features": ("test_features.py", "test_pipeline_brute.py", "test_pipeline_edges.py"),
+    "features": ("test_features.py", "test_pipeline_brute.py", "test_pipeline_edges.py",
+                 "test_specifications.py"),
     "transforms": ("test_transforms.py", "test_features.py", "test_pipeline_brute.py",
                    "test_saved.py"),
     "groups": ("test_groups.py", "test_features.py", "test_pooling.py",
@@ -54,6 +57,12 @@ MODULES: dict[str, tuple[str, ...]] = {
     "models.pooling": ("test_pooling.py", "test_models.py"),
     "models.crossfit": ("test_crossfit.py", "test_pipeline_brute.py"),
     "models.saved": ("test_saved.py",),
+    # the research estimators (estimation table only); their test files must be in
+    # pyproject's pytest_add_cli_args_test_selection too
+    "models.within": ("test_within.py", "test_specifications.py"),
+    "models.famamacbeth": ("test_famamacbeth.py", "test_specifications.py"),
+    "models.adjust": ("test_adjust.py",),
+    "models.estimates": ("test_within.py", "test_famamacbeth.py", "test_specifications.py"),
 }
 """Module (under ``levgap``) -> the test files its mutants run against."""
 
@@ -66,8 +75,8 @@ STATUS = {0: "survived", 5: "no tests", 33: "no tests", None: "not checked"}
 def run(module: str, everyone: bool = False) -> int:
     """Run mutmut on one module's mutants with that module's tests.
 
-    Only the mutants not yet caught nor listed as equivalent are named, unless ``everyone``
-    (or the module was never run, when mutmut has not listed its mutants yet).
+    Only the mutants never run, and those run but neither caught nor listed as equivalent,
+    are named, unless ``everyone`` (or mutmut has not listed the module's mutants yet).
     """
     tests = MODULES[module]
     env = dict(os.environ, PYTEST_ADDOPTS="-k '" + " or ".join(tests) + "'")
@@ -76,7 +85,8 @@ def run(module: str, everyone: bool = False) -> int:
         names = [f"levgap.{module}.*"]
     else:
         equivalent = equivalent_names()
-        names = sorted(k for k, c in codes.items() if c not in KILLED and k not in equivalent)
+        names = sorted(k for k, c in codes.items()
+                       if c is None or (c not in KILLED and k not in equivalent))
         if not names:
             print(f"== levgap.{module}: every mutant caught already", flush=True)
             return 0
@@ -112,25 +122,42 @@ def results() -> dict[str, dict[str, int | None]]:
     return out
 
 
-def report() -> int:
-    """Print the score table and every survivor not explained; 1 if there is one."""
+def report(modules: list[str] | None = None) -> int:
+    """Print the score table and every survivor not explained; 1 if there is one.
+
+    ``modules`` limits the table and the verdict to those modules. A mutant never run counts
+    as "not run" (never as equivalent); a name listed as equivalent that the tests kill is
+    printed as stale (the list names another change after the code moved).
+    """
     equivalent = equivalent_names()
     unexplained: list[str] = []
+    stale: list[str] = []
     rows = []
     for module, codes in results().items():
-        killed = sum(1 for c in codes.values() if c in KILLED)
-        equiv = sum(1 for k, c in codes.items() if c not in KILLED and k in equivalent)
-        other = sorted(k for k, c in codes.items() if c not in KILLED and k not in equivalent)
+        if modules and module not in modules:
+            continue
+        ran = {k: c for k, c in codes.items() if c is not None}
+        killed = sum(1 for c in ran.values() if c in KILLED)
+        equiv = sum(1 for k, c in ran.items() if c not in KILLED and k in equivalent)
+        other = sorted(k for k, c in ran.items() if c not in KILLED and k not in equivalent)
+        stale += sorted(k for k, c in ran.items() if c in KILLED and k in equivalent)
         unexplained += [f"{k} ({STATUS.get(codes[k], codes[k])})" for k in other]
-        rows.append((module, len(codes), killed, equiv, len(other)))
-    print(f"{'module':20} {'mutants':>8} {'killed':>7} {'equivalent':>11} {'other':>6}")
-    for module, total, killed, equiv, other in rows:
-        print(f"{module:20} {total:8d} {killed:7d} {equiv:11d} {other:6d}")
-    totals = [sum(r[i] for r in rows) for i in range(1, 5)]
-    print(f"{'total':20} {totals[0]:8d} {totals[1]:7d} {totals[2]:11d} {totals[3]:6d}")
+        rows.append((module, len(codes), killed, equiv, len(other), len(codes) - len(ran)))
+    print(f"{'module':20} {'mutants':>8} {'killed':>7} {'equivalent':>11} {'other':>6} "
+          f"{'not run':>8}")
+    for module, total, killed, equiv, other, not_run in rows:
+        print(f"{module:20} {total:8d} {killed:7d} {equiv:11d} {other:6d} {not_run:8d}")
+    totals = [sum(r[i] for r in rows) for i in range(1, 6)]
+    print(f"{'total':20} {totals[0]:8d} {totals[1]:7d} {totals[2]:11d} {totals[3]:6d} "
+          f"{totals[4]:8d}")
     for name in unexplained:
         print("unexplained:", name)
-    return 1 if unexplained else 0
+    for name in stale:
+        print("listed as equivalent but killed (a stale name):", name)
+    not_run = [r[0] for r in rows if r[5]]
+    if not_run:
+        print("not run completely:", ", ".join(not_run))
+    return 1 if unexplained or not_run or stale else 0
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -140,13 +167,13 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--all", action="store_true",
                         help="re-test every mutant of the modules, not only those not caught")
     args = parser.parse_args(argv)
+    unknown = [m for m in args.modules if m not in MODULES]
+    if unknown:
+        parser.error(f"unknown module {unknown[0]!r}; choose from {', '.join(MODULES)}")
     if not args.report:
-        unknown = [m for m in args.modules if m not in MODULES]
-        if unknown:
-            parser.error(f"unknown module {unknown[0]!r}; choose from {', '.join(MODULES)}")
         for module in args.modules or list(MODULES):
             run(module, everyone=args.all)
-    return report()
+    return report(args.modules)
 
 
 if __name__ == "__main__":
