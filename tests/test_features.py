@@ -395,3 +395,31 @@ def test_lag_rows_takes_the_firms_previous_fiscal_year() -> None:
     np.testing.assert_array_equal(f["has_prior_year"], [False, True, False, False, False])
     np.testing.assert_array_equal(f["x"], [np.nan, 1.0, np.nan, np.nan, np.nan])
     np.testing.assert_array_equal(f["x_raw"], [np.nan, 10.0, np.nan, np.nan, np.nan])
+
+
+def test_raw_drivers_revenue_dividends_and_rd_missing_by_hand() -> None:
+    """Each added driver against its definition (DESIGN.md), on five hand-made rows:
+    log_revenue is ln(revenue) for revenue > 0 (negative below 1) and missing at 0;
+    dividend_payer is 1 for any positive payment, 0 for none, missing when not reported;
+    rd_missing comes right after rd_intensity."""
+    from levgap.features import raw_drivers
+
+    n = 5
+    data = pd.DataFrame({
+        "ppe_net": [1.0] * n, "ebitda": [1.0] * n, "book_equity": [1.0] * n,
+        "rd_expense": [np.nan, 1.0, 2.0, np.nan, 0.5],
+        "revenue": [0.0, 0.5, 1.0, 2.0, np.nan],
+        "dividends_paid": [0.0, 0.5, 2.0, np.nan, 1.0],
+    })
+    f = pd.DataFrame({"total_assets": [10.0] * n, "firm_id": list("abcde"),
+                      "fiscal_year": [2020] * n})
+    spec = ModelSpec(drivers=("tangibility", "rd_intensity", "log_revenue", "dividend_payer",
+                              "size"))
+    raw, drivers, _ = raw_drivers(data, f, spec, n)
+    np.testing.assert_array_equal(
+        raw["log_revenue"], [np.nan, np.log(0.5), 0.0, np.log(2.0), np.nan])
+    np.testing.assert_array_equal(raw["dividend_payer"], [0.0, 1.0, 1.0, np.nan, 1.0])
+    assert raw["dividend_payer"].dtype == np.float64
+    assert drivers == ["tangibility", "rd_intensity", "rd_missing", "log_revenue",
+                       "dividend_payer", "size"]
+    np.testing.assert_array_equal(raw["rd_missing"], [1.0, 0.0, 0.0, 1.0, 0.0])
