@@ -423,3 +423,73 @@ def test_raw_drivers_revenue_dividends_and_rd_missing_by_hand() -> None:
     assert drivers == ["tangibility", "rd_intensity", "rd_missing", "log_revenue",
                        "dividend_payer", "size"]
     np.testing.assert_array_equal(raw["rd_missing"], [1.0, 0.0, 0.0, 1.0, 0.0])
+
+
+def _median_panel() -> pd.DataFrame:
+    """Two fiscal years: a, b and c share industry 1000, d is alone in 2000; assets 100 and
+    market equity 90 everywhere, so book = debt / 100 and market = debt / (debt + 90)."""
+    debt = {("a", 2020): 10.0, ("b", 2020): 20.0, ("c", 2020): 40.0, ("d", 2020): 30.0,
+            ("a", 2021): 20.0, ("b", 2021): 30.0, ("c", 2021): 50.0, ("d", 2021): 10.0}
+    paid = {("a", 2020): np.nan, ("b", 2020): 0.0}
+    rows = [{"firm_id": f, "fiscal_year": y, "industry": "2000" if f == "d" else "1000",
+             "total_assets": 100.0, "total_debt": d, "market_equity": 90.0, "ppe_net": 40.0,
+             "ebitda": 10.0, "book_equity": 50.0, "dividends_paid": paid.get((f, y), 5.0),
+             "source_row": i + 1, "flags": ""}
+            for i, ((f, y), d) in enumerate(debt.items())]
+    return pd.DataFrame(rows)
+
+
+# leave-one-out industry-year medians of _median_panel, by hand (rows a b c d of 2020, then
+# of 2021); d has no other firm of its industry, so it takes the median of the year's others
+_MED_BOOK = [0.3, 0.25, 0.15, 0.2, 0.4, 0.35, 0.25, 0.3]
+_MED_MARKET = [np.median([20 / 110, 40 / 130]), np.median([0.1, 40 / 130]),
+               np.median([0.1, 20 / 110]), 20 / 110,
+               np.median([0.25, 50 / 140]), np.median([20 / 110, 50 / 140]),
+               np.median([20 / 110, 0.25]), 0.25]
+_MEDIAN_SPEC = {"drivers": ("tangibility", "industry_median_leverage", "dividend_payer"),
+                "effects": "year", "winsorize": (0.0, 1.0), "min_industry_firms": 1}
+
+
+def test_industry_median_columns_raw_value_and_flags_by_hand() -> None:
+    """The industry median driver's columns (each measure's, the driver's and its raw value,
+    which the estimation sample and the saved model's scores read), and the flags of the
+    industry median and dividend blocks, exactly."""
+    f = build_features(_median_panel(), ModelSpec(**_MEDIAN_SPEC)).frame
+    np.testing.assert_allclose(f["industry_median_leverage_book"], _MED_BOOK, rtol=1e-12)
+    np.testing.assert_allclose(f["industry_median_leverage_market"], _MED_MARKET, rtol=1e-12)
+    np.testing.assert_allclose(f["industry_median_leverage"], _MED_BOOK, rtol=1e-12)
+    np.testing.assert_allclose(f["industry_median_leverage_raw"].to_numpy(dtype=float),
+                               _MED_BOOK, rtol=1e-12)
+    # a's 2020 dividends are blank: not a payer, flagged; b's are 0: not a payer, unflagged
+    np.testing.assert_array_equal(f["dividend_payer"], [0.0, 0.0, 1, 1, 1, 1, 1, 1])
+    assert _tokens(f["flags"]) == [{"dividends_missing"}, set(), set(),
+                                   {"industry_median_imputed"}, set(), set(), set(),
+                                   {"industry_median_imputed"}]
+
+
+def test_lagged_industry_medians_are_the_previous_years_for_every_measure() -> None:
+    """With lag_drivers, each measure's industry median column (the market one is the
+    market model's driver) and the raw value take the firm's previous fiscal year."""
+    f = build_features(_median_panel(), ModelSpec(lag_drivers=True, **_MEDIAN_SPEC)).frame
+    gap = [np.nan] * 4
+    for col, prior in (("industry_median_leverage_book", _MED_BOOK),
+                       ("industry_median_leverage_market", _MED_MARKET),
+                       ("industry_median_leverage", _MED_BOOK),
+                       ("industry_median_leverage_raw", _MED_BOOK)):
+        np.testing.assert_allclose(f[col].to_numpy(dtype=float), gap + prior[:4], rtol=1e-12,
+                                   err_msg=col)
+
+
+def test_drivers_whose_columns_are_absent_are_left_out_with_a_note() -> None:
+    """No revenue, dividends_paid or input driver column at all (a frame given to
+    build_features or SavedModel.score need not have them): a note each, no error."""
+    p = _median_panel().drop(columns=["dividends_paid"])
+    feats = build_features(p, ModelSpec(drivers=("tangibility", "log_revenue",
+                                                 "dividend_payer"),
+                                        input_drivers=("order_backlog",),
+                                        winsorize=(0.0, 1.0)))
+    assert feats.drivers == ("tangibility",)
+    assert feats.notes == (
+        "driver log_revenue left out of the model: no row has revenue above zero.",
+        "driver dividend_payer left out of the model: no row has dividends_paid.",
+        "driver order_backlog left out of the model: no data.")
