@@ -383,6 +383,12 @@ def _check_products(design: Design, Z: np.ndarray, pen: np.ndarray, rng, cluster
     np.testing.assert_allclose(design.rmatvec(v), Z.T @ v, rtol=0, atol=1e-9)
     theta = rng.normal(size=Z.shape[1])
     np.testing.assert_allclose(design.matvec(theta), Z @ theta, rtol=0, atol=1e-12)
+    y = v + Z @ theta
+    np.testing.assert_allclose(design.residual_gradient(theta, y), Z.T @ (y - Z @ theta),
+                               rtol=0, atol=1e-9)
+    # the one-pass form adds the same numbers in the same order as the two products
+    np.testing.assert_array_equal(design.residual_gradient(theta, y),
+                                  design.rmatvec(y - design.matvec(theta)))
     R = rng.normal(size=(3, Z.shape[1]))
     e = rng.normal(size=n)
     U = (Z @ R.T) * e[:, None]
@@ -500,3 +506,22 @@ def test_the_flat_bound_is_inclusive(monkeypatch) -> None:
     # spread sqrt(((0 - 1)^2 + (2 - 1)^2) / 2) = 1, exactly 0.5 of the largest value 2
     monkeypatch.setattr(design_module, "FLAT_TOL", 0.5)
     np.testing.assert_array_equal(Design(np.array([[0.0], [2.0]]), []).flat(), [0])
+
+
+def test_drivers_centred_in_blocks_keep_their_means_extremes_and_the_finite_check(
+        monkeypatch) -> None:
+    # three rows a block: the sums, extremes and the check run across every block
+    monkeypatch.setattr(design_module, "BLOCK", 3)
+    rng = np.random.default_rng(21)
+    X = rng.normal(size=(40, 3)) * [1.0, 50.0, 1e-3] + [2.0, -7.0, 0.0]
+    X[17, 1] = -400.0  # the largest absolute value, negative, in a middle block
+    design = Design(X, [np.arange(40) % 4])
+    np.testing.assert_allclose(design.center, X.mean(axis=0), rtol=1e-14, atol=0)
+    np.testing.assert_array_equal(design.magnitude, np.abs(X).max(axis=0))
+    np.testing.assert_allclose(design.XT, (X - X.mean(axis=0)).T, rtol=0, atol=1e-12)
+    assert design.XT.flags.c_contiguous and design.XT.shape == (3, 40)
+    for bad in (np.nan, np.inf, -np.inf):
+        Y = X.copy()
+        Y[38, 2] = bad  # in the last block
+        with pytest.raises(ModelError, match="finite"):
+            Design(Y, [np.arange(40) % 4])

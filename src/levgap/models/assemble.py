@@ -66,7 +66,7 @@ def refine(design: Design, factor: tuple, d: np.ndarray, theta: np.ndarray, y: n
            steps: int = 2) -> np.ndarray:
     """Least-squares iterative refinement with residuals computed from the data."""
     for _ in range(steps):
-        g = design.rmatvec(y - design.matvec(theta)) - design.penalty * theta
+        g = design.residual_gradient(theta, y) - design.penalty * theta
         theta = theta + cho_apply(factor, d, g)
     return theta
 

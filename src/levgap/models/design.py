@@ -147,6 +147,37 @@ def _cells(n: int, local: Sequence[np.ndarray], sizes: Sequence[int]
     return cell, out[::-1], counts[present]
 
 
+def _row_blocks(length: int, size: int) -> Iterator[slice]:
+    for start in range(0, length, size):
+        yield slice(start, min(length, start + size))
+
+
+def _centred_columns(X: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The drivers centred, one contiguous row per driver (a copy), their means and their
+    largest absolute values.
+
+    Two passes over the rows in blocks: the first transposes a block and takes its sums and
+    extremes while it is in cache, the second centres it.
+    """
+    n, k = X.shape
+    XT = np.empty((k, n))
+    total, high, low = np.zeros(k), np.zeros(k), np.zeros(k)
+    if n:
+        high[:], low[:] = -np.inf, np.inf
+    for b in _row_blocks(n, BLOCK):
+        xb = XT[:, b]
+        xb[...] = X[b].T
+        total += xb.sum(axis=1)
+        np.maximum(high, xb.max(axis=1), out=high)  # NaN carries through both
+        np.minimum(low, xb.min(axis=1), out=low)
+    if not (np.isfinite(high).all() and np.isfinite(low).all()):
+        raise ModelError("the model's inputs must be finite; got NaN or infinite values.")
+    center = total / n if n else total
+    for b in _row_blocks(n, BLOCK):
+        XT[:, b] -= center[:, None]
+    return XT, center, np.maximum(high, -low)
+
+
 def _count(out: np.ndarray, U: np.ndarray, codes: np.ndarray, ordered: bool) -> None:
     """Add each row of ``U`` (m x rows) into ``out`` (m x G) at the rows' cluster codes."""
     lo, g = 0, out.shape[1]
@@ -177,14 +208,7 @@ class Design:
         X = np.asarray(X, dtype=float)
         n, k = X.shape
         self.n, self.k = n, k
-        # centred drivers, one contiguous row per driver
-        XT = np.array(X.T, order="C")  # a copy: centred in place below
-        self.center = XT.mean(axis=1) if n else np.zeros(k)
-        high, low = (XT.max(axis=1), XT.min(axis=1)) if n else (np.zeros(k), np.zeros(k))
-        if not (np.isfinite(high).all() and np.isfinite(low).all()):  # NaN shows here too
-            raise ModelError("the model's inputs must be finite; got NaN or infinite values.")
-        self.magnitude = np.maximum(high, -low)
-        XT -= self.center[:, None]
+        XT, self.center, self.magnitude = _centred_columns(X)
         self.XT = XT
         codes = [np.asarray(c) for c in effects]
         for c in codes:
@@ -193,7 +217,7 @@ class Design:
         self.pooling = pooling
         dense = np.zeros(n, dtype=bool)
         dev_codes = np.empty(0, dtype=np.int64)
-        dev_local = np.full(n, -1, dtype=np.intp)
+        dev_local = np.broadcast_to(np.intp(-1), (n,))  # no row has a deviation (no memory)
         own_codes = list(codes)
         if pooling is not None and codes:
             level_small = np.zeros(max(len(pooling.small), int(codes[0].max()) + 1 if n else 0),
@@ -305,9 +329,7 @@ class Design:
         return np.hstack(blocks)
 
     def _blocks(self, length: int, size: int | None = None) -> Iterator[slice]:
-        size = size or self._block
-        for start in range(0, length, size):
-            yield slice(start, min(length, start + size))
+        return _row_blocks(length, size or self._block)
 
     def _own(self, v: np.ndarray) -> np.ndarray:
         return v[self._rows] if self._rows is not None else v
@@ -403,12 +425,35 @@ class Design:
 
     def rmatvec(self, v: np.ndarray) -> np.ndarray:
         """``Z' v``."""
-        vs = self._own(v)
-        out = self._gradient(np.bincount(self._cell, weights=vs, minlength=self.n_cells),
-                             self._XT @ vs)
+        vs, C = self._own(v), self.n_cells
+        sv, xv = np.zeros(C), np.zeros(self.k)
+        for b in self._blocks(len(vs)):
+            vb = vs[b]
+            xv += self._XT[:, b] @ vb
+            sv += np.bincount(self._cell[b], weights=vb, minlength=C)
+        out = self._gradient(sv, xv)
         if self.Zd is not None:
             out += self.Zd.T @ v[self.dense]
         return out
+
+    def residual_gradient(self, theta: np.ndarray, y: np.ndarray) -> np.ndarray:
+        """``Z'(y - Z theta)`` in one pass over the rows: each block's residuals are formed
+        and summed while in cache, never kept (equal to ``rmatvec(y - matvec(theta))``)."""
+        if self._rows is not None:
+            return self.rmatvec(y - self.matvec(theta))
+        XT, cell, C = self._XT, self._cell, self.n_cells
+        beta, table = theta[1 : self.k + 1], self._cell_table(theta)
+        sv, xv = np.zeros(C), np.zeros(self.k)
+        buffer = np.empty(min(self._block, self.n))
+        for b in self._blocks(self.n):
+            r = buffer[: b.stop - b.start]
+            np.dot(beta, XT[:, b], out=r)
+            r += theta[0]
+            r += table[cell[b]]
+            np.subtract(y[b], r, out=r)
+            xv += XT[:, b] @ r
+            sv += np.bincount(cell[b], weights=r, minlength=C)
+        return self._gradient(sv, xv)
 
     def _cell_table(self, theta: np.ndarray) -> np.ndarray:
         """Sum of the factors' effects in each cell (``theta`` rows: parameters)."""
@@ -423,9 +468,13 @@ class Design:
 
     def matvec(self, theta: np.ndarray) -> np.ndarray:
         """``Z theta`` (the linear predictor of every row)."""
-        own = theta[1 : self.k + 1] @ self._XT
-        own += theta[0]
-        own += self._cell_table(theta)[self._cell]
+        beta, table = theta[1 : self.k + 1], self._cell_table(theta)
+        own = np.empty(self._XT.shape[1])
+        for b in self._blocks(len(own)):
+            ob = own[b]
+            np.dot(beta, self._XT[:, b], out=ob)
+            ob += theta[0]
+            ob += table[self._cell[b]]
         if self._rows is None:
             return own
         eta = np.empty(self.n)
