@@ -356,9 +356,7 @@ class Design:
             for j in range(k):
                 sx[j] += np.bincount(cb, weights=V[j], minlength=C)
             if v is not None:
-                vb = v[b]
-                xv += xb @ vb
-                sv += np.bincount(cb, weights=vb, minlength=C)
+                self._add_sums(b, v[b], sv, xv)
         return sw, sx, xx, sv, xv
 
     def _assemble(self, sw: np.ndarray, sx: np.ndarray, xx: np.ndarray) -> np.ndarray:
@@ -425,12 +423,10 @@ class Design:
 
     def rmatvec(self, v: np.ndarray) -> np.ndarray:
         """``Z' v``."""
-        vs, C = self._own(v), self.n_cells
-        sv, xv = np.zeros(C), np.zeros(self.k)
+        vs = self._own(v)
+        sv, xv = np.zeros(self.n_cells), np.zeros(self.k)
         for b in self._blocks(len(vs)):
-            vb = vs[b]
-            xv += self._XT[:, b] @ vb
-            sv += np.bincount(self._cell[b], weights=vb, minlength=C)
+            self._add_sums(b, vs[b], sv, xv)
         out = self._gradient(sv, xv)
         if self.Zd is not None:
             out += self.Zd.T @ v[self.dense]
@@ -441,19 +437,29 @@ class Design:
         and summed while in cache, never kept (equal to ``rmatvec(y - matvec(theta))``)."""
         if self._rows is not None:
             return self.rmatvec(y - self.matvec(theta))
-        XT, cell, C = self._XT, self._cell, self.n_cells
-        beta, table = theta[1 : self.k + 1], self._cell_table(theta)
-        sv, xv = np.zeros(C), np.zeros(self.k)
+        table = self._cell_table(theta)
+        sv, xv = np.zeros(self.n_cells), np.zeros(self.k)
         buffer = np.empty(min(self._block, self.n))
         for b in self._blocks(self.n):
             r = buffer[: b.stop - b.start]
-            np.dot(beta, XT[:, b], out=r)
-            r += theta[0]
-            r += table[cell[b]]
+            self._predict(theta, table, b, r)
             np.subtract(y[b], r, out=r)
-            xv += XT[:, b] @ r
-            sv += np.bincount(cell[b], weights=r, minlength=C)
+            self._add_sums(b, r, sv, xv)
         return self._gradient(sv, xv)
+
+    def _predict(self, theta: np.ndarray, table: np.ndarray, b: slice, out: np.ndarray
+                 ) -> None:
+        """The linear predictor of the own rows of block ``b``, into ``out`` (``table``: the
+        effects of each cell, from ``_cell_table``)."""
+        np.dot(theta[1 : self.k + 1], self._XT[:, b], out=out)
+        out += theta[0]
+        out += table[self._cell[b]]
+
+    def _add_sums(self, b: slice, v: np.ndarray, sv: np.ndarray, xv: np.ndarray) -> None:
+        """Add the cell sums and the drivers' products of ``v`` (the own rows of block
+        ``b``) into ``sv`` and ``xv``."""
+        xv += self._XT[:, b] @ v
+        sv += np.bincount(self._cell[b], weights=v, minlength=len(sv))
 
     def _cell_table(self, theta: np.ndarray) -> np.ndarray:
         """Sum of the factors' effects in each cell (``theta`` rows: parameters)."""
@@ -468,13 +474,10 @@ class Design:
 
     def matvec(self, theta: np.ndarray) -> np.ndarray:
         """``Z theta`` (the linear predictor of every row)."""
-        beta, table = theta[1 : self.k + 1], self._cell_table(theta)
+        table = self._cell_table(theta)
         own = np.empty(self._XT.shape[1])
         for b in self._blocks(len(own)):
-            ob = own[b]
-            np.dot(beta, self._XT[:, b], out=ob)
-            ob += theta[0]
-            ob += table[self._cell[b]]
+            self._predict(theta, table, b, own[b])
         if self._rows is None:
             return own
         eta = np.empty(self.n)
