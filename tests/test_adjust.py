@@ -12,7 +12,7 @@ from typer.testing import CliRunner
 from levgap.adjustment import speed_of_adjustment
 from levgap.cli import app
 from levgap.errors import ModelError
-from levgap.models.adjust import ESTIMATORS, expected_paths, half_life, prepare
+from levgap.models.adjust import BIAS, ESTIMATORS, expected_paths, half_life, prepare
 
 
 def _simulate(speed: float, seed: int, firms: int = 500, years: int = 12
@@ -146,3 +146,218 @@ def test_cli_recovers_a_planted_speed_from_a_panel(tmp_path, speed: float, seed:
     first = paths[paths["years_ahead"] == 1]
     np.testing.assert_allclose(first["gap"], (1 - ld["speed"]) * paths.loc[
         paths["years_ahead"] == 0, "gap"].to_numpy(), atol=1e-12)
+
+
+# -- mutation survivors
+
+
+def _hand_panel() -> tuple[np.ndarray, ...]:
+    """Six firms, 2000-2009, unbalanced: b lacks 2004, c starts in 2003, d has no target in
+    2003 and 2008, e no leverage in 2002; rows shuffled except firm a's 2000 first (it is
+    the previous year of another row)."""
+    rng = np.random.default_rng(20261202)
+    rows = []
+    for i, f in enumerate("abcdef"):
+        L = 0.2 + 0.05 * i
+        for y in range(2000, 2010):
+            tg = 0.25 + 0.15 * rng.uniform(-1, 1) + 0.02 * i
+            L = L + 0.3 * (tg - L) + 0.01 * i + rng.normal(0, 0.01) if y > 2000 else L
+            rows.append((f, y, L, tg))
+    frame = pd.DataFrame(rows, columns=["firm", "year", "lev", "tgt"])
+    frame = frame[~(((frame.firm == "b") & (frame.year == 2004))
+                    | ((frame.firm == "c") & (frame.year < 2003)))]
+    frame.loc[(frame.firm == "d") & frame.year.isin([2003, 2008]), "tgt"] = np.nan
+    frame.loc[(frame.firm == "e") & (frame.year == 2002), "lev"] = np.nan
+    order = np.concatenate([[0], 1 + rng.permutation(len(frame) - 1)])
+    frame = frame.iloc[order]
+    return (frame["firm"].to_numpy(), frame["year"].to_numpy(), frame["lev"].to_numpy(),
+            frame["tgt"].to_numpy())
+
+
+def _hand_rows(firm, year, lev, tgt, k: int) -> tuple[list, ...]:
+    """By dictionary look-up: (firm, dL, gap) of firm-years with the previous year and, for
+    ``k > 0``, (firm, y, r, z) of the k-year long difference (``z`` the gap at t - k)."""
+    L = {(f, y): v for f, y, v in zip(firm, year, lev, strict=True)}
+    T = {(f, y): v for f, y, v in zip(firm, year, tgt, strict=True)}
+
+    def d_and_gap(f, y):
+        prev = L.get((f, y - 1), np.nan)
+        return L.get((f, y), np.nan) - prev, T.get((f, y), np.nan) - prev
+
+    out = []
+    for f, y in sorted(L):
+        dl, gp = d_and_gap(f, y)
+        if k == 0 and np.isfinite(dl) and np.isfinite(gp):
+            out.append((f, dl, gp))
+        if k > 0:
+            dlk, gpk = d_and_gap(f, y - k)
+            if np.isfinite([dl, gp, dlk, gpk]).all():
+                out.append((f, dl - dlk, gp - gpk, gpk))
+    return tuple(zip(*out, strict=True))
+
+
+def _hand_iv(y, W, Z, firm, p: int) -> tuple[float, float, int]:
+    """Slope (column 1 of W, or 0 without a constant) and its firm-clustered standard error:
+    (Z'W)^-1 [sum over firms of Z_g'u_g u_g'Z_g] (W'Z)^-1 times G/(G-1) (N-1)/(N-p)."""
+    y, W, Z, firm = np.asarray(y), np.asarray(W), np.asarray(Z), np.asarray(firm)
+    A = np.linalg.inv(Z.T @ W)
+    theta = A @ (Z.T @ y)
+    u = y - W @ theta
+    firms = sorted(set(firm))
+    meat = sum(np.outer(Z[firm == f].T @ u[firm == f], Z[firm == f].T @ u[firm == f])
+               for f in firms)
+    n, G = len(y), len(firms)
+    V = A @ meat @ A.T * G / (G - 1) * (n - 1) / (n - p)
+    j = 1 if np.allclose(W[:, 0], 1) else 0
+    return float(theta[j]), float(np.sqrt(V[j, j])), G
+
+
+def _expected_fields(name: str, lam: float, se: float, G: int, n: int, k: int) -> dict:
+    import math
+
+    from scipy import stats
+
+    q = stats.t.ppf(0.975, G - 1)  # Student's t with G - 1 degrees of freedom
+    lo, hi = lam - q * se, lam + q * se
+    assert 0 < lo < lam < hi < 1, (name, lo, hi)  # every half-life finite and distinct
+
+    def hl(s):
+        return math.log(0.5) / math.log(1 - s)
+
+    return {"estimator": name, "speed": lam, "std_error": se, "df": G - 1, "ci_low": lo,
+            "ci_high": hi, "half_life": hl(lam), "half_life_low": hl(hi),
+            "half_life_high": hl(lo), "n_obs": n, "n_firms": G, "difference": k}
+
+
+def _assert_fields(est, want: dict) -> None:
+    from dataclasses import asdict
+
+    got = asdict(est)
+    for key, value in want.items():
+        if isinstance(value, float):
+            assert got[key] == pytest.approx(value, rel=1e-9, abs=1e-12), key
+        else:
+            assert got[key] == value and type(got[key]) is type(value), key
+
+
+def test_every_field_of_each_estimator_against_a_fit_by_hand() -> None:
+    """pooled (least squares on a constant and the gap), firm effects (explicit firm
+    dummies) and the long difference (instrumental variables, k = 4 by default and 2 when
+    asked) on an unbalanced panel, each against its formula computed independently."""
+    firm, year, lev, tgt = _hand_panel()
+    lags = prepare(firm, year, lev, tgt)
+    f, dl, gp = _hand_rows(firm, year, lev, tgt, 0)
+    n = len(dl)
+    ones = np.ones(n)
+    W = np.column_stack([ones, gp])
+    lam, se, G = _hand_iv(dl, W, W, f, 2)
+    pooled = ESTIMATORS["pooled"](lags)
+    _assert_fields(pooled, _expected_fields("pooled", lam, se, G, n, 0))
+    # firm effects: dummies for each firm, no constant; the firm effects are nested in the
+    # clusters, so the factor counts the slope and one constant (p = 2, within's "nested")
+    D = np.column_stack([gp] + [(np.asarray(f) == g).astype(float) for g in sorted(set(f))])
+    lam, se, G = _hand_iv(dl, D, D, f, 2)
+    fe = ESTIMATORS["firm-effects"](lags)
+    _assert_fields(fe, _expected_fields("firm-effects", lam, se, G, n, 0))
+    assert pooled.bias == BIAS["pooled"] and fe.bias == BIAS["firm-effects"]
+    for k, asked in ((4, None), (2, 2)):
+        f, y, r, z = _hand_rows(firm, year, lev, tgt, k)
+        ones = np.ones(len(y))
+        lam, se, G = _hand_iv(y, np.column_stack([ones, r]), np.column_stack([ones, z]), f, 2)
+        ld = ESTIMATORS["long-difference"](lags, asked)
+        _assert_fields(ld, _expected_fields("long-difference", lam, se, G, len(y), k))
+        assert ld.bias == BIAS["long-difference"]
+
+
+def _small(spec: dict[str, list[float]], start: int = 2000) -> tuple[np.ndarray, ...]:
+    """Firms' leverage from ``start`` on, each target 0.3 plus a wobble, in firm order."""
+    firm, year, lev = [], [], []
+    for f, values in spec.items():
+        firm += [f] * len(values)
+        year += list(range(start, start + len(values)))
+        lev += values
+    tgt = 0.3 + 0.1 * np.sin(np.arange(len(lev)) * 1.7)
+    return np.array(firm), np.array(year), np.array(lev), tgt
+
+
+def test_the_fewest_firm_years_and_firms_each_estimator_accepts() -> None:
+    # pooled: exactly three firm-years with the previous year, from two firms (df 1)
+    firm, year, lev, tgt = _small({"a": [0.2, 0.5, 0.1], "b": [0.4, 0.25]})
+    est = ESTIMATORS["pooled"](prepare(firm, year, lev, tgt))
+    f, dl, gp = _hand_rows(firm, year, lev, tgt, 0)
+    assert (est.n_obs, est.n_firms, est.df) == (3, 2, 1)
+    assert est.speed == pytest.approx(np.polyfit(gp, dl, 1)[0], rel=1e-9)
+    with pytest.raises(ModelError, match="got 2 firm-years with the previous year"):
+        ESTIMATORS["pooled"](prepare(*_small({"a": [0.2, 0.5], "b": [0.4, 0.25]})))
+    with pytest.raises(ModelError, match="at least two firms; got 1"):
+        ESTIMATORS["pooled"](prepare(*_small({"a": [0.2, 0.5, 0.1, 0.3]})))
+    # long difference over the shortest span (four years: k = 1), exactly three firm-years
+    firm, year, lev, tgt = _small({"a": [0.2, 0.5, 0.1, 0.35], "b": [0.4, 0.25, 0.45]})
+    ld = ESTIMATORS["long-difference"](prepare(firm, year, lev, tgt))
+    f, y, r, z = _hand_rows(firm, year, lev, tgt, 1)
+    assert (ld.n_obs, ld.n_firms, ld.df, ld.difference) == (3, 2, 1, 1)
+    ones = np.ones(3)
+    lam = np.linalg.solve(np.column_stack([ones, z]).T @ np.column_stack([ones, r]),
+                          np.column_stack([ones, z]).T @ np.array(y))[1]
+    assert ld.speed == pytest.approx(lam, rel=1e-9)
+    with pytest.raises(ModelError, match="needs firms observed at t, t-1, t-1 and t-2; got 2"):
+        ESTIMATORS["long-difference"](prepare(*_small({"a": [0.2, 0.5, 0.1, 0.35],
+                                                       "b": [0.4, 0.25]})))
+
+
+def test_difference_for_spans_and_wanted_years() -> None:
+    from levgap.models.adjust import difference_for
+
+    ten = np.arange(2000, 2010)
+    assert difference_for(ten) == 4 and difference_for(ten, 2) == 2
+    assert difference_for(ten, 9) == 7  # at most the span (10 years) - 3
+    assert difference_for(np.arange(2000, 2006)) == 3
+    assert difference_for(np.array([2003, 2000, 2001])) == 1  # spans four years
+    with pytest.raises(ModelError, match="spanning 3\\."):
+        difference_for(np.arange(2000, 2003))
+    with pytest.raises(ModelError, match="spanning 0\\."):
+        difference_for(np.array([], dtype=np.int64))
+
+
+def test_expected_paths_columns_default_horizon_and_latest_complete_year() -> None:
+    # a's latest year has no target and b's none leverage: each path starts a year earlier
+    lags = prepare(np.array(["a", "a", "b", "b"]), np.array([2020, 2021, 2020, 2021]),
+                   np.array([0.5, 0.4, 0.1, np.nan]), np.array([0.3, np.nan, 0.2, 0.6]))
+    p = expected_paths(lags, 0.5)
+    assert p.columns.tolist() == ["firm_id", "from_year", "fiscal_year", "years_ahead",
+                                  "leverage", "target", "expected_leverage", "gap"]
+    assert p["years_ahead"].tolist() == list(range(6)) * 2  # default horizon 5
+    assert (p["from_year"] == 2020).all()
+    assert p["fiscal_year"].tolist() == list(range(2020, 2026)) * 2
+    assert p["leverage"].tolist() == [0.5] * 6 + [0.1] * 6
+    assert p["target"].tolist() == [0.3] * 6 + [0.2] * 6
+    np.testing.assert_allclose(p["gap"], np.r_[0.2 * 0.5 ** np.arange(6),
+                                               -0.1 * 0.5 ** np.arange(6)])
+
+
+def test_firm_effects_refusal_names_the_gap_as_speed() -> None:
+    # each firm's target is its previous leverage plus a constant: the gap never varies
+    # within a firm, so the firm effects absorb it; the message names the driver "speed"
+    lev = {"a": [0.1, 0.3, 0.2, 0.4], "b": [0.5, 0.2, 0.3, 0.25], "c": [0.3, 0.35, 0.1, 0.2]}
+    firm, year, L, _ = _small(lev)
+    shift = {"a": 0.05, "b": -0.02, "c": 0.1}
+    tgt = np.array([np.nan if y == 2000 else L[i - 1] + shift[f]
+                    for i, (f, y) in enumerate(zip(firm, year, strict=True))])
+    with pytest.raises(ModelError, match="got speed constant within every firm"):
+        ESTIMATORS["firm-effects"](prepare(firm, year, L, tgt))
+
+
+def test_half_life_at_zero_and_of_a_list_with_a_missing_speed() -> None:
+    # no adjustment: infinite at both zeros, not -inf (ln 0.5 / log1p(+0) at -0.0)
+    assert half_life(0.0) == np.inf and half_life(-0.0) == np.inf
+    np.testing.assert_array_equal(half_life([0.5, None]), [1.0, np.nan])
+
+
+def test_prepare_reads_missing_values_and_years_given_as_text() -> None:
+    lags = prepare(["a", "a", "a"], ["2020", "2021", "2022"], [0.5, None, 0.3],
+                   [0.4, 0.2, None])
+    assert lags.year.tolist() == [2020, 2021, 2022]
+    np.testing.assert_array_equal(lags.leverage, [0.5, np.nan, 0.3])
+    np.testing.assert_array_equal(lags.target, [0.4, 0.2, np.nan])
+    np.testing.assert_array_equal(lags.shifted(lags.leverage, 2), [np.nan, np.nan, 0.5])
+    assert expected_paths(lags, 0.5, 1)["fiscal_year"].tolist() == [2020, 2021]
