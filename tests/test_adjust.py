@@ -253,6 +253,12 @@ def test_every_field_of_each_estimator_against_a_fit_by_hand() -> None:
     lam, se, G = _hand_iv(dl, W, W, f, 2)
     pooled = ESTIMATORS["pooled"](lags)
     _assert_fields(pooled, _expected_fields("pooled", lam, se, G, n, 0))
+    # the hand sandwich is statsmodels' clustered covariance (its default small-sample factor)
+    import statsmodels.api as sm
+
+    codes = pd.factorize(np.asarray(f))[0]
+    ref = sm.OLS(np.asarray(dl), W).fit(cov_type="cluster", cov_kwds={"groups": codes})
+    assert (lam, se) == pytest.approx((ref.params[1], ref.bse[1]), rel=1e-9)
     # firm effects: dummies for each firm, no constant; the firm effects are nested in the
     # clusters, so the factor counts the slope and one constant (p = 2, within's "nested")
     D = np.column_stack([gp] + [(np.asarray(f) == g).astype(float) for g in sorted(set(f))])
