@@ -485,3 +485,56 @@ def test_a_rows_own_industry_median_overrides_the_saved_one(median_model) -> Non
         np.testing.assert_array_equal(got, [0.5, saved[1], 0.25])
     assert (s["target"] != plain["target"]).sum() == 2 * len(model.measures)
 
+
+
+def test_a_seen_industry_keeps_its_own_effect_beside_codes_sharing_its_prefix(saved) -> None:
+    _, _, model = saved
+    fit = model.fit("book")
+    ind = model.record["industries"]
+    labels = list(ind["labels"])
+    labels[0] = "3712"  # the first level now shares "371" with 3711
+    other = levgap.models.saved.SavedModel(
+        {**model.record, "industries": {**ind, "labels": labels}})
+    one = other.industry_effect(fit, np.array(["3712"]), np.array([0]))[0]
+    assert one == fit.effect_of(0, np.array([0]))[0]
+    i = labels.index("3711")
+    w = fit.effect_weights[0][[0, i]]
+    assert one != fit.effects[0][[0, i]] @ w / w.sum()  # what borrowing would give
+
+
+def test_the_latest_saved_year_is_the_latest_as_a_number(saved) -> None:
+    # schema v1 puts no bounds on fiscal_year: 999 comes before 1000
+    panel, _, model = saved
+    rec = json.loads(json.dumps(model.record))
+    for measure in model.measures:
+        years = rec["measures"][measure]["peers"]["year"]
+        a, b = years["2016"], years["2023"]
+        assert a[0] != b[0]
+        rec["measures"][measure]["peers"]["year"] = {"999": a, "1000": b}
+    other = levgap.models.saved.SavedModel(rec)
+    s = other.score(panel.iloc[[0]].assign(industry="ZZZ", fiscal_year=2040))
+    for measure in model.measures:
+        want = rec["measures"][measure]["peers"]["year"]["1000"]
+        got = s[s["measure"] == measure].iloc[0]
+        assert got["peer_count"] == want[0] and got["peer_median"] == want[-1]
+
+
+def test_a_saved_model_naming_a_driver_scoring_cannot_build_is_a_clear_error(saved) -> None:
+    panel, _, model = saved
+    other = levgap.models.saved.SavedModel(
+        {**model.record, "drivers": [*model.drivers, "no_such_driver"]})
+    with pytest.raises(ModelError, match="got no no_such_driver"):
+        other.score(panel.head(2))
+
+
+def test_an_infinite_peer_profile_raises_no_warning(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.head(2)
+    prof = pd.DataFrame({d: [0.1, 0.1] for d in model.drivers})
+    prof.iloc[0, 0] = np.inf
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no RuntimeWarning may escape
+        s = model.score(rows, peer_profile=prof)
+    assert np.isfinite(s.loc[s.index % 2 == 1, "peer_target"]).all()
