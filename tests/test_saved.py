@@ -538,3 +538,15 @@ def test_an_infinite_peer_profile_raises_no_warning(saved) -> None:
         warnings.simplefilter("error")  # no RuntimeWarning may escape
         s = model.score(rows, peer_profile=prof)
     assert np.isfinite(s.loc[s.index % 2 == 1, "peer_target"]).all()
+
+
+def test_a_one_year_model_returns_rows_all_refused_blank(tmp_path) -> None:
+    panel = make_panel(3)
+    panel = panel[panel["fiscal_year"] == 2020]
+    analyze(panel, spec=ModelSpec(model="linear")).write(tmp_path, report=False)
+    model = levgap.load_model(tmp_path)
+    assert model.record["years"] == [2020]
+    rows = panel.head(2).assign(total_assets=-1.0, fiscal_year=[2020, 2031])
+    s = model.score(rows)
+    assert (s["flags"] == "not_scorable").all() and s["target"].isna().all()
+    assert list(s["fiscal_year"]) == [2020, 2031] * len(model.measures)
