@@ -303,3 +303,250 @@ def test_rows_to_score_must_be_a_schema_frame(saved) -> None:
     b = model.score(panel.head(2))
     np.testing.assert_allclose(a["target"], b["target"], rtol=0, atol=0)
     assert (a["industry"] == b["industry"]).all()
+
+
+# -- mutation survivors, part A
+
+
+@pytest.fixture(scope="module")
+def median_model(tmp_path_factory):
+    """A linear model with the industry median leverage driver (year effects only, as that
+    driver needs): scoring reads its saved medians."""
+    panel = make_panel(3)
+    spec = ModelSpec(model="linear", effects="year",
+                     drivers=("tangibility", "industry_median_leverage"))
+    out = tmp_path_factory.mktemp("median")
+    analyze(panel, spec=spec).write(out, report=False)
+    return panel, levgap.load_model(out)
+
+
+def _flags_joined(*parts: str) -> str:
+    return ";".join(p for p in parts if p)
+
+
+def test_not_in_model_flags_are_appended_exactly(saved) -> None:
+    panel, _, model = saved
+    firm = panel["firm_id"].iloc[0]
+    rows = panel[panel["firm_id"] == firm].sort_values("fiscal_year").reset_index(drop=True)
+    base = model.score(rows)
+    moved = model.score(rows.assign(industry="ZZZ"))
+    assert (base["flags"] == "").any() and (base["flags"] != "").any()  # both cases met
+    for before, after in zip(base["flags"], moved["flags"], strict=True):
+        assert after == _flags_joined(before, "industry_not_in_model")
+    later = rows.iloc[[-1]].assign(fiscal_year=2040, industry="ZZZ")
+    for flags in model.score(later)["flags"]:
+        assert flags.split(";")[-2:] == ["industry_not_in_model", "year_not_in_model"]
+        assert flags.split(";").count("year_not_in_model") == 1
+    known = model.score(rows.iloc[[-1]].assign(fiscal_year=2040))
+    assert all(f.split(";")[-1] == "year_not_in_model" for f in known["flags"])
+    assert not known["flags"].str.contains("industry_not_in_model").any()
+
+
+def test_peers_fall_back_to_the_year_then_the_latest_year(saved) -> None:
+    panel, _, model = saved
+    row = panel.iloc[[0]].assign(industry="ZZZ")
+    for measure in model.measures:
+        table = model.record["measures"][measure]["peers"]
+        latest = table["year"][str(max(int(t) for t in table["year"]))]
+        for year, want in ((2016, table["year"]["2016"]), (2040, latest)):
+            s = model.score(row.assign(fiscal_year=year))
+            s = s[s["measure"] == measure].iloc[0]
+            assert s["peer_count"] == want[0] and s["peer_median"] == want[-1]
+            assert [s[f"{d}_peer"] for d in model.drivers] == want[1:-1]
+        assert want != table["year"]["2016"]  # the two cases differ
+    s = model.score(panel.head(3))
+    assert s["peer_count"].dtype == np.int64 and s["fold"].dtype == np.int64
+    for col in ("peer_median", *(f"{d}_peer" for d in model.drivers)):
+        assert s[col].dtype == np.float64, col
+
+
+def test_a_given_peer_profile_of_whole_numbers_is_read_as_numbers(saved) -> None:
+    panel, _, model = saved
+    rows = panel.head(3)
+    ints = pd.DataFrame({d: [0, 1, 2] for d in model.drivers})
+    a = model.score(rows, peer_profile=ints)
+    b = model.score(rows, peer_profile=ints.astype(float))
+    for d in model.drivers:
+        assert a[f"{d}_peer"].dtype == np.float64
+        np.testing.assert_array_equal(a[f"{d}_contribution"], b[f"{d}_contribution"])
+    np.testing.assert_array_equal(a["peer_target"], b["peer_target"])
+
+
+def test_identity_link_contributions_are_the_exact_term_differences(saved) -> None:
+    # models.shapley: with the identity link the contributions are beta_j x_j - beta_j p_j,
+    # computed directly (the coalition average reduces to it, but rounds differently)
+    panel, _, model = saved
+    s = model.score(panel.head(300))
+    for measure in model.measures:
+        m = s[s["measure"] == measure]
+        beta = model.fit(measure).coef[1:]
+        total = np.zeros(len(m))
+        for j, d in enumerate(model.drivers):
+            c = m[f"{d}_contribution"].to_numpy()
+            total += c
+            if model.model == "linear":
+                want = m[d].to_numpy() * beta[j] - m[f"{d}_peer"].to_numpy() * beta[j]
+                np.testing.assert_array_equal(c, want)
+        np.testing.assert_allclose(total, m["target"] - m["peer_target"], atol=1e-12)
+
+
+def test_refused_rows_keep_their_identity_and_the_table_its_kinds(saved) -> None:
+    panel, _, model = saved
+    rows = panel.iloc[:4].copy()
+    rows.loc[rows.index[1], "total_assets"] = -5.0
+    s = model.score(rows)
+    assert list(s.index) == list(range(len(rows) * len(model.measures)))
+    good = model.score(rows.iloc[[0, 2, 3]])
+    assert list(s.columns) == list(good.columns)
+    for col, kind in (("fiscal_year", np.int64), ("fold", np.int64), ("target", np.float64)):
+        assert s[col].dtype == kind, col
+    bad = s[s["flags"] == "not_scorable"]
+    assert len(bad) == len(model.measures)
+    src = rows.iloc[1]
+    assert (bad["firm_id"] == src["firm_id"]).all() and (bad["industry"] == src["industry"]).all()
+    assert (bad["fiscal_year"] == src["fiscal_year"]).all() and (bad["fold"] == -1).all()
+    assert list(bad["measure"]) == list(model.measures)
+    firm = model.score(rows, fold="firm")
+    firm = firm[firm["flags"] == "not_scorable"]
+    assert list(firm["fold"]) == [model.fold_of(m, src["firm_id"]) for m in model.measures]
+
+
+def test_rows_without_a_fiscal_year_or_all_refused_are_blank(saved) -> None:
+    panel, _, model = saved
+    rows = panel.iloc[:3].astype({"fiscal_year": float})
+    rows.loc[rows.index[1], "fiscal_year"] = np.nan
+    s = model.score(rows)
+    bad = s[s["flags"] == "not_scorable"]
+    assert len(bad) == len(model.measures) and bad["fiscal_year"].isna().all()
+    assert set(bad["note"]) == {"fiscal_year must be a whole number"}
+    assert s.loc[s["flags"] != "not_scorable", "target"].notna().all()
+    every = panel.iloc[:2].assign(total_assets=-1.0)
+    s = model.score(every)
+    assert (s["flags"] == "not_scorable").all() and s["target"].isna().all()
+    assert list(s["fiscal_year"]) == list(every["fiscal_year"]) * len(model.measures)
+
+
+def test_industry_effects_of_seen_levels_and_the_prefix_rule(saved) -> None:
+    _, _, model = saved
+    fit = model.fit("book")
+    labels = model.record["industries"]["labels"]
+    alpha, w = fit.effects[0], fit.effect_weights[0]
+    seen = np.arange(len(labels))
+    got = model.industry_effect(fit, np.array(labels, dtype=object), seen)
+    np.testing.assert_array_equal(got, fit.effect_of(0, seen))
+
+    def mean_of(names):
+        idx = [labels.index(x) for x in names]
+        return alpha[idx] @ w[idx] / w[idx].sum()
+
+    # the longest shared leading part first: "739" shares "73" with 7372 only, "37" (shorter
+    # than the codes) and "3999" share only "3" (3312, 3711; 3716 is small)
+    for code, members in (("739", ["7372"]), ("37", ["3312", "3711"]),
+                          ("3999", ["3312", "3711"])):
+        one = model.industry_effect(fit, np.array([code]), np.array([-1]))[0]
+        assert one == pytest.approx(mean_of(members), abs=1e-14), code
+    # a small industry is never a member, whether or not its effect is set
+    ind = model.record["industries"]
+    small = list(ind["small"])
+    small[labels.index("3711")] = True
+    other = levgap.models.saved.SavedModel(
+        {**model.record, "industries": {**ind, "small": small}})
+    one = other.industry_effect(fit, np.array(["3799"]), np.array([-1]))[0]
+    assert one == pytest.approx(mean_of(["3312"]), abs=1e-14)
+
+
+def test_the_saved_industry_median_is_looked_up_by_industry_and_year(median_model) -> None:
+    panel, model = median_model
+    rows = pd.concat([panel.head(4), panel.head(1).assign(industry="ZZZ"),
+                      panel.head(1).assign(fiscal_year=2040)], ignore_index=True)
+    s = model.score(rows)
+    for measure in model.measures:
+        saved = model.record["measures"][measure]["industry_median"]
+        latest = saved["year"][max(saved["year"], key=int)]
+        want = [saved["industry_year"][f"{i}|{t}"] for i, t in
+                zip(rows["industry"][:4], rows["fiscal_year"][:4], strict=True)]
+        want += [saved["year"][str(rows["fiscal_year"][4])], latest]
+        m = s[s["measure"] == measure]
+        np.testing.assert_array_equal(m["industry_median_leverage"], want)
+        np.testing.assert_array_equal(m["industry_median_leverage_raw"], want)
+    book, market = (s.loc[s["measure"] == x, "industry_median_leverage"] for x in model.measures)
+    assert (book.to_numpy() != market.to_numpy()).all()  # each measure's own median
+
+
+def test_a_rows_own_industry_median_overrides_the_saved_one(median_model) -> None:
+    panel, model = median_model
+    rows = panel.head(3).copy()
+    plain = model.score(rows)
+    rows["industry_median_leverage"] = pd.array([0.5, None, 0.25], dtype="Float64")
+    s = model.score(rows)
+    for measure in model.measures:
+        got = s.loc[s["measure"] == measure, "industry_median_leverage"].to_numpy()
+        saved = plain.loc[plain["measure"] == measure, "industry_median_leverage"].to_numpy()
+        np.testing.assert_array_equal(got, [0.5, saved[1], 0.25])
+    assert (s["target"] != plain["target"]).sum() == 2 * len(model.measures)
+
+
+
+def test_a_seen_industry_keeps_its_own_effect_beside_codes_sharing_its_prefix(saved) -> None:
+    _, _, model = saved
+    fit = model.fit("book")
+    ind = model.record["industries"]
+    labels = list(ind["labels"])
+    labels[0] = "3712"  # the first level now shares "371" with 3711
+    other = levgap.models.saved.SavedModel(
+        {**model.record, "industries": {**ind, "labels": labels}})
+    one = other.industry_effect(fit, np.array(["3712"]), np.array([0]))[0]
+    assert one == fit.effect_of(0, np.array([0]))[0]
+    i = labels.index("3711")
+    w = fit.effect_weights[0][[0, i]]
+    assert one != fit.effects[0][[0, i]] @ w / w.sum()  # what borrowing would give
+
+
+def test_the_latest_saved_year_is_the_latest_as_a_number(saved) -> None:
+    # schema v1 puts no bounds on fiscal_year: 999 comes before 1000
+    panel, _, model = saved
+    rec = json.loads(json.dumps(model.record))
+    for measure in model.measures:
+        years = rec["measures"][measure]["peers"]["year"]
+        a, b = years["2016"], years["2023"]
+        assert a[0] != b[0]
+        rec["measures"][measure]["peers"]["year"] = {"999": a, "1000": b}
+    other = levgap.models.saved.SavedModel(rec)
+    s = other.score(panel.iloc[[0]].assign(industry="ZZZ", fiscal_year=2040))
+    for measure in model.measures:
+        want = rec["measures"][measure]["peers"]["year"]["1000"]
+        got = s[s["measure"] == measure].iloc[0]
+        assert got["peer_count"] == want[0] and got["peer_median"] == want[-1]
+
+
+def test_a_saved_model_naming_a_driver_scoring_cannot_build_is_a_clear_error(saved) -> None:
+    panel, _, model = saved
+    other = levgap.models.saved.SavedModel(
+        {**model.record, "drivers": [*model.drivers, "no_such_driver"]})
+    with pytest.raises(ModelError, match="got no no_such_driver"):
+        other.score(panel.head(2))
+
+
+def test_an_infinite_peer_profile_raises_no_warning(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.head(2)
+    prof = pd.DataFrame({d: [0.1, 0.1] for d in model.drivers})
+    prof.iloc[0, 0] = np.inf
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no RuntimeWarning may escape
+        s = model.score(rows, peer_profile=prof)
+    assert np.isfinite(s.loc[s.index % 2 == 1, "peer_target"]).all()
+
+
+def test_a_one_year_model_returns_rows_all_refused_blank(tmp_path) -> None:
+    panel = make_panel(3)
+    panel = panel[panel["fiscal_year"] == 2020]
+    analyze(panel, spec=ModelSpec(model="linear")).write(tmp_path, report=False)
+    model = levgap.load_model(tmp_path)
+    assert model.record["years"] == [2020]
+    rows = panel.head(2).assign(total_assets=-1.0, fiscal_year=[2020, 2031])
+    s = model.score(rows)
+    assert (s["flags"] == "not_scorable").all() and s["target"].isna().all()
+    assert list(s["fiscal_year"]) == [2020, 2031] * len(model.measures)
