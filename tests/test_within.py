@@ -135,3 +135,78 @@ def test_refuses_a_driver_constant_within_firms() -> None:
         fit_within(d["y"], X, firm=d["firm"], year=d["year"])
     with pytest.raises(ModelError, match="df_convention must be one of"):
         fit_within(d["y"], d["X"], firm=d["firm"], df_convention="stata")
+
+
+# -- mutation survivors
+
+
+def _small_panel(seed: int) -> dict[str, np.ndarray]:
+    # 6 firms, unbalanced (6, 5, 4, 6, 3 rows and a singleton), two years: the year block
+    # has one unknown, so a branch taken only from three years on would show here.
+    firm = np.array([0] * 6 + [1] * 5 + [2] * 4 + [3] * 6 + [4] * 3 + [5])
+    year = np.array([0, 1, 0, 1, 1, 0, 0, 1, 1, 0, 1, 0, 0, 1, 1,
+                     1, 0, 1, 0, 1, 1, 1, 0, 0, 1])
+    rng = np.random.default_rng(seed)
+    X = rng.normal(size=(len(firm), 2)) + 0.3 * firm[:, None]
+    y = X @ np.array([0.5, -0.3]) + 0.2 * firm + 0.4 * year + rng.normal(size=len(firm))
+    return {"y": y, "X": X, "firm": firm, "year": year}
+
+
+@pytest.mark.parametrize(("seed", "negative"), [(2, 0), (1, 1)])
+def test_every_output_on_a_small_two_year_panel_equals_explicit_dummies(
+        seed: int, negative: int) -> None:
+    d = _small_panel(seed)
+    y, X, firm, year = d["y"], d["X"], d["firm"], d["year"]
+    n, k, F = len(y), 2, 6
+    Z = _dummies(firm, year, X)
+    ols = sm.OLS(y, Z)
+    kw = {"firm": firm, "year": year, "names": ["a", "b"], "df_convention": "dummies"}
+    # independent R²s: statsmodels' residuals over the total and the within-firm sums
+    rss = float(ols.fit().resid @ ols.fit().resid)
+    within = y - pd.Series(y).groupby(firm).transform("mean").to_numpy()
+    r2, r2_within = 1 - rss / ((y - y.mean()) ** 2).sum(), 1 - rss / (within @ within)
+    p = k + 1 + F
+
+    classical = fit_within(y, X, **kw)
+    np.testing.assert_allclose(classical.coef, ols.fit().params[1:3], rtol=0, atol=1e-10)
+    np.testing.assert_allclose(classical.std_error, ols.fit().bse[1:3], rtol=0, atol=1e-10)
+    assert (classical.estimator, classical.names, classical.n_obs, classical.n_firms) == (
+        "within", ("a", "b"), n, F)
+    np.testing.assert_array_equal(classical.df, [n - p, n - p])  # N - P, every dummy counted
+    assert classical.r2 == pytest.approx(r2, abs=1e-12)
+    info = dict(classical.info)
+    assert info.pop("r2_within") == pytest.approx(r2_within, abs=1e-12)
+    assert info == {"df_convention": "dummies", "firms": F, "years": 2,
+                    "parameters_with_dummies": p, "n_clusters": [], "cov_type": "classical",
+                    "singleton_firms": 1}
+    assert classical.notes == ()
+
+    one = fit_within(y, X, clusters=(firm,), **kw)
+    ref = ols.fit(cov_type="cluster", cov_kwds={"groups": firm})
+    np.testing.assert_allclose(one.std_error, ref.bse[1:3], rtol=0, atol=1e-10)
+    np.testing.assert_array_equal(one.df, [F - 1, F - 1])
+    assert (one.info["cov_type"], one.info["n_clusters"], one.notes) == ("cluster", [F], ())
+
+    # two-way, firm and year: two year clusters, so G - 1 = 1 degree of freedom
+    two = fit_within(y, X, clusters=(firm, year), **kw)
+    block = ols.fit(cov_type="cluster", cov_kwds={
+        "groups": np.column_stack([firm, year])}).cov_params()[1:3, 1:3]
+    vals, vecs = np.linalg.eigh(block)
+    assert int((vals < 0).sum()) == negative
+    repaired = (vecs * np.clip(vals, 0, None)) @ vecs.T  # negative eigenvalues set to zero
+    np.testing.assert_allclose(two.std_error, np.sqrt(np.diag(repaired)), rtol=0, atol=1e-10)
+    np.testing.assert_array_equal(two.df, [1.0, 1.0])
+    assert (two.info["cov_type"], two.info["n_clusters"]) == ("cluster2", [F, 2])
+    assert len(two.notes) == negative
+    assert all("1 negative eigenvalue(s); they were set to zero" in s for s in two.notes)
+
+    # the default convention counts no firm effect in firm clusters: P = k + (T - 1) + 1
+    nested = fit_within(y, X, firm=firm, year=year, clusters=(firm,))
+    np.testing.assert_allclose(nested.std_error,
+                               one.std_error * np.sqrt((n - p) / (n - (k + 1 + 1))),
+                               rtol=1e-12)
+    assert nested.info["df_convention"] == "nested" and nested.names == ("x0", "x1")
+    # R² in any units of y: both sums of squares below 1 here
+    small = fit_within(1e-3 * y, X, **kw)
+    assert small.r2 == pytest.approx(r2, abs=1e-12)
+    assert small.info["r2_within"] == pytest.approx(r2_within, abs=1e-12)
