@@ -550,3 +550,191 @@ def test_a_one_year_model_returns_rows_all_refused_blank(tmp_path) -> None:
     s = model.score(rows)
     assert (s["flags"] == "not_scorable").all() and s["target"].isna().all()
     assert list(s["fiscal_year"]) == [2020, 2031] * len(model.measures)
+
+
+# -- mutation survivors, part B
+# mutmut credits what a module-scoped fixture runs to the first test that builds it, so the
+# tests of the writer (measure_record, _peer_table, saved_record) run `analyze` in their own
+# body: a linear fit of the small demo panel (about 0.3 s).
+
+TOP_KEYS_B = {"format", "format_version", "levgap_version", "schema_version", "run_id", "model",
+              "spec", "drivers", "industries", "years", "transforms", "measures", "peer_lists"}
+MEASURE_KEYS_B = {"full", "folds", "fold_of_firm", "band", "components", "contributions",
+                  "pooled", "peers"}
+
+
+def _b_peer_cells(result, measure: str, model) -> dict[str, pd.DataFrame]:
+    """Median driver profile and leverage of the measure's rows by industry-year and year."""
+    t = result.targets[result.targets["measure"] == measure]
+    d = result.drivers[result.drivers["measure"] == measure].pivot(
+        index=["firm_id", "fiscal_year"], columns="driver", values="firm_value")
+    g = t.merge(d.reset_index(), on=["firm_id", "fiscal_year"])
+    out = {}
+    for name, by in (("industry_year", ["industry", "fiscal_year"]), ("year", ["fiscal_year"])):
+        grp = g.groupby(by, sort=True)
+        med = grp[[*model.drivers, "actual"]].median()
+        med.insert(0, "count", grp.size())
+        med.index = ["|".join(str(v) for v in (k if isinstance(k, tuple) else (k,)))
+                     for k in med.index]
+        out[name] = med
+    return out
+
+
+def test_b_model_json_holds_every_field_the_run_computed(tmp_path) -> None:
+    from levgap.groups import WHOLE_SAMPLE
+    from levgap.models.record import FORMAT_VERSION
+    from levgap.schema import SCHEMA_VERSION
+
+    # rows shuffled: the saved tables follow (industry, year), not the panel's row order
+    panel = make_panel(3).sample(frac=1.0, random_state=5).reset_index(drop=True)
+    result = analyze(panel, spec=ModelSpec(model="linear"))
+    result.write(tmp_path, report=False)
+    model = levgap.load_model(tmp_path)
+    mem, rec = result.saved_model, model.record
+    # the record in memory is plain JSON data: model.json holds it, plus the writer's run id
+    assert json.loads(json.dumps(mem, allow_nan=False)) == mem
+    assert mem["run_id"] is None and rec == {**mem, "run_id": rec["run_id"]}
+    assert rec["run_id"] == json.loads((tmp_path / "run.json").read_text())["run_id"]
+    assert set(rec) == TOP_KEYS_B
+    assert rec["format_version"] == FORMAT_VERSION == 1
+    assert rec["levgap_version"] == levgap.__version__
+    assert rec["schema_version"] == SCHEMA_VERSION
+    assert model.model == "linear" and model.spec == ModelSpec(model="linear")
+    for measure in ("book", "market"):
+        m = rec["measures"][measure]
+        t = result.targets[result.targets["measure"] == measure]
+        assert set(m) == MEASURE_KEYS_B and m["contributions"] == "shapley"
+        assert m["fold_of_firm"] == dict(zip(t["firm_id"], t["fold"].tolist(), strict=True))
+        assert [set(f) for f in m["folds"]] == [{"fold", "fit"}] * 5
+        assert sorted(f["fold"] for f in m["folds"]) == sorted(set(t["fold"].tolist()))
+        c = m["components"]
+        assert set(c) == {"tau2", "firm2", "resid2", "info"} and c["tau2"] > 0
+        # the small industries: their rows and firms here, the parent, and the empirical-Bayes
+        # weight tau2 / (tau2 + firm2 / firms + resid2 / rows) of the saved components
+        assert [(p["industry"], p["parent"]) for p in m["pooled"]] == [
+            ("3716", "371"), ("9990", WHOLE_SAMPLE)]
+        for p in m["pooled"]:
+            own = t[t["industry"] == p["industry"]]
+            n, f = len(own), own["firm_id"].nunique()
+            assert (p["rows"], p["firms"]) == (n, f) and n > 0
+            assert p["weight"] == pytest.approx(
+                c["tau2"] / (c["tau2"] + c["firm2"] / f + c["resid2"] / n), rel=1e-12)
+        peers = m["peers"]
+        assert peers["columns"] == [*model.drivers, "leverage"]
+        for name, want in _b_peer_cells(result, measure, model).items():
+            assert list(peers[name]) == list(want.index)  # every cell, in sorted order
+            got = np.array([peers[name][k] for k in want.index], dtype=float)
+            np.testing.assert_allclose(got, want.to_numpy(dtype=float), rtol=1e-12)
+    # each fold's saved fit reproduces the cross-fitted targets of its firms
+    scored = model.score(panel, fold="firm")
+    both = result.targets.merge(scored[[*KEY, "target", "fold"]], on=KEY,
+                                suffixes=("", "_scored"))
+    assert len(both) == len(result.targets)
+    np.testing.assert_allclose(both["target_scored"], both["target"], rtol=0, atol=1e-12)
+    assert (both["fold_scored"] == both["fold"]).all()
+    # an industry without a saved cell takes its year's saved peers
+    row = panel.iloc[[0]].assign(industry="0999")
+    s = model.score(row).set_index("measure")
+    for measure in ("book", "market"):
+        cell = rec["measures"][measure]["peers"]["year"][str(int(row["fiscal_year"].iloc[0]))]
+        assert s.loc[measure, "peer_count"] == cell[0]
+        assert s.loc[measure, "peer_median"] == cell[-1]
+
+
+def test_b_parent_pooling_saves_no_weights_and_no_components() -> None:
+    from levgap.models.saved import SavedModel
+
+    panel = make_panel(3)
+    result = analyze(panel, spec=ModelSpec(model="linear", pooling="parent"))
+    json.dumps(result.saved_model, allow_nan=False)  # what the writer does: no NaN
+    for measure in ("book", "market"):
+        m = result.saved_model["measures"][measure]
+        assert m["components"] is None
+        t = result.targets[result.targets["measure"] == measure]
+        assert [(p["industry"], p["rows"], p["weight"]) for p in m["pooled"]] == [
+            (i, int((t["industry"] == i).sum()), None) for i in ("3716", "9990")]
+    scored = SavedModel(result.saved_model).score(panel)
+    both = result.targets.merge(scored[[*KEY, "target"]], on=KEY, suffixes=("", "_scored"))
+    np.testing.assert_allclose(both["target_scored"], both["target_full"], rtol=0, atol=1e-12)
+
+
+def test_b_the_industry_median_driver_saves_its_medians() -> None:
+    from levgap.models.saved import SavedModel
+
+    panel = make_panel(3)
+    spec = ModelSpec(model="linear", effects="year", measures=("book",),
+                     drivers=("tangibility", "profitability", "industry_median_leverage"))
+    result = analyze(panel, spec=spec)
+    saved = result.saved_model["measures"]["book"]["industry_median"]
+    t = result.targets[result.targets["measure"] == "book"]
+    cell = t.groupby(["industry", "fiscal_year"])["actual"].median()
+    year = t.groupby("fiscal_year")["actual"].median()
+    assert saved["industry_year"] == pytest.approx(
+        {f"{i}|{y}": v for (i, y), v in cell.items()}, rel=1e-12)
+    assert saved["year"] == pytest.approx({str(y): v for y, v in year.items()}, rel=1e-12)
+    # a firm not in the panel takes its industry-year's saved median
+    new = panel.head(3).assign(firm_id="NEW")
+    got = SavedModel(result.saved_model).score(new)["industry_median_leverage"]
+    want = [saved["industry_year"][f"{i}|{y}"]
+            for i, y in zip(new["industry"], new["fiscal_year"], strict=True)]
+    np.testing.assert_array_equal(got, want)
+
+
+def test_b_given_flags_lead_and_only_documented_codes_are_added(saved) -> None:
+    from levgap.codes import ANALYSIS_FLAGS
+
+    panel, _, model = saved
+    rows = panel.head(8).copy()
+    plain = model.score(rows)
+    codes = {c for f in plain["flags"] for c in f.split(";") if c}
+    assert codes and codes <= set(ANALYSIS_FLAGS)
+    given = ["negative_book_equity", "", None, "market_equity_from_shares"] * 2
+    scored = model.score(rows.assign(flags=given))
+    for got, own, mine in zip(scored["flags"], plain["flags"], given * len(model.measures),
+                              strict=True):
+        assert got == ";".join(x for x in (mine, own) if x)
+
+
+def test_b_rows_indexed_by_a_column_they_keep_are_scored(saved) -> None:
+    panel, _, model = saved
+    rows = panel.head(4)
+    pd.testing.assert_frame_equal(model.score(rows.set_index("firm_id", drop=False)),
+                                  model.score(rows))
+
+
+def test_b_each_schema_rule_a_row_breaks_is_named_in_its_note(saved) -> None:
+    from levgap.models.saved import _schema_frame, _unscorable
+
+    panel, _, model = saved
+    rows = panel.head(8).copy()
+    notes = {1: ("total_assets", 0.0, "total_assets must be a finite number > 0"),
+             2: ("total_debt", -1.0, "total_debt must be a finite number >= 0"),
+             3: ("ppe_net", -0.5, "ppe_net must be a finite number >= 0"),
+             4: ("ebitda", np.inf, "ebitda must be a finite number"),
+             5: ("book_equity", np.nan, "book_equity must be a finite number"),
+             6: ("total_debt", 0.0, ""),  # the limits of >= 0 and of no limit are allowed
+             7: ("ebitda", -5.0, "")}
+    for i, (col, value, _) in notes.items():
+        rows.loc[rows.index[i], col] = value
+    s = model.score(rows)
+    want = [""] + [text for _, _, text in notes.values()]
+    assert list(s["note"]) == want * len(model.measures)
+    assert list(s["target"].isna()) == [w != "" for w in want] * len(model.measures)
+    # nullable columns (pandas' convert_dtypes) score as plain ones, a blank as missing
+    nullable = panel.head(4).convert_dtypes()
+    pd.testing.assert_frame_equal(model.score(nullable), model.score(panel.head(4)))
+    nullable.loc[1, "total_debt"] = pd.NA
+    s = model.score(nullable)
+    assert list(s["note"])[:4] == ["", "total_debt must be a finite number >= 0", "", ""]
+    # the year's rule, on the frame (score itself cannot yet return such a row: it writes
+    # the given year back into its int64 fiscal_year column, which pandas 3 refuses)
+    nullable.loc[2, "fiscal_year"] = pd.NA
+    years = panel.head(4).astype({"fiscal_year": float})
+    years.loc[[1, 2], "fiscal_year"] = [2016.5, np.inf]
+    for frame, bad in ((nullable, [False, True, True, False]),
+                       (years, [False, True, True, False])):
+        got, text = _unscorable(_schema_frame(frame))
+        assert list(got) == bad
+        assert list(text) == ["", "total_debt must be a finite number >= 0"
+                              if frame is nullable else "fiscal_year must be a whole number",
+                              "fiscal_year must be a whole number", ""]

@@ -314,3 +314,29 @@ def test_r2_is_nan_where_y_does_not_vary() -> None:
     # y constant within each firm: the firm effects explain all of it, nothing is left within
     by_firm = fit_within(firm * 1.0, X, firm=firm, year=year)
     assert by_firm.r2 == 1.0 and np.isnan(by_firm.info["r2_within"])
+
+
+# -- mutation survivors of models/estimates.py (Estimates.tidy)
+
+
+def test_estimates_tidy_uses_each_terms_t_distribution_and_the_coverage_asked() -> None:
+    from levgap.models.estimates import Estimates
+
+    est = Estimates(estimator="within", names=("a", "b"), coef=np.array([1.0, -2.0]),
+                    std_error=np.array([0.5, 0.25]), df=np.array([1.0, 2.0]), n_obs=10,
+                    n_firms=4, r2=0.5, columns={"n_years": np.array([3, 3])})
+    # Student's t quantiles in closed form (not recalled): df=1 is Cauchy, tan(pi (p - 1/2));
+    # df=2 is (2p - 1) / sqrt(2 p (1 - p))
+    def q(p: float) -> np.ndarray:
+        return np.array([np.tan(np.pi * (p - 0.5)), (2 * p - 1) / np.sqrt(2 * p * (1 - p))])
+
+    for kwargs, p in (({}, 0.975), ({"coverage": 0.9}, 0.95)):  # default coverage: 95%
+        t = est.tidy(**kwargs)
+        assert list(t["term"]) == ["a", "b"]
+        np.testing.assert_array_equal(t["t_stat"], [2.0, -8.0])
+        np.testing.assert_allclose(t["ci_low"], est.coef - q(p) * est.std_error, rtol=1e-10)
+        np.testing.assert_allclose(t["ci_high"], est.coef + q(p) * est.std_error, rtol=1e-10)
+        # two-sided p-values: df=1 -> 1 - 2 atan(|t|) / pi; df=2 -> 1 - |t| / sqrt(2 + t^2)
+        np.testing.assert_allclose(t["p_value"], [1 - 2 * np.arctan(2.0) / np.pi,
+                                                  1 - 8.0 / np.sqrt(66.0)], rtol=1e-10)
+        np.testing.assert_array_equal(t["n_years"], [3, 3])
