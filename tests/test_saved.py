@@ -876,3 +876,19 @@ def test_a_peer_profile_must_match_the_rows(saved) -> None:
     col = model.drivers[0] + "_peer"
     np.testing.assert_array_equal(s.loc[s["flags"] != "not_scorable", col], alone[col])
     assert s.loc[s["flags"] != "not_scorable", col].tolist() == [0.1, 0.3] * len(model.measures)
+
+
+def test_a_refused_rows_identity_reads_as_text_and_a_lone_part_year_stays_as_given(
+        saved) -> None:
+    panel, _, model = saved
+    rows = panel.head(3).reset_index(drop=True).astype({"fiscal_year": float})
+    rows["firm_id"] = [101, 102, 103]
+    rows["industry"] = rows["industry"].astype(int)
+    rows.loc[1, "fiscal_year"] = 2016.5  # finite: the only bad year
+    s = model.score(rows)
+    k = len(model.measures)
+    assert list(s["flags"] == "not_scorable") == [False, True, False] * k
+    assert s["fiscal_year"].dtype == np.float64
+    assert list(s["fiscal_year"]) == list(rows["fiscal_year"]) * k
+    assert list(s["firm_id"]) == ["101", "102", "103"] * k
+    assert list(s["industry"]) == [str(v) for v in rows["industry"]] * k

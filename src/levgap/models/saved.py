@@ -319,7 +319,7 @@ class SavedModel:
         """The scores' columns and kinds, no rows (when no row can be scored)."""
         cols = [*SCORE_COLUMNS, *(d + s for d in self.drivers
                                   for s in ("", "_raw", "_peer", "_contribution"))]
-        return pd.DataFrame({c: pd.Series([], dtype=_KIND.get(c, "float64")) for c in cols})
+        return pd.DataFrame({c: pd.Series(dtype=_KIND.get(c, "float64")) for c in cols})
 
     def _score_measure(self, measure: str, f: pd.DataFrame, X: np.ndarray,
                        industry: np.ndarray, level: np.ndarray, year: np.ndarray,
