@@ -892,3 +892,18 @@ def test_a_refused_rows_identity_reads_as_text_and_a_lone_part_year_stays_as_giv
     assert list(s["fiscal_year"]) == list(rows["fiscal_year"]) * k
     assert list(s["firm_id"]) == ["101", "102", "103"] * k
     assert list(s["industry"]) == [str(v) for v in rows["industry"]] * k
+
+
+def test_finite_extreme_values_score_without_a_floating_point_warning(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.head(3).reset_index(drop=True)
+    for col in ("total_assets", "total_debt", "market_equity", "ebitda", "ppe_net",
+                "book_equity"):
+        rows.loc[1, col] = 1.7e308  # valid, but sums of them overflow
+    rows.loc[2, "ebitda"] = -1.7e308
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        s = model.score(rows)
+    assert (s["note"] == "").all() and s["target"].notna().all()

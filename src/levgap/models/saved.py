@@ -265,8 +265,8 @@ class SavedModel:
         profile = None if peer_profile is None else peer_profile.iloc[keep]
         # the refused rows are left out before the features: nothing of theirs reaches a
         # valid row (the firm's earnings-volatility window, the frame's industry medians)
-        scored = (self._score_valid(data.iloc[keep].reset_index(drop=True), fold, profile)
-                  if len(keep) else {})
+        valid = data.iloc[keep].set_axis(pd.RangeIndex(len(keep)))
+        scored = self._score_valid(valid, fold, profile) if len(keep) else {}
         out = []
         for measure in self.measures:
             part = scored[measure] if len(keep) else self._no_scores()
