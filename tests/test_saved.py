@@ -726,8 +726,8 @@ def test_b_each_schema_rule_a_row_breaks_is_named_in_its_note(saved) -> None:
     nullable.loc[1, "total_debt"] = pd.NA
     s = model.score(nullable)
     assert list(s["note"])[:4] == ["", "total_debt must be a finite number >= 0", "", ""]
-    # the year's rule, on the frame (score itself cannot yet return such a row: it writes
-    # the given year back into its int64 fiscal_year column, which pandas 3 refuses)
+    # the year's rule, on the frame (score's output for such rows: see
+    # test_every_kind_of_bad_fiscal_year_refuses_its_row_with_a_note)
     nullable.loc[2, "fiscal_year"] = pd.NA
     years = panel.head(4).astype({"fiscal_year": float})
     years.loc[[1, 2], "fiscal_year"] = [2016.5, np.inf]
@@ -738,3 +738,172 @@ def test_b_each_schema_rule_a_row_breaks_is_named_in_its_note(saved) -> None:
         assert list(text) == ["", "total_debt must be a finite number >= 0"
                               if frame is nullable else "fiscal_year must be a whole number",
                               "fiscal_year must be a whole number", ""]
+
+
+# -- refused rows do not leak
+
+
+def _refused_leave_the_rest_as_if_absent(model, rows: pd.DataFrame, refused: list[int],
+                                         **kw) -> pd.DataFrame:
+    """Score ``rows`` and ``rows`` without ``refused``: the valid rows' output is the same,
+    exactly (``peer_count`` is float64 beside a refused row, hence no dtype check)."""
+    rows = rows.reset_index(drop=True)
+    s = model.score(rows, **kw)
+    keep = ~np.isin(np.arange(len(rows)), refused)
+    per = np.tile(keep, len(model.measures))
+    assert (s.loc[~per, "flags"] == "not_scorable").all()
+    alone = model.score(rows[keep].reset_index(drop=True), **kw)
+    pd.testing.assert_frame_equal(s[per].reset_index(drop=True), alone, check_dtype=False,
+                                  check_exact=True)
+    return s
+
+
+def test_a_refused_year_between_valid_years_leaves_the_firms_other_years_as_if_absent(
+        saved) -> None:
+    # the refused year would sit in the trailing earnings-volatility window of later years
+    panel, _, model = saved
+    firm = panel["firm_id"].iloc[0]
+    rows = panel[panel["firm_id"] == firm].sort_values("fiscal_year").reset_index(drop=True)
+    assert len(rows) >= 6
+    for col, value in (("total_assets", -1.0), ("ebitda", np.nan), ("book_equity", np.inf)):
+        bad = rows.copy()
+        bad.loc[3, col] = value
+        s = _refused_leave_the_rest_as_if_absent(model, bad, [3])
+        _refused_leave_the_rest_as_if_absent(model, bad, [3], fold="firm")
+        assert (s.loc[s["flags"] == "not_scorable", "fiscal_year"] == rows.loc[3, "fiscal_year"]
+                ).all()
+
+
+def test_a_refused_row_alone_in_its_industry_year_leaves_the_others_as_if_absent(
+        saved, median_model) -> None:
+    # a refused row of a new firm, alone in its industry-year: it must not count toward the
+    # frame's industries (with 4 firms of 9990 and 3 of 3711 no industry is large enough to
+    # pool into; a fifth 9990 firm would pool 3711) nor its industry medians (the one 9990
+    # row of 2023 has no industry median of its own: industry_median_imputed)
+    panel, _, model = saved
+    small = panel[panel["industry"] == "9990"]
+    assert small["firm_id"].nunique() == 4
+    other = panel[(panel["industry"] == "3711") & (panel["fiscal_year"] == 2023)].head(3)
+    lone = small.iloc[[0]].assign(firm_id="LONE", fiscal_year=2010, total_debt=-1.0)
+    rows = pd.concat([small.groupby("firm_id").tail(1), other, lone], ignore_index=True)
+    s = _refused_leave_the_rest_as_if_absent(model, rows, [7])
+    assert not s["flags"].str.contains("industry_effect_pooled").any()
+    panel, model = median_model
+    one = panel[(panel["industry"] == "9990") & (panel["fiscal_year"] == 2023)].head(1)
+    rows = pd.concat([one, other, lone], ignore_index=True)
+    s = _refused_leave_the_rest_as_if_absent(model, rows, [4])
+    assert "industry_median_imputed" in s["flags"].iloc[0]
+
+
+def test_every_kind_of_bad_fiscal_year_refuses_its_row_with_a_note(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.head(6).astype({"fiscal_year": object}).reset_index(drop=True)
+    kinds = [2016.5, "abc", None, float("inf"), "2017.25"]
+    for i, year in enumerate(kinds):
+        rows.loc[i, "fiscal_year"] = year
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no traceback, no RuntimeWarning
+        s = _refused_leave_the_rest_as_if_absent(model, rows, list(range(len(kinds))))
+    for measure in model.measures:
+        m = s[s["measure"] == measure].reset_index(drop=True)
+        bad = m.iloc[: len(kinds)]
+        assert (bad["flags"] == "not_scorable").all() and (bad["status"] == "").all()
+        assert (bad["note"] == "fiscal_year must be a whole number").all()
+        assert bad["target"].isna().all() and bad["actual"].isna().all()
+        assert (bad["firm_id"] == rows["firm_id"][: len(kinds)]).all()
+        assert (bad["industry"] == rows["industry"][: len(kinds)]).all()
+        np.testing.assert_array_equal(  # as given; text reads as blank
+            bad["fiscal_year"], [2016.5, np.nan, np.nan, np.inf, 2017.25])
+        assert m["fiscal_year"].dtype == np.float64
+        assert m.loc[len(kinds), "fiscal_year"] == panel["fiscal_year"].iloc[5]
+        assert np.isfinite(m.loc[len(kinds), "target"]) and m.loc[len(kinds), "note"] == ""
+
+
+def test_no_rows_give_an_empty_frame_of_the_documented_columns(saved) -> None:
+    panel, _, model = saved
+    full = model.score(panel.head(2))
+    for fold in (None, "firm", 0):
+        s = model.score(panel.head(0), fold=fold)
+        assert len(s) == 0
+        assert list(s.columns) == list(full.columns)
+        assert s.dtypes.to_dict() == full.dtypes.to_dict()
+    every = model.score(panel.head(2).assign(total_assets=-1.0))
+    assert list(every.columns) == list(full.columns)
+    assert every["target"].isna().all() and (every["flags"] == "not_scorable").all()
+
+
+@pytest.fixture(scope="module")
+def input_model(tmp_path_factory):
+    """A linear model with an input driver (a column of the input, used as given)."""
+    panel = make_panel(3)
+    panel["order_backlog"] = np.random.default_rng(7).normal(size=len(panel))
+    out = tmp_path_factory.mktemp("input")
+    analyze(panel, spec=ModelSpec(model="linear", measures=("book",),
+                                  input_drivers=("order_backlog",))).write(out, report=False)
+    return panel, levgap.load_model(out)
+
+
+def test_rows_without_an_input_drivers_column_are_a_clear_error(input_model) -> None:
+    panel, model = input_model
+    assert "order_backlog" in model.drivers
+    rows = panel.head(3)
+    s = model.score(rows)
+    np.testing.assert_array_equal(s["order_backlog"], rows["order_backlog"])
+    assert s["target"].notna().all()
+    with pytest.raises(ModelError, match="rows must give what the drivers need; got no "
+                                         "order_backlog"):
+        model.score(rows.drop(columns="order_backlog"))
+    with pytest.raises(ModelError, match="got no order_backlog"):
+        model.score(rows.head(0).drop(columns="order_backlog"))
+
+
+def test_a_peer_profile_must_match_the_rows(saved) -> None:
+    panel, _, model = saved
+    rows = panel.head(3).reset_index(drop=True)
+    prof = pd.DataFrame({d: [0.1, 0.2, 0.3] for d in model.drivers})
+    with pytest.raises(ModelError, match=r"one row per input row \(3\); got 2 rows"):
+        model.score(rows, peer_profile=prof.head(2))
+    with pytest.raises(ModelError, match=r"one row per input row \(3\); got list"):
+        model.score(rows, peer_profile=[])
+    with pytest.raises(ModelError, match=f"column per driver; got no {model.drivers[-1]}"):
+        model.score(rows, peer_profile=prof.drop(columns=model.drivers[-1]))
+    # a refused row's profile row is skipped, the others keep theirs
+    bad = rows.assign(total_assets=[1.0, -1.0, 1.0] * rows["total_assets"])
+    s = model.score(bad, peer_profile=prof)
+    alone = model.score(bad.iloc[[0, 2]], peer_profile=prof.iloc[[0, 2]])
+    col = model.drivers[0] + "_peer"
+    np.testing.assert_array_equal(s.loc[s["flags"] != "not_scorable", col], alone[col])
+    assert s.loc[s["flags"] != "not_scorable", col].tolist() == [0.1, 0.3] * len(model.measures)
+
+
+def test_a_refused_rows_identity_reads_as_text_and_a_lone_part_year_stays_as_given(
+        saved) -> None:
+    panel, _, model = saved
+    rows = panel.head(3).reset_index(drop=True).astype({"fiscal_year": float})
+    rows["firm_id"] = [101, 102, 103]
+    rows["industry"] = rows["industry"].astype(int)
+    rows.loc[1, "fiscal_year"] = 2016.5  # finite: the only bad year
+    s = model.score(rows)
+    k = len(model.measures)
+    assert list(s["flags"] == "not_scorable") == [False, True, False] * k
+    assert s["fiscal_year"].dtype == np.float64
+    assert list(s["fiscal_year"]) == list(rows["fiscal_year"]) * k
+    assert list(s["firm_id"]) == ["101", "102", "103"] * k
+    assert list(s["industry"]) == [str(v) for v in rows["industry"]] * k
+
+
+def test_finite_extreme_values_score_without_a_floating_point_warning(saved) -> None:
+    import warnings
+
+    panel, _, model = saved
+    rows = panel.head(3).reset_index(drop=True)
+    for col in ("total_assets", "total_debt", "market_equity", "ebitda", "ppe_net",
+                "book_equity"):
+        rows.loc[1, col] = 1.7e308  # valid, but sums of them overflow
+    rows.loc[2, "ebitda"] = -1.7e308
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        s = model.score(rows)
+    assert (s["note"] == "").all() and s["target"].notna().all()

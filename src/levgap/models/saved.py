@@ -240,23 +240,63 @@ class SavedModel:
             peer_median, peer_count, fold, flags`` and, per driver, ``<driver>`` (the value
             used), ``<driver>_raw``, ``<driver>_peer`` and ``<driver>_contribution`` (the
             contributions sum to ``target - peer_target``). ``fold`` is -1 for the
-            full-sample fit. A row whose statement values schema v1 refuses (total assets not
-            a finite number > 0, say) is returned blank with status ``""``, the flag
-            ``not_scorable`` and the rule it breaks in ``note``.
+            full-sample fit. A row whose values schema v1 refuses (total assets not a finite
+            number > 0, a fiscal year that is blank, text or not whole, say) is returned
+            blank with status ``""``, the flag ``not_scorable``, the rule it breaks in
+            ``note`` and its identity (``firm_id``, ``fiscal_year``, ``industry``, ``fold``)
+            as given; it takes no part in the other rows' features, so they are scored
+            exactly as if it had not been given. ``fiscal_year`` is int64 unless a refused
+            row's year is blank or not whole (float64; a text year reads as blank), and
+            ``peer_count`` is float64 when a row is refused. No rows: an empty frame with
+            these columns.
+
+        Raises
+        ------
+        ModelError
+            ``rows`` is not a DataFrame or lacks a schema-v1 column or a column a driver
+            needs (an input driver's column, say), or ``peer_profile`` has not one row per
+            input row and a column per driver; as with the other columns a missing column
+            refuses the call, while a refused value refuses only its row.
         """
+        data = _schema_frame(rows)
+        self._check_columns(data, peer_profile)
+        bad, notes = _unscorable(data)
+        keep = np.flatnonzero(~bad)
+        profile = None if peer_profile is None else peer_profile.iloc[keep]
+        # the refused rows are left out before the features: nothing of theirs reaches a
+        # valid row (the firm's earnings-volatility window, the frame's industry medians)
+        valid = data.iloc[keep].set_axis(pd.RangeIndex(len(keep)))
+        scored = self._score_valid(valid, fold, profile) if len(keep) else {}
+        out = []
+        for measure in self.measures:
+            part = scored[measure] if len(keep) else self._no_scores()
+            folds = self._folds(measure, data["firm_id"].to_numpy(), fold)
+            out.append(_with_refused(part, data, bad, notes, measure, folds))
+        return pd.concat(out, ignore_index=True)
+
+    def _check_columns(self, data: pd.DataFrame, peer_profile: pd.DataFrame | None) -> None:
+        """A missing column a driver takes as given is an error, like a missing schema one."""
+        for name in self.spec.input_drivers:
+            if name in self.drivers and name not in data:
+                raise ModelError(f"rows must give what the drivers need; got no {name}.")
+        if peer_profile is None:
+            return
+        if not isinstance(peer_profile, pd.DataFrame) or len(peer_profile) != len(data):
+            raise ModelError(f"peer_profile must be a DataFrame with one row per input row "
+                             f"({len(data)}); got {_size(peer_profile)}.")
+        missing = [d for d in self.drivers if d not in peer_profile.columns]
+        if missing:
+            raise ModelError(f"peer_profile must have a column per driver; got no "
+                             f"{missing[0]}.")
+
+    def _score_valid(self, data: pd.DataFrame, fold: int | str | None,
+                     peer_profile: pd.DataFrame | None) -> dict[str, pd.DataFrame]:
+        """Each measure's scores of rows schema v1 accepts (all of ``data``)."""
         from levgap.features import build_features
 
-        data = _schema_frame(rows)
-        bad, notes = _unscorable(data)
-        if bad.any():  # stand-in values keep the arithmetic quiet; the rows are blanked below
-            data.loc[bad, ["total_assets", "total_debt", "ppe_net", "ebitda",
-                           "book_equity"]] = [1.0, 0.0, 0.0, 0.0, 1.0]
-            data.loc[bad, "fiscal_year"] = data.loc[~bad, "fiscal_year"].max() if (~bad).any() \
-                else self.record["years"][-1]
-        spec = self.spec
         transforms = DriverTransforms.from_dict(self.record["transforms"])
         with np.errstate(all="ignore"):
-            feats = build_features(data, spec, transforms=transforms)
+            feats = build_features(data, self.spec, transforms=transforms)
         f = feats.frame
         given = (pd.to_numeric(data["industry_median_leverage"], errors="coerce").to_numpy(
             dtype=float) if "industry_median_leverage" in data else None)
@@ -267,23 +307,19 @@ class SavedModel:
         X = f[drivers].to_numpy(dtype=float)
         industry = f["effect_group"].to_numpy(dtype=object)
         level, year, new_ind, new_year = self.codes(industry, f["fiscal_year"].to_numpy())
-        out = []
+        out = {}
         with np.errstate(all="ignore"):
             for measure in self.measures:
                 Xm = self._measure_drivers(measure, f, X, given)
-                part = self._score_measure(measure, f, Xm, industry, level, year, new_ind,
-                                           new_year, fold, peer_profile)
-                part["note"] = notes
-                if bad.any():
-                    blank = [c for c in part.columns if c not in (
-                        "firm_id", "fiscal_year", "industry", "measure", "fold", "flags",
-                        "note", "status")]
-                    part.loc[bad, blank] = np.nan
-                    part.loc[bad, "status"] = ""
-                    part.loc[bad, "flags"] = "not_scorable"
-                    part.loc[bad, "fiscal_year"] = rows["fiscal_year"].to_numpy()[bad]
-                out.append(part)
-        return pd.concat(out, ignore_index=True)
+                out[measure] = self._score_measure(measure, f, Xm, industry, level, year,
+                                                   new_ind, new_year, fold, peer_profile)
+        return out
+
+    def _no_scores(self) -> pd.DataFrame:
+        """The scores' columns and kinds, no rows (when no row can be scored)."""
+        cols = [*SCORE_COLUMNS, *(d + s for d in self.drivers
+                                  for s in ("", "_raw", "_peer", "_contribution"))]
+        return pd.DataFrame({c: pd.Series(dtype=_KIND.get(c, "float64")) for c in cols})
 
     def _score_measure(self, measure: str, f: pd.DataFrame, X: np.ndarray,
                        industry: np.ndarray, level: np.ndarray, year: np.ndarray,
@@ -418,6 +454,35 @@ def _unscorable(data: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
         notes[new] = text
         bad |= wrong
     return bad, notes
+
+
+SCORE_COLUMNS = ("firm_id", "fiscal_year", "industry", "measure", "actual", "target",
+                 "band_low", "band_high", "status", "gap", "gap_z", "peer_target",
+                 "peer_median", "peer_count", "fold", "flags")
+"""The columns of :meth:`SavedModel.score` before the drivers' (and ``note`` after them)."""
+_KIND = {"firm_id": "str", "industry": "str", "measure": "str", "status": "str",
+         "flags": "str", "fiscal_year": "int64", "peer_count": "int64", "fold": "int64"}
+
+
+def _with_refused(part: pd.DataFrame, data: pd.DataFrame, bad: np.ndarray, notes: np.ndarray,
+                  measure: str, folds: np.ndarray) -> pd.DataFrame:
+    """One measure's scores of the valid rows, in input order with the refused rows blank
+    among them (identity as given, status ``""``, flag ``not_scorable``, ``note`` why)."""
+    if bad.any():
+        part = part.set_axis(np.flatnonzero(~bad)).reindex(pd.RangeIndex(len(data)))
+        for col in ("firm_id", "industry"):
+            part.loc[bad, col] = data[col].to_numpy()[bad]
+        part.loc[bad, ["measure", "status", "flags"]] = [measure, "", "not_scorable"]
+        year = data["fiscal_year"].to_numpy(dtype=float)
+        whole = bool(np.all(np.isfinite(year) & (year == np.round(year))))
+        part["fiscal_year"] = year.astype(np.int64) if whole else year
+    part["fold"] = folds
+    part["note"] = pd.array(notes, dtype="str")  # str even when there are no rows
+    return part
+
+
+def _size(frame: Any) -> str:
+    return f"{len(frame)} rows" if isinstance(frame, pd.DataFrame) else type(frame).__name__
 
 
 def _schema_frame(rows: pd.DataFrame) -> pd.DataFrame:
