@@ -57,6 +57,7 @@ MODULES: dict[str, tuple[str, ...]] = {
     "models.pooling": ("test_pooling.py", "test_models.py"),
     "models.crossfit": ("test_crossfit.py", "test_pipeline_brute.py"),
     "models.saved": ("test_saved.py",),
+    "models.record": ("test_saved.py",),
     # the research estimators (estimation table only); their test files must be in
     # pyproject's pytest_add_cli_args_test_selection too
     "models.within": ("test_within.py", "test_specifications.py"),
