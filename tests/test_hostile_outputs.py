@@ -10,6 +10,8 @@ one line.
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import re
 import shutil
@@ -40,6 +42,8 @@ COMMANDS = {
     "table": ["table", "{out}"],
 }
 ESCAPES = ("\x1b", "\x07", "\x9b", "\u202e")
+CSV_EVIL = "\x1b[2J\x1b[31mEvil\x1b]0;pwned\x07 Corp\x9b31m\r\x08X"
+"""Issue 15's name: screen clear, colour, OSC title, 8-bit CSI, carriage return, backspace."""
 
 
 def _one_line(result, *patterns: str) -> str:
@@ -200,6 +204,27 @@ def test_terminal_output_carries_no_escape_sequences(runs):
         assert not any(ch in result.output for ch in ESCAPES), repr(result.output)
     bad = runner.invoke(app, ["check", "no\x1b[2Jsuch\x07.csv"])
     assert bad.exit_code == 2 and not any(ch in bad.output for ch in ESCAPES)
+
+
+def test_screen_csv_carries_no_control_characters(tmp_path):
+    """Issue 15: ``screen --format csv`` strips text cells as the table view does, and every
+    row parses to the header's number of fields."""
+    p = make_panel(3)
+    p = p[p["firm_id"] <= "TR0150"].copy()
+    p.loc[p["firm_id"] == "TR0001", "firm_name"] = "Tame \u202eTitle\x1b[0m"
+    p.loc[p["firm_id"] == "TR0002", "firm_name"] = CSV_EVIL
+    p.to_csv(tmp_path / "p.csv", index=False, lineterminator="\r\n")  # CRLF: CR is quoted
+    made = runner.invoke(app, ["analyze", str(tmp_path / "p.csv"), "--out", str(tmp_path / "o"),
+                               "--no-report", "--quiet"])
+    assert made.exit_code == 0, made.output
+    result = runner.invoke(app, ["screen", str(tmp_path / "o"), "--format", "csv"])
+    assert result.exit_code == 0, result.output
+    bad = ("\x1b", "\x9b", "\x07", "\r", "\x08", "\u202e")
+    assert not any(ch in result.output for ch in bad), repr(result.output)
+    rows = list(csv.reader(io.StringIO(result.output)))
+    assert len(rows) > 3 and {len(r) for r in rows} == {len(rows[0])}, rows
+    names = {r[0]: r[rows[0].index("firm_name")] for r in rows[1:]}
+    assert names["TR0002"] == "Evil Corp X" and "Title" in names["TR0001"], names
 
 
 @pytest.mark.parametrize(

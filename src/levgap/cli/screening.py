@@ -124,7 +124,12 @@ def _export_value(v: Any) -> Any:
 
 
 def export_csv(rows: Sequence[dict[str, Any]]) -> str:
-    """Rows as CSV text (``EXPORT_COLUMNS``); text a spreadsheet would run is neutralised."""
+    """Rows as CSV text (``EXPORT_COLUMNS``) for a terminal or a spreadsheet.
+
+    Text cells go through ``plain`` as in the table view (escape sequences and control
+    characters go; tabs and line breaks become spaces), then text a spreadsheet would run is
+    neutralised; the csv writer quotes any delimiter or quote left.
+    """
     from levgap.outputs.cells import is_formula_like
 
     buf = io.StringIO()
@@ -134,8 +139,10 @@ def export_csv(rows: Sequence[dict[str, Any]]) -> str:
         out = []
         for c in EXPORT_COLUMNS:
             v = _export_value(r.get(c))
-            if isinstance(v, str) and is_formula_like(v):
-                v = "'" + v
+            if isinstance(v, str):
+                v = plain(v)
+                if is_formula_like(v):
+                    v = "'" + v
             out.append("" if v is None else v)
         writer.writerow(out)
     return buf.getvalue()
