@@ -82,7 +82,8 @@ def test_planted_marker_with_paths_outside_deletes_nothing(tmp_path, panel, kind
     out = tmp_path / "out"
     out.mkdir()
     names = ["../elsewhere/x", str(tmp_path / "elsewhere" / "targets.csv"),
-             "..", "../elsewhere/targets.csv", "sub/../../elsewhere/x"]
+             "..", "../elsewhere/targets.csv", "sub/../../elsewhere/x",
+             "run.json"]  # listed by every 0.1 marker: else the marker is the user's file
     if kind == "v2":
         # even with the right digests, a name that is not a plain file name proves nothing
         files = {}
@@ -145,6 +146,26 @@ def test_foreign_file_with_an_output_name_is_never_replaced_even_with_force(tmp_
     _one_line_error(result, "levgap did not write it")
     assert (out / "report.html").read_text() == "<p>my own notes</p>"
     assert sorted(os.listdir(out)) == ["report.html"]  # nothing of the run was swapped in
+
+
+@pytest.mark.parametrize("mine", ["my notes\n", '{"mine": 1}\n', "", "dir"])
+def test_a_users_file_named_like_the_marker_is_never_replaced(tmp_path, panel, mine):
+    """Issue 9, point 3 (FAIL 5): an existing ``.levgap-output`` that is not a levgap marker
+    is the user's file: refused with and without --force, by analyze and demo."""
+    out = tmp_path / "out"
+    out.mkdir()
+    if mine == "dir":
+        (out / MARKER).mkdir()
+    else:
+        (out / MARKER).write_text(mine)
+    for extra in ([], ["--force"]):
+        _one_line_error(_analyze(panel, out, *extra), f"{MARKER}: the file exists and is not "
+                        "a levgap marker")
+        assert os.listdir(out) == [MARKER]  # no stage, no file of the run
+    _one_line_error(runner.invoke(app, ["demo", "--out", str(out)]), "is not a levgap marker")
+    assert os.listdir(out) == [MARKER]
+    if mine != "dir":
+        assert (out / MARKER).read_text() == mine
 
 
 def test_an_edited_output_is_not_replaced_and_a_link_is_not_followed(tmp_path, panel):

@@ -166,6 +166,49 @@ def read_marker(folder: str | Path, name: str = MARKER) -> Marker:
     )
 
 
+def refuse_foreign_marker(folder: str | Path) -> None:
+    """Refuse a folder whose ``.levgap-output`` exists but is not a levgap marker.
+
+    A levgap marker is a regular UTF-8 file holding a JSON object with a whole-number
+    ``levgap_output`` (this format or a newer one), or a 0.1 list of names that includes
+    ``run.json`` (every 0.1 run wrote one). Anything else (a link, a folder, the user's own
+    notes) is a file levgap did not write, never replaced, even with ``--force``.
+
+    Raises
+    ------
+    OutputError
+        One line naming the file.
+    """
+    path = Path(folder) / MARKER
+    try:
+        st = path.lstat()
+    except OSError:
+        return  # absent (or unreadable: the write itself will say so)
+    if _levgap_marker(path, st):
+        return
+    raise OutputError(
+        f"{path}: the file exists and is not a levgap marker, so levgap did not write it; "
+        "levgap never replaces such a file, even with --force. Move it or choose another --out."
+    )
+
+
+def _levgap_marker(path: Path, st: os.stat_result) -> bool:
+    if not stat.S_ISREG(st.st_mode) or st.st_size > _MAX_MARKER:
+        return False
+    try:
+        text = path.read_bytes()[: _MAX_MARKER + 1].decode("utf-8")
+    except (OSError, UnicodeDecodeError):
+        return False
+    if not text.lstrip().startswith("{"):
+        return RUN_FILE in {ln.strip() for ln in text.splitlines()}
+    try:
+        raw = load_json(text)
+    except ValueError:
+        return False
+    fmt = raw.get("levgap_output") if isinstance(raw, dict) else None
+    return _whole(fmt) and fmt >= MARKER_FORMAT
+
+
 def marker_bytes(marker: Marker) -> bytes:
     from levgap import __version__ as ours
 

@@ -61,6 +61,7 @@ from levgap.outputs.marker import (
     is_ours,
     read_marker,
     record_file,
+    refuse_foreign_marker,
     verifies,
     witnessed,
     write_marker,
@@ -165,6 +166,7 @@ class RunWriter:
         self._previous = here.run_id if here is not None else None
         self._runs: list[RunRecord] = [r for r in (here, *(read_run_record(s / RUN_FILE)
                                                            for s in stages)) if r is not None]
+        refuse_foreign_marker(out)  # the run writes its marker: never over a user's file
         if not self.force:
             refuse_foreign(out, self.inputs)
         self._check_target(RUN_FILE)
@@ -344,6 +346,7 @@ def refuse_foreign(out_dir: str | Path, inputs: Iterable[str | Path] = ()) -> No
     out = Path(out_dir)
     if not out.is_dir():
         return
+    refuse_foreign_marker(out)
     stages = [out / n for n in _names(out) if is_stage_name(n) and _real_dir(out / n)]
     markers = [read_marker(out), *(read_marker(s) for s in stages)]
     runs = [r for r in (read_run_record(p / RUN_FILE) for p in (out, *stages)) if r is not None]
