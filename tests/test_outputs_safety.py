@@ -168,6 +168,16 @@ def test_a_users_file_named_like_the_marker_is_never_replaced(tmp_path, panel, m
         assert (out / MARKER).read_text() == mine
 
 
+@pytest.mark.parametrize("mine", ["", "{}\n"])
+def test_a_single_file_writer_leaves_a_users_marker_named_file_alone(tmp_path, mine):
+    (tmp_path / MARKER).write_text(mine)
+    atomic_write_bytes(tmp_path / "note.md", b"one")  # written, but not recorded over it
+    assert (tmp_path / MARKER).read_text() == mine
+    with pytest.raises(OutputError, match="levgap did not write it"):
+        atomic_write_bytes(tmp_path / "note.md", b"two")  # unrecorded: never replaced
+    assert (tmp_path / "note.md").read_bytes() == b"one"
+
+
 def test_an_edited_output_is_not_replaced_and_a_link_is_not_followed(tmp_path, panel):
     out = tmp_path / "out"
     assert _analyze(panel, out).exit_code == 0

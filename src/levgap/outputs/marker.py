@@ -180,11 +180,7 @@ def refuse_foreign_marker(folder: str | Path) -> None:
         One line naming the file.
     """
     path = Path(folder) / MARKER
-    try:
-        st = path.lstat()
-    except OSError:
-        return  # absent (or unreadable: the write itself will say so)
-    if _levgap_marker(path, st):
+    if not _foreign_marker(path):
         return
     raise OutputError(
         f"{path}: the file exists and is not a levgap marker, so levgap did not write it; "
@@ -192,21 +188,26 @@ def refuse_foreign_marker(folder: str | Path) -> None:
     )
 
 
-def _levgap_marker(path: Path, st: os.stat_result) -> bool:
+def _foreign_marker(path: Path) -> bool:
+    """Whether ``path`` exists and is not a levgap marker (see ``refuse_foreign_marker``)."""
+    try:
+        st = path.lstat()
+    except OSError:
+        return False  # absent (or unreadable: the write itself will say so)
     if not stat.S_ISREG(st.st_mode) or st.st_size > _MAX_MARKER:
-        return False
+        return True
     try:
         text = path.read_bytes()[: _MAX_MARKER + 1].decode("utf-8")
     except (OSError, UnicodeDecodeError):
-        return False
+        return True
     if not text.lstrip().startswith("{"):
-        return RUN_FILE in {ln.strip() for ln in text.splitlines()}
+        return RUN_FILE not in {ln.strip() for ln in text.splitlines()}
     try:
         raw = load_json(text)
     except ValueError:
-        return False
+        return True
     fmt = raw.get("levgap_output") if isinstance(raw, dict) else None
-    return _whole(fmt) and fmt >= MARKER_FORMAT
+    return not (_whole(fmt) and fmt >= MARKER_FORMAT)
 
 
 def marker_bytes(marker: Marker) -> bytes:
@@ -347,8 +348,8 @@ def remember(target: Path, kind: str = "file", digest: Digest | None = None) -> 
     folder = target.parent
     marker = read_marker(folder)
     raw = _raw_format(folder)
-    if raw is not None and raw != MARKER_FORMAT:
-        return  # a marker this levgap cannot write without losing what it says
+    if (raw is not None and raw != MARKER_FORMAT) or _foreign_marker(folder / MARKER):
+        return  # a marker this levgap cannot write without losing what it says, or not one
     records = dict(marker.records)
     records[target.name] = record_file(target, kind, digest)
     with contextlib.suppress(OutputError):  # the file is written; only the record is lost
