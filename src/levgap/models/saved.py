@@ -241,12 +241,17 @@ class SavedModel:
             used), ``<driver>_raw``, ``<driver>_peer`` and ``<driver>_contribution`` (the
             contributions sum to ``target - peer_target``). ``fold`` is -1 for the
             full-sample fit. A row whose values schema v1 refuses (total assets not a finite
-            number > 0, a fiscal year that is blank, text or not whole, say) is returned
-            blank with status ``""``, the flag ``not_scorable``, the rule it breaks in
-            ``note`` and its identity (``firm_id``, ``fiscal_year``, ``industry``, ``fold``)
-            as given; it takes no part in the other rows' features, so they are scored
-            exactly as if it had not been given. ``fiscal_year`` is int64 unless a refused
-            row's year is blank or not whole (float64; a text year reads as blank), and
+            number > 0, a fiscal year that is blank, text or not whole, say), whose
+            ``firm_id`` or ``industry`` is blank (as ``analyze`` reads it: ``""``, ``NA``,
+            ``nan``, ``null``, ... or missing), whose input driver is blank or text (without
+            ``lag_drivers``), or whose firm-year is given more than once (every copy) is
+            returned blank with status ``""``, the flag ``not_scorable``, the rule it breaks
+            in ``note`` and its identity (``firm_id``, ``fiscal_year``, ``industry``,
+            ``fold``) as given; it takes no part in the other rows' features, so they are
+            scored exactly as if it had not been given. A scored row without a target (a
+            driver with no value, such as ``log_revenue`` without revenue above zero) has
+            status ``""`` and its ``note`` names the driver. ``fiscal_year`` is int64 unless
+            a refused row's year is blank or not whole (float64; a text year reads as blank), and
             ``peer_count`` is float64 when a row is refused. No rows: an empty frame with
             these columns.
 
