@@ -457,7 +457,8 @@ def test_industry_effects_of_seen_levels_and_the_prefix_rule(saved) -> None:
 
 def test_the_saved_industry_median_is_looked_up_by_industry_and_year(median_model) -> None:
     panel, model = median_model
-    rows = pd.concat([panel.head(4), panel.head(1).assign(industry="ZZZ"),
+    # another firm in the new industry: a second copy of a firm-year would be refused
+    rows = pd.concat([panel.head(4), panel.head(1).assign(industry="ZZZ", firm_id="NEW"),
                       panel.head(1).assign(fiscal_year=2040)], ignore_index=True)
     s = model.score(rows)
     for measure in model.measures:
@@ -907,3 +908,82 @@ def test_finite_extreme_values_score_without_a_floating_point_warning(saved) -> 
         warnings.simplefilter("error")
         s = model.score(rows)
     assert (s["note"] == "").all() and s["target"].notna().all()
+
+
+# -- identity rules in score
+
+
+def test_a_blank_or_text_input_driver_refuses_its_row_naming_the_driver(input_model) -> None:
+    # issue 9, FAIL 1: analyze leaves such a row out (driver_missing); score gave it a status
+    panel, model = input_model
+    rows = panel.head(6).astype({"order_backlog": object}).reset_index(drop=True)
+    rows.loc[[1, 3, 4], "order_backlog"] = [np.nan, "abc", None]
+    s = _refused_leave_the_rest_as_if_absent(model, rows, [1, 3, 4])
+    _refused_leave_the_rest_as_if_absent(model, rows, [1, 3, 4], fold="firm")
+    bad = s.iloc[[1, 3, 4]]
+    assert (bad["note"] == "order_backlog must be a finite number (an input driver)").all()
+    assert (bad["status"] == "").all() and bad["target"].isna().all()
+    assert (s.drop(index=[1, 3, 4])["status"] != "").all()
+
+
+@pytest.fixture(scope="module")
+def revenue_model(tmp_path_factory):
+    """A linear model with log_revenue, a driver without an imputation rule."""
+    panel = make_panel(3)
+    out = tmp_path_factory.mktemp("revenue")
+    analyze(panel, spec=ModelSpec(model="linear", measures=("book",),
+                                  drivers=("tangibility", "log_revenue"))).write(
+        out, report=False)
+    return panel, levgap.load_model(out)
+
+
+def test_a_row_whose_driver_has_no_value_gets_no_status(revenue_model) -> None:
+    # a NaN target (and band) compares as neither under nor over: it must not read "within"
+    panel, model = revenue_model
+    rows = panel.head(3).reset_index(drop=True)
+    rows.loc[1, "revenue"] = 0.0  # log_revenue needs revenue above zero
+    s = model.score(rows)
+    assert np.isnan(s.loc[1, "target"]) and np.isfinite(s.loc[1, "actual"])
+    assert list(s["status"] != "") == [True, False, True]
+    assert list(s["note"]) == ["", "no value for the driver log_revenue: no target, no "
+                               "status", ""]
+    assert s.loc[[0, 2], "target"].notna().all()
+
+
+def test_blank_identities_are_refused_with_a_note_not_a_traceback(saved) -> None:
+    # issue 9, FAILS 2 and 3: analyze's blank tokens (levgap.codes.NA_TOKENS), any case
+    panel, _, model = saved
+    rows = panel.head(10).astype({"firm_id": object, "industry": object})
+    rows = rows.reset_index(drop=True)
+    firm = {0: None, 2: np.nan, 3: "", 5: " NA ", 6: "null"}
+    industry = {1: None, 4: np.nan, 7: "", 8: "nan"}
+    for i, v in firm.items():
+        rows.loc[i, "firm_id"] = v
+    for i, v in industry.items():
+        rows.loc[i, "industry"] = v
+    refused = sorted([*firm, *industry])
+    s = _refused_leave_the_rest_as_if_absent(model, rows, refused)
+    _refused_leave_the_rest_as_if_absent(model, rows, refused, fold="firm")
+    k = len(model.measures)
+    want = ["firm_id must not be blank" if i in firm else "industry must not be blank"
+            if i in industry else "" for i in range(len(rows))]
+    assert list(s["note"]) == want * k
+    assert (s.loc[s["note"] != "", "status"] == "").all()
+
+
+def test_every_copy_of_a_firm_year_given_twice_is_refused(saved) -> None:
+    panel, _, model = saved
+    rows = panel.head(6).reset_index(drop=True)
+    exact = rows.iloc[[2]]
+    other = rows.iloc[[4]].assign(firm_id=" " + rows.loc[4, "firm_id"] + " ",
+                                  fiscal_year=float(rows.loc[4, "fiscal_year"]),
+                                  total_debt=rows.loc[4, "total_debt"] / 2)
+    rows = pd.concat([rows, exact, other], ignore_index=True)
+    s = _refused_leave_the_rest_as_if_absent(model, rows, [2, 4, 6, 7])
+    note = "duplicate firm-year: firm_id and fiscal_year must be unique"
+    want = [note if i in (2, 4, 6, 7) else "" for i in range(len(rows))]
+    assert list(s["note"]) == want * len(model.measures)
+    # the same firm in another year, another firm in the same year: no copies
+    fine = panel.head(3).assign(fiscal_year=[2001, 2002, 2003])
+    fine = pd.concat([fine, fine.iloc[[0]].assign(firm_id="OTHER")], ignore_index=True)
+    assert (model.score(fine)["note"] == "").all()

@@ -79,8 +79,9 @@ ANALYSIS_FLAGS: dict[str, str] = {
     "(else of all)",
     "year_not_in_model": "scored by a saved model: the fiscal year was not in the fitted panel; "
     "the latest earlier fitted year's effect and limits are used",
-    "not_scorable": "scored by a saved model: a statement value breaks schema v1 (see the "
-    "note column); the row is returned blank",
+    "not_scorable": "scored by a saved model: a statement value breaks schema v1, firm_id or "
+    "industry is blank, an input driver is blank or text, or the firm-year is given more than "
+    "once (every copy; see the note column); the row is returned blank",
     "target_below_zero": "the target is below zero (linear model): debt to target repays all "
     "debt",
     "book_target_at_or_above_one": "a book target of 1 or more (linear model): debt to target "

@@ -241,12 +241,17 @@ class SavedModel:
             used), ``<driver>_raw``, ``<driver>_peer`` and ``<driver>_contribution`` (the
             contributions sum to ``target - peer_target``). ``fold`` is -1 for the
             full-sample fit. A row whose values schema v1 refuses (total assets not a finite
-            number > 0, a fiscal year that is blank, text or not whole, say) is returned
-            blank with status ``""``, the flag ``not_scorable``, the rule it breaks in
-            ``note`` and its identity (``firm_id``, ``fiscal_year``, ``industry``, ``fold``)
-            as given; it takes no part in the other rows' features, so they are scored
-            exactly as if it had not been given. ``fiscal_year`` is int64 unless a refused
-            row's year is blank or not whole (float64; a text year reads as blank), and
+            number > 0, a fiscal year that is blank, text or not whole, say), whose
+            ``firm_id`` or ``industry`` is blank (as ``analyze`` reads it: ``""``, ``NA``,
+            ``nan``, ``null``, ... or missing), whose input driver is blank or text (without
+            ``lag_drivers``), or whose firm-year is given more than once (every copy) is
+            returned blank with status ``""``, the flag ``not_scorable``, the rule it breaks
+            in ``note`` and its identity (``firm_id``, ``fiscal_year``, ``industry``,
+            ``fold``) as given; it takes no part in the other rows' features, so they are
+            scored exactly as if it had not been given. A scored row without a target (a
+            driver with no value, such as ``log_revenue`` without revenue above zero) has
+            status ``""`` and its ``note`` names the driver. ``fiscal_year`` is int64 unless
+            a refused row's year is blank or not whole (float64; a text year reads as blank), and
             ``peer_count`` is float64 when a row is refused. No rows: an empty frame with
             these columns.
 
@@ -260,7 +265,9 @@ class SavedModel:
         """
         data = _schema_frame(rows)
         self._check_columns(data, peer_profile)
-        bad, notes = _unscorable(data)
+        inputs = () if self.spec.lag_drivers else tuple(
+            d for d in self.spec.input_drivers if d in self.drivers)
+        bad, notes = _unscorable(data, inputs)
         keep = np.flatnonzero(~bad)
         profile = None if peer_profile is None else peer_profile.iloc[keep]
         # the refused rows are left out before the features: nothing of theirs reaches a
@@ -271,7 +278,9 @@ class SavedModel:
         for measure in self.measures:
             part = scored[measure] if len(keep) else self._no_scores()
             folds = self._folds(measure, data["firm_id"].to_numpy(), fold)
-            out.append(_with_refused(part, data, bad, notes, measure, folds))
+            note = notes.copy()
+            note[keep] = _no_target(part, self.drivers)
+            out.append(_with_refused(part, data, bad, note, measure, folds))
         return pd.concat(out, ignore_index=True)
 
     def _check_columns(self, data: pd.DataFrame, peer_profile: pd.DataFrame | None) -> None:
@@ -354,7 +363,9 @@ class SavedModel:
             "firm_id": f["firm_id"].to_numpy(), "fiscal_year": f["fiscal_year"].to_numpy(),
             "industry": f["industry"].to_numpy(), "measure": np.full(n, measure, dtype=object),
             "actual": actual, "target": target, "band_low": low, "band_high": high,
-            "status": np.where(np.isnan(actual), "", status).astype(object),
+            # no status without an actual, a target and a band (NaN would compare as within)
+            "status": np.where(np.isnan(actual) | np.isnan(target) | np.isnan(low)
+                               | np.isnan(high), "", status).astype(object),
             "gap": actual - target,
             "gap_z": gap_z(actual - target, band.scale_of(np.where(level >= 0, level,
                                                                    len(band.scale)))),
@@ -430,15 +441,24 @@ def load_model(results_dir: str | Path) -> SavedModel:
     return SavedModel(read_model_record(results_dir))
 
 
-def _unscorable(data: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
-    """Rows whose statement values the model cannot score, and why (schema v1's rules)."""
+def _unscorable(data: pd.DataFrame, inputs: tuple[str, ...] = ()
+                ) -> tuple[np.ndarray, np.ndarray]:
+    """Rows the model cannot score, and why: schema v1's rules and analyze's identity rules
+    (a blank ``firm_id`` or ``industry`` -- blank as the input's blank tokens; a firm-year
+    given more than once: every copy), and a blank or text ``inputs`` (input driver) cell."""
+    from levgap.ingest.cells import text_cells
+    from levgap.ingest.columns import is_empty_text
     from levgap.schema import BY_NAME
 
     n = len(data)
     bad = np.zeros(n, dtype=bool)
     notes = np.full(n, "", dtype=object)
     year = pd.to_numeric(data["fiscal_year"], errors="coerce").to_numpy(dtype=float)
-    checks = [("fiscal_year", ~np.isfinite(year) | (year != np.round(year)),
+    firm = np.asarray(text_cells(data["firm_id"], code=True).to_pylist(), dtype=object)
+    blank_industry = is_empty_text(text_cells(data["industry"], code=True))
+    checks = [("firm_id", firm == "", "firm_id must not be blank"),
+              ("industry", blank_industry, "industry must not be blank"),
+              ("fiscal_year", ~np.isfinite(year) | (year != np.round(year)),
                "fiscal_year must be a whole number")]
     for name in ("total_assets", "total_debt", "ppe_net", "ebitda", "book_equity"):
         col = BY_NAME[name]
@@ -449,11 +469,33 @@ def _unscorable(data: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
         rule = "a finite number" + (
             "" if col.minimum is None else f" {'>' if col.strict else '>='} {col.minimum:g}")
         checks.append((name, wrong, f"{name} must be {rule}"))
+    for name in inputs:
+        checks.append((name, ~np.isfinite(data[name].to_numpy(dtype=float)),
+                       f"{name} must be a finite number (an input driver)"))
+    checks.append(("firm_id", _copies(firm, year),
+                   "duplicate firm-year: firm_id and fiscal_year must be unique"))
     for _, wrong, text in checks:
         new = wrong & ~bad
         notes[new] = text
         bad |= wrong
     return bad, notes
+
+
+def _copies(firm: np.ndarray, year: np.ndarray) -> np.ndarray:
+    """Every row of a firm-year (non-blank firm, finite year) given more than once."""
+    key = pd.Series(list(zip(firm.tolist(), year.tolist(), strict=True)), dtype=object)
+    has_key = (firm != "") & np.isfinite(year)
+    return has_key & key.where(has_key).duplicated(keep=False).to_numpy()
+
+
+def _no_target(part: pd.DataFrame, drivers: tuple[str, ...]) -> np.ndarray:
+    """The note of a scored row without a target: the first driver without a value."""
+    none = part["target"].isna().to_numpy()
+    note = np.where(none, "no target, no status", "").astype(object)
+    for d in reversed(drivers):  # the first driver's note is written last
+        note[none & part[d].isna().to_numpy()] = f"no value for the driver {d}: no target, " \
+            "no status"
+    return note
 
 
 SCORE_COLUMNS = ("firm_id", "fiscal_year", "industry", "measure", "actual", "target",
