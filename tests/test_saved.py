@@ -987,3 +987,37 @@ def test_every_copy_of_a_firm_year_given_twice_is_refused(saved) -> None:
     fine = panel.head(3).assign(fiscal_year=[2001, 2002, 2003])
     fine = pd.concat([fine, fine.iloc[[0]].assign(firm_id="OTHER")], ignore_index=True)
     assert (model.score(fine)["note"] == "").all()
+
+
+# -- the last survivors of the identity rules (lead)
+
+
+def test_firm_ids_are_read_as_codes_when_copies_are_found(input_model) -> None:
+    # analyze reads the text 1001.0 as the firm 1001 (ingest.cells.text_cells, code=True):
+    # the two rows are one firm-year given twice, and both are refused
+    panel, model = input_model
+    rows = panel.head(2).reset_index(drop=True).astype({"firm_id": object})
+    rows["fiscal_year"] = rows["fiscal_year"].iloc[0]
+    rows["firm_id"] = ["1001", "1001.0"]
+    s = model.score(rows)
+    assert (s["note"] == "duplicate firm-year: firm_id and fiscal_year must be unique").all()
+    assert (s["status"] == "").all() and s["target"].isna().all()
+
+
+def test_lagged_drivers_do_not_refuse_a_blank_current_input_driver(tmp_path) -> None:
+    # with lag_drivers the value used is the year before's, so a blank in the current year
+    # is no reason to refuse the row (its target comes from the previous year's value)
+    panel = make_panel(3)
+    panel["order_backlog"] = np.random.default_rng(7).normal(size=len(panel))
+    analyze(panel, spec=ModelSpec(model="linear", measures=("book",), lag_drivers=True,
+                                  input_drivers=("order_backlog",))).write(tmp_path,
+                                                                           report=False)
+    model = levgap.load_model(tmp_path)
+    firm = panel["firm_id"].iloc[0]
+    rows = panel[panel["firm_id"] == firm].sort_values("fiscal_year").reset_index(drop=True)
+    assert len(rows) >= 2
+    last = len(rows) - 1
+    rows.loc[last, "order_backlog"] = np.nan
+    s = model.score(rows)
+    assert s.loc[last, "note"] != "order_backlog must be a finite number (an input driver)"
+    assert np.isfinite(s.loc[last, "target"]) and s.loc[last, "status"] != ""
