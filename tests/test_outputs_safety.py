@@ -372,3 +372,23 @@ def test_demo_refuses_a_foreign_folder_before_writing_anything(tmp_path):
     result = runner.invoke(app, ["demo", "--out", str(out)])
     _one_line_error(result, "levgap did not write (notes.txt)")
     assert sorted(os.listdir(out)) == ["notes.txt"]
+
+
+def test_a_users_file_named_like_a_temporary_file_is_never_removed(tmp_path, panel):
+    # found by an outside review: stray temporary files were swept by their name's shape
+    # alone; a levgap temporary name carries a tag of its random part (outputs.files)
+    from levgap.outputs.files import is_temp_name, temp_path
+
+    out = tmp_path / "out"
+    assert _analyze(panel, out).exit_code == 0  # a results folder of levgap's
+    mine = out / ".levgap-tmp-0123456789abcdef.csv"
+    mine.write_text("my numbers\n", encoding="utf-8")
+    ours = temp_path(out, ".csv")  # what a write killed half-way would leave behind
+    ours.write_text("half written", encoding="utf-8")
+    assert is_temp_name(ours.name) and not is_temp_name(mine.name)
+    refused = _analyze(panel, out)  # a file levgap did not write: named, the run refused
+    assert refused.exit_code == 2 and mine.name in refused.output
+    for _ in range(2):
+        assert _analyze(panel, out, "--force").exit_code == 0  # --force leaves it alone
+    assert mine.read_text(encoding="utf-8") == "my numbers\n"
+    assert not ours.exists()  # levgap's own stray file is cleaned up

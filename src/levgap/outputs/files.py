@@ -29,8 +29,17 @@ OWN_SUFFIXES: tuple[str, ...] = (
 
 
 def is_temp_name(name: str) -> bool:
-    """Whether ``name`` is one of levgap's temporary file names (``.levgap-tmp-<16 hex>``)."""
-    return _TEMP.match(name) is not None
+    """Whether ``name`` is one of levgap's temporary file names: ``.levgap-tmp-`` then 8 random
+    hex digits and the 8 of their tag (``_temp_tag``), so that a user's file of a lookalike
+    name (1 in 2**32 by chance) is never taken for a stray temporary file and removed."""
+    if _TEMP.match(name) is None:
+        return False
+    digits = name[len(TEMP_PREFIX) : len(TEMP_PREFIX) + 16]
+    return digits[8:] == _temp_tag(digits[:8])
+
+
+def _temp_tag(random_part: str) -> str:
+    return hashlib.sha256((TEMP_PREFIX + random_part).encode("ascii")).hexdigest()[:8]
 
 
 def is_own_name(name: str) -> bool:
@@ -133,7 +142,8 @@ def refuse_inputs(targets: Iterable[str | Path], inputs: Iterable[str | Path]) -
 
 def temp_path(folder: Path, suffix: str = "") -> Path:
     # a fresh random name rather than mkstemp, so the file gets the user's usual permissions
-    return folder / f"{TEMP_PREFIX}{secrets.token_hex(8)}{suffix[:11]}"
+    part = secrets.token_hex(4)
+    return folder / f"{TEMP_PREFIX}{part}{_temp_tag(part)}{suffix[:11]}"
 
 
 @contextlib.contextmanager
